@@ -1,0 +1,109 @@
+//! The `linbudget` command: parse arguments, call the library, map the outcome to an exit status
+//! (0 met, 1 not met, 2 bad input or a failed solve).
+
+use clap::{Parser, Subcommand};
+use linbudget::run::{check, run, RunOptions};
+use std::io::{IsTerminal, Write};
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+const RUN_EXAMPLES: &str = "Examples:
+  linbudget run specs/sensor-front-end.yaml
+  linbudget run specs/sensor-front-end.yaml --out results --json > report.json
+  linbudget run specs/vga-sizing.yaml --quiet
+
+Exit status: 0 the plan is met, 1 not met, 2 bad input or a failed solve (nothing written).";
+
+const CHECK_EXAMPLES: &str = "Examples:
+  linbudget check specs/sensor-front-end.yaml
+
+Exit status: 0 valid, 2 invalid (the message names file, line, column and key path).";
+
+/// Large-signal linearity budgets for bipolar differential input stages.
+#[derive(Parser, Debug)]
+#[command(name = "linbudget", version, about, long_about = None)]
+struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Subcommand, Debug)]
+enum Command {
+    /// Evaluate every stage, temperature, frequency and amplitude of a plan, check the budget,
+    /// size degeneration when asked, and write OUT/<plan name>/.
+    #[command(after_help = RUN_EXAMPLES)]
+    Run {
+        /// The plan (YAML).
+        plan: PathBuf,
+        /// Output folder; the report goes to OUT/<plan name>/.
+        #[arg(long, default_value = "out")]
+        out: PathBuf,
+        /// Print the JSON report on standard output (and nothing else there).
+        #[arg(long)]
+        json: bool,
+        /// No progress lines on standard error.
+        #[arg(long, short)]
+        quiet: bool,
+    },
+    /// Validate a plan only; writes nothing.
+    #[command(after_help = CHECK_EXAMPLES)]
+    Check {
+        /// The plan (YAML).
+        plan: PathBuf,
+    },
+}
+
+fn main() -> ExitCode {
+    let cli = match Cli::try_parse() {
+        Ok(cli) => cli,
+        Err(err) => {
+            let _ = err.print();
+            return if err.use_stderr() { ExitCode::from(2) } else { ExitCode::SUCCESS };
+        }
+    };
+    match cli.command {
+        Command::Check { plan } => match check(&plan) {
+            Ok(p) => {
+                eprintln!("{}: valid plan `{}` ({} stage(s))", plan.display(), p.name, p.stages.len());
+                ExitCode::SUCCESS
+            }
+            Err(err) => {
+                eprintln!("error: {err}");
+                ExitCode::from(2)
+            }
+        },
+        Command::Run { plan, out, json, quiet } => {
+            let options = RunOptions { plan, out, json, quiet };
+            let show_progress = !quiet && std::io::stderr().is_terminal();
+            let progress = move |line: &str| {
+                if show_progress {
+                    eprintln!("… {line}");
+                }
+            };
+            match run(&options, &progress) {
+                Ok(outcome) => {
+                    for warning in &outcome.report.warnings {
+                        eprintln!("warning: {warning}");
+                    }
+                    if json {
+                        let mut stdout = std::io::stdout().lock();
+                        let _ = serde_json::to_writer_pretty(&mut stdout, &outcome.report);
+                        let _ = writeln!(stdout);
+                    }
+                    eprintln!(
+                        "{}: plan `{}` {} — report in {}",
+                        options.plan.display(),
+                        outcome.report.plan,
+                        if outcome.report.met { "met" } else { "NOT met" },
+                        outcome.folder.display()
+                    );
+                    if outcome.report.met { ExitCode::SUCCESS } else { ExitCode::from(1) }
+                }
+                Err(err) => {
+                    eprintln!("error: {err}");
+                    ExitCode::from(2)
+                }
+            }
+        }
+    }
+}

@@ -1,0 +1,326 @@
+//! Typed reading of the positioned YAML tree: key paths, unknown-key checks, quantities.
+
+use super::tree::{Node, NodeValue};
+use crate::error::PlanError;
+use crate::units::{parse_quantity, Unit};
+
+/// Where a node sits in the plan: its key path plus position, for error messages.
+#[derive(Debug, Clone)]
+pub struct At<'a> {
+    /// The node itself.
+    pub node: &'a Node,
+    /// Key path such as `stages[1].load_resistance`.
+    pub path: String,
+}
+
+impl<'a> At<'a> {
+    /// The document root.
+    pub fn root(node: &'a Node) -> Self {
+        At {
+            node,
+            path: String::new(),
+        }
+    }
+
+    /// Builds an error pointing at this node.
+    pub fn error(&self, problem: impl Into<String>, accepted: impl Into<String>) -> PlanError {
+        PlanError::at(
+            self.node.line,
+            self.node.column,
+            &self.path,
+            problem,
+            accepted,
+        )
+    }
+
+    /// The child at `index` of a sequence node.
+    pub fn index(&self, index: usize, node: &'a Node) -> At<'a> {
+        At {
+            node,
+            path: format!("{}[{index}]", self.path),
+        }
+    }
+
+    /// Reads this node as a mapping with only the `allowed` keys.
+    pub fn map(&self, allowed: &[&str]) -> Result<MapAt<'a>, PlanError> {
+        let NodeValue::Map(entries) = &self.node.value else {
+            return Err(self.error(
+                format!("expected a mapping of keys, found {}", self.node.value.kind()),
+                format!("a mapping with keys: {}", allowed.join(", ")),
+            ));
+        };
+        let mut seen: Vec<&str> = Vec::new();
+        for (key, _) in entries {
+            let key_at = At {
+                node: key,
+                path: self.path.clone(),
+            };
+            let NodeValue::Text(name) = &key.value else {
+                return Err(key_at.error(
+                    format!("a key must be text, found {}", key.value.kind()),
+                    format!("one of: {}", allowed.join(", ")),
+                ));
+            };
+            let child_path = join(&self.path, name);
+            if !allowed.contains(&name.as_str()) {
+                let hint = closest(name, allowed)
+                    .map(|near| format!(" (did you mean `{near}`?)"))
+                    .unwrap_or_default();
+                return Err(PlanError::at(
+                    key.line,
+                    key.column,
+                    &child_path,
+                    format!("unknown key `{name}`{hint}"),
+                    format!("keys here: {}", allowed.join(", ")),
+                ));
+            }
+            if seen.contains(&name.as_str()) {
+                return Err(PlanError::at(
+                    key.line,
+                    key.column,
+                    &child_path,
+                    format!("key `{name}` is given twice"),
+                    "each key once",
+                ));
+            }
+            seen.push(name);
+        }
+        Ok(MapAt {
+            at: self.clone(),
+            entries,
+        })
+    }
+
+    /// Reads this node as a list (a single scalar is not accepted).
+    pub fn seq(&self, what: &str) -> Result<Vec<At<'a>>, PlanError> {
+        match &self.node.value {
+            NodeValue::Seq(items) => Ok(items
+                .iter()
+                .enumerate()
+                .map(|(i, item)| self.index(i, item))
+                .collect()),
+            other => Err(self.error(
+                format!("expected a list, found {}", other.kind()),
+                format!("a list of {what}, e.g. [a, b]"),
+            )),
+        }
+    }
+
+    /// Reads a quantity in `unit`; `.inf` is returned as infinity (callers decide if allowed).
+    pub fn quantity(&self, unit: Unit) -> Result<f64, PlanError> {
+        let value = match &self.node.value {
+            NodeValue::Integer(i) => *i as f64,
+            NodeValue::Float(f) => *f,
+            NodeValue::Text(text) => {
+                parse_quantity(text, unit).map_err(|why| self.error(why, unit.describe()))?
+            }
+            other => {
+                return Err(self.error(
+                    format!("expected a quantity, found {}", other.kind()),
+                    unit.describe(),
+                ))
+            }
+        };
+        if value.is_nan() {
+            return Err(self.error("NaN is not a value", unit.describe()));
+        }
+        Ok(value)
+    }
+
+    /// A finite quantity satisfying `check`, which names the accepted range.
+    pub fn quantity_where(
+        &self,
+        unit: Unit,
+        range: Range,
+    ) -> Result<f64, PlanError> {
+        let value = self.quantity(unit)?;
+        range.check(value).map_err(|why| {
+            self.error(
+                format!("{} {}", describe_value(value, unit), why),
+                format!("{} {}", unit.describe(), range.phrase()),
+            )
+        })?;
+        Ok(value)
+    }
+
+    /// Reads a text scalar.
+    pub fn text(&self, accepted: &str) -> Result<&'a str, PlanError> {
+        match &self.node.value {
+            NodeValue::Text(text) => Ok(text),
+            other => Err(self.error(format!("expected text, found {}", other.kind()), accepted)),
+        }
+    }
+
+    /// Reads a whole number within `min..=max`.
+    pub fn count(&self, min: u64, max: u64) -> Result<u64, PlanError> {
+        let accepted = format!("a whole number from {min} to {max}");
+        match &self.node.value {
+            NodeValue::Integer(i) if *i >= min as i128 && *i <= max as i128 => Ok(*i as u64),
+            NodeValue::Integer(i) => Err(self.error(format!("{i} is out of range"), accepted)),
+            NodeValue::Float(f) if f.fract() == 0.0 && *f >= min as f64 && *f <= max as f64 => {
+                Ok(*f as u64)
+            }
+            other => Err(self.error(
+                format!("expected a whole number, found {}", other.kind()),
+                accepted,
+            )),
+        }
+    }
+
+    /// Reads a boolean.
+    pub fn boolean(&self) -> Result<bool, PlanError> {
+        match &self.node.value {
+            NodeValue::Bool(b) => Ok(*b),
+            other => Err(self.error(
+                format!("expected true or false, found {}", other.kind()),
+                "true or false",
+            )),
+        }
+    }
+}
+
+fn describe_value(value: f64, unit: Unit) -> String {
+    if unit.symbol().is_empty() {
+        format!("{value}")
+    } else {
+        format!("{value} {}", unit.symbol())
+    }
+}
+
+/// The accepted range of a quantity.
+#[derive(Debug, Clone, Copy)]
+pub enum Range {
+    /// Finite and strictly positive.
+    Positive,
+    /// Strictly positive; `.inf` allowed (meaning ideal).
+    PositiveOrInfinite,
+    /// Finite and zero or more.
+    NonNegative,
+    /// Zero or more; `.inf` allowed.
+    NonNegativeOrInfinite,
+    /// Any finite value.
+    Finite,
+    /// Finite, strictly between the bounds.
+    Between(f64, f64),
+}
+
+impl Range {
+    fn check(self, value: f64) -> Result<(), &'static str> {
+        let ok = match self {
+            Range::Positive => value.is_finite() && value > 0.0,
+            Range::PositiveOrInfinite => value > 0.0,
+            Range::NonNegative => value.is_finite() && value >= 0.0,
+            Range::NonNegativeOrInfinite => value >= 0.0,
+            Range::Finite => value.is_finite(),
+            Range::Between(low, high) => value.is_finite() && value > low && value < high,
+        };
+        if ok {
+            Ok(())
+        } else if !value.is_finite() {
+            Err("is not finite")
+        } else {
+            Err("is out of range")
+        }
+    }
+
+    fn phrase(self) -> String {
+        match self {
+            Range::Positive => "greater than zero and finite".into(),
+            Range::PositiveOrInfinite => "greater than zero (.inf means ideal)".into(),
+            Range::NonNegative => "zero or more, finite".into(),
+            Range::NonNegativeOrInfinite => "zero or more (.inf means ideal)".into(),
+            Range::Finite => "finite".into(),
+            Range::Between(low, high) => format!("strictly between {low} and {high}"),
+        }
+    }
+}
+
+/// A mapping whose keys have been checked against the accepted set.
+pub struct MapAt<'a> {
+    at: At<'a>,
+    entries: &'a [(Node, Node)],
+}
+
+impl<'a> MapAt<'a> {
+    /// The mapping itself (for errors about a missing key).
+    pub fn at(&self) -> &At<'a> {
+        &self.at
+    }
+
+    /// The value under `key`, if present and not null.
+    pub fn get(&self, key: &str) -> Option<At<'a>> {
+        self.entries.iter().find_map(|(k, v)| match (&k.value, &v.value) {
+            (NodeValue::Text(name), value) if name == key && !matches!(value, NodeValue::Null) => {
+                Some(At {
+                    node: v,
+                    path: join(&self.at.path, key),
+                })
+            }
+            _ => None,
+        })
+    }
+
+    /// The value under `key`, or an error saying it is required.
+    pub fn required(&self, key: &str, accepted: &str) -> Result<At<'a>, PlanError> {
+        self.get(key).ok_or_else(|| {
+            PlanError::at(
+                self.at.node.line,
+                self.at.node.column,
+                &join(&self.at.path, key),
+                format!("required key `{key}` is missing"),
+                accepted,
+            )
+        })
+    }
+
+    /// An optional quantity with a default.
+    pub fn quantity_or(
+        &self,
+        key: &str,
+        unit: Unit,
+        range: Range,
+        default: f64,
+    ) -> Result<f64, PlanError> {
+        match self.get(key) {
+            Some(at) => at.quantity_where(unit, range),
+            None => Ok(default),
+        }
+    }
+
+    /// A required quantity.
+    pub fn quantity(&self, key: &str, unit: Unit, range: Range) -> Result<f64, PlanError> {
+        self.required(key, unit.describe())?.quantity_where(unit, range)
+    }
+}
+
+fn join(path: &str, key: &str) -> String {
+    if path.is_empty() {
+        key.to_owned()
+    } else {
+        format!("{path}.{key}")
+    }
+}
+
+/// The accepted name closest to a misspelt one (edit distance at most 3).
+fn closest<'b>(name: &str, allowed: &[&'b str]) -> Option<&'b str> {
+    allowed
+        .iter()
+        .map(|candidate| (edit_distance(name, candidate), *candidate))
+        .filter(|(distance, _)| *distance <= 3)
+        .min_by_key(|(distance, _)| *distance)
+        .map(|(_, candidate)| candidate)
+}
+
+fn edit_distance(a: &str, b: &str) -> usize {
+    let b_chars: Vec<char> = b.chars().collect();
+    let mut previous: Vec<usize> = (0..=b_chars.len()).collect();
+    for (i, ca) in a.chars().enumerate() {
+        let mut current = vec![i + 1];
+        for (j, cb) in b_chars.iter().enumerate() {
+            let substitution = previous[j] + usize::from(ca != *cb);
+            current.push(substitution.min(previous[j + 1] + 1).min(current[j] + 1));
+        }
+        previous = current;
+    }
+    previous[b_chars.len()]
+}

@@ -1,0 +1,295 @@
+//! The report: result structs shared by every exporter and plot.
+//!
+//! `report.json` is this structure serialised; its field names and meanings are fixed by the
+//! plan-and-report contract (see README). Extra fields are additions, never renames.
+
+pub mod csv_export;
+pub mod markdown;
+pub mod write;
+
+use serde::{Deserialize, Serialize};
+use std::collections::BTreeMap;
+
+/// Caution carried by every report.
+pub const CAUTION: &str = "These figures are model predictions. Confirm them against measured silicon and the foundry's device models, following your local qualification practice, before committing a design or a datasheet limit.";
+
+/// The whole result of a plan.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+pub struct Report {
+    /// Plan name.
+    pub plan: String,
+    /// Single-tone (and two-tone) results per stage, temperature, frequency and amplitude.
+    pub points: Vec<PointRecord>,
+    /// Intercepts, compression and small-signal figures per stage, temperature and frequency.
+    pub intercepts: Vec<InterceptRecord>,
+    /// Monte Carlo distributions per drive point and metric.
+    pub monte_carlo: Vec<MonteCarloRecord>,
+    /// Monte Carlo yield against the budget per stage and temperature.
+    #[serde(rename = "yield")]
+    pub yield_: Vec<YieldRecord>,
+    /// Budget verdict per stage, temperature and line.
+    pub budget: Vec<BudgetRecord>,
+    /// Degeneration sizing per stage and temperature.
+    pub sizing: Vec<SizingRecord>,
+    /// Per-stage, per-temperature operating point and transfer figures.
+    pub stages: Vec<StageRecord>,
+    /// Analysis settings that qualify every figure.
+    pub analysis: AnalysisRecord,
+    /// Warnings raised while evaluating (also printed on standard error).
+    pub warnings: Vec<String>,
+    /// Whether the plan is met (see the exit-status rules).
+    pub met: bool,
+    /// Caution to confirm against silicon.
+    pub caution: String,
+}
+
+/// How the figures were obtained.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+pub struct AnalysisRecord {
+    /// Harmonics below this level are reported as null, dBc.
+    pub analysis_floor_dbc: f64,
+    /// THD sums harmonics 2 through this order.
+    pub thd_harmonics: usize,
+    /// Largest change of any figure accepted as converged when the sample count doubles, dB.
+    pub convergence_db: f64,
+    /// Fraction of the tail current defining the steering range.
+    pub steering_fraction: f64,
+    /// Tool version.
+    pub version: String,
+}
+
+/// One drive point.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+pub struct PointRecord {
+    /// Stage name.
+    pub stage: String,
+    /// Temperature, °C.
+    pub temperature_c: f64,
+    /// Signal frequency, Hz.
+    pub frequency_hz: f64,
+    /// Peak differential input per tone, V.
+    pub amplitude_v: f64,
+    /// Peak differential output fundamental, V.
+    pub fundamental_v: f64,
+    /// 20·log10(fundamental_v / amplitude_v), dB.
+    pub gain_db: f64,
+    /// hd2_dbc … hdN_dbc: harmonics of the differential output, dBc (null below the floor).
+    #[serde(flatten)]
+    pub harmonics: BTreeMap<String, Option<f64>>,
+    /// THD over harmonics 2 through thd_harmonics, dBc.
+    pub thd_dbc: Option<f64>,
+    /// Larger third-order product relative to one tone's output, dBc (two-tone plans only).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub im3_dbc: Option<Option<f64>>,
+    /// Larger second-order product (f2−f1 or f1+f2) relative to one tone, dBc (two-tone only).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub im2_dbc: Option<Option<f64>>,
+    /// Intercept extrapolated from this point alone: A·10^(−IM3/40), V (two-tone only).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub iip3_effective_v: Option<Option<f64>>,
+    /// Peak fundamental of the P-side collector voltage, V.
+    pub single_ended_fundamental_v: f64,
+    /// HD2 of the P-side collector voltage, dBc.
+    pub single_ended_hd2_dbc: Option<f64>,
+    /// HD3 of the P-side collector voltage, dBc.
+    pub single_ended_hd3_dbc: Option<f64>,
+    /// Samples per period used (converged).
+    pub samples: usize,
+    /// Whether both transistors stay forward-active over the whole period.
+    pub forward_active: bool,
+    /// Largest base-collector voltage over the period, V.
+    pub max_base_collector_v: f64,
+    /// Smallest collector current over the period relative to the tail current.
+    pub min_current_fraction: f64,
+}
+
+impl PointRecord {
+    /// Harmonic `order` in dBc, if reported and above the floor.
+    pub fn harmonic(&self, order: usize) -> Option<f64> {
+        self.harmonics.get(&format!("hd{order}_dbc")).copied().flatten()
+    }
+}
+
+/// Intercepts and small-signal figures of one stage, temperature and frequency.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+pub struct InterceptRecord {
+    /// Stage name.
+    pub stage: String,
+    /// Temperature, °C.
+    pub temperature_c: f64,
+    /// Frequency, Hz.
+    pub frequency_hz: f64,
+    /// Input third-order intercept, peak V per tone (null if IM3 vanishes).
+    pub iip3_v: Option<f64>,
+    /// Output third-order intercept, peak V per tone.
+    pub oip3_v: Option<f64>,
+    /// Input 1 dB compression point, peak V.
+    pub p1db_v: Option<f64>,
+    /// Input at which one side carries 95 % of the tail current, V.
+    pub steering_range_v: f64,
+    /// White input-referred differential noise density, V/√Hz.
+    pub input_noise_v_rthz: f64,
+    /// Small-signal differential gain, dB.
+    pub small_signal_gain_db: f64,
+    /// Input IIP3 in dBV (peak).
+    pub iip3_dbv: Option<f64>,
+    /// Input IIP3 in dBm into the plan's reference impedance, if given.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub iip3_dbm: Option<f64>,
+    /// Amplitude per tone where IIP3 was extrapolated, V.
+    pub iip3_fit_amplitude_v: Option<f64>,
+    /// IM3 slope observed at the fit amplitude (3 in a clean small-signal region).
+    pub im3_slope: Option<f64>,
+    /// Input second-order intercept, peak V per tone (null for a perfectly matched pair).
+    pub iip2_v: Option<f64>,
+}
+
+/// Operating point and transfer figures of one stage at one temperature.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+pub struct StageRecord {
+    /// Stage name.
+    pub stage: String,
+    /// Temperature, °C.
+    pub temperature_c: f64,
+    /// Thermal voltage φT, V.
+    pub thermal_voltage_v: f64,
+    /// Small-signal differential gain, V/V.
+    pub small_signal_gain: f64,
+    /// Small-signal differential transconductance at zero input, S.
+    pub transconductance_s: f64,
+    /// Differential input that balances the collector currents, V (mismatch offset).
+    pub input_offset_v: f64,
+    /// Input where the P side carries 5 % of the tail current, V.
+    pub steering_low_v: f64,
+    /// Input where the P side carries 95 % of the tail current, V.
+    pub steering_high_v: f64,
+    /// Rule-of-thumb steering range 3φT + 0.9·I_tail·R_E, V, for comparison.
+    pub steering_rule_of_thumb_v: f64,
+    /// Collector currents at zero input, A.
+    pub collector_currents_a: [f64; 2],
+    /// Collector voltages at zero input, V.
+    pub collector_voltages_v: [f64; 2],
+    /// Tail-node voltage at zero input, V.
+    pub tail_voltage_v: f64,
+    /// Transfer curve samples.
+    pub transfer: Vec<TransferRecord>,
+}
+
+/// One sample of the transfer curve.
+#[derive(Debug, Clone, Copy, Serialize, Deserialize, PartialEq)]
+pub struct TransferRecord {
+    /// Differential input, V.
+    pub input_v: f64,
+    /// (I_CP − I_CM)/I_tail.
+    pub normalised_current: f64,
+    /// Incremental transconductance, S.
+    pub transconductance_s: f64,
+    /// Differential output voltage, V.
+    pub output_v: f64,
+}
+
+/// Distribution of one metric over the Monte Carlo runs.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+pub struct MonteCarloRecord {
+    /// Stage name.
+    pub stage: String,
+    /// Temperature, °C.
+    pub temperature_c: f64,
+    /// Frequency, Hz.
+    pub frequency_hz: f64,
+    /// Amplitude, V.
+    pub amplitude_v: f64,
+    /// Metric name.
+    pub metric: String,
+    /// Number of runs.
+    pub runs: u64,
+    /// Median.
+    pub median: Option<f64>,
+    /// 5th percentile.
+    pub p05: Option<f64>,
+    /// 95th percentile.
+    pub p95: Option<f64>,
+}
+
+/// Monte Carlo yield against the budget.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+pub struct YieldRecord {
+    /// Stage name.
+    pub stage: String,
+    /// Temperature, °C.
+    pub temperature_c: f64,
+    /// Number of runs.
+    pub runs: u64,
+    /// Fraction of runs meeting every budget line.
+    pub pass_fraction: f64,
+}
+
+/// One budget line checked for one stage and temperature.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+pub struct BudgetRecord {
+    /// Stage name.
+    pub stage: String,
+    /// Temperature, °C.
+    pub temperature_c: f64,
+    /// Metric name.
+    pub metric: String,
+    /// Input amplitude the line applies at, V (amplitude-dependent metrics).
+    pub at_v: Option<f64>,
+    /// Frequency the line applies at, Hz.
+    pub frequency_hz: f64,
+    /// The limit (dB, or V for intercepts and ranges).
+    pub limit: f64,
+    /// `max` or `min`.
+    pub kind: String,
+    /// The measured value (null: below the analysis floor, or unbounded).
+    pub value: Option<f64>,
+    /// Margin in dB, positive when the line passes.
+    pub margin: Option<f64>,
+    /// Whether the line passes.
+    pub pass: bool,
+    /// Unit of `limit` and `value`.
+    pub unit: String,
+}
+
+/// Sizing result for one stage and temperature.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+pub struct SizingRecord {
+    /// Stage name.
+    pub stage: String,
+    /// Temperature, °C.
+    pub temperature_c: f64,
+    /// Least emitter resistance meeting every line (or the best found), Ω.
+    pub emitter_resistance_ohm: Option<f64>,
+    /// The line with the least margin at the chosen value (or the one that cannot be met).
+    pub binding_metric: String,
+    /// Whether a value meeting every line was found.
+    pub met: bool,
+    /// Best worst-line margin reached anywhere in the range, dB.
+    pub best_margin: f64,
+    /// Small-signal gain at the chosen value, dB.
+    pub gain_db: Option<f64>,
+    /// Gain cost relative to the range's lower end, dB.
+    pub gain_cost_db: Option<f64>,
+    /// Steering range at the chosen value, V.
+    pub steering_range_v: Option<f64>,
+    /// Load resistance used at the chosen value, Ω (differs from the plan with hold_gain).
+    pub load_resistance_ohm: Option<f64>,
+    /// Whether headroom, not distortion, decided the result (hold_gain only).
+    pub headroom_binds: bool,
+    /// Scan of the worst margin and gain versus emitter resistance.
+    pub scan: Vec<SizingScanRecord>,
+}
+
+/// One scanned emitter resistance.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+pub struct SizingScanRecord {
+    /// Emitter resistance, Ω.
+    pub emitter_resistance_ohm: f64,
+    /// Margin of each budget line (in plan order), dB.
+    pub margins: Vec<Option<f64>>,
+    /// Small-signal gain, dB.
+    pub gain_db: f64,
+    /// Headroom margin (collector-base), V (hold_gain only).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub headroom_v: Option<f64>,
+}

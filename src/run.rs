@@ -1,0 +1,72 @@
+//! The commands as library calls: `run` evaluates a plan and writes its folder, `check`
+//! validates only. The binary only parses arguments and maps the outcome to an exit status.
+
+use crate::analysis;
+use crate::error::Error;
+use crate::plan::Plan;
+use crate::report::write::{check_output_dir, write_report_folder, OutputFile};
+use crate::report::{csv_export, markdown, Report};
+use std::path::{Path, PathBuf};
+
+/// Options of `linbudget run`.
+#[derive(Debug, Clone)]
+pub struct RunOptions {
+    /// The plan file.
+    pub plan: PathBuf,
+    /// Output folder (the report goes to `out/<plan name>/`).
+    pub out: PathBuf,
+    /// Print the JSON report on standard output.
+    pub json: bool,
+    /// No progress lines on standard error.
+    pub quiet: bool,
+}
+
+/// What a run produced.
+#[derive(Debug)]
+pub struct RunOutcome {
+    /// The report.
+    pub report: Report,
+    /// Where it was written.
+    pub folder: PathBuf,
+}
+
+/// Renders every file of the report folder from the report structs.
+pub fn render_files(report: &Report) -> Result<Vec<OutputFile>, Error> {
+    let json = serde_json::to_vec_pretty(report).map_err(|e| Error::Output {
+        path: "report.json".into(),
+        reason: e.to_string(),
+    })?;
+    let csv = csv_export::points_csv(report).map_err(|e| Error::Output {
+        path: "points.csv".into(),
+        reason: e.to_string(),
+    })?;
+    Ok(vec![
+        OutputFile {
+            name: "report.json".into(),
+            bytes: json,
+        },
+        OutputFile {
+            name: "points.csv".into(),
+            bytes: csv,
+        },
+        OutputFile {
+            name: "summary.md".into(),
+            bytes: markdown::summary(report).into_bytes(),
+        },
+    ])
+}
+
+/// Validates a plan file.
+pub fn check(plan: &Path) -> Result<Plan, Error> {
+    Plan::load(plan)
+}
+
+/// Evaluates a plan and writes its report folder; nothing is written when anything fails.
+pub fn run(options: &RunOptions, progress: &(dyn Fn(&str) + Sync)) -> Result<RunOutcome, Error> {
+    let plan = Plan::load(&options.plan)?;
+    check_output_dir(&options.out)?;
+    let report = analysis::evaluate(&plan, progress)?;
+    let files = render_files(&report)?;
+    let folder = write_report_folder(&options.out, &plan.name, &files)?;
+    Ok(RunOutcome { report, folder })
+}
