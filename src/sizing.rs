@@ -36,31 +36,26 @@ impl Trial {
     fn all_pass(&self) -> bool {
         self.passes.iter().all(|p| *p) && self.headroom_v.is_none_or(|h| h >= 0.0)
     }
+}
 
-    /// Worst margin over the lines (and headroom, in dB of 1 V for ranking only).
-    fn worst(&self, plan: &Plan) -> (f64, String) {
-        let mut worst = (f64::INFINITY, String::from("none"));
-        for (line, (margin, pass)) in plan
-            .budget
-            .iter()
-            .zip(self.margins.iter().zip(&self.passes))
-        {
-            let m = margin.unwrap_or(if *pass {
-                f64::INFINITY
-            } else {
-                f64::NEG_INFINITY
-            });
-            if m < worst.0 {
-                worst = (m, line.metric.name());
-            }
+/// Worst budget-line margin of a trial (dB) and the line it belongs to.
+fn distortion_worst(plan: &Plan, trial: &Trial) -> (f64, String) {
+    let mut worst = (f64::INFINITY, String::from("none"));
+    for (line, (margin, pass)) in plan
+        .budget
+        .iter()
+        .zip(trial.margins.iter().zip(&trial.passes))
+    {
+        let m = margin.unwrap_or(if *pass {
+            f64::INFINITY
+        } else {
+            f64::NEG_INFINITY
+        });
+        if m < worst.0 {
+            worst = (m, line.metric.name());
         }
-        if let Some(h) = self.headroom_v {
-            if h < 0.0 && worst.0 >= 0.0 {
-                worst = (h, "headroom".into());
-            }
-        }
-        worst
     }
+    worst
 }
 
 fn trial(
@@ -187,7 +182,7 @@ pub fn size_stage(
         .collect();
     let record = match chosen {
         Some(t) => {
-            let (worst, binding) = t.worst(plan);
+            let (worst, binding) = distortion_worst(plan, &t);
             let headroom_binds = t.headroom_v.is_some_and(|h| {
                 let distortion_worst = t
                     .margins
@@ -213,23 +208,47 @@ pub fn size_stage(
                 steering_range_v: Some(t.steering_range_v),
                 load_resistance_ohm: Some(t.load_resistance),
                 headroom_binds,
+                best_headroom_v: t.headroom_v,
                 scan: scan_records,
             }
         }
         None => {
-            let best = scan
+            // Distortion alone may be meetable while headroom fails everywhere (hold_gain).
+            let distortion_ok: Vec<&Trial> = scan
                 .iter()
-                .max_by(|a, b| a.worst(plan).0.total_cmp(&b.worst(plan).0))
-                .cloned()
-                .unwrap_or_else(|| scan[0].clone());
-            let (worst, binding) = best.worst(plan);
-            let headroom_binds =
-                best.headroom_v.is_some_and(|h| h < 0.0) && best.passes.iter().all(|p| *p);
+                .filter(|t| t.passes.iter().all(|p| *p))
+                .collect();
+            let headroom_binds = !distortion_ok.is_empty();
+            let best = if headroom_binds {
+                distortion_ok
+                    .iter()
+                    .max_by(|a, b| {
+                        a.headroom_v
+                            .unwrap_or(f64::NEG_INFINITY)
+                            .total_cmp(&b.headroom_v.unwrap_or(f64::NEG_INFINITY))
+                    })
+                    .map(|t| (*t).clone())
+                    .unwrap_or_else(|| scan[0].clone())
+            } else {
+                scan.iter()
+                    .max_by(|a, b| {
+                        distortion_worst(plan, a)
+                            .0
+                            .total_cmp(&distortion_worst(plan, b).0)
+                    })
+                    .cloned()
+                    .unwrap_or_else(|| scan[0].clone())
+            };
+            let (worst, binding) = distortion_worst(plan, &best);
             SizingRecord {
                 stage: stage.name.clone(),
                 temperature_c,
                 emitter_resistance_ohm: Some(best.emitter_resistance),
-                binding_metric: binding,
+                binding_metric: if headroom_binds {
+                    "headroom".into()
+                } else {
+                    binding
+                },
                 met: false,
                 best_margin: worst,
                 gain_db: Some(best.gain_db),
@@ -237,6 +256,7 @@ pub fn size_stage(
                 steering_range_v: Some(best.steering_range_v),
                 load_resistance_ohm: Some(best.load_resistance),
                 headroom_binds,
+                best_headroom_v: best.headroom_v,
                 scan: scan_records,
             }
         }

@@ -279,6 +279,9 @@ pub struct SizingRecord {
     pub load_resistance_ohm: Option<f64>,
     /// Whether headroom, not distortion, decided the result (hold_gain only).
     pub headroom_binds: bool,
+    /// Collector-base headroom at the chosen value, V (hold_gain only; negative = saturates).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub best_headroom_v: Option<f64>,
     /// Scan of the worst margin and gain versus emitter resistance.
     pub scan: Vec<SizingScanRecord>,
 }
