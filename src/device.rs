@@ -70,14 +70,23 @@ mod tests {
     }
 
     #[test]
-    fn vbe_temperature_coefficient_is_about_minus_two_millivolts_per_kelvin() {
-        // Common practice: V_BE at constant collector current falls by roughly 1.5 to 2.2 mV/K.
+    fn vbe_temperature_coefficient_follows_the_bandgap_formula() {
+        // At constant collector current dV_BE/dT = (V_BE − E_g − XTI·φT)/T, the usual
+        // derivative of the exponential law with I_S ∝ T^XTI·exp(−qE_g/kT) (e.g. Gray & Meyer's
+        // band-gap reference chapter, from memory); roughly −1.5 to −2 mV/K (common practice).
         let spec = TransistorSpec::default();
         let current = 0.5e-3;
         let vbe = |t: f64| {
             crate::units::thermal_voltage(t) * (current / saturation_current_at(&spec, t)).ln()
         };
-        let slope = (vbe(37.0) - vbe(17.0)) / 20.0;
-        assert!(slope < -1.5e-3 && slope > -2.2e-3, "dV_BE/dT = {slope}");
+        let slope = (vbe(27.01) - vbe(26.99)) / 0.02;
+        let phi = crate::units::thermal_voltage(27.0);
+        let expected =
+            (vbe(27.0) - spec.bandgap_ev - spec.saturation_current_exponent * phi) / 300.15;
+        assert!(
+            (slope / expected - 1.0).abs() < 1e-4,
+            "{slope} vs {expected}"
+        );
+        assert!(slope < -1.0e-3 && slope > -2.5e-3, "dV_BE/dT = {slope}");
     }
 }
