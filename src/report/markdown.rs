@@ -6,11 +6,15 @@ use crate::units::format_si;
 use std::fmt::Write;
 
 fn db(value: Option<f64>) -> String {
-    value.map(|v| format!("{v:.2}")).unwrap_or_else(|| "—".into())
+    value
+        .map(|v| format!("{v:.2}"))
+        .unwrap_or_else(|| "—".into())
 }
 
 fn volts(value: Option<f64>) -> String {
-    value.map(|v| format_si(v, "V")).unwrap_or_else(|| "—".into())
+    value
+        .map(|v| format_si(v, "V"))
+        .unwrap_or_else(|| "—".into())
 }
 
 /// Renders the summary tables as Markdown.
@@ -53,7 +57,10 @@ pub fn summary(report: &Report) -> String {
     for name in stage_names {
         let _ = writeln!(out, "## Stage `{name}`\n");
         let _ = writeln!(out, "| T (°C) | f (Hz) | amplitude | fundamental | gain (dB) | HD2 | HD3 | HD5 | THD | IM3 | in forward-active |");
-        let _ = writeln!(out, "|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---|");
+        let _ = writeln!(
+            out,
+            "|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---|"
+        );
         for p in report.points.iter().filter(|p| p.stage == name) {
             let _ = writeln!(
                 out,
@@ -91,7 +98,10 @@ pub fn summary(report: &Report) -> String {
         let _ = writeln!(out);
         let lines: Vec<_> = report.budget.iter().filter(|b| b.stage == name).collect();
         if !lines.is_empty() {
-            let _ = writeln!(out, "| T (°C) | metric | at | limit | value | margin (dB) | verdict |");
+            let _ = writeln!(
+                out,
+                "| T (°C) | metric | at | limit | value | margin (dB) | verdict |"
+            );
             let _ = writeln!(out, "|---:|---|---:|---:|---:|---:|---|");
             for b in lines {
                 let _ = writeln!(
@@ -103,7 +113,9 @@ pub fn summary(report: &Report) -> String {
                     b.kind,
                     b.limit,
                     b.unit,
-                    b.value.map(|v| format!("{v:.4}")).unwrap_or_else(|| "—".into()),
+                    b.value
+                        .map(|v| format!("{v:.4}"))
+                        .unwrap_or_else(|| "—".into()),
                     db(b.margin),
                     if b.pass { "pass" } else { "**FAIL**" }
                 );
@@ -127,6 +139,7 @@ pub fn summary(report: &Report) -> String {
             );
         }
     }
+    population_sections(report, &mut out);
     if !report.warnings.is_empty() {
         let _ = writeln!(out, "## Warnings\n");
         for w in &report.warnings {
@@ -134,7 +147,12 @@ pub fn summary(report: &Report) -> String {
         }
         let _ = writeln!(out);
     }
-    let _ = writeln!(out, "Plan {}: **{}**", report.plan, if report.met { "met" } else { "not met" });
+    let _ = writeln!(
+        out,
+        "Plan {}: **{}**",
+        report.plan,
+        if report.met { "met" } else { "not met" }
+    );
     out
 }
 
@@ -150,5 +168,95 @@ fn verdict_of(report: &Report, stage: &str, temperature_c: f64) -> &'static str 
         "pass"
     } else {
         "FAIL"
+    }
+}
+
+fn figure(value: Option<f64>, unit: &str) -> String {
+    match (value, unit) {
+        (None, _) => "—".into(),
+        (Some(v), "dBc" | "dB") => format!("{v:.2}"),
+        (Some(v), "V/√Hz") => format!("{:.3} nV/√Hz", v * 1e9),
+        (Some(v), u) => format_si(v, u),
+    }
+}
+
+/// Corner spread, Monte Carlo distributions, yield and the noise-versus-distortion sizing gap.
+fn population_sections(report: &Report, out: &mut String) {
+    if !report.corner_spread.is_empty() {
+        let _ = writeln!(out, "## Process corners (typical, minimum, maximum)\n");
+        let _ = writeln!(
+            out,
+            "| stage | T (°C) | figure | at | typical | min (corner) | max (corner) |"
+        );
+        let _ = writeln!(out, "|---|---:|---|---:|---:|---:|---:|");
+        for r in &report.corner_spread {
+            let _ = writeln!(
+                out,
+                "| {} | {} | {} | {} | {} | {} ({}) | {} ({}) |",
+                r.stage,
+                r.temperature_c,
+                r.metric,
+                volts(r.at_v),
+                figure(r.typical, &r.unit),
+                figure(r.min, &r.unit),
+                r.min_corner,
+                figure(r.max, &r.unit),
+                r.max_corner
+            );
+        }
+        let _ = writeln!(out);
+    }
+    if !report.monte_carlo.is_empty() {
+        let _ = writeln!(out, "## Monte Carlo mismatch\n");
+        let _ = writeln!(
+            out,
+            "| stage | T (°C) | f (Hz) | amplitude | metric | runs | p05 | median | p95 |"
+        );
+        let _ = writeln!(out, "|---|---:|---:|---:|---|---:|---:|---:|---:|");
+        for r in &report.monte_carlo {
+            let _ = writeln!(
+                out,
+                "| {} | {} | {} | {} | {} | {} | {} | {} | {} |",
+                r.stage,
+                r.temperature_c,
+                r.frequency_hz,
+                format_si(r.amplitude_v, "V"),
+                r.metric,
+                r.runs,
+                figure(r.p05, &r.unit),
+                figure(r.median, &r.unit),
+                figure(r.p95, &r.unit)
+            );
+        }
+        let _ = writeln!(out);
+        for y in &report.yield_ {
+            let _ = writeln!(
+                out,
+                "Yield of `{}` at {} °C ({} corner): {:.1} % of {} runs meet every budget line ({}: {:.1} % to {:.1} %).\n",
+                y.stage,
+                y.temperature_c,
+                y.corner,
+                100.0 * y.pass_fraction,
+                y.runs,
+                y.interval,
+                100.0 * y.pass_fraction_low,
+                100.0 * y.pass_fraction_high
+            );
+        }
+    }
+    for s in report
+        .sizing
+        .iter()
+        .filter(|s| s.conflict_gap_ohm.is_some())
+    {
+        let _ = writeln!(
+            out,
+            "Sizing of `{}` at {} °C: distortion needs R_E ≥ {} but noise allows at most {}; no value meets both (gap {}).\n",
+            s.stage,
+            s.temperature_c,
+            s.distortion_least_emitter_resistance_ohm.map(|r| format_si(r, "Ω")).unwrap_or_default(),
+            s.noise_greatest_emitter_resistance_ohm.map(|r| format_si(r, "Ω")).unwrap_or_default(),
+            s.conflict_gap_ohm.map(|r| format_si(r, "Ω")).unwrap_or_default()
+        );
     }
 }
