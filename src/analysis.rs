@@ -65,6 +65,17 @@ pub fn attribute(spec: &StageSpec, temperature_c: f64) -> impl Fn(SolveFailure) 
 /// Evaluates the plan and returns the full report. `progress` receives short status lines.
 pub fn evaluate(plan: &Plan, progress: &(dyn Fn(&str) + Sync)) -> Result<Report, Error> {
     let context = Context::default();
+    // Every stage × temperature × process corner, in report order.
+    let cases: Vec<(usize, f64, usize)> = plan
+        .stages
+        .iter()
+        .enumerate()
+        .flat_map(|(i, _)| {
+            plan.temperatures_c
+                .iter()
+                .flat_map(move |t| (0..plan.corners.len()).map(move |k| (i, *t, k)))
+        })
+        .collect();
     let corners: Vec<(usize, f64)> = plan
         .stages
         .iter()
@@ -73,18 +84,46 @@ pub fn evaluate(plan: &Plan, progress: &(dyn Fn(&str) + Sync)) -> Result<Report,
         .collect();
 
     progress(&format!(
-        "evaluating {} stage(s) × {} temperature(s) × {} frequency(ies) × {} amplitude(s)",
+        "evaluating {} stage(s) × {} temperature(s) × {} corner(s) × {} frequency(ies) × {} amplitude(s)",
         plan.stages.len(),
         plan.temperatures_c.len(),
+        plan.corners.len(),
         plan.drive.frequencies.len(),
         plan.drive.amplitudes.len()
     ));
-    let per_corner: Vec<CornerResult> = corners
+    let per_corner: Vec<CornerResult> = cases
         .par_iter()
-        .map(|(index, temperature)| {
-            evaluate_corner(plan, &plan.stages[*index], *temperature, &context)
+        .map(|(index, temperature, corner)| {
+            let process = &plan.corners[*corner];
+            let spec = process.apply(&plan.stages[*index]);
+            let mut result = evaluate_corner(plan, &spec, *temperature, &context)?;
+            result.label(&process.name);
+            Ok(result)
         })
         .collect::<Result<Vec<_>, Error>>()?;
+    let corner_spread = if plan.corners.len() > 1 {
+        per_corner
+            .chunks(plan.corners.len())
+            .flat_map(|group| {
+                let views: Vec<crate::corner::CornerView> = group
+                    .iter()
+                    .map(|r| crate::corner::CornerView {
+                        corner: &r.stage.corner,
+                        budget: &r.budget,
+                        intercepts: &r.intercepts,
+                    })
+                    .collect();
+                crate::corner::spread(
+                    plan,
+                    &group[0].stage.stage,
+                    group[0].stage.temperature_c,
+                    &views,
+                )
+            })
+            .collect()
+    } else {
+        Vec::new()
+    };
 
     let mut report = Report {
         plan: plan.name.clone(),
@@ -94,6 +133,7 @@ pub fn evaluate(plan: &Plan, progress: &(dyn Fn(&str) + Sync)) -> Result<Report,
         yield_: Vec::new(),
         budget: Vec::new(),
         sizing: Vec::new(),
+        corner_spread,
         stages: Vec::new(),
         analysis: AnalysisRecord {
             analysis_floor_dbc: ANALYSIS_FLOOR_DBC,
@@ -112,6 +152,16 @@ pub fn evaluate(plan: &Plan, progress: &(dyn Fn(&str) + Sync)) -> Result<Report,
         report.stages.push(corner.stage);
         report.budget.extend(corner.budget);
         report.warnings.extend(corner.warnings);
+    }
+
+    if let Some(spec) = &plan.monte_carlo {
+        progress(&format!(
+            "Monte Carlo: {} run(s) per stage and temperature",
+            spec.runs
+        ));
+        let (distributions, yields) = crate::montecarlo::evaluate(plan, spec, &context)?;
+        report.monte_carlo = distributions;
+        report.yield_ = yields;
     }
 
     if let Some(spec) = &plan.sizing {
@@ -138,6 +188,27 @@ struct CornerResult {
     stage: StageRecord,
     budget: Vec<BudgetRecord>,
     warnings: Vec<String>,
+}
+
+impl CornerResult {
+    /// Names the process corner on every record (and in warnings when not typical).
+    fn label(&mut self, corner: &str) {
+        self.points
+            .iter_mut()
+            .for_each(|r| r.corner = corner.to_owned());
+        self.intercepts
+            .iter_mut()
+            .for_each(|r| r.corner = corner.to_owned());
+        self.budget
+            .iter_mut()
+            .for_each(|r| r.corner = corner.to_owned());
+        self.stage.corner = corner.to_owned();
+        if corner != crate::corner::TYPICAL {
+            self.warnings
+                .iter_mut()
+                .for_each(|w| *w = format!("[{corner} corner] {w}"));
+        }
+    }
 }
 
 fn evaluate_corner(
@@ -204,6 +275,25 @@ fn evaluate_corner(
     let noise = figures.noise().map_err(&fail)?;
     let solver = engine.static_solver();
     let circuit = solver.circuit();
+    let noise_figures =
+        crate::noise::NoiseFigures::measure(solver, &spec.transistor).map_err(&fail)?;
+    let band_noise = plan
+        .noise_band
+        .map(|band| noise_figures.integrated_v(&band));
+    let mut points = points;
+    for point in &mut points {
+        let spurs = point
+            .harmonics
+            .values()
+            .copied()
+            .chain([point.im3_dbc.flatten(), point.im2_dbc.flatten()]);
+        point.sfdr_dbc = crate::noise::sfdr_dbc(spurs);
+        if let Some(noise_rms) = band_noise {
+            let snr = crate::noise::snr_db(point.amplitude_v, noise_rms);
+            point.snr_db = Some(snr);
+            point.dynamic_range_db = Some(crate::noise::dynamic_range_db(snr, point.sfdr_dbc));
+        }
+    }
 
     let mut intercepts = Vec::new();
     for &frequency in &plan.drive.frequencies {
@@ -249,6 +339,14 @@ fn evaluate_corner(
             iip3_fit_amplitude_v: intercept.map(|i| i.fit_amplitude_v),
             im3_slope: intercept.map(|i| i.im3_slope),
             iip2_v: intercept.and_then(|i| i.iip2_v),
+            corner: String::new(),
+            noise_band_hz: plan.noise_band.map(|b| [b.from, b.to]),
+            integrated_noise_v: band_noise,
+            flicker_corner_hz: noise_figures.corner_hz(),
+            spurious_free_dynamic_range_db: match (iip3, band_noise) {
+                (Some(v), Some(n)) => Some(crate::noise::third_order_sfdr_db(v, n)),
+                _ => None,
+            },
         });
     }
 
@@ -275,11 +373,13 @@ fn evaluate_corner(
         steering_low_v: steer_low,
         steering_high_v: steer_high,
         steering_rule_of_thumb_v: 3.0 * circuit.thermal_voltage
-            + 0.9 * spec.tail_current * spec.emitter_resistance,
+            + 0.9 * circuit.tail_current * spec.emitter_resistance,
         collector_currents_a: [zero.p.collector_current, zero.m.collector_current],
         collector_voltages_v: [zero.p.collector_voltage, zero.m.collector_voltage],
         tail_voltage_v: zero.tail_voltage,
         transfer,
+        corner: String::new(),
+        tail_current_a: circuit.tail_current,
     };
 
     let mut budget = Vec::new();
@@ -304,6 +404,7 @@ fn evaluate_corner(
             margin,
             pass,
             unit: line.metric.unit_label().into(),
+            corner: String::new(),
         });
     }
 
@@ -317,7 +418,7 @@ fn evaluate_corner(
 }
 
 /// The differential input at which the two collector currents are equal, V.
-fn offset_voltage(solver: &crate::transfer::StaticSolver) -> Result<f64, SolveFailure> {
+pub fn offset_voltage(solver: &crate::transfer::StaticSolver) -> Result<f64, SolveFailure> {
     let c = solver.circuit();
     let balance = |v: f64| -> f64 {
         solver
@@ -415,5 +516,9 @@ pub fn point_record(
         forward_active: region.warnings().is_empty(),
         max_base_collector_v: region.max_base_collector_v,
         min_current_fraction: region.min_current_fraction,
+        corner: crate::corner::TYPICAL.into(),
+        snr_db: None,
+        sfdr_dbc: None,
+        dynamic_range_db: None,
     })
 }

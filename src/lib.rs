@@ -12,10 +12,13 @@
 
 pub mod analysis;
 pub mod budget;
+pub mod corner;
 pub mod device;
 pub mod engine;
 pub mod error;
 pub mod metrics;
+pub mod montecarlo;
+pub mod noise;
 pub mod plan;
 pub mod report;
 pub mod roots;
@@ -23,6 +26,7 @@ pub mod run;
 pub mod sizing;
 pub mod spectrum;
 pub mod stage;
+pub mod tail;
 pub mod transfer;
 pub mod units;
 

@@ -189,7 +189,9 @@ pub fn two_tone(
     })
 }
 
-fn two_tone_grid(
+/// One two-tone analysis on a fixed `n×n` grid of the two phases (no convergence loop: the
+/// caller takes `n` from a converged [`two_tone`] of a neighbouring circuit).
+pub fn two_tone_grid(
     solver: &StaticSolver,
     cache: &FftCache,
     amplitude_v: f64,

@@ -6,11 +6,16 @@
 //! within 0.1 % of R_E. With `hold_gain`, the load is rescaled at each R_E so the small-signal
 //! gain stays that of the stage as planned, and collector-base headroom at the largest budget
 //! amplitude becomes a further constraint.
+//!
+//! With process corners every trial is evaluated in every corner and each line keeps its
+//! worst margin, so the chosen R_E meets the budget in all corners. When noise lines and
+//! distortion lines cannot be met together, the record gives the least scanned R_E meeting
+//! the distortion lines, the greatest meeting the noise lines, and the gap between them.
 
 use crate::analysis::{attribute, build_engine, Context};
 use crate::budget::{judge, line_amplitude, line_frequency, Figures};
 use crate::error::Error;
-use crate::plan::{Plan, SizingSpec, StageSpec};
+use crate::plan::{Metric, Plan, SizingSpec, StageSpec};
 use crate::report::{SizingRecord, SizingScanRecord};
 use crate::spectrum::ANALYSIS_FLOOR_DBC;
 use rayon::prelude::*;
@@ -27,6 +32,7 @@ struct Trial {
     load_resistance: f64,
     margins: Vec<Option<f64>>,
     passes: Vec<bool>,
+    corners: Vec<String>,
     gain_db: f64,
     steering_range_v: f64,
     headroom_v: Option<f64>,
@@ -36,26 +42,40 @@ impl Trial {
     fn all_pass(&self) -> bool {
         self.passes.iter().all(|p| *p) && self.headroom_v.is_none_or(|h| h >= 0.0)
     }
-}
 
-/// Worst budget-line margin of a trial (dB) and the line it belongs to.
-fn distortion_worst(plan: &Plan, trial: &Trial) -> (f64, String) {
-    let mut worst = (f64::INFINITY, String::from("none"));
-    for (line, (margin, pass)) in plan
-        .budget
-        .iter()
-        .zip(trial.margins.iter().zip(&trial.passes))
-    {
-        let m = margin.unwrap_or(if *pass {
-            f64::INFINITY
-        } else {
-            f64::NEG_INFINITY
-        });
-        if m < worst.0 {
-            worst = (m, line.metric.name());
+    /// Worst budget-line margin (dB), its line, and the corner where it occurs. Headroom is
+    /// in volts and is judged separately.
+    fn worst_with_corner(&self, plan: &Plan) -> ((f64, String), String) {
+        let mut worst = (f64::INFINITY, String::from("none"));
+        let mut corner = crate::corner::TYPICAL.to_owned();
+        for (index, (line, (margin, pass))) in plan
+            .budget
+            .iter()
+            .zip(self.margins.iter().zip(&self.passes))
+            .enumerate()
+        {
+            let m = margin.unwrap_or(if *pass {
+                f64::INFINITY
+            } else {
+                f64::NEG_INFINITY
+            });
+            if m < worst.0 {
+                worst = (m, line.metric.name());
+                corner = self.corners[index].clone();
+            }
         }
+        (worst, corner)
     }
-    worst
+
+    /// Whether every line of the chosen kind passes (noise lines or all the others).
+    fn kind_passes(&self, plan: &Plan, noise: bool) -> bool {
+        plan.budget
+            .iter()
+            .zip(&self.passes)
+            .filter(|(line, _)| (line.metric == Metric::InputNoise) == noise)
+            .all(|(_, pass)| *pass)
+            && (noise || self.headroom_v.is_none_or(|h| h >= 0.0))
+    }
 }
 
 fn trial(
@@ -82,49 +102,84 @@ fn trial(
             }
         }
     }
-    let engine = build_engine(&spec, temperature_c, context)?;
-    let figures = Figures::new(engine.as_ref(), plan);
-    let mut margins = Vec::with_capacity(plan.budget.len());
-    let mut passes = Vec::with_capacity(plan.budget.len());
-    for line in &plan.budget {
-        let value = figures.measure(line).map_err(&fail)?;
-        let (margin, pass) = judge(line, value, ANALYSIS_FLOOR_DBC);
-        margins.push(margin);
-        passes.push(pass);
+    // Worst case over the process corners, line by line.
+    let key = |margin: Option<f64>, pass: bool| {
+        margin.unwrap_or(if pass {
+            f64::INFINITY
+        } else {
+            f64::NEG_INFINITY
+        })
+    };
+    let mut margins: Vec<Option<f64>> = vec![None; plan.budget.len()];
+    let mut passes = vec![true; plan.budget.len()];
+    let mut corners = vec![crate::corner::TYPICAL.to_owned(); plan.budget.len()];
+    let mut keys = vec![f64::INFINITY; plan.budget.len()];
+    let mut headroom_worst: Option<f64> = None;
+    for (corner_index, corner) in plan.corners.iter().enumerate() {
+        let corner_spec = corner.apply(&spec);
+        let engine = build_engine(&corner_spec, temperature_c, context)?;
+        let figures = Figures::new(engine.as_ref(), plan);
+        for (index, line) in plan.budget.iter().enumerate() {
+            let value = figures.measure(line).map_err(&fail)?;
+            let (margin, pass) = judge(line, value, ANALYSIS_FLOOR_DBC);
+            let k = key(margin, pass);
+            if corner_index == 0 || k < keys[index] {
+                keys[index] = k;
+                margins[index] = margin;
+                corners[index] = corner.name.clone();
+            }
+            passes[index] &= pass;
+        }
+        if let Some(h) =
+            corner_headroom(plan, engine.as_ref(), target_gain.is_some()).map_err(&fail)?
+        {
+            headroom_worst = Some(headroom_worst.map_or(h, |w: f64| w.min(h)));
+        }
     }
+    let corner_spec = plan.corners[0].apply(&spec);
+    let engine = build_engine(&corner_spec, temperature_c, context)?;
+    let figures = Figures::new(engine.as_ref(), plan);
     let gain = figures.gain().map_err(&fail)?;
     let steering = figures.steering_range().map_err(&fail)?;
-    let headroom = if target_gain.is_some() {
-        let amplitude = plan
-            .budget
-            .iter()
-            .filter(|l| l.metric.needs_amplitude())
-            .map(|l| line_amplitude(l, plan))
-            .fold(0.0, f64::max);
-        let amplitude = if amplitude > 0.0 {
-            amplitude
-        } else {
-            plan.drive.amplitudes.iter().copied().fold(0.0, f64::max)
-        };
-        let frequency = plan
-            .budget
-            .first()
-            .map(|l| line_frequency(l, plan))
-            .unwrap_or(plan.drive.frequencies[0]);
-        let tone = engine.tone(amplitude, frequency, 3).map_err(&fail)?;
-        Some(-tone.region.max_base_collector_v)
-    } else {
-        None
-    };
     Ok(Trial {
         emitter_resistance,
         load_resistance: spec.load_resistance,
         margins,
         passes,
+        corners,
         gain_db: 20.0 * gain.abs().log10(),
         steering_range_v: steering,
-        headroom_v: headroom,
+        headroom_v: headroom_worst,
     })
+}
+
+/// Collector-base headroom at the largest budget amplitude (hold_gain only), V.
+fn corner_headroom(
+    plan: &Plan,
+    engine: &dyn crate::engine::ResponseEngine,
+    hold_gain: bool,
+) -> Result<Option<f64>, crate::error::SolveFailure> {
+    if !hold_gain {
+        return Ok(None);
+    }
+    let amplitude = plan
+        .budget
+        .iter()
+        .filter(|l| l.metric.needs_amplitude())
+        .map(|l| line_amplitude(l, plan))
+        .fold(0.0, f64::max);
+    let amplitude = if amplitude > 0.0 {
+        amplitude
+    } else {
+        plan.drive.amplitudes.iter().copied().fold(0.0, f64::max)
+    };
+    let frequency = plan
+        .budget
+        .first()
+        .map(|l| line_frequency(l, plan))
+        .unwrap_or(plan.drive.frequencies[0]);
+    let tone = engine.tone(amplitude, frequency, 3)?;
+    Ok(Some(-tone.region.max_base_collector_v))
 }
 
 /// Finds the least emitter resistance for one stage at one temperature.
@@ -171,6 +226,24 @@ pub fn size_stage(
         }
     };
 
+    // Distortion and noise pull R_E in opposite directions: where does each allow it?
+    let has_noise_lines = plan.budget.iter().any(|l| l.metric == Metric::InputNoise);
+    let distortion_least = scan
+        .iter()
+        .find(|t| t.kind_passes(plan, false))
+        .map(|t| t.emitter_resistance);
+    let noise_greatest = if has_noise_lines {
+        scan.iter()
+            .rev()
+            .find(|t| t.kind_passes(plan, true))
+            .map(|t| t.emitter_resistance)
+    } else {
+        None
+    };
+    let conflict_gap = match (chosen.is_none(), distortion_least, noise_greatest) {
+        (true, Some(d), Some(n)) if d > n => Some(d - n),
+        _ => None,
+    };
     let scan_records = scan
         .iter()
         .map(|t| SizingScanRecord {
@@ -182,7 +255,7 @@ pub fn size_stage(
         .collect();
     let record = match chosen {
         Some(t) => {
-            let (worst, binding) = distortion_worst(plan, &t);
+            let ((worst, binding), binding_corner) = t.worst_with_corner(plan);
             let headroom_binds = t.headroom_v.is_some_and(|h| {
                 let distortion_worst = t
                     .margins
@@ -210,10 +283,15 @@ pub fn size_stage(
                 headroom_binds,
                 best_headroom_v: t.headroom_v,
                 scan: scan_records,
+                binding_corner,
+                distortion_least_emitter_resistance_ohm: distortion_least,
+                noise_greatest_emitter_resistance_ohm: noise_greatest,
+                conflict_gap_ohm: conflict_gap,
             }
         }
         None => {
-            // Distortion alone may be meetable while headroom fails everywhere (hold_gain).
+            // Distortion alone may be meetable while headroom fails everywhere (hold_gain):
+            // then headroom binds, and the best headroom among those trials is reported.
             let distortion_ok: Vec<&Trial> = scan
                 .iter()
                 .filter(|t| t.passes.iter().all(|p| *p))
@@ -232,14 +310,15 @@ pub fn size_stage(
             } else {
                 scan.iter()
                     .max_by(|a, b| {
-                        distortion_worst(plan, a)
+                        a.worst_with_corner(plan)
                             .0
-                            .total_cmp(&distortion_worst(plan, b).0)
+                             .0
+                            .total_cmp(&b.worst_with_corner(plan).0 .0)
                     })
                     .cloned()
                     .unwrap_or_else(|| scan[0].clone())
             };
-            let (worst, binding) = distortion_worst(plan, &best);
+            let ((worst, binding), binding_corner) = best.worst_with_corner(plan);
             SizingRecord {
                 stage: stage.name.clone(),
                 temperature_c,
@@ -258,6 +337,10 @@ pub fn size_stage(
                 headroom_binds,
                 best_headroom_v: best.headroom_v,
                 scan: scan_records,
+                binding_corner,
+                distortion_least_emitter_resistance_ohm: distortion_least,
+                noise_greatest_emitter_resistance_ohm: noise_greatest,
+                conflict_gap_ohm: conflict_gap,
             }
         }
     };

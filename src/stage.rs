@@ -96,7 +96,11 @@ impl StageCircuit {
             p,
             m,
             thermal_voltage: thermal_voltage(temperature_c),
-            tail_current: spec.tail_current,
+            tail_current: spec.tail_current_law.current_at(
+                spec.tail_current,
+                t.nominal_temperature_c,
+                temperature_c,
+            ),
             tail_conductance: inverse_or_zero(spec.tail_resistance),
             supply: spec.supply,
             input_common_mode: spec.input_common_mode,

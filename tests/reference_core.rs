@@ -27,6 +27,7 @@ fn ideal_stage(tail_current: f64, load: f64, emitter: f64) -> StageSpec {
         transistor: TransistorSpec::default(),
         mismatch: Default::default(),
         mismatch_sigma: Default::default(),
+        tail_current_law: Default::default(),
     }
 }
 

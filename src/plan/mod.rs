@@ -37,6 +37,8 @@ pub struct Plan {
     pub noise_band: Option<NoiseBand>,
     /// Reference impedance for dBm figures, ohms, if given.
     pub reference_impedance: Option<f64>,
+    /// Process corners, the typical one first (see [`crate::corner`]).
+    pub corners: Vec<crate::corner::Corner>,
 }
 
 /// One differential-pair stage as the plan describes it (nominal values).
@@ -68,6 +70,8 @@ pub struct StageSpec {
     pub mismatch: Mismatch,
     /// Standard deviations of the mismatch fractions, for Monte Carlo.
     pub mismatch_sigma: Mismatch,
+    /// How the tail current moves with temperature.
+    pub tail_current_law: crate::tail::TailCurrentLaw,
 }
 
 /// Bipolar transistor parameters (forward-active Gummel–Poon subset).
@@ -101,6 +105,11 @@ pub struct TransistorSpec {
     pub bandgap_ev: f64,
     /// Temperature exponent of the saturation current (XTI).
     pub saturation_current_exponent: f64,
+    /// Flicker-noise coefficient of the base current, KF: `i_b² = KF·I_B^AF/f` (A²/Hz at
+    /// 1 Hz when AF = 1); 0 = no flicker noise.
+    pub flicker_coefficient: f64,
+    /// Flicker-noise exponent of the base current, AF.
+    pub flicker_exponent: f64,
 }
 
 impl Default for TransistorSpec {
@@ -120,6 +129,8 @@ impl Default for TransistorSpec {
             nominal_temperature_c: 27.0,
             bandgap_ev: 1.11,
             saturation_current_exponent: 3.0,
+            flicker_coefficient: 0.0,
+            flicker_exponent: 1.0,
         }
     }
 }
@@ -310,6 +321,7 @@ const TOP_KEYS: &[&str] = &[
     "sizing",
     "noise_band",
     "reference_impedance",
+    "corners",
 ];
 const STAGE_KEYS: &[&str] = &[
     "name",
@@ -325,6 +337,7 @@ const STAGE_KEYS: &[&str] = &[
     "transistor",
     "mismatch",
     "mismatch_sigma",
+    "tail_current_law",
 ];
 const TRANSISTOR_KEYS: &[&str] = &[
     "saturation_current",
@@ -341,6 +354,8 @@ const TRANSISTOR_KEYS: &[&str] = &[
     "nominal_temperature_c",
     "bandgap_ev",
     "saturation_current_exponent",
+    "flicker_coefficient",
+    "flicker_exponent",
 ];
 const MISMATCH_KEYS: &[&str] = &[
     "saturation_current",
@@ -490,7 +505,23 @@ impl Plan {
             .map(|at| at.quantity_where(Unit::Ohm, Range::Positive))
             .transpose()?;
 
+        let corners = crate::corner::read_corners(top.get("corners").as_ref())?;
+        check_tail_laws(&stage_items, &stages, &temperatures_c)?;
+        if let (Some(band), Some(band_at)) = (&noise_band, top.get("noise_band")) {
+            if band.from == 0.0
+                && stages
+                    .iter()
+                    .any(|s| s.transistor.flicker_coefficient > 0.0)
+            {
+                return Err(band_at.error(
+                    "flicker noise integrated from 0 Hz is infinite",
+                    "noise_band.from above 0 Hz when a stage has flicker_coefficient",
+                ));
+            }
+        }
+
         Ok(Plan {
+            corners,
             name,
             temperatures_c,
             stages,
@@ -502,6 +533,34 @@ impl Plan {
             reference_impedance,
         })
     }
+}
+
+/// Refuses a tail-current law that would turn the tail current off at a plan temperature.
+fn check_tail_laws(
+    items: &[At],
+    stages: &[StageSpec],
+    temperatures_c: &[f64],
+) -> Result<(), PlanError> {
+    for (item, stage) in items.iter().zip(stages) {
+        for &t in temperatures_c {
+            let current = stage.tail_current_law.current_at(
+                stage.tail_current,
+                stage.transistor.nominal_temperature_c,
+                t,
+            );
+            if current.is_nan() || current <= 0.0 {
+                let at = item
+                    .map(STAGE_KEYS)?
+                    .get("tail_current_law")
+                    .unwrap_or_else(|| item.clone());
+                return Err(at.error(
+                    format!("the tail current would be {current:e} A at {t} °C"),
+                    "a temperature coefficient that keeps the tail current positive at every plan temperature",
+                ));
+            }
+        }
+    }
+    Ok(())
 }
 
 fn check_list_len(at: &At, len: usize, what: &str) -> Result<(), PlanError> {
@@ -573,6 +632,11 @@ fn read_stage(at: &At) -> Result<StageSpec, PlanError> {
         transistor,
         mismatch: read_mismatch(&map, "mismatch", Range::Between(-0.9, 9.0))?,
         mismatch_sigma: read_mismatch(&map, "mismatch_sigma", Range::Between(-1e-300, 0.5))?,
+        tail_current_law: map
+            .get("tail_current_law")
+            .map(|law| crate::tail::TailCurrentLaw::read(&law))
+            .transpose()?
+            .unwrap_or_default(),
     };
     Ok(stage)
 }
@@ -659,6 +723,18 @@ fn read_transistor(at: &At) -> Result<TransistorSpec, PlanError> {
             Unit::Ratio,
             Range::Between(-10.0, 10.0),
             d.saturation_current_exponent,
+        )?,
+        flicker_coefficient: map.quantity_or(
+            "flicker_coefficient",
+            Unit::Ratio,
+            Range::NonNegative,
+            d.flicker_coefficient,
+        )?,
+        flicker_exponent: map.quantity_or(
+            "flicker_exponent",
+            Unit::Ratio,
+            Range::Between(0.5, 3.0),
+            d.flicker_exponent,
         )?,
     })
 }

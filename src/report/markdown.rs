@@ -139,6 +139,7 @@ pub fn summary(report: &Report) -> String {
             );
         }
     }
+    population_sections(report, &mut out);
     if !report.warnings.is_empty() {
         let _ = writeln!(out, "## Warnings\n");
         for w in &report.warnings {
@@ -167,5 +168,95 @@ fn verdict_of(report: &Report, stage: &str, temperature_c: f64) -> &'static str 
         "pass"
     } else {
         "FAIL"
+    }
+}
+
+fn figure(value: Option<f64>, unit: &str) -> String {
+    match (value, unit) {
+        (None, _) => "—".into(),
+        (Some(v), "dBc" | "dB") => format!("{v:.2}"),
+        (Some(v), "V/√Hz") => format!("{:.3} nV/√Hz", v * 1e9),
+        (Some(v), u) => format_si(v, u),
+    }
+}
+
+/// Corner spread, Monte Carlo distributions, yield and the noise-versus-distortion sizing gap.
+fn population_sections(report: &Report, out: &mut String) {
+    if !report.corner_spread.is_empty() {
+        let _ = writeln!(out, "## Process corners (typical, minimum, maximum)\n");
+        let _ = writeln!(
+            out,
+            "| stage | T (°C) | figure | at | typical | min (corner) | max (corner) |"
+        );
+        let _ = writeln!(out, "|---|---:|---|---:|---:|---:|---:|");
+        for r in &report.corner_spread {
+            let _ = writeln!(
+                out,
+                "| {} | {} | {} | {} | {} | {} ({}) | {} ({}) |",
+                r.stage,
+                r.temperature_c,
+                r.metric,
+                volts(r.at_v),
+                figure(r.typical, &r.unit),
+                figure(r.min, &r.unit),
+                r.min_corner,
+                figure(r.max, &r.unit),
+                r.max_corner
+            );
+        }
+        let _ = writeln!(out);
+    }
+    if !report.monte_carlo.is_empty() {
+        let _ = writeln!(out, "## Monte Carlo mismatch\n");
+        let _ = writeln!(
+            out,
+            "| stage | T (°C) | f (Hz) | amplitude | metric | runs | p05 | median | p95 |"
+        );
+        let _ = writeln!(out, "|---|---:|---:|---:|---|---:|---:|---:|---:|");
+        for r in &report.monte_carlo {
+            let _ = writeln!(
+                out,
+                "| {} | {} | {} | {} | {} | {} | {} | {} | {} |",
+                r.stage,
+                r.temperature_c,
+                r.frequency_hz,
+                format_si(r.amplitude_v, "V"),
+                r.metric,
+                r.runs,
+                figure(r.p05, &r.unit),
+                figure(r.median, &r.unit),
+                figure(r.p95, &r.unit)
+            );
+        }
+        let _ = writeln!(out);
+        for y in &report.yield_ {
+            let _ = writeln!(
+                out,
+                "Yield of `{}` at {} °C ({} corner): {:.1} % of {} runs meet every budget line ({}: {:.1} % to {:.1} %).\n",
+                y.stage,
+                y.temperature_c,
+                y.corner,
+                100.0 * y.pass_fraction,
+                y.runs,
+                y.interval,
+                100.0 * y.pass_fraction_low,
+                100.0 * y.pass_fraction_high
+            );
+        }
+    }
+    for s in report
+        .sizing
+        .iter()
+        .filter(|s| s.conflict_gap_ohm.is_some())
+    {
+        let _ = writeln!(
+            out,
+            "Sizing of `{}` at {} °C: distortion needs R_E ≥ {} but noise allows at most {}; no value meets both (gap {}).\n",
+            s.stage,
+            s.temperature_c,
+            s.distortion_least_emitter_resistance_ohm.map(|r| format_si(r, "Ω")).unwrap_or_default(),
+            s.noise_greatest_emitter_resistance_ohm.map(|r| format_si(r, "Ω")).unwrap_or_default(),
+            s.conflict_gap_ohm.map(|r| format_si(r, "Ω")).unwrap_or_default()
+        );
     }
 }

@@ -31,6 +31,9 @@ pub struct Report {
     pub budget: Vec<BudgetRecord>,
     /// Degeneration sizing per stage and temperature.
     pub sizing: Vec<SizingRecord>,
+    /// Typical, minimum and maximum of each figure across the process corners.
+    #[serde(default)]
+    pub corner_spread: Vec<SpreadRecord>,
     /// Per-stage, per-temperature operating point and transfer figures.
     pub stages: Vec<StageRecord>,
     /// Analysis settings that qualify every figure.
@@ -101,6 +104,18 @@ pub struct PointRecord {
     pub max_base_collector_v: f64,
     /// Smallest collector current over the period relative to the tail current.
     pub min_current_fraction: f64,
+    /// Process corner.
+    #[serde(default)]
+    pub corner: String,
+    /// Signal (input sine, rms) over the input noise integrated across the plan's noise band, dB.
+    #[serde(default)]
+    pub snr_db: Option<f64>,
+    /// Fundamental over the largest harmonic spur, dBc (null: no spur above the floor).
+    #[serde(default)]
+    pub sfdr_dbc: Option<f64>,
+    /// Signal over the larger of the band noise and the largest spur, dB.
+    #[serde(default)]
+    pub dynamic_range_db: Option<f64>,
 }
 
 impl PointRecord {
@@ -145,6 +160,21 @@ pub struct InterceptRecord {
     pub im3_slope: Option<f64>,
     /// Input second-order intercept, peak V per tone (null for a perfectly matched pair).
     pub iip2_v: Option<f64>,
+    /// Process corner.
+    #[serde(default)]
+    pub corner: String,
+    /// Noise band of the plan, Hz (from, to).
+    #[serde(default)]
+    pub noise_band_hz: Option<[f64; 2]>,
+    /// Input noise integrated over the band (white and flicker), V rms.
+    #[serde(default)]
+    pub integrated_noise_v: Option<f64>,
+    /// Frequency where flicker noise equals white noise, Hz (null: no flicker noise).
+    #[serde(default)]
+    pub flicker_corner_hz: Option<f64>,
+    /// Third-order spurious-free dynamic range (2/3)·(IIP3 − band noise), dB.
+    #[serde(default)]
+    pub spurious_free_dynamic_range_db: Option<f64>,
 }
 
 /// Operating point and transfer figures of one stage at one temperature.
@@ -176,6 +206,12 @@ pub struct StageRecord {
     pub tail_voltage_v: f64,
     /// Transfer curve samples.
     pub transfer: Vec<TransferRecord>,
+    /// Process corner.
+    #[serde(default)]
+    pub corner: String,
+    /// Tail current at this temperature and corner, A.
+    #[serde(default)]
+    pub tail_current_a: f64,
 }
 
 /// One sample of the transfer curve.
@@ -212,6 +248,15 @@ pub struct MonteCarloRecord {
     pub p05: Option<f64>,
     /// 95th percentile.
     pub p95: Option<f64>,
+    /// Process corner the draws were made in.
+    #[serde(default)]
+    pub corner: String,
+    /// Unit of the distribution (dBc, dB or V).
+    #[serde(default)]
+    pub unit: String,
+    /// Runs whose figure was below the analysis floor (counted as below everything).
+    #[serde(default)]
+    pub below_floor_runs: u64,
 }
 
 /// Monte Carlo yield against the budget.
@@ -225,6 +270,21 @@ pub struct YieldRecord {
     pub runs: u64,
     /// Fraction of runs meeting every budget line.
     pub pass_fraction: f64,
+    /// Process corner the draws were made in.
+    #[serde(default)]
+    pub corner: String,
+    /// Runs meeting every budget line.
+    #[serde(default)]
+    pub passing_runs: u64,
+    /// Lower end of the confidence interval of the pass fraction.
+    #[serde(default)]
+    pub pass_fraction_low: f64,
+    /// Upper end of the confidence interval of the pass fraction.
+    #[serde(default)]
+    pub pass_fraction_high: f64,
+    /// How the interval was computed.
+    #[serde(default)]
+    pub interval: String,
 }
 
 /// One budget line checked for one stage and temperature.
@@ -252,6 +312,9 @@ pub struct BudgetRecord {
     pub pass: bool,
     /// Unit of `limit` and `value`.
     pub unit: String,
+    /// Process corner.
+    #[serde(default)]
+    pub corner: String,
 }
 
 /// Sizing result for one stage and temperature.
@@ -284,6 +347,43 @@ pub struct SizingRecord {
     pub best_headroom_v: Option<f64>,
     /// Scan of the worst margin and gain versus emitter resistance.
     pub scan: Vec<SizingScanRecord>,
+    /// Process corner with the least margin at the chosen value (margins are worst-case).
+    #[serde(default)]
+    pub binding_corner: String,
+    /// Least scanned R_E meeting every line except the noise lines, Ω.
+    #[serde(default)]
+    pub distortion_least_emitter_resistance_ohm: Option<f64>,
+    /// Greatest scanned R_E meeting every noise line, Ω.
+    #[serde(default)]
+    pub noise_greatest_emitter_resistance_ohm: Option<f64>,
+    /// When no value meets both: how far apart the two ranges are, Ω (to scan resolution).
+    #[serde(default)]
+    pub conflict_gap_ohm: Option<f64>,
+}
+
+/// One figure across the process corners of a stage at one temperature.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+pub struct SpreadRecord {
+    /// Stage name.
+    pub stage: String,
+    /// Temperature, °C.
+    pub temperature_c: f64,
+    /// Figure name (a budget metric, or `gain`, `iip3`, `p1db`, `input_noise`, `steering_range`).
+    pub metric: String,
+    /// Input amplitude, V (amplitude-dependent figures).
+    pub at_v: Option<f64>,
+    /// Unit of the values.
+    pub unit: String,
+    /// Value in the typical corner (null: below the floor or unbounded).
+    pub typical: Option<f64>,
+    /// Least value across corners.
+    pub min: Option<f64>,
+    /// Greatest value across corners.
+    pub max: Option<f64>,
+    /// Corner giving the least value.
+    pub min_corner: String,
+    /// Corner giving the greatest value.
+    pub max_corner: String,
 }
 
 /// One scanned emitter resistance.

@@ -1,0 +1,377 @@
+//! Monte Carlo mismatch: the population of dies a stage's matching produces.
+//!
+//! For each stage and temperature (in the typical process corner), `runs` draws of the P-over-M
+//! fractions δ (saturation current, emitter, load and base resistance, β) are made, each
+//! normal with mean the plan's `mismatch` and standard deviation `mismatch_sigma`; a draw with
+//! `1 + δ ≤ 0.01` (a non-physical element) is drawn again. Every run solves the drive points
+//! and the budget lines; the report gives per drive point and metric the median, 5th and 95th
+//! percentiles, and the fraction of runs meeting every budget line with a 95 % Wilson score
+//! interval.
+//!
+//! Reproducibility: run `r` of stage `s` at temperature index `t` draws from ChaCha8 keyed by
+//! `(seed, s, t)` on stream `r`, so each run's numbers depend only on the seed and its own
+//! indices, never on the thread count or the order in which rayon schedules the runs.
+//!
+//! Cost: a run evaluates each amplitude once (the stage is memoryless, so frequency only
+//! labels the records) with the sample count the converged nominal analysis needed, one
+//! offset search, and only the budget figures the plan asks for (intercept or compression
+//! searches per run only when a budget line constrains them).
+//!
+//! Percentiles: the sample quantile by linear interpolation between order statistics
+//! (`h = (n − 1)·p`). A harmonic below the analysis floor counts as −∞ and an unbounded
+//! intercept as +∞; a percentile that falls on or next to such a value is reported as null.
+
+use crate::analysis::{attribute, offset_voltage, Context};
+use crate::budget::{judge, line_amplitude, Figures};
+use crate::engine::{MemorylessEngine, ResponseEngine};
+use crate::error::{Error, SolveFailure};
+use crate::metrics::{self, two_tone_grid};
+use crate::plan::{Metric, Mismatch, MonteCarloSpec, Plan, StageSpec};
+use crate::report::{MonteCarloRecord, YieldRecord};
+use crate::spectrum::{FftCache, ANALYSIS_FLOOR_DBC};
+use crate::stage::StageCircuit;
+use crate::transfer::{StaticSolver, WarmStart};
+use rand::SeedableRng;
+use rand_chacha::ChaCha8Rng;
+use rand_distr::{Distribution, StandardNormal};
+use rayon::prelude::*;
+
+/// Two-sided standard normal quantile for a 95 % interval.
+pub const Z_95: f64 = 1.959_963_984_540_054;
+/// Name of the yield interval written in the report.
+pub const INTERVAL_NAME: &str = "Wilson score interval, 95 %";
+
+/// The random generator of one run.
+pub fn run_rng(seed: u64, stage_index: usize, temperature_index: usize, run: u64) -> ChaCha8Rng {
+    let mut key = [0u8; 32];
+    key[..8].copy_from_slice(&seed.to_le_bytes());
+    key[8..16].copy_from_slice(&(stage_index as u64).to_le_bytes());
+    key[16..24].copy_from_slice(&(temperature_index as u64).to_le_bytes());
+    let mut rng = ChaCha8Rng::from_seed(key);
+    rng.set_stream(run);
+    rng
+}
+
+/// Draws one set of mismatch fractions (always five normals, in a fixed order, so adding a
+/// sigma to one parameter does not shift the others' draws).
+pub fn draw_mismatch(rng: &mut ChaCha8Rng, mean: &Mismatch, sigma: &Mismatch) -> Mismatch {
+    let mut one = |m: f64, s: f64| -> f64 {
+        loop {
+            let z: f64 = StandardNormal.sample(rng);
+            let delta = m + s * z;
+            if 1.0 + delta > 0.01 {
+                return delta;
+            }
+        }
+    };
+    Mismatch {
+        saturation_current: one(mean.saturation_current, sigma.saturation_current),
+        emitter_resistance: one(mean.emitter_resistance, sigma.emitter_resistance),
+        load_resistance: one(mean.load_resistance, sigma.load_resistance),
+        base_resistance: one(mean.base_resistance, sigma.base_resistance),
+        beta: one(mean.beta, sigma.beta),
+    }
+}
+
+/// Sample quantile `p` of ascending `sorted` (linear interpolation between order statistics);
+/// `None` when it involves an infinite entry (below the floor or unbounded).
+pub fn quantile(sorted: &[f64], p: f64) -> Option<f64> {
+    if sorted.is_empty() {
+        return None;
+    }
+    let h = (sorted.len() - 1) as f64 * p;
+    let low = h.floor() as usize;
+    let fraction = h - low as f64;
+    let a = sorted[low];
+    if fraction == 0.0 || low + 1 >= sorted.len() {
+        return a.is_finite().then_some(a);
+    }
+    let b = sorted[low + 1];
+    (a.is_finite() && b.is_finite()).then_some(a + fraction * (b - a))
+}
+
+/// Wilson score interval of a pass fraction from `passes` out of `runs`, at normal quantile `z`.
+pub fn wilson_interval(passes: u64, runs: u64, z: f64) -> (f64, f64) {
+    let n = runs as f64;
+    let p = passes as f64 / n;
+    let z2 = z * z;
+    let centre = (p + z2 / (2.0 * n)) / (1.0 + z2 / n);
+    let half = z / (1.0 + z2 / n) * (p * (1.0 - p) / n + z2 / (4.0 * n * n)).sqrt();
+    let low = if passes == 0 {
+        0.0
+    } else {
+        (centre - half).max(0.0)
+    };
+    let high = if passes == runs {
+        1.0
+    } else {
+        (centre + half).min(1.0)
+    };
+    (low, high)
+}
+
+/// The metrics tracked per drive point: name, unit, and the value for a null (±∞).
+const POINT_METRICS: [(&str, &str); 7] = [
+    ("hd2", "dBc"),
+    ("hd3", "dBc"),
+    ("thd", "dBc"),
+    ("gain", "dB"),
+    ("im2", "dBc"),
+    ("im3", "dBc"),
+    ("iip2", "V"),
+];
+
+/// Sample counts of one amplitude, taken from the converged nominal analysis.
+#[derive(Debug, Clone, Copy)]
+struct Resolution {
+    amplitude_v: f64,
+    tone_samples: usize,
+    grid_samples: Option<usize>,
+}
+
+/// What one run measured.
+struct RunResult {
+    /// Per resolution (amplitude), the POINT_METRICS values (±∞ for null).
+    points: Vec<[f64; 7]>,
+    offset_v: f64,
+    pass: bool,
+}
+
+fn level_dbc(level: f64, fundamental: f64) -> f64 {
+    let dbc = 20.0 * (level / fundamental).log10();
+    if dbc.is_finite() && dbc >= ANALYSIS_FLOOR_DBC {
+        dbc
+    } else {
+        f64::NEG_INFINITY
+    }
+}
+
+fn measure_amplitude(
+    solver: &StaticSolver,
+    cache: &FftCache,
+    resolution: &Resolution,
+    harmonics: usize,
+) -> Result<([f64; 7], Vec<f64>), SolveFailure> {
+    let n = resolution.tone_samples;
+    let a = resolution.amplitude_v;
+    let mut warm = WarmStart::default();
+    let mut samples = Vec::with_capacity(n);
+    for i in 0..n {
+        let theta = std::f64::consts::TAU * i as f64 / n as f64;
+        samples.push(solver.solve(a * theta.cos(), &mut warm)?.output_voltage);
+    }
+    let amplitudes = cache.harmonic_amplitudes(&samples, harmonics);
+    let fundamental = amplitudes[1];
+    let power: f64 = amplitudes.iter().skip(2).map(|h| h * h).sum();
+    let thd = level_dbc(power.sqrt(), fundamental);
+    let mut values = [
+        level_dbc(amplitudes[2], fundamental),
+        level_dbc(amplitudes[3], fundamental),
+        thd,
+        20.0 * (fundamental / a).log10(),
+        f64::NEG_INFINITY,
+        f64::NEG_INFINITY,
+        f64::INFINITY,
+    ];
+    if let Some(grid) = resolution.grid_samples {
+        let two = two_tone_grid(solver, cache, a, grid)?;
+        values[4] = level_dbc(two.im2_v, two.fundamental_v);
+        values[5] = level_dbc(two.im3_v, two.fundamental_v);
+        if values[4].is_finite() {
+            values[6] = a * 10f64.powf(-values[4] / 20.0);
+        }
+    }
+    Ok((values, amplitudes))
+}
+
+/// Runs the Monte Carlo analysis of every stage and temperature.
+pub fn evaluate(
+    plan: &Plan,
+    spec: &MonteCarloSpec,
+    context: &Context,
+) -> Result<(Vec<MonteCarloRecord>, Vec<YieldRecord>), Error> {
+    let typical = &plan.corners[0];
+    let mut distributions = Vec::new();
+    let mut yields = Vec::new();
+    for (stage_index, nominal) in plan.stages.iter().enumerate() {
+        let stage = typical.apply(nominal);
+        for (temperature_index, &temperature_c) in plan.temperatures_c.iter().enumerate() {
+            let (d, y) = evaluate_one(
+                plan,
+                spec,
+                &stage,
+                stage_index,
+                temperature_index,
+                temperature_c,
+                context,
+                &typical.name,
+            )?;
+            distributions.extend(d);
+            yields.push(y);
+        }
+    }
+    Ok((distributions, yields))
+}
+
+#[allow(clippy::too_many_arguments)]
+fn evaluate_one(
+    plan: &Plan,
+    spec: &MonteCarloSpec,
+    stage: &StageSpec,
+    stage_index: usize,
+    temperature_index: usize,
+    temperature_c: f64,
+    context: &Context,
+    corner: &str,
+) -> Result<(Vec<MonteCarloRecord>, YieldRecord), Error> {
+    let fail = attribute(stage, temperature_c);
+    let nominal_circuit = StageCircuit::new(stage, temperature_c);
+    if !nominal_circuit.is_memoryless() {
+        return Err(Error::Solve {
+            stage: stage.name.clone(),
+            temperature_c,
+            point: "Monte Carlo set-up".into(),
+            reason: "Monte Carlo needs a memoryless stage (no capacitance) until the periodic steady-state engine exists".into(),
+        });
+    }
+    let harmonics = plan.drive.thd_harmonics.max(9);
+    let nominal = StaticSolver::new(nominal_circuit);
+    // Amplitudes: the drive's, then any budget amplitude not among them.
+    let mut amplitudes: Vec<f64> = plan.drive.amplitudes.clone();
+    for line in plan.budget.iter().filter(|l| l.metric.needs_amplitude()) {
+        let a = line_amplitude(line, plan);
+        if !amplitudes.contains(&a) {
+            amplitudes.push(a);
+        }
+    }
+    let resolutions: Vec<Resolution> = amplitudes
+        .iter()
+        .map(|&a| {
+            let tone = metrics::single_tone(&nominal, &context.cache, a, harmonics)?;
+            let grid = match plan.drive.two_tone_spacing {
+                Some(_) => Some(metrics::two_tone(&nominal, &context.cache, a)?.samples),
+                None => None,
+            };
+            Ok(Resolution {
+                amplitude_v: a,
+                tone_samples: tone.samples,
+                grid_samples: grid,
+            })
+        })
+        .collect::<Result<_, SolveFailure>>()
+        .map_err(&fail)?;
+    let needs_figures = plan.budget.iter().any(|l| {
+        matches!(
+            l.metric,
+            Metric::Iip3 | Metric::Oip3 | Metric::P1db | Metric::SteeringRange
+        )
+    });
+
+    let runs: Vec<RunResult> = (0..spec.runs)
+        .into_par_iter()
+        .map(|run| {
+            let mut rng = run_rng(spec.seed, stage_index, temperature_index, run);
+            let mismatch = draw_mismatch(&mut rng, &stage.mismatch, &stage.mismatch_sigma);
+            let circuit = StageCircuit::with_mismatch(stage, temperature_c, &mismatch);
+            let solver = StaticSolver::new(circuit.clone());
+            let mut points = Vec::with_capacity(resolutions.len());
+            let mut spectra = Vec::with_capacity(resolutions.len());
+            for resolution in &resolutions {
+                let (values, amplitudes) =
+                    measure_amplitude(&solver, &context.cache, resolution, harmonics)?;
+                points.push(values);
+                spectra.push(amplitudes);
+            }
+            let offset_v = offset_voltage(&solver)?;
+            let engine =
+                needs_figures.then(|| MemorylessEngine::new(circuit, context.cache.clone()));
+            let figures = engine
+                .as_ref()
+                .map(|e| Figures::new(e as &dyn ResponseEngine, plan));
+            let mut pass = true;
+            for line in &plan.budget {
+                let at = resolutions
+                    .iter()
+                    .position(|r| r.amplitude_v == line_amplitude(line, plan))
+                    .unwrap_or(0);
+                let finite = |v: f64| v.is_finite().then_some(v);
+                let value = match line.metric {
+                    Metric::Harmonic(order) => {
+                        let amplitudes = &spectra[at];
+                        let level =
+                            level_dbc(amplitudes.get(order).copied().unwrap_or(0.0), amplitudes[1]);
+                        finite(level)
+                    }
+                    Metric::Thd => finite(points[at][2]),
+                    Metric::Im3 => finite(points[at][5]),
+                    Metric::Gain => Some(20.0 * metrics::small_signal_gain(&solver)?.abs().log10()),
+                    Metric::InputNoise => Some(metrics::input_noise_density(&solver)?),
+                    _ => match &figures {
+                        Some(f) => f.measure(line)?,
+                        None => None,
+                    },
+                };
+                pass &= judge(line, value, ANALYSIS_FLOOR_DBC).1;
+            }
+            Ok(RunResult {
+                points,
+                offset_v,
+                pass,
+            })
+        })
+        .collect::<Result<Vec<_>, SolveFailure>>()
+        .map_err(|failure| Error::Solve {
+            stage: stage.name.clone(),
+            temperature_c,
+            point: format!("Monte Carlo: {}", failure.point),
+            reason: failure.reason,
+        })?;
+
+    let mut records = Vec::new();
+    let two_tone = plan.drive.two_tone_spacing.is_some();
+    let record =
+        |frequency_hz: f64, amplitude_v: f64, metric: &str, unit: &str, mut values: Vec<f64>| {
+            values.sort_by(f64::total_cmp);
+            MonteCarloRecord {
+                stage: stage.name.clone(),
+                temperature_c,
+                frequency_hz,
+                amplitude_v,
+                metric: metric.to_owned(),
+                runs: spec.runs,
+                median: quantile(&values, 0.5),
+                p05: quantile(&values, 0.05),
+                p95: quantile(&values, 0.95),
+                corner: corner.to_owned(),
+                unit: unit.to_owned(),
+                below_floor_runs: values.iter().filter(|v| !v.is_finite()).count() as u64,
+            }
+        };
+    for &frequency_hz in &plan.drive.frequencies {
+        for (index, &amplitude_v) in plan.drive.amplitudes.iter().enumerate() {
+            for (k, (metric, unit)) in POINT_METRICS.iter().enumerate() {
+                if k >= 4 && !two_tone {
+                    continue;
+                }
+                let values = runs.iter().map(|r| r.points[index][k]).collect();
+                records.push(record(frequency_hz, amplitude_v, metric, unit, values));
+            }
+        }
+        let offsets = runs.iter().map(|r| r.offset_v).collect();
+        records.push(record(frequency_hz, 0.0, "offset", "V", offsets));
+    }
+    let passes = runs.iter().filter(|r| r.pass).count() as u64;
+    let (low, high) = wilson_interval(passes, spec.runs, Z_95);
+    let yield_record = YieldRecord {
+        stage: stage.name.clone(),
+        temperature_c,
+        runs: spec.runs,
+        pass_fraction: passes as f64 / spec.runs as f64,
+        corner: corner.to_owned(),
+        passing_runs: passes,
+        pass_fraction_low: low,
+        pass_fraction_high: high,
+        interval: INTERVAL_NAME.into(),
+    };
+    Ok((records, yield_record))
+}
