@@ -157,7 +157,10 @@ fn evaluate_corner(
     let engine_ref = engine.as_ref();
     let points: Vec<PointRecord> = drive_points
         .par_iter()
-        .map(|(frequency, amplitude)| point_record(plan, spec, temperature_c, engine_ref, *frequency, *amplitude))
+        .map(|(frequency, amplitude)| {
+            point_record(plan, spec, temperature_c, engine_ref, *frequency, *amplitude)
+                .map_err(|failure| at_drive_point(failure, *amplitude, *frequency))
+        })
         .collect::<Result<Vec<_>, SolveFailure>>()
         .map_err(&fail)?;
     for point in &points {
@@ -318,6 +321,14 @@ fn offset_voltage(solver: &crate::transfer::StaticSolver) -> Result<f64, SolveFa
         point: "offset search".into(),
         reason: e.reason,
     })
+}
+
+/// Names the drive point (amplitude and frequency) in a solver failure inside it.
+pub fn at_drive_point(failure: SolveFailure, amplitude_v: f64, frequency_hz: f64) -> SolveFailure {
+    SolveFailure {
+        point: format!("drive {amplitude_v:e} V at {frequency_hz} Hz ({})", failure.point),
+        reason: failure.reason,
+    }
 }
 
 /// Evaluates one single-tone drive point (and its two-tone companion when asked for).

@@ -21,5 +21,6 @@ pub mod spectrum;
 pub mod stage;
 pub mod transfer;
 pub mod units;
+pub mod workload;
 
 pub use error::{Error, PlanError};

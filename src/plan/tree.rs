@@ -130,7 +130,12 @@ impl<'de> Deserialize<'de> for NodeValue {
 
 /// Parses YAML text into a positioned tree. Errors carry the parser's line and column.
 pub fn parse_tree(text: &str) -> Result<Node, (String, u64, u64)> {
-    serde_saphyr::from_str::<Node>(text).map_err(|err| {
+    // `.inf` is how a plan says "ideal", and `.nan` must reach validation so that the error
+    // names its key; both pass through the parser as floats. The default budgets against
+    // alias bombs and deep nesting stay in force.
+    let mut options = serde_saphyr::Options::default();
+    options.non_finite_float_policy = serde_saphyr::NonFiniteFloatPolicy::PassThrough;
+    serde_saphyr::from_str_with_options::<Node>(text, options).map_err(|err| {
         let (line, column) = err
             .location()
             .map(|loc| (loc.line(), loc.column()))
