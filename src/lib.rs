@@ -19,6 +19,7 @@ pub mod run;
 pub mod sizing;
 pub mod spectrum;
 pub mod stage;
+pub mod symmetric;
 pub mod transfer;
 pub mod units;
 pub mod workload;
