@@ -240,6 +240,7 @@ fn evaluate_corner(
                 *frequency,
                 *amplitude,
             )
+            .map_err(|failure| at_drive_point(failure, *amplitude, *frequency))
         })
         .collect::<Result<Vec<_>, SolveFailure>>()
         .map_err(&fail)?;
@@ -452,6 +453,17 @@ pub fn offset_voltage(solver: &crate::transfer::StaticSolver) -> Result<f64, Sol
         point: "offset search".into(),
         reason: e.reason,
     })
+}
+
+/// Names the drive point (amplitude and frequency) in a solver failure inside it.
+pub fn at_drive_point(failure: SolveFailure, amplitude_v: f64, frequency_hz: f64) -> SolveFailure {
+    SolveFailure {
+        point: format!(
+            "drive {amplitude_v:e} V at {frequency_hz} Hz ({})",
+            failure.point
+        ),
+        reason: failure.reason,
+    }
 }
 
 /// Evaluates one single-tone drive point (and its two-tone companion when asked for).

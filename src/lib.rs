@@ -26,8 +26,10 @@ pub mod run;
 pub mod sizing;
 pub mod spectrum;
 pub mod stage;
+pub mod symmetric;
 pub mod tail;
 pub mod transfer;
 pub mod units;
+pub mod workload;
 
 pub use error::{Error, PlanError};

@@ -2,7 +2,8 @@
 //! (0 met, 1 not met, 2 bad input or a failed solve).
 
 use clap::{Parser, Subcommand};
-use linbudget::run::{check, run, RunOptions};
+use linbudget::run::{check_within, run, RunOptions};
+use linbudget::workload::DEFAULT_MAX_WORK;
 use std::io::{IsTerminal, Write};
 use std::path::PathBuf;
 use std::process::ExitCode;
@@ -44,13 +45,30 @@ enum Command {
         /// No progress lines on standard error.
         #[arg(long, short)]
         quiet: bool,
+        /// Largest estimated work accepted, in sample solves (default 5e9); raise it
+        /// deliberately for a plan that is refused as too large.
+        #[arg(long, value_name = "SOLVES", default_value_t = DEFAULT_MAX_WORK, value_parser = parse_work)]
+        max_work: f64,
     },
     /// Validate a plan only; writes nothing.
     #[command(after_help = CHECK_EXAMPLES)]
     Check {
         /// The plan (YAML).
         plan: PathBuf,
+        /// Largest estimated work accepted, in sample solves (default 5e9).
+        #[arg(long, value_name = "SOLVES", default_value_t = DEFAULT_MAX_WORK, value_parser = parse_work)]
+        max_work: f64,
     },
+}
+
+/// A positive, finite work limit such as `1e12`.
+fn parse_work(text: &str) -> Result<f64, String> {
+    match text.parse::<f64>() {
+        Ok(value) if value.is_finite() && value > 0.0 => Ok(value),
+        _ => Err(format!(
+            "`{text}` is not a positive finite number of sample solves, e.g. 1e12"
+        )),
+    }
 }
 
 fn main() -> ExitCode {
@@ -66,7 +84,7 @@ fn main() -> ExitCode {
         }
     };
     match cli.command {
-        Command::Check { plan } => match check(&plan) {
+        Command::Check { plan, max_work } => match check_within(&plan, max_work) {
             Ok(p) => {
                 eprintln!(
                     "{}: valid plan `{}` ({} stage(s))",
@@ -86,12 +104,14 @@ fn main() -> ExitCode {
             out,
             json,
             quiet,
+            max_work,
         } => {
             let options = RunOptions {
                 plan,
                 out,
                 json,
                 quiet,
+                max_work,
             };
             let show_progress = !quiet && std::io::stderr().is_terminal();
             let progress = move |line: &str| {

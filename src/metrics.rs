@@ -26,20 +26,25 @@ pub struct RegionCheck {
 }
 
 impl RegionCheck {
-    fn new() -> Self {
+    /// No point seen yet.
+    pub(crate) fn new() -> Self {
         RegionCheck {
             max_base_collector_v: f64::NEG_INFINITY,
             min_current_fraction: f64::INFINITY,
         }
     }
 
-    fn update(&mut self, point: &crate::transfer::OperatingPoint, tail: f64) {
+    /// Includes both sides of a solved point.
+    pub(crate) fn update(&mut self, point: &crate::transfer::OperatingPoint, tail: f64) {
         for side in [&point.p, &point.m] {
-            self.max_base_collector_v =
-                self.max_base_collector_v.max(side.base_collector_voltage());
-            self.min_current_fraction =
-                self.min_current_fraction.min(side.collector_current / tail);
+            self.include(side.base_collector_voltage(), side.collector_current / tail);
         }
+    }
+
+    /// Includes one side's base-collector voltage and collector-current fraction.
+    pub(crate) fn include(&mut self, base_collector_v: f64, current_fraction: f64) {
+        self.max_base_collector_v = self.max_base_collector_v.max(base_collector_v);
+        self.min_current_fraction = self.min_current_fraction.min(current_fraction);
     }
 
     /// Sentences describing each way the point leaves forward-active operation.
@@ -78,8 +83,23 @@ pub struct ToneResult {
     pub region: RegionCheck,
 }
 
-/// Analyses one single-tone drive `v_d = A·cos θ` of a memoryless stage.
+/// Analyses one single-tone drive `v_d = A·cos θ` of a memoryless stage, from a quarter
+/// period when the pair is matched (see [`crate::symmetric`]), otherwise sample by sample.
 pub fn single_tone(
+    solver: &StaticSolver,
+    cache: &FftCache,
+    amplitude_v: f64,
+    harmonics: usize,
+) -> Result<ToneResult, SolveFailure> {
+    if crate::symmetric::applies(solver.circuit()) {
+        crate::symmetric::single_tone(solver, cache, amplitude_v, harmonics)
+    } else {
+        single_tone_general(solver, cache, amplitude_v, harmonics)
+    }
+}
+
+/// The general single-tone analysis: every sample of the period solved in turn.
+pub fn single_tone_general(
     solver: &StaticSolver,
     cache: &FftCache,
     amplitude_v: f64,

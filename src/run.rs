@@ -6,6 +6,7 @@ use crate::error::Error;
 use crate::plan::Plan;
 use crate::report::write::{check_output_dir, write_report_folder, OutputFile};
 use crate::report::{csv_export, markdown, Report};
+use crate::workload;
 use std::path::{Path, PathBuf};
 
 /// Options of `linbudget run`.
@@ -19,6 +20,8 @@ pub struct RunOptions {
     pub json: bool,
     /// No progress lines on standard error.
     pub quiet: bool,
+    /// Largest estimated work accepted, sample solves (see [`crate::workload`]).
+    pub max_work: f64,
 }
 
 /// What a run produced.
@@ -56,14 +59,26 @@ pub fn render_files(report: &Report) -> Result<Vec<OutputFile>, Error> {
     ])
 }
 
-/// Validates a plan file.
+/// Validates a plan file, including its estimated work against the default limit.
 pub fn check(plan: &Path) -> Result<Plan, Error> {
-    Plan::load(plan)
+    check_within(plan, workload::DEFAULT_MAX_WORK)
+}
+
+/// Validates a plan file and refuses it when its estimated work exceeds `max_work`.
+pub fn check_within(plan: &Path, max_work: f64) -> Result<Plan, Error> {
+    let validated = Plan::load(plan)?;
+    // Plan::load has already bounded the file's size; read it again to locate the error.
+    let text = std::fs::read_to_string(plan).map_err(|source| Error::ReadPlan {
+        path: plan.to_owned(),
+        source,
+    })?;
+    workload::check(&validated, max_work, &text, &plan.display().to_string())?;
+    Ok(validated)
 }
 
 /// Evaluates a plan and writes its report folder; nothing is written when anything fails.
 pub fn run(options: &RunOptions, progress: &(dyn Fn(&str) + Sync)) -> Result<RunOutcome, Error> {
-    let plan = Plan::load(&options.plan)?;
+    let plan = check_within(&options.plan, options.max_work)?;
     check_output_dir(&options.out)?;
     let report = analysis::evaluate(&plan, progress)?;
     let files = render_files(&report)?;

@@ -25,6 +25,7 @@ pub const MAX_SAMPLES: usize = 1 << 20;
 #[derive(Default)]
 pub struct FftCache {
     plans: Mutex<HashMap<usize, Arc<dyn Fft<f64>>>>,
+    quarter_cosines: Mutex<HashMap<usize, Arc<Vec<f64>>>>,
 }
 
 impl std::fmt::Debug for FftCache {
@@ -44,6 +45,54 @@ impl FftCache {
             .entry(n)
             .or_insert_with(|| FftPlanner::new().plan_fft_forward(n))
             .clone()
+    }
+
+    /// `cos(2π·i/n)` for `i = 0..=n/4` (the first quarter period), computed once per `n` with
+    /// the same expression as the general sampler so both see bit-identical drive values.
+    pub fn quarter_cosines(&self, n: usize) -> Arc<Vec<f64>> {
+        let mut tables = self
+            .quarter_cosines
+            .lock()
+            .unwrap_or_else(|poisoned| poisoned.into_inner());
+        tables
+            .entry(n)
+            .or_insert_with(|| {
+                Arc::new(
+                    (0..=n / 4)
+                        .map(|i| (std::f64::consts::TAU * i as f64 / n as f64).cos())
+                        .collect(),
+                )
+            })
+            .clone()
+    }
+
+    /// Peak amplitudes of harmonics `0..=count` of two real waveforms of the same length,
+    /// from one complex FFT of `a + i·b` (the standard packing of two real transforms:
+    /// `A_k = (Z_k + conj Z_{N−k})/2`, `B_k = (Z_k − conj Z_{N−k})/(2i)`). Same normalisation
+    /// as [`FftCache::harmonic_amplitudes`].
+    pub fn two_real_amplitudes(&self, a: &[f64], b: &[f64], count: usize) -> (Vec<f64>, Vec<f64>) {
+        let n = a.len();
+        let mut buffer: Vec<Complex<f64>> =
+            a.iter().zip(b).map(|(&x, &y)| Complex::new(x, y)).collect();
+        self.plan(n).process(&mut buffer);
+        let mut first = Vec::with_capacity(count + 1);
+        let mut second = Vec::with_capacity(count + 1);
+        for k in 0..=count {
+            if k == 0 {
+                first.push(buffer[0].re.abs() / n as f64);
+                second.push(buffer[0].im.abs() / n as f64);
+            } else if 2 * k < n {
+                let z = buffer[k];
+                let mirror = buffer[n - k].conj();
+                // |A_k| = |Z_k + conj Z_{N−k}|/2 and |B_k| = |Z_k − conj Z_{N−k}|/2; peak = 2|·|/N.
+                first.push((z + mirror).norm() / n as f64);
+                second.push((z - mirror).norm() / n as f64);
+            } else {
+                first.push(0.0);
+                second.push(0.0);
+            }
+        }
+        (first, second)
     }
 
     /// Peak amplitudes of harmonics `0..=count` (index 0 is DC) of one period of samples.
@@ -116,7 +165,7 @@ impl Spectrum {
     }
 
     /// The figures compared for convergence, each clamped at the floor.
-    fn reported_figures(&self, highest: usize, floor_dbc: f64) -> Vec<f64> {
+    pub(crate) fn reported_figures(&self, highest: usize, floor_dbc: f64) -> Vec<f64> {
         let mut figures = vec![20.0 * self.fundamental().log10()];
         figures.extend((2..=highest).map(|k| self.raw_dbc(k).max(floor_dbc)));
         figures.push(self.raw_thd_dbc(highest).max(floor_dbc));

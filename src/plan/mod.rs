@@ -375,8 +375,12 @@ const BUDGET_KEYS: &[&str] = &["metric", "at", "frequency", "max", "min"];
 const METRIC_NAMES: &str =
     "hd2, hd3, hd5 (any hdN, N ≥ 2), thd, im3, iip3, oip3, p1db, gain, steering_range, input_noise";
 
-/// Most amplitudes, frequencies or temperatures a plan may list before it is refused.
+/// Most amplitudes, frequencies or temperatures a plan may list or sweep before it is refused
+/// (the list is held in memory); below this the whole-plan work limit of [`crate::workload`]
+/// applies.
 pub const MAX_LIST: u64 = 100_000;
+/// Largest Monte Carlo run count read; the work limit normally refuses far fewer.
+pub const MAX_RUNS: u64 = 1_000_000_000_000_000;
 
 impl Plan {
     /// Reads and validates a plan file.
@@ -760,9 +764,23 @@ fn read_sweep(at: &At, unit: Unit, what: &str) -> Result<Vec<f64>, PlanError> {
             let map = at.map(SWEEP_KEYS)?;
             let from = map.quantity("from", unit, Range::Positive)?;
             let to = map.quantity("to", unit, Range::Positive)?;
-            let points = map
-                .required("points", "a whole number of points")?
-                .count(1, MAX_LIST)? as usize;
+            let points_at = map.required("points", "a whole number of points")?;
+            let points = points_at.count(1, u64::MAX)?;
+            if points > MAX_LIST {
+                return Err(points_at.error(
+                    format!(
+                        "{points} {what} would be about {:.1e} sample solves per stage and temperature \
+                         (each point takes about {} samples) and would be held in memory",
+                        points as f64 * crate::workload::SAMPLES_PER_TONE,
+                        crate::workload::SAMPLES_PER_TONE
+                    ),
+                    format!(
+                        "at most {MAX_LIST} points per sweep; split the plan, or coarsen the sweep \
+                         (the whole-plan work limit is raised with `linbudget run --max-work`)"
+                    ),
+                ));
+            }
+            let points = points as usize;
             let log = match map.get("spacing") {
                 None => true,
                 Some(s) => match s.text("log or linear")? {
@@ -843,9 +861,11 @@ fn read_drive(at: &At) -> Result<Drive, PlanError> {
 fn read_monte_carlo(at: &At) -> Result<MonteCarloSpec, PlanError> {
     let map = at.map(&["runs", "seed"])?;
     Ok(MonteCarloSpec {
+        // Runs are not held in memory, so the only cap here is representational; the work
+        // estimate (crate::workload) refuses plans whose runs would take too long.
         runs: map
             .required("runs", "a whole number of runs")?
-            .count(1, 1_000_000)?,
+            .count(1, MAX_RUNS)?,
         seed: match map.get("seed") {
             Some(s) => s.count(0, u64::MAX)?,
             None => 1,

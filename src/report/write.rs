@@ -1,6 +1,15 @@
 //! Writing the output folder atomically: everything goes to a hidden temporary folder beside
-//! the target, which is renamed into place only when complete, so an interrupted run leaves
+//! the target, which is moved into place only when complete, so an interrupted run leaves
 //! either the old report or the new one, never a mix.
+//!
+//! Replacing an existing report: on Linux the finished folder and the old one are swapped in
+//! one atomic `renameat2(RENAME_EXCHANGE)`, so at every instant `OUT/<name>` is a complete
+//! report (old, then new); the old one is then deleted. Elsewhere the old folder is first
+//! renamed aside, which leaves a window of a few microseconds in which `OUT/<name>` is
+//! absent (the old report then survives as `OUT/.<name>.previous-<pid>`).
+//!
+//! The folder name is a validated plan name (ASCII letters, digits, `-`, `_`), so it can
+//! never be `..` or contain a separator: nothing is written outside `OUT`.
 
 use crate::error::Error;
 use std::fs;
@@ -21,26 +30,121 @@ fn output_error(path: &Path, reason: impl std::fmt::Display) -> Error {
     }
 }
 
-/// Checks that `out_dir` is usable (an existing folder, or creatable) without writing.
+/// Whether `name` can name a folder inside `OUT` without escaping it.
+pub fn is_safe_folder_name(name: &str) -> bool {
+    !name.is_empty()
+        && name.len() <= 100
+        && name
+            .chars()
+            .all(|c| c.is_ascii_alphanumeric() || c == '-' || c == '_')
+}
+
+/// Checks, without writing anything, that `out_dir` is an existing folder or can be created:
+/// it must not be a file, and its nearest existing ancestor must be a folder.
 pub fn check_output_dir(out_dir: &Path) -> Result<(), Error> {
-    if out_dir.exists() && !out_dir.is_dir() {
+    if out_dir.as_os_str().is_empty() {
         return Err(output_error(
             out_dir,
-            "exists and is not a folder; pass a folder to --out",
+            "the output folder is empty; pass a folder to --out",
         ));
+    }
+    if out_dir.exists() {
+        if !out_dir.is_dir() {
+            return Err(output_error(
+                out_dir,
+                "exists and is not a folder; pass a folder to --out",
+            ));
+        }
+        let metadata = fs::metadata(out_dir).map_err(|e| output_error(out_dir, e))?;
+        if metadata.permissions().readonly() {
+            return Err(output_error(
+                out_dir,
+                "the folder is read-only; pass a writable folder to --out",
+            ));
+        }
+        return Ok(());
+    }
+    let mut ancestor = out_dir.parent();
+    while let Some(dir) = ancestor {
+        if dir.as_os_str().is_empty() || dir.exists() {
+            if !dir.as_os_str().is_empty() && !dir.is_dir() {
+                return Err(output_error(
+                    out_dir,
+                    format!(
+                        "{} is not a folder, so --out cannot be created there",
+                        dir.display()
+                    ),
+                ));
+            }
+            return Ok(());
+        }
+        ancestor = dir.parent();
     }
     Ok(())
 }
 
 /// Writes `files` as `out_dir/<name>/`, replacing any previous report of that name whole.
+/// On failure nothing new is left behind (a folder `out_dir` created by this call is removed
+/// again) and the previous report is intact.
 pub fn write_report_folder(
     out_dir: &Path,
     name: &str,
     files: &[OutputFile],
 ) -> Result<PathBuf, Error> {
+    if !is_safe_folder_name(name) {
+        return Err(output_error(
+            &out_dir.join(name),
+            "the plan name cannot name a folder inside --out",
+        ));
+    }
     check_output_dir(out_dir)?;
-    fs::create_dir_all(out_dir).map_err(|e| output_error(out_dir, e))?;
+    let created = create_missing(out_dir)?;
+    let result = write_inside(out_dir, name, files);
+    if result.is_err() {
+        // Remove only folders this call created, deepest first, and only while empty.
+        for dir in created.iter().rev() {
+            let _ = fs::remove_dir(dir);
+        }
+    }
+    result
+}
+
+/// Creates `dir` and its missing ancestors, returning those it created (outermost first).
+fn create_missing(dir: &Path) -> Result<Vec<PathBuf>, Error> {
+    let mut missing = Vec::new();
+    let mut current = Some(dir);
+    while let Some(path) = current {
+        if path.as_os_str().is_empty() || path.exists() {
+            break;
+        }
+        missing.push(path.to_owned());
+        current = path.parent();
+    }
+    missing.reverse();
+    let mut created = Vec::new();
+    for path in missing {
+        match fs::create_dir(&path) {
+            Ok(()) => created.push(path),
+            Err(e) if e.kind() == std::io::ErrorKind::AlreadyExists && path.is_dir() => {}
+            Err(e) => {
+                for dir in created.iter().rev() {
+                    let _ = fs::remove_dir(dir);
+                }
+                return Err(output_error(&path, e));
+            }
+        }
+    }
+    Ok(created)
+}
+
+fn write_inside(out_dir: &Path, name: &str, files: &[OutputFile]) -> Result<PathBuf, Error> {
     let target = out_dir.join(name);
+    if target.exists() && !target.is_dir() {
+        return Err(output_error(
+            &target,
+            "exists and is not a folder; remove it or choose another --out",
+        ));
+    }
     let staging = out_dir.join(format!(".{name}.partial-{}", std::process::id()));
     if staging.exists() {
         fs::remove_dir_all(&staging).map_err(|e| output_error(&staging, e))?;
@@ -51,18 +155,92 @@ pub fn write_report_folder(
             let path = staging.join(&file.name);
             fs::write(&path, &file.bytes).map_err(|e| output_error(&path, e))?;
         }
-        let previous = out_dir.join(format!(".{name}.previous-{}", std::process::id()));
-        if target.exists() {
-            fs::rename(&target, &previous).map_err(|e| output_error(&target, e))?;
-        }
-        fs::rename(&staging, &target).map_err(|e| output_error(&target, e))?;
-        if previous.exists() {
-            fs::remove_dir_all(&previous).map_err(|e| output_error(&previous, e))?;
-        }
+        install(&staging, &target, out_dir, name)?;
         Ok(target.clone())
     })();
-    if result.is_err() && staging.exists() {
+    if staging.exists() {
+        // After a successful exchange this holds the previous report; after a failure, the
+        // unfinished new one. Either way it is no longer wanted.
         let _ = fs::remove_dir_all(&staging);
     }
     result
+}
+
+/// Moves the finished `staging` folder to `target`; afterwards `staging` holds the previous
+/// report, if there was one.
+fn install(staging: &Path, target: &Path, out_dir: &Path, name: &str) -> Result<(), Error> {
+    if !target.exists() {
+        return fs::rename(staging, target).map_err(|e| output_error(target, e));
+    }
+    #[cfg(target_os = "linux")]
+    {
+        use rustix::fs::{renameat_with, RenameFlags, CWD};
+        match renameat_with(CWD, staging, CWD, target, RenameFlags::EXCHANGE) {
+            Ok(()) => return Ok(()),
+            // File systems without RENAME_EXCHANGE fall through to the two-step move.
+            Err(e) if e == rustix::io::Errno::INVAL || e == rustix::io::Errno::NOSYS => {}
+            Err(e) => return Err(output_error(target, std::io::Error::from(e))),
+        }
+    }
+    let previous = out_dir.join(format!(".{name}.previous-{}", std::process::id()));
+    fs::rename(target, &previous).map_err(|e| output_error(target, e))?;
+    if let Err(e) = fs::rename(staging, target) {
+        let _ = fs::rename(&previous, target);
+        return Err(output_error(target, e));
+    }
+    fs::rename(&previous, staging).map_err(|e| output_error(&previous, e))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn report(text: &str) -> Vec<OutputFile> {
+        vec![OutputFile {
+            name: "report.json".into(),
+            bytes: text.as_bytes().to_vec(),
+        }]
+    }
+
+    #[test]
+    fn a_second_run_replaces_the_first_whole_and_leaves_no_litter() {
+        let dir = tempfile::tempdir().unwrap();
+        write_report_folder(dir.path(), "p", &report("old")).unwrap();
+        let folder = write_report_folder(dir.path(), "p", &report("new")).unwrap();
+        assert_eq!(
+            fs::read_to_string(folder.join("report.json")).unwrap(),
+            "new"
+        );
+        let names: Vec<_> = fs::read_dir(dir.path())
+            .unwrap()
+            .map(|e| e.unwrap().file_name())
+            .collect();
+        assert_eq!(names, vec![std::ffi::OsString::from("p")]);
+    }
+
+    #[test]
+    fn a_failed_write_keeps_the_previous_report() {
+        let dir = tempfile::tempdir().unwrap();
+        write_report_folder(dir.path(), "p", &report("old")).unwrap();
+        // A file name with a separator into a missing folder cannot be written.
+        let bad = vec![OutputFile {
+            name: "missing/report.json".into(),
+            bytes: b"new".to_vec(),
+        }];
+        assert!(write_report_folder(dir.path(), "p", &bad).is_err());
+        assert_eq!(
+            fs::read_to_string(dir.path().join("p/report.json")).unwrap(),
+            "old"
+        );
+        assert_eq!(fs::read_dir(dir.path()).unwrap().count(), 1);
+    }
+
+    #[test]
+    fn names_that_could_escape_the_folder_are_refused() {
+        let dir = tempfile::tempdir().unwrap();
+        for name in ["..", "../x", "a/b", "", "/abs"] {
+            assert!(write_report_folder(&dir.path().join("out"), name, &report("x")).is_err());
+        }
+        assert_eq!(fs::read_dir(dir.path()).unwrap().count(), 0);
+    }
 }
