@@ -13,6 +13,7 @@ pub mod engine;
 pub mod error;
 pub mod metrics;
 pub mod plan;
+pub mod plots;
 pub mod report;
 pub mod roots;
 pub mod run;

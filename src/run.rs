@@ -5,7 +5,7 @@ use crate::analysis;
 use crate::error::Error;
 use crate::plan::Plan;
 use crate::report::write::{check_output_dir, write_report_folder, OutputFile};
-use crate::report::{csv_export, markdown, Report};
+use crate::report::{csv_export, datasheet, markdown, Report};
 use std::path::{Path, PathBuf};
 
 /// Options of `linbudget run`.
@@ -40,7 +40,7 @@ pub fn render_files(report: &Report) -> Result<Vec<OutputFile>, Error> {
         path: "points.csv".into(),
         reason: e.to_string(),
     })?;
-    Ok(vec![
+    let mut files = vec![
         OutputFile {
             name: "report.json".into(),
             bytes: json,
@@ -53,7 +53,9 @@ pub fn render_files(report: &Report) -> Result<Vec<OutputFile>, Error> {
             name: "summary.md".into(),
             bytes: markdown::summary(report).into_bytes(),
         },
-    ])
+    ];
+    files.extend(datasheet::render_files(report)?);
+    Ok(files)
 }
 
 /// Validates a plan file.
