@@ -154,7 +154,7 @@ impl Drawing for HarmonicsPlot {
         mesh_style(&mut chart.configure_mesh())
             .x_desc("peak differential input per tone (log)")
             .y_desc("distortion (dBc)")
-            .x_label_formatter(&|v| si(*v, "V"))
+            .x_label_formatter(&|v| log_tick(*v, "V"))
             .y_label_formatter(&|v| num(*v, 0))
             .draw()?;
 

@@ -9,15 +9,15 @@
 //! compared), the line pattern names the temperature (solid for the first one in the plan),
 //! green round markers pass a budget line and red crosses fail it.
 
-// mod compare;
-// mod frequency;
+mod compare;
+mod frequency;
 mod harmonics;
-// mod monte_carlo;
-// mod sizing;
-// mod spectrum;
+mod monte_carlo;
+mod sizing;
+mod spectrum;
 pub mod style;
 mod transfer;
-// mod two_tone;
+mod two_tone;
 
 use crate::error::Error;
 use crate::report::Report;
@@ -181,6 +181,24 @@ pub fn render_all(report: &Report) -> Result<Vec<Figure>, Error> {
         if let Some(d) = harmonics::HarmonicsPlot::new(report, stage, &slug) {
             jobs.push(job(d));
         }
+        if let Some(d) = two_tone::TwoTonePlot::new(report, stage, &slug) {
+            jobs.push(job(d));
+        }
+        if let Some(d) = spectrum::SpectrumPlot::new(report, stage, &slug) {
+            jobs.push(job(d));
+        }
+        if let Some(d) = sizing::SizingPlot::new(report, stage, &slug) {
+            jobs.push(job(d));
+        }
+        if let Some(d) = frequency::FrequencyPlot::new(report, stage, &slug) {
+            jobs.push(job(d));
+        }
+        if let Some(d) = monte_carlo::MonteCarloPlot::new(report, stage, &slug) {
+            jobs.push(job(d));
+        }
+    }
+    if let Some(d) = compare::ComparisonPlot::new(report) {
+        jobs.push(job(d));
     }
     jobs.par_iter().map(|j| j()).collect()
 }

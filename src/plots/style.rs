@@ -449,3 +449,17 @@ pub fn backed_label<DB: DrawingBackend>(
     root.draw(&Text::new(label.to_owned(), (left, y), style.pos(Pos::new(HPos::Left, VPos::Center))))?;
     Ok(())
 }
+
+/// Tick label of a log axis: only mantissas 1, 2 and 5 are labelled, so short spans stay
+/// readable.
+pub fn log_tick(value: f64, unit: &str) -> String {
+    if value <= 0.0 || !value.is_finite() {
+        return String::new();
+    }
+    let mantissa = value / 10f64.powf(value.log10().floor());
+    if [1.0, 2.0, 5.0, 10.0].iter().any(|m| (mantissa - m).abs() < 1e-6 * m) {
+        si(value, unit)
+    } else {
+        String::new()
+    }
+}
