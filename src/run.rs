@@ -68,6 +68,7 @@ pub fn run(options: &RunOptions, progress: &(dyn Fn(&str) + Sync)) -> Result<Run
     let plan = Plan::load(&options.plan)?;
     check_output_dir(&options.out)?;
     let report = analysis::evaluate(&plan, progress)?;
+    progress("drawing figures and writing the report");
     let files = render_files(&report)?;
     let folder = write_report_folder(&options.out, &plan.name, &files)?;
     Ok(RunOutcome { report, folder })
