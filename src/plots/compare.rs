@@ -24,8 +24,12 @@ impl ComparisonPlot {
         }
         let temperature_c = typical_temperature(&temperatures(report))?;
         let frequency_hz = report.points.first().map(|p| p.frequency_hz);
-        let transfers: Vec<StageRecord> =
-            report.stages.iter().filter(|s| s.temperature_c == temperature_c && s.transfer.len() > 1).cloned().collect();
+        let transfers: Vec<StageRecord> = report
+            .stages
+            .iter()
+            .filter(|s| s.temperature_c == temperature_c && s.transfer.len() > 1)
+            .cloned()
+            .collect();
         let points: Vec<PointRecord> = report
             .points
             .iter()
@@ -64,7 +68,11 @@ impl Drawing for ComparisonPlot {
     }
 
     fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> DrawResult {
-        let subtitle = format!("{} · {}", self.stages.join(" vs "), celsius(self.temperature_c));
+        let subtitle = format!(
+            "{} · {}",
+            self.stages.join(" vs "),
+            celsius(self.temperature_c)
+        );
         let body = frame(root, &self.title(), &subtitle)?;
         let (width, _) = body.dim_in_pixel();
         let (left, right) = body.split_horizontally(width / 2);
@@ -91,21 +99,47 @@ impl Drawing for ComparisonPlot {
             .draw()?;
         for record in &self.transfers {
             let colour = self.colour(&record.stage);
-            let data: Vec<(f64, Option<f64>)> =
-                record.transfer.iter().map(|t| (t.input_v * 1e3, Some(t.normalised_current))).collect();
-            draw_runs(&mut chart, &data, y_range, false, pattern(0), colour.stroke_width(3))?;
-            legend_entry(&mut chart, &record.stage, pattern(0), colour.stroke_width(3), None)?;
+            let data: Vec<(f64, Option<f64>)> = record
+                .transfer
+                .iter()
+                .map(|t| (t.input_v * 1e3, Some(t.normalised_current)))
+                .collect();
+            draw_runs(
+                &mut chart,
+                &data,
+                y_range,
+                false,
+                pattern(0),
+                colour.stroke_width(3),
+            )?;
+            legend_entry(
+                &mut chart,
+                &record.stage,
+                pattern(0),
+                colour.stroke_width(3),
+                None,
+            )?;
         }
         legend(&mut chart, SeriesLabelPosition::UpperLeft)?;
 
-        let values = self.points.iter().flat_map(|p| [p.harmonic(3), p.thd_dbc]).flatten();
-        let (low, high) = values.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), v| (lo.min(v), hi.max(v)));
+        let values = self
+            .points
+            .iter()
+            .flat_map(|p| [p.harmonic(3), p.thd_dbc])
+            .flatten();
+        let (low, high) = values.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), v| {
+            (lo.min(v), hi.max(v))
+        });
         if !low.is_finite() {
             return Ok(());
         }
         let (y_low, y_high) = db_span(low - 8.0, high + 8.0, 20.0);
-        let (a_low, a_high) =
-            self.points.iter().fold((f64::INFINITY, 0.0f64), |(lo, hi), p| (lo.min(p.amplitude_v), hi.max(p.amplitude_v)));
+        let (a_low, a_high) = self
+            .points
+            .iter()
+            .fold((f64::INFINITY, 0.0f64), |(lo, hi), p| {
+                (lo.min(p.amplitude_v), hi.max(p.amplitude_v))
+            });
         let (x_low, x_high) = log_span(a_low, a_high, 1.5);
         let mut chart = ChartBuilder::on(&right)
             .margin_left(24)
@@ -122,15 +156,46 @@ impl Drawing for ComparisonPlot {
             .draw()?;
         for stage in &self.stages {
             let colour = self.colour(stage);
-            let mine: Vec<&PointRecord> = self.points.iter().filter(|p| &p.stage == stage).collect();
-            let hd3: Vec<(f64, Option<f64>)> = mine.iter().map(|p| (p.amplitude_v, p.harmonic(3))).collect();
-            let thd: Vec<(f64, Option<f64>)> = mine.iter().map(|p| (p.amplitude_v, p.thd_dbc)).collect();
-            draw_runs(&mut chart, &hd3, (y_low, y_high), true, pattern(0), colour.stroke_width(3))?;
+            let mine: Vec<&PointRecord> =
+                self.points.iter().filter(|p| &p.stage == stage).collect();
+            let hd3: Vec<(f64, Option<f64>)> = mine
+                .iter()
+                .map(|p| (p.amplitude_v, p.harmonic(3)))
+                .collect();
+            let thd: Vec<(f64, Option<f64>)> =
+                mine.iter().map(|p| (p.amplitude_v, p.thd_dbc)).collect();
+            draw_runs(
+                &mut chart,
+                &hd3,
+                (y_low, y_high),
+                true,
+                pattern(0),
+                colour.stroke_width(3),
+            )?;
             draw_markers(&mut chart, &hd3, (y_low, y_high), Marker::Circle, colour)?;
-            draw_runs(&mut chart, &thd, (y_low, y_high), true, pattern(1), colour.stroke_width(3))?;
+            draw_runs(
+                &mut chart,
+                &thd,
+                (y_low, y_high),
+                true,
+                pattern(1),
+                colour.stroke_width(3),
+            )?;
             draw_markers(&mut chart, &thd, (y_low, y_high), Marker::Square, colour)?;
-            legend_entry(&mut chart, &format!("{stage} HD3"), pattern(0), colour.stroke_width(3), Some(Marker::Circle))?;
-            legend_entry(&mut chart, &format!("{stage} THD"), pattern(1), colour.stroke_width(3), Some(Marker::Square))?;
+            legend_entry(
+                &mut chart,
+                &format!("{stage} HD3"),
+                pattern(0),
+                colour.stroke_width(3),
+                Some(Marker::Circle),
+            )?;
+            legend_entry(
+                &mut chart,
+                &format!("{stage} THD"),
+                pattern(1),
+                colour.stroke_width(3),
+                Some(Marker::Square),
+            )?;
         }
         legend(&mut chart, SeriesLabelPosition::LowerRight)?;
         Ok(())

@@ -40,11 +40,23 @@ impl FrequencyPlot {
                 .min_by(|a, b| (a / at).ln().abs().total_cmp(&(b / at).ln().abs()))?,
             None => mine.iter().map(|p| p.amplitude_v).fold(0.0, f64::max),
         };
-        let mut points: Vec<PointRecord> = mine.into_iter().filter(|p| p.amplitude_v == amplitude_v).cloned().collect();
+        let mut points: Vec<PointRecord> = mine
+            .into_iter()
+            .filter(|p| p.amplitude_v == amplitude_v)
+            .cloned()
+            .collect();
         points.sort_by(|a, b| a.frequency_hz.total_cmp(&b.frequency_hz));
-        let mut intercepts: Vec<InterceptRecord> = report.intercepts.iter().filter(|i| i.stage == stage).cloned().collect();
+        let mut intercepts: Vec<InterceptRecord> = report
+            .intercepts
+            .iter()
+            .filter(|i| i.stage == stage)
+            .cloned()
+            .collect();
         intercepts.sort_by(|a, b| a.frequency_hz.total_cmp(&b.frequency_hz));
-        let temps = temperatures(report).into_iter().filter(|t| points.iter().any(|p| p.temperature_c == *t)).collect();
+        let temps = temperatures(report)
+            .into_iter()
+            .filter(|t| points.iter().any(|p| p.temperature_c == *t))
+            .collect();
         Some(FrequencyPlot {
             stage: stage.to_owned(),
             slug: slug.to_owned(),
@@ -75,7 +87,10 @@ impl Drawing for FrequencyPlot {
     }
 
     fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> DrawResult {
-        let subtitle = format!("input {} peak differential per tone", si(self.amplitude_v, "V"));
+        let subtitle = format!(
+            "input {} peak differential per tone",
+            si(self.amplitude_v, "V")
+        );
         let body = frame(root, &self.title(), &subtitle)?;
         let metrics = ["hd2", "hd3", "thd"];
         let value = |p: &PointRecord, m: &str| match m {
@@ -83,18 +98,40 @@ impl Drawing for FrequencyPlot {
             "hd2" => p.harmonic(2),
             _ => p.harmonic(3),
         };
-        let values = self.points.iter().flat_map(|p| metrics.map(|m| value(p, m))).flatten();
-        let (low, high) = values.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), v| (lo.min(v), hi.max(v)));
+        let values = self
+            .points
+            .iter()
+            .flat_map(|p| metrics.map(|m| value(p, m)))
+            .flatten();
+        let (low, high) = values.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), v| {
+            (lo.min(v), hi.max(v))
+        });
         if !low.is_finite() {
             return Ok(());
         }
         let (y_low, y_high) = db_span(low - 8.0, high + 8.0, 10.0);
-        let (f_low, f_high) =
-            self.points.iter().fold((f64::INFINITY, 0.0f64), |(lo, hi), p| (lo.min(p.frequency_hz), hi.max(p.frequency_hz)));
+        let (f_low, f_high) = self
+            .points
+            .iter()
+            .fold((f64::INFINITY, 0.0f64), |(lo, hi), p| {
+                (lo.min(p.frequency_hz), hi.max(p.frequency_hz))
+            });
         let (x_low, x_high) = log_span(f_low, f_high, 1.3);
-        let iip3: Vec<f64> = self.intercepts.iter().filter_map(|i| i.iip3_v.map(dbv)).collect();
-        let (i_low, i_high) = iip3.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), v| (lo.min(*v), hi.max(*v)));
-        let (i_low, i_high) = if i_low.is_finite() { db_span(i_low - 5.0, i_high + 5.0, 5.0) } else { (-40.0, 20.0) };
+        let iip3: Vec<f64> = self
+            .intercepts
+            .iter()
+            .filter_map(|i| i.iip3_v.map(dbv))
+            .collect();
+        let (i_low, i_high) = iip3
+            .iter()
+            .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), v| {
+                (lo.min(*v), hi.max(*v))
+            });
+        let (i_low, i_high) = if i_low.is_finite() {
+            db_span(i_low - 5.0, i_high + 5.0, 5.0)
+        } else {
+            (-40.0, 20.0)
+        };
 
         let mut chart = ChartBuilder::on(&body)
             .margin_left(24)
@@ -120,11 +157,23 @@ impl Drawing for FrequencyPlot {
             .y_label_formatter(&|v| num(*v, 0))
             .draw()?;
         for (ti, t) in self.temps.iter().enumerate() {
-            let at_t: Vec<&PointRecord> = self.points.iter().filter(|p| p.temperature_c == *t).collect();
+            let at_t: Vec<&PointRecord> = self
+                .points
+                .iter()
+                .filter(|p| p.temperature_c == *t)
+                .collect();
             for (k, m) in metrics.iter().enumerate() {
                 let colour = metric_colour(m);
-                let data: Vec<(f64, Option<f64>)> = at_t.iter().map(|p| (p.frequency_hz, value(p, m))).collect();
-                draw_runs(&mut chart, &data, (y_low, y_high), true, pattern(ti), colour.stroke_width(3))?;
+                let data: Vec<(f64, Option<f64>)> =
+                    at_t.iter().map(|p| (p.frequency_hz, value(p, m))).collect();
+                draw_runs(
+                    &mut chart,
+                    &data,
+                    (y_low, y_high),
+                    true,
+                    pattern(ti),
+                    colour.stroke_width(3),
+                )?;
                 draw_markers(&mut chart, &data, (y_low, y_high), Marker::nth(k), colour)?;
             }
             let iip3: Vec<(f64, f64)> = self
@@ -134,13 +183,29 @@ impl Drawing for FrequencyPlot {
                 .filter_map(|i| i.iip3_v.map(|v| (i.frequency_hz, dbv(v))))
                 .collect();
             if iip3.len() > 1 {
-                chart.draw_secondary_series(std::iter::once(dashed(iip3, pattern(ti), metric_colour("iip3").stroke_width(3))))?;
+                chart.draw_secondary_series(std::iter::once(dashed(
+                    iip3,
+                    pattern(ti),
+                    metric_colour("iip3").stroke_width(3),
+                )))?;
             }
         }
         for (k, m) in metrics.iter().enumerate() {
-            legend_entry(&mut chart, &m.to_uppercase(), pattern(0), metric_colour(m).stroke_width(3), Some(Marker::nth(k)))?;
+            legend_entry(
+                &mut chart,
+                &m.to_uppercase(),
+                pattern(0),
+                metric_colour(m).stroke_width(3),
+                Some(Marker::nth(k)),
+            )?;
         }
-        legend_entry(&mut chart, "IIP3 (right)", pattern(0), metric_colour("iip3").stroke_width(3), None)?;
+        legend_entry(
+            &mut chart,
+            "IIP3 (right)",
+            pattern(0),
+            metric_colour("iip3").stroke_width(3),
+            None,
+        )?;
         temperature_key(&mut chart, &self.temps)?;
         legend(&mut chart, SeriesLabelPosition::UpperLeft)?;
         Ok(())

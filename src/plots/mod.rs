@@ -119,9 +119,17 @@ pub fn register_fonts() {
     FONTS.call_once(|| {
         // The embedded faces are valid TrueType; a failure here would be a build defect and
         // surfaces later as a `FontUnavailable` drawing error naming the figure.
-        let _ = plotters::style::register_font("sans-serif", FontStyle::Normal, dejavu::sans::regular());
+        let _ = plotters::style::register_font(
+            "sans-serif",
+            FontStyle::Normal,
+            dejavu::sans::regular(),
+        );
         let _ = plotters::style::register_font("sans-serif", FontStyle::Bold, dejavu::sans::bold());
-        let _ = plotters::style::register_font("sans-serif", FontStyle::Oblique, dejavu::sans::oblique());
+        let _ = plotters::style::register_font(
+            "sans-serif",
+            FontStyle::Oblique,
+            dejavu::sans::oblique(),
+        );
     });
 }
 
@@ -207,7 +215,13 @@ pub fn render_all(report: &Report) -> Result<Vec<Figure>, Error> {
 fn unique_slug(stage: &str, taken: &mut Vec<String>) -> String {
     let mut slug: String = stage
         .chars()
-        .map(|c| if c.is_ascii_alphanumeric() || c == '-' || c == '_' { c } else { '-' })
+        .map(|c| {
+            if c.is_ascii_alphanumeric() || c == '-' || c == '_' {
+                c
+            } else {
+                '-'
+            }
+        })
         .collect();
     if slug.is_empty() {
         slug = "stage".into();

@@ -44,8 +44,17 @@ impl SizingPlot {
     fn line_label(&self, index: usize) -> String {
         match self.lines.get(index) {
             Some(line) => {
-                let at = line.at_v.map(|a| format!(" at {}", si(a, "V"))).unwrap_or_default();
-                format!("{}{} ({} {})", line.metric.to_uppercase(), at, line.kind, limit_text(line))
+                let at = line
+                    .at_v
+                    .map(|a| format!(" at {}", si(a, "V")))
+                    .unwrap_or_default();
+                format!(
+                    "{}{} ({} {})",
+                    line.metric.to_uppercase(),
+                    at,
+                    line.kind,
+                    limit_text(line)
+                )
             }
             None => format!("line {}", index + 1),
         }
@@ -83,8 +92,17 @@ impl Drawing for SizingPlot {
             .records
             .iter()
             .map(|r| match (r.met, r.emitter_resistance_ohm) {
-                (true, Some(re)) => format!("{}: R_E = {} (binding {})", celsius(r.temperature_c), si(re, "Ω"), r.binding_metric.to_uppercase()),
-                (_, Some(re)) => format!("{}: not met, best R_E = {}", celsius(r.temperature_c), si(re, "Ω")),
+                (true, Some(re)) => format!(
+                    "{}: R_E = {} (binding {})",
+                    celsius(r.temperature_c),
+                    si(re, "Ω"),
+                    r.binding_metric.to_uppercase()
+                ),
+                (_, Some(re)) => format!(
+                    "{}: not met, best R_E = {}",
+                    celsius(r.temperature_c),
+                    si(re, "Ω")
+                ),
                 _ => format!("{}: not met", celsius(r.temperature_c)),
             })
             .collect::<Vec<_>>()
@@ -92,13 +110,24 @@ impl Drawing for SizingPlot {
         let body = frame(root, &self.title(), &subtitle)?;
 
         let scans = self.records.iter().flat_map(|r| r.scan.iter());
-        let (r_low, r_high) = scans
+        let (r_low, r_high) =
+            scans
+                .clone()
+                .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), s| {
+                    (
+                        lo.min(s.emitter_resistance_ohm),
+                        hi.max(s.emitter_resistance_ohm),
+                    )
+                });
+        let margins = scans
             .clone()
-            .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), s| (lo.min(s.emitter_resistance_ohm), hi.max(s.emitter_resistance_ohm)));
-        let margins = scans.clone().flat_map(|s| s.margins.iter().flatten().copied()).filter(|m| m.is_finite());
+            .flat_map(|s| s.margins.iter().flatten().copied())
+            .filter(|m| m.is_finite());
         let (m_low, m_high) = margins.fold((0.0f64, 0.0f64), |(lo, hi), m| (lo.min(m), hi.max(m)));
         let (y_low, y_high) = db_span(m_low.max(-80.0) - 5.0, m_high.min(80.0) + 5.0, 10.0);
-        let (g_low, g_high) = scans.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), s| (lo.min(s.gain_db), hi.max(s.gain_db)));
+        let (g_low, g_high) = scans.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), s| {
+            (lo.min(s.gain_db), hi.max(s.gain_db))
+        });
         let g_pad = nice_ceiling(((g_high - g_low) * 0.1).max(1.0));
         let (g_low, g_high) = db_span(g_low - g_pad, g_high + g_pad, g_pad);
 
@@ -126,26 +155,69 @@ impl Drawing for SizingPlot {
             .y_label_formatter(&|v| num(*v, 0))
             .draw()?;
 
-        chart.draw_series(std::iter::once(Rectangle::new([(r_low, y_low), (r_high, 0.0)], FAIL.mix(0.05).filled())))?;
-        chart.draw_series(std::iter::once(PathElement::new(vec![(r_low, 0.0), (r_high, 0.0)], INK.stroke_width(2))))?;
+        chart.draw_series(std::iter::once(Rectangle::new(
+            [(r_low, y_low), (r_high, 0.0)],
+            FAIL.mix(0.05).filled(),
+        )))?;
+        chart.draw_series(std::iter::once(PathElement::new(
+            vec![(r_low, 0.0), (r_high, 0.0)],
+            INK.stroke_width(2),
+        )))?;
 
-        let line_count = self.records.iter().flat_map(|r| r.scan.iter().map(|s| s.margins.len())).max().unwrap_or(0);
+        let line_count = self
+            .records
+            .iter()
+            .flat_map(|r| r.scan.iter().map(|s| s.margins.len()))
+            .max()
+            .unwrap_or(0);
         let gain_colour = RGBColor(0x7a, 0x80, 0x8a);
         for (ti, record) in self.records.iter().enumerate() {
             for k in 0..line_count {
-                let colour = self.lines.get(k).map(|l| metric_colour(&l.metric)).unwrap_or(SERIES[k % SERIES.len()]);
-                let data: Vec<(f64, Option<f64>)> =
-                    record.scan.iter().map(|s| (s.emitter_resistance_ohm, s.margins.get(k).copied().flatten())).collect();
-                draw_runs(&mut chart, &data, (y_low, y_high), false, pattern(ti), colour.stroke_width(3))?;
+                let colour = self
+                    .lines
+                    .get(k)
+                    .map(|l| metric_colour(&l.metric))
+                    .unwrap_or(SERIES[k % SERIES.len()]);
+                let data: Vec<(f64, Option<f64>)> = record
+                    .scan
+                    .iter()
+                    .map(|s| {
+                        (
+                            s.emitter_resistance_ohm,
+                            s.margins.get(k).copied().flatten(),
+                        )
+                    })
+                    .collect();
+                draw_runs(
+                    &mut chart,
+                    &data,
+                    (y_low, y_high),
+                    false,
+                    pattern(ti),
+                    colour.stroke_width(3),
+                )?;
             }
-            let gain: Vec<(f64, f64)> = record.scan.iter().map(|s| (s.emitter_resistance_ohm, s.gain_db)).collect();
-            chart.draw_secondary_series(std::iter::once(dashed(gain, pattern(ti), gain_colour.mix(0.7).stroke_width(2))))?;
+            let gain: Vec<(f64, f64)> = record
+                .scan
+                .iter()
+                .map(|s| (s.emitter_resistance_ohm, s.gain_db))
+                .collect();
+            chart.draw_secondary_series(std::iter::once(dashed(
+                gain,
+                pattern(ti),
+                gain_colour.mix(0.7).stroke_width(2),
+            )))?;
             if let Some(re) = record.emitter_resistance_ohm {
                 let colour = if record.met { PASS } else { FAIL };
-                chart.draw_series(std::iter::once(PathElement::new(vec![(re, y_low), (re, y_high)], colour.stroke_width(3))))?;
+                chart.draw_series(std::iter::once(PathElement::new(
+                    vec![(re, y_low), (re, y_high)],
+                    colour.stroke_width(3),
+                )))?;
                 if let Some(g) = record.gain_db {
                     chart.draw_secondary_series(std::iter::once(
-                        EmptyElement::at((re, g)) + Circle::new((0, 0), 8, PAPER.filled()) + Circle::new((0, 0), 6, gain_colour.filled()),
+                        EmptyElement::at((re, g))
+                            + Circle::new((0, 0), 8, PAPER.filled())
+                            + Circle::new((0, 0), 6, gain_colour.filled()),
                     ))?;
                 }
                 let top = chart.backend_coord(&(re, y_high));
@@ -159,10 +231,26 @@ impl Drawing for SizingPlot {
             }
         }
         for k in 0..line_count {
-            let colour = self.lines.get(k).map(|l| metric_colour(&l.metric)).unwrap_or(SERIES[k % SERIES.len()]);
-            legend_entry(&mut chart, &self.line_label(k), pattern(0), colour.stroke_width(3), None)?;
+            let colour = self
+                .lines
+                .get(k)
+                .map(|l| metric_colour(&l.metric))
+                .unwrap_or(SERIES[k % SERIES.len()]);
+            legend_entry(
+                &mut chart,
+                &self.line_label(k),
+                pattern(0),
+                colour.stroke_width(3),
+                None,
+            )?;
         }
-        legend_entry(&mut chart, "small-signal gain (right)", pattern(0), gain_colour.mix(0.7).stroke_width(2), Some(Marker::Circle))?;
+        legend_entry(
+            &mut chart,
+            "small-signal gain (right)",
+            pattern(0),
+            gain_colour.mix(0.7).stroke_width(2),
+            Some(Marker::Circle),
+        )?;
         temperature_key(&mut chart, &temps)?;
         legend(&mut chart, SeriesLabelPosition::LowerRight)?;
         Ok(())

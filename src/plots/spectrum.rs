@@ -24,8 +24,11 @@ impl SpectrumPlot {
     pub fn new(report: &Report, stage: &str, slug: &str) -> Option<Self> {
         let first = report.points.iter().find(|p| p.stage == stage)?;
         let frequency_hz = first.frequency_hz;
-        let candidates: Vec<&PointRecord> =
-            report.points.iter().filter(|p| p.stage == stage && p.frequency_hz == frequency_hz).collect();
+        let candidates: Vec<&PointRecord> = report
+            .points
+            .iter()
+            .filter(|p| p.stage == stage && p.frequency_hz == frequency_hz)
+            .collect();
         let target = report
             .budget
             .iter()
@@ -38,11 +41,20 @@ impl SpectrumPlot {
                 .min_by(|a, b| (a / at).ln().abs().total_cmp(&(b / at).ln().abs()))?,
             None => candidates.iter().map(|p| p.amplitude_v).fold(0.0, f64::max),
         };
-        let points: Vec<PointRecord> = candidates.into_iter().filter(|p| p.amplitude_v == amplitude_v).cloned().collect();
+        let points: Vec<PointRecord> = candidates
+            .into_iter()
+            .filter(|p| p.amplitude_v == amplitude_v)
+            .cloned()
+            .collect();
         let highest_order = points
             .iter()
             .flat_map(|p| p.harmonics.keys())
-            .filter_map(|k| k.trim_start_matches("hd").trim_end_matches("_dbc").parse::<usize>().ok())
+            .filter_map(|k| {
+                k.trim_start_matches("hd")
+                    .trim_end_matches("_dbc")
+                    .parse::<usize>()
+                    .ok()
+            })
             .max()?;
         (highest_order >= 2).then(|| SpectrumPlot {
             stage: stage.to_owned(),
@@ -63,7 +75,11 @@ impl Drawing for SpectrumPlot {
         format!("spectrum-{}", self.slug)
     }
     fn title(&self) -> String {
-        format!("Output spectrum · {} at {}", self.stage, si(self.amplitude_v, "V"))
+        format!(
+            "Output spectrum · {} at {}",
+            self.stage,
+            si(self.amplitude_v, "V")
+        )
     }
     fn caption(&self) -> String {
         format!(
@@ -78,7 +94,13 @@ impl Drawing for SpectrumPlot {
         let thd: Vec<String> = self
             .points
             .iter()
-            .map(|p| format!("THD {} dBc at {}", p.thd_dbc.map(|v| num(v, 1)).unwrap_or("below floor".into()), celsius(p.temperature_c)))
+            .map(|p| {
+                format!(
+                    "THD {} dBc at {}",
+                    p.thd_dbc.map(|v| num(v, 1)).unwrap_or("below floor".into()),
+                    celsius(p.temperature_c)
+                )
+            })
             .collect();
         let subtitle = format!("fundamental {} · {}", si(f, "Hz"), thd.join(" · "));
         let body = frame(root, &self.title(), &subtitle)?;
@@ -103,7 +125,13 @@ impl Drawing for SpectrumPlot {
             .x_labels(self.highest_order)
             .x_desc("harmonic order (multiple of the fundamental frequency)")
             .y_desc("level (dBc)")
-            .x_label_formatter(&|v| if (v - v.round()).abs() < 1e-6 { format!("{}", v.round() as i64) } else { String::new() })
+            .x_label_formatter(&|v| {
+                if (v - v.round()).abs() < 1e-6 {
+                    format!("{}", v.round() as i64)
+                } else {
+                    String::new()
+                }
+            })
             .y_label_formatter(&|v| num(*v, 0))
             .draw()?;
 
@@ -114,11 +142,20 @@ impl Drawing for SpectrumPlot {
             let shift = (ti as f64 - (n as f64 - 1.0) / 2.0) * width;
             for order in 1..=self.highest_order {
                 let x = order as f64 + shift;
-                let level = if order == 1 { Some(0.0) } else { p.harmonic(order) };
+                let level = if order == 1 {
+                    Some(0.0)
+                } else {
+                    p.harmonic(order)
+                };
                 match level {
                     Some(v) if v >= y_low => {
-                        chart.draw_series(std::iter::once(PathElement::new(vec![(x, y_low), (x, v)], colour.stroke_width(5))))?;
-                        chart.draw_series(std::iter::once(EmptyElement::at((x, v)) + Circle::new((0, 0), 7, colour.filled())))?;
+                        chart.draw_series(std::iter::once(PathElement::new(
+                            vec![(x, y_low), (x, v)],
+                            colour.stroke_width(5),
+                        )))?;
+                        chart.draw_series(std::iter::once(
+                            EmptyElement::at((x, v)) + Circle::new((0, 0), 7, colour.filled()),
+                        ))?;
                         if ti == 0 || n == 1 {
                             chart.draw_series(std::iter::once(Text::new(
                                 num(v, 1),
@@ -129,7 +166,8 @@ impl Drawing for SpectrumPlot {
                     }
                     _ => {
                         chart.draw_series(std::iter::once(
-                            EmptyElement::at((x, y_low)) + TriangleMarker::new((0, -8), 7, colour.stroke_width(2)),
+                            EmptyElement::at((x, y_low))
+                                + TriangleMarker::new((0, -8), 7, colour.stroke_width(2)),
                         ))?;
                     }
                 }
@@ -137,12 +175,17 @@ impl Drawing for SpectrumPlot {
             chart
                 .draw_series(std::iter::empty::<Circle<(f64, f64), i32>>())?
                 .label(celsius(p.temperature_c))
-                .legend(move |(x, y)| EmptyElement::at((x + 14, y)) + Circle::new((0, 0), 7, colour.filled()));
+                .legend(move |(x, y)| {
+                    EmptyElement::at((x + 14, y)) + Circle::new((0, 0), 7, colour.filled())
+                });
         }
         chart
             .draw_series(std::iter::empty::<Circle<(f64, f64), i32>>())?
             .label(format!("below the floor ({} dBc)", num(self.floor_dbc, 0)))
-            .legend(|(x, y)| EmptyElement::at((x + 14, y)) + TriangleMarker::new((0, 0), 7, MUTED.stroke_width(2)));
+            .legend(|(x, y)| {
+                EmptyElement::at((x + 14, y))
+                    + TriangleMarker::new((0, 0), 7, MUTED.stroke_width(2))
+            });
         legend(&mut chart, SeriesLabelPosition::UpperRight)?;
         Ok(())
     }

@@ -3,9 +3,9 @@
 
 use super::{DrawResult, PlotError, HEIGHT_PX};
 use crate::report::Report;
+use plotters::chart::MeshStyle;
 use plotters::coord::types::RangedCoordf64;
 use plotters::coord::Shift;
-use plotters::chart::MeshStyle;
 use plotters::element::DashedPathElement;
 use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, Pos, VPos};
@@ -96,12 +96,26 @@ pub fn frame<DB: DrawingBackend>(
     let (header, rest) = root.split_vertically(HEADER_PX);
     let (body, footer) = rest.split_vertically(HEIGHT_PX - HEADER_PX - FOOTER_PX);
     header.draw(&Rectangle::new([(28, 26), (36, 88)], ACCENT.filled()))?;
-    header.draw(&Text::new(title.to_owned(), (52, 22), bold(TITLE_PX).color(&INK)))?;
-    header.draw(&Text::new(subtitle.to_owned(), (52, 66), text(SUBTITLE_PX, MUTED)))?;
+    header.draw(&Text::new(
+        title.to_owned(),
+        (52, 22),
+        bold(TITLE_PX).color(&INK),
+    ))?;
+    header.draw(&Text::new(
+        subtitle.to_owned(),
+        (52, 66),
+        text(SUBTITLE_PX, MUTED),
+    ))?;
     let (width, _) = footer.dim_in_pixel();
-    footer.draw(&PathElement::new(vec![(28, 2), (width as i32 - 28, 2)], GRID.stroke_width(1)))?;
+    footer.draw(&PathElement::new(
+        vec![(28, 2), (width as i32 - 28, 2)],
+        GRID.stroke_width(1),
+    ))?;
     footer.draw(&Text::new(
-        format!("linbudget {} · model prediction, confirm against silicon", env!("CARGO_PKG_VERSION")),
+        format!(
+            "linbudget {} · model prediction, confirm against silicon",
+            env!("CARGO_PKG_VERSION")
+        ),
         (width as i32 - 28, 10),
         text(15.0, MUTED).pos(Pos::new(HPos::Right, VPos::Top)),
     ))?;
@@ -119,13 +133,22 @@ pub fn pattern(index: usize) -> (i32, i32) {
 }
 
 /// A polyline in the given pattern (solid when the dash is longer than the figure).
-pub fn dashed(points: Vec<(f64, f64)>, pattern: (i32, i32), style: ShapeStyle) -> DashedPathElement<std::vec::IntoIter<(f64, f64)>, i32> {
+pub fn dashed(
+    points: Vec<(f64, f64)>,
+    pattern: (i32, i32),
+    style: ShapeStyle,
+) -> DashedPathElement<std::vec::IntoIter<(f64, f64)>, i32> {
     DashedPathElement::new(points, pattern.0, pattern.1, style)
 }
 
 /// Splits a polyline where a value is absent and clips it to `y_low..=y_high`, interpolating
 /// the crossing (in log x when `log_x`), so no line runs outside the plot.
-pub fn clip_runs(points: &[(f64, Option<f64>)], y_low: f64, y_high: f64, log_x: bool) -> Vec<Vec<(f64, f64)>> {
+pub fn clip_runs(
+    points: &[(f64, Option<f64>)],
+    y_low: f64,
+    y_high: f64,
+    log_x: bool,
+) -> Vec<Vec<(f64, f64)>> {
     let mut runs: Vec<Vec<(f64, f64)>> = Vec::new();
     let mut current: Vec<(f64, f64)> = Vec::new();
     let to_x = |x: f64| if log_x { x.ln() } else { x };
@@ -205,8 +228,13 @@ pub fn legend_entry<'a, DB: DrawingBackend + 'a, X: Ranged<ValueType = f64>>(
         .draw_series(std::iter::empty::<Circle<(f64, f64), i32>>())?
         .label(label)
         .legend(move |(x, y)| {
-            let sample = if pattern.0 > 1000 { (100, 1) } else { (pattern.0.min(10), pattern.1.min(6)) };
-            let line = DashedPathElement::new(vec![(x - 2, y), (x + 30, y)], sample.0, sample.1, style);
+            let sample = if pattern.0 > 1000 {
+                (100, 1)
+            } else {
+                (pattern.0.min(10), pattern.1.min(6))
+            };
+            let line =
+                DashedPathElement::new(vec![(x - 2, y), (x + 30, y)], sample.0, sample.1, style);
             let mark = match marker {
                 Some(m) => m.element((x + 14, y), style.color),
                 None => Polygon::new(vec![(x, y); 3], TRANSPARENT.filled()),
@@ -232,7 +260,12 @@ pub enum Marker {
 impl Marker {
     /// The marker of the `index`-th series.
     pub fn nth(index: usize) -> Marker {
-        [Marker::Circle, Marker::Square, Marker::Triangle, Marker::Diamond][index % 4]
+        [
+            Marker::Circle,
+            Marker::Square,
+            Marker::Triangle,
+            Marker::Diamond,
+        ][index % 4]
     }
 
     /// The marker as a polygon in pixel coordinates around `centre`.
@@ -242,10 +275,18 @@ impl Marker {
             Marker::Circle => (0..16)
                 .map(|k| {
                     let a = k as f64 * std::f64::consts::TAU / 16.0;
-                    (x + (6.0 * a.cos()).round() as i32, y + (6.0 * a.sin()).round() as i32)
+                    (
+                        x + (6.0 * a.cos()).round() as i32,
+                        y + (6.0 * a.sin()).round() as i32,
+                    )
                 })
                 .collect(),
-            Marker::Square => vec![(x - 5, y - 5), (x + 5, y - 5), (x + 5, y + 5), (x - 5, y + 5)],
+            Marker::Square => vec![
+                (x - 5, y - 5),
+                (x + 5, y - 5),
+                (x + 5, y + 5),
+                (x - 5, y + 5),
+            ],
             Marker::Triangle => vec![(x, y - 7), (x + 7, y + 5), (x - 7, y + 5)],
             Marker::Diamond => vec![(x, y - 7), (x + 7, y), (x, y + 7), (x - 7, y)],
         };
@@ -264,8 +305,15 @@ pub fn draw_markers<'a, DB: DrawingBackend + 'a, X: Ranged<ValueType = f64>>(
     chart.draw_series(
         points
             .iter()
-            .filter_map(|(x, y)| y.filter(|y| *y >= y_range.0 && *y <= y_range.1).map(|y| (*x, y)))
-            .map(move |coord| EmptyElement::at(coord) + marker.element((0, 0), colour.mix(1.0)) + Circle::new((0, 0), 2, PAPER.filled())),
+            .filter_map(|(x, y)| {
+                y.filter(|y| *y >= y_range.0 && *y <= y_range.1)
+                    .map(|y| (*x, y))
+            })
+            .map(move |coord| {
+                EmptyElement::at(coord)
+                    + marker.element((0, 0), colour.mix(1.0))
+                    + Circle::new((0, 0), 2, PAPER.filled())
+            }),
     )?;
     Ok(())
 }
@@ -359,7 +407,11 @@ pub fn db_span(low: f64, high: f64, step: f64) -> (f64, f64) {
 
 /// Log-axis bounds around `low..high` with a margin of `factor` on both ends.
 pub fn log_span(low: f64, high: f64, factor: f64) -> (f64, f64) {
-    let (low, high) = if high > low { (low, high) } else { (low / 2.0, low * 2.0) };
+    let (low, high) = if high > low {
+        (low, high)
+    } else {
+        (low / 2.0, low * 2.0)
+    };
     (low / factor, high * factor)
 }
 
@@ -445,8 +497,15 @@ pub fn backed_label<DB: DrawingBackend>(
     let (w, h) = root.estimate_text_size(label, &style)?;
     let (w, h) = (w as i32, h as i32);
     let left = if right { x - w } else { x };
-    root.draw(&Rectangle::new([(left - 4, y - h / 2 - 3), (left + w + 4, y + h / 2 + 3)], PAPER.mix(0.85).filled()))?;
-    root.draw(&Text::new(label.to_owned(), (left, y), style.pos(Pos::new(HPos::Left, VPos::Center))))?;
+    root.draw(&Rectangle::new(
+        [(left - 4, y - h / 2 - 3), (left + w + 4, y + h / 2 + 3)],
+        PAPER.mix(0.85).filled(),
+    ))?;
+    root.draw(&Text::new(
+        label.to_owned(),
+        (left, y),
+        style.pos(Pos::new(HPos::Left, VPos::Center)),
+    ))?;
     Ok(())
 }
 
@@ -457,9 +516,52 @@ pub fn log_tick(value: f64, unit: &str) -> String {
         return String::new();
     }
     let mantissa = value / 10f64.powf(value.log10().floor());
-    if [1.0, 2.0, 5.0, 10.0].iter().any(|m| (mantissa - m).abs() < 1e-6 * m) {
+    if [1.0, 2.0, 5.0, 10.0]
+        .iter()
+        .any(|m| (mantissa - m).abs() < 1e-6 * m)
+    {
         si(value, unit)
     } else {
         String::new()
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn labels_are_spread_at_least_a_gap_apart_in_input_order() {
+        let placed = spread_labels(&[100, 90, 95, 300], 24, 0, 1000);
+        let mut sorted = placed.clone();
+        sorted.sort();
+        assert!(sorted.windows(2).all(|w| w[1] - w[0] >= 24), "{placed:?}");
+        // The lowest wish keeps its place; the isolated label is untouched.
+        assert_eq!(placed[1], 90);
+        assert_eq!(placed[3], 300);
+    }
+
+    #[test]
+    fn clipping_interpolates_the_crossing_and_splits_at_gaps() {
+        // A straight line y = x from -10 to 10 clipped to 0..5 crosses at exactly 0 and 5
+        // (linear interpolation, exact for a straight line).
+        let line: Vec<(f64, Option<f64>)> = vec![(-10.0, Some(-10.0)), (10.0, Some(10.0))];
+        let runs = clip_runs(&line, 0.0, 5.0, false);
+        assert_eq!(runs, vec![vec![(0.0, 0.0), (5.0, 5.0)]]);
+        let gapped: Vec<(f64, Option<f64>)> = vec![
+            (1.0, Some(1.0)),
+            (2.0, Some(2.0)),
+            (3.0, None),
+            (4.0, Some(4.0)),
+            (5.0, Some(4.5)),
+        ];
+        assert_eq!(clip_runs(&gapped, 0.0, 5.0, false).len(), 2);
+    }
+
+    #[test]
+    fn log_ticks_label_one_two_five_only() {
+        assert_eq!(log_tick(0.01, "V"), crate::units::format_si(0.01, "V"));
+        assert_eq!(log_tick(0.02, "V"), crate::units::format_si(0.02, "V"));
+        assert_eq!(log_tick(0.03, "V"), "");
     }
 }

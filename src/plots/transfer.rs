@@ -83,7 +83,11 @@ impl Drawing for TransferPlot {
         let gm_max = gm_values.clone().fold(0.0, f64::max);
         let gm_min = gm_values.fold(0.0, f64::min);
         let gm_top = nice_ceiling(gm_max * 1.08);
-        let gm_bottom = if gm_min < -0.01 * gm_max { -nice_ceiling(-gm_min * 1.2) } else { 0.0 };
+        let gm_bottom = if gm_min < -0.01 * gm_max {
+            -nice_ceiling(-gm_min * 1.2)
+        } else {
+            0.0
+        };
         let y_range = (-1.1, 1.1);
 
         let mut chart = ChartBuilder::on(&body)
@@ -112,7 +116,10 @@ impl Drawing for TransferPlot {
 
         // Steering band of the typical temperature, boundaries of every temperature.
         chart.draw_series(std::iter::once(Rectangle::new(
-            [(reference.steering_low_v * 1e3, y_range.0), (reference.steering_high_v * 1e3, y_range.1)],
+            [
+                (reference.steering_low_v * 1e3, y_range.0),
+                (reference.steering_high_v * 1e3, y_range.1),
+            ],
             ACCENT.mix(0.07).filled(),
         )))?;
         for (i, r) in self.records.iter().enumerate() {
@@ -141,14 +148,44 @@ impl Drawing for TransferPlot {
         let current_colour = SERIES[0];
         let gm_colour = SERIES[1];
         for (i, r) in self.records.iter().enumerate() {
-            let current: Vec<(f64, Option<f64>)> =
-                r.transfer.iter().map(|t| (t.input_v * 1e3, Some(t.normalised_current))).collect();
-            draw_runs(&mut chart, &current, y_range, false, pattern(i), current_colour.stroke_width(3))?;
-            let gm: Vec<(f64, f64)> = r.transfer.iter().map(|t| (t.input_v * 1e3, t.transconductance_s * 1e3)).collect();
-            chart.draw_secondary_series(std::iter::once(dashed(gm, pattern(i), gm_colour.stroke_width(3))))?;
+            let current: Vec<(f64, Option<f64>)> = r
+                .transfer
+                .iter()
+                .map(|t| (t.input_v * 1e3, Some(t.normalised_current)))
+                .collect();
+            draw_runs(
+                &mut chart,
+                &current,
+                y_range,
+                false,
+                pattern(i),
+                current_colour.stroke_width(3),
+            )?;
+            let gm: Vec<(f64, f64)> = r
+                .transfer
+                .iter()
+                .map(|t| (t.input_v * 1e3, t.transconductance_s * 1e3))
+                .collect();
+            chart.draw_secondary_series(std::iter::once(dashed(
+                gm,
+                pattern(i),
+                gm_colour.stroke_width(3),
+            )))?;
         }
-        legend_entry(&mut chart, "normalised output current (left)", (1_000_000, 1), current_colour.stroke_width(3), None)?;
-        legend_entry(&mut chart, "incremental g_m (right)", (1_000_000, 1), gm_colour.stroke_width(3), None)?;
+        legend_entry(
+            &mut chart,
+            "normalised output current (left)",
+            (1_000_000, 1),
+            current_colour.stroke_width(3),
+            None,
+        )?;
+        legend_entry(
+            &mut chart,
+            "incremental g_m (right)",
+            (1_000_000, 1),
+            gm_colour.stroke_width(3),
+            None,
+        )?;
         temperature_key(&mut chart, &temps)?;
         legend(&mut chart, SeriesLabelPosition::UpperLeft)?;
         Ok(())

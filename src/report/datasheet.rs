@@ -75,9 +75,19 @@ fn fixed(value: Option<f64>, decimals: usize) -> String {
 }
 
 /// Typical (at `typical_c`), minimum and maximum of a figure over temperatures.
-fn typ_min_max(values: &[(f64, Option<f64>)], typical_c: f64) -> (Option<f64>, Option<f64>, Option<f64>) {
-    let present: Vec<f64> = values.iter().filter_map(|(_, v)| *v).filter(|v| v.is_finite()).collect();
-    let typical = values.iter().find(|(t, _)| *t == typical_c).and_then(|(_, v)| *v);
+fn typ_min_max(
+    values: &[(f64, Option<f64>)],
+    typical_c: f64,
+) -> (Option<f64>, Option<f64>, Option<f64>) {
+    let present: Vec<f64> = values
+        .iter()
+        .filter_map(|(_, v)| *v)
+        .filter(|v| v.is_finite())
+        .collect();
+    let typical = values
+        .iter()
+        .find(|(t, _)| *t == typical_c)
+        .and_then(|(_, v)| *v);
     let min = present.iter().copied().reduce(f64::min);
     let max = present.iter().copied().reduce(f64::max);
     (min, typical, max)
@@ -87,14 +97,35 @@ fn typ_min_max(values: &[(f64, Option<f64>)], typical_c: f64) -> (Option<f64>, O
 pub fn datasheet_table(report: &Report, stage: &str) -> Table {
     let temps = style::temperatures(report);
     let typical = style::typical_temperature(&temps).unwrap_or(27.0);
-    let frequency = report.points.iter().find(|p| p.stage == stage).map(|p| p.frequency_hz);
+    let frequency = report
+        .points
+        .iter()
+        .find(|p| p.stage == stage)
+        .map(|p| p.frequency_hz);
     let mut table = Table {
-        header: ["parameter", "symbol", "conditions", "min", "typ", "max", "unit"].map(String::from).to_vec(),
+        header: [
+            "parameter",
+            "symbol",
+            "conditions",
+            "min",
+            "typ",
+            "max",
+            "unit",
+        ]
+        .map(String::from)
+        .to_vec(),
         numeric: vec![false, false, false, true, true, true, false],
         rows: Vec::new(),
     };
-    let f_text = frequency.map(|f| format!("f = {}", crate::units::format_si(f, "Hz"))).unwrap_or_default();
-    let mut row = |name: &str, symbol: &str, conditions: String, values: Vec<(f64, Option<f64>)>, decimals: usize, unit: &str| {
+    let f_text = frequency
+        .map(|f| format!("f = {}", crate::units::format_si(f, "Hz")))
+        .unwrap_or_default();
+    let mut row = |name: &str,
+                   symbol: &str,
+                   conditions: String,
+                   values: Vec<(f64, Option<f64>)>,
+                   decimals: usize,
+                   unit: &str| {
         if values.iter().all(|(_, v)| v.is_none()) {
             return;
         }
@@ -109,18 +140,32 @@ pub fn datasheet_table(report: &Report, stage: &str) -> Table {
             unit.into(),
         ]);
     };
-    let intercepts: Vec<_> =
-        report.intercepts.iter().filter(|i| i.stage == stage && Some(i.frequency_hz) == frequency).collect();
+    let intercepts: Vec<_> = report
+        .intercepts
+        .iter()
+        .filter(|i| i.stage == stage && Some(i.frequency_hz) == frequency)
+        .collect();
     let stages: Vec<_> = report.stages.iter().filter(|s| s.stage == stage).collect();
-    let by_t = |f: &dyn Fn(&crate::report::InterceptRecord) -> Option<f64>| -> Vec<(f64, Option<f64>)> {
-        intercepts.iter().map(|i| (i.temperature_c, f(i))).collect()
-    };
-    row("small-signal differential gain", "A_v", "v_d → 0".into(), by_t(&|i| Some(i.small_signal_gain_db)), 2, "dB");
+    let by_t =
+        |f: &dyn Fn(&crate::report::InterceptRecord) -> Option<f64>| -> Vec<(f64, Option<f64>)> {
+            intercepts.iter().map(|i| (i.temperature_c, f(i))).collect()
+        };
+    row(
+        "small-signal differential gain",
+        "A_v",
+        "v_d → 0".into(),
+        by_t(&|i| Some(i.small_signal_gain_db)),
+        2,
+        "dB",
+    );
     row(
         "transconductance",
         "g_m",
         "v_d = 0".into(),
-        stages.iter().map(|s| (s.temperature_c, Some(s.transconductance_s * 1e3))).collect(),
+        stages
+            .iter()
+            .map(|s| (s.temperature_c, Some(s.transconductance_s * 1e3)))
+            .collect(),
         3,
         "mS",
     );
@@ -128,26 +173,71 @@ pub fn datasheet_table(report: &Report, stage: &str) -> Table {
         "input offset voltage",
         "V_OS",
         "from the plan's mismatch".into(),
-        stages.iter().map(|s| (s.temperature_c, Some(s.input_offset_v * 1e6))).collect(),
+        stages
+            .iter()
+            .map(|s| (s.temperature_c, Some(s.input_offset_v * 1e6)))
+            .collect(),
         2,
         "µV",
     );
     row(
         "steering range",
         "",
-        format!("{:.0} % of I_tail on one side", 100.0 * report.analysis.steering_fraction),
+        format!(
+            "{:.0} % of I_tail on one side",
+            100.0 * report.analysis.steering_fraction
+        ),
         by_t(&|i| Some(i.steering_range_v * 1e3)),
         2,
         "mV",
     );
-    row("input noise density", "e_n", "white, differential".into(), by_t(&|i| Some(i.input_noise_v_rthz * 1e9)), 3, "nV/√Hz");
-    row("input third-order intercept", "IIP3", format!("per tone, peak, {f_text}"), by_t(&|i| i.iip3_dbv), 2, "dBV");
-    row("input third-order intercept", "IIP3", format!("per tone, peak, {f_text}"), by_t(&|i| i.iip3_v.map(|v| v * 1e3)), 1, "mV");
-    row("output third-order intercept", "OIP3", format!("per tone, peak, {f_text}"), by_t(&|i| i.oip3_v), 3, "V");
-    row("input 1 dB compression", "P1dB", format!("peak, {f_text}"), by_t(&|i| i.p1db_v.map(|v| v * 1e3)), 1, "mV");
+    row(
+        "input noise density",
+        "e_n",
+        "white, differential".into(),
+        by_t(&|i| Some(i.input_noise_v_rthz * 1e9)),
+        3,
+        "nV/√Hz",
+    );
+    row(
+        "input third-order intercept",
+        "IIP3",
+        format!("per tone, peak, {f_text}"),
+        by_t(&|i| i.iip3_dbv),
+        2,
+        "dBV",
+    );
+    row(
+        "input third-order intercept",
+        "IIP3",
+        format!("per tone, peak, {f_text}"),
+        by_t(&|i| i.iip3_v.map(|v| v * 1e3)),
+        1,
+        "mV",
+    );
+    row(
+        "output third-order intercept",
+        "OIP3",
+        format!("per tone, peak, {f_text}"),
+        by_t(&|i| i.oip3_v),
+        3,
+        "V",
+    );
+    row(
+        "input 1 dB compression",
+        "P1dB",
+        format!("peak, {f_text}"),
+        by_t(&|i| i.p1db_v.map(|v| v * 1e3)),
+        1,
+        "mV",
+    );
 
     // Distortion at the budget's amplitudes (those the plan drove) and at the largest drive.
-    let points: Vec<_> = report.points.iter().filter(|p| p.stage == stage && Some(p.frequency_hz) == frequency).collect();
+    let points: Vec<_> = report
+        .points
+        .iter()
+        .filter(|p| p.stage == stage && Some(p.frequency_hz) == frequency)
+        .collect();
     let mut amplitudes: Vec<f64> = report
         .budget
         .iter()
@@ -164,12 +254,26 @@ pub fn datasheet_table(report: &Report, stage: &str) -> Table {
         let at = points.iter().filter(|p| p.amplitude_v == a);
         let conditions = format!("v_d = {} peak, {f_text}", crate::units::format_si(a, "V"));
         for (name, symbol, get) in [
-            ("second harmonic", "HD2", (|p: &crate::report::PointRecord| p.harmonic(2)) as fn(&crate::report::PointRecord) -> Option<f64>),
+            (
+                "second harmonic",
+                "HD2",
+                (|p: &crate::report::PointRecord| p.harmonic(2))
+                    as fn(&crate::report::PointRecord) -> Option<f64>,
+            ),
             ("third harmonic", "HD3", |p| p.harmonic(3)),
             ("total harmonic distortion", "THD", |p| p.thd_dbc),
-            ("third-order intermodulation", "IM3", |p| p.im3_dbc.flatten()),
+            ("third-order intermodulation", "IM3", |p| {
+                p.im3_dbc.flatten()
+            }),
         ] {
-            row(name, symbol, conditions.clone(), at.clone().map(|p| (p.temperature_c, get(p))).collect(), 2, "dBc");
+            row(
+                name,
+                symbol,
+                conditions.clone(),
+                at.clone().map(|p| (p.temperature_c, get(p))).collect(),
+                2,
+                "dBc",
+            );
         }
     }
     table
@@ -178,20 +282,41 @@ pub fn datasheet_table(report: &Report, stage: &str) -> Table {
 /// The budget verdict table.
 pub fn budget_table(report: &Report) -> Table {
     Table {
-        header: ["stage", "T (°C)", "metric", "at", "limit", "value", "margin (dB)", "verdict"].map(String::from).to_vec(),
+        header: [
+            "stage",
+            "T (°C)",
+            "metric",
+            "at",
+            "limit",
+            "value",
+            "margin (dB)",
+            "verdict",
+        ]
+        .map(String::from)
+        .to_vec(),
         numeric: vec![false, true, false, true, true, true, true, false],
         rows: report
             .budget
             .iter()
             .map(|b| {
-                let value_text = |v: f64| if b.unit == "V" { crate::units::format_si(v, "V") } else { format!("{v:.2} {}", b.unit) };
+                let value_text = |v: f64| {
+                    if b.unit == "V" {
+                        crate::units::format_si(v, "V")
+                    } else {
+                        format!("{v:.2} {}", b.unit)
+                    }
+                };
                 vec![
                     b.stage.clone(),
                     format!("{}", b.temperature_c),
                     b.metric.to_uppercase(),
-                    b.at_v.map(|a| crate::units::format_si(a, "V")).unwrap_or_else(|| "—".into()),
+                    b.at_v
+                        .map(|a| crate::units::format_si(a, "V"))
+                        .unwrap_or_else(|| "—".into()),
                     format!("{} {}", b.kind, value_text(b.limit)),
-                    b.value.map(value_text).unwrap_or_else(|| "below floor".into()),
+                    b.value
+                        .map(value_text)
+                        .unwrap_or_else(|| "below floor".into()),
                     fixed(b.margin, 2),
                     if b.pass { "pass".into() } else { "FAIL".into() },
                 ]
@@ -203,10 +328,23 @@ pub fn budget_table(report: &Report) -> Table {
 /// The sizing table.
 pub fn sizing_table(report: &Report) -> Table {
     Table {
-        header: ["stage", "T (°C)", "R_E (Ω)", "binding line", "worst margin (dB)", "gain (dB)", "gain cost (dB)", "steering range", "load (Ω)", "result"]
-            .map(String::from)
-            .to_vec(),
-        numeric: vec![false, true, true, false, true, true, true, true, true, false],
+        header: [
+            "stage",
+            "T (°C)",
+            "R_E (Ω)",
+            "binding line",
+            "worst margin (dB)",
+            "gain (dB)",
+            "gain cost (dB)",
+            "steering range",
+            "load (Ω)",
+            "result",
+        ]
+        .map(String::from)
+        .to_vec(),
+        numeric: vec![
+            false, true, true, false, true, true, true, true, true, false,
+        ],
         rows: report
             .sizing
             .iter()
@@ -219,9 +357,15 @@ pub fn sizing_table(report: &Report) -> Table {
                     fixed(Some(s.best_margin), 2),
                     fixed(s.gain_db, 2),
                     fixed(s.gain_cost_db, 2),
-                    s.steering_range_v.map(|v| crate::units::format_si(v, "V")).unwrap_or_else(|| "—".into()),
+                    s.steering_range_v
+                        .map(|v| crate::units::format_si(v, "V"))
+                        .unwrap_or_else(|| "—".into()),
                     fixed(s.load_resistance_ohm, 1),
-                    if s.met { "met".into() } else { "not met".into() },
+                    if s.met {
+                        "met".into()
+                    } else {
+                        "not met".into()
+                    },
                 ]
             })
             .collect(),
@@ -229,13 +373,20 @@ pub fn sizing_table(report: &Report) -> Table {
 }
 
 fn list_of(values: &[f64], unit: &str) -> String {
-    values.iter().map(|v| crate::units::format_si(*v, unit)).collect::<Vec<_>>().join(", ")
+    values
+        .iter()
+        .map(|v| crate::units::format_si(*v, unit))
+        .collect::<Vec<_>>()
+        .join(", ")
 }
 
 /// The report as blocks.
 pub fn blocks(report: &Report, figures: &[Figure]) -> Vec<Block> {
     let mut out = Vec::new();
-    out.push(Block::Heading(1, format!("{} — linearity report", report.plan)));
+    out.push(Block::Heading(
+        1,
+        format!("{} — linearity report", report.plan),
+    ));
     out.push(Block::Caution(CAUTION.to_owned()));
     out.push(Block::Paragraph(format!(
         "Verdict: the plan is {}.",
@@ -296,12 +447,21 @@ pub fn blocks(report: &Report, figures: &[Figure]) -> Vec<Block> {
     if !report.yield_.is_empty() {
         out.push(Block::Heading(2, "Monte Carlo yield".into()));
         out.push(Block::Table(Table {
-            header: ["stage", "T (°C)", "runs", "pass fraction"].map(String::from).to_vec(),
+            header: ["stage", "T (°C)", "runs", "pass fraction"]
+                .map(String::from)
+                .to_vec(),
             numeric: vec![false, true, true, true],
             rows: report
                 .yield_
                 .iter()
-                .map(|y| vec![y.stage.clone(), format!("{}", y.temperature_c), y.runs.to_string(), format!("{:.4}", y.pass_fraction)])
+                .map(|y| {
+                    vec![
+                        y.stage.clone(),
+                        format!("{}", y.temperature_c),
+                        y.runs.to_string(),
+                        format!("{:.4}", y.pass_fraction),
+                    ]
+                })
                 .collect(),
         }));
     }
@@ -354,14 +514,35 @@ pub fn markdown(blocks: &[Block], figures: &[Figure]) -> String {
                 let _ = writeln!(out);
             }
             Block::Table(table) => {
-                let _ = writeln!(out, "| {} |", table.header.iter().map(|h| md_cell(h)).collect::<Vec<_>>().join(" | "));
+                let _ = writeln!(
+                    out,
+                    "| {} |",
+                    table
+                        .header
+                        .iter()
+                        .map(|h| md_cell(h))
+                        .collect::<Vec<_>>()
+                        .join(" | ")
+                );
                 let _ = writeln!(
                     out,
                     "|{}|",
-                    table.numeric.iter().map(|n| if *n { "---:" } else { "---" }).collect::<Vec<_>>().join("|")
+                    table
+                        .numeric
+                        .iter()
+                        .map(|n| if *n { "---:" } else { "---" })
+                        .collect::<Vec<_>>()
+                        .join("|")
                 );
                 for row in &table.rows {
-                    let _ = writeln!(out, "| {} |", row.iter().map(|c| md_cell(c)).collect::<Vec<_>>().join(" | "));
+                    let _ = writeln!(
+                        out,
+                        "| {} |",
+                        row.iter()
+                            .map(|c| md_cell(c))
+                            .collect::<Vec<_>>()
+                            .join(" | ")
+                    );
                 }
                 let _ = writeln!(out);
             }
@@ -369,7 +550,11 @@ pub fn markdown(blocks: &[Block], figures: &[Figure]) -> String {
                 let figure = &figures[*index];
                 let _ = writeln!(out, "### {}\n", figure.title);
                 let _ = writeln!(out, "![{}]({}.png)\n", figure.title, figure.stem);
-                let _ = writeln!(out, "{} Vector version: [{}.svg]({}.svg).\n", figure.caption, figure.stem, figure.stem);
+                let _ = writeln!(
+                    out,
+                    "{} Vector version: [{}.svg]({}.svg).\n",
+                    figure.caption, figure.stem, figure.stem
+                );
             }
         }
     }
@@ -378,7 +563,10 @@ pub fn markdown(blocks: &[Block], figures: &[Figure]) -> String {
 
 /// Escapes text for HTML.
 pub fn escape(text: &str) -> String {
-    text.replace('&', "&amp;").replace('<', "&lt;").replace('>', "&gt;").replace('"', "&quot;")
+    text.replace('&', "&amp;")
+        .replace('<', "&lt;")
+        .replace('>', "&gt;")
+        .replace('"', "&quot;")
 }
 
 const CSS: &str = "
@@ -412,9 +600,19 @@ a { color: var(--accent); }
 /// Renders the blocks as a self-contained HTML page with the figures inline as SVG.
 pub fn html(report: &Report, blocks: &[Block], figures: &[Figure]) -> String {
     let mut out = String::new();
-    let _ = writeln!(out, "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">");
-    let _ = writeln!(out, "<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">");
-    let _ = writeln!(out, "<title>{} — linearity report</title>", escape(&report.plan));
+    let _ = writeln!(
+        out,
+        "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">"
+    );
+    let _ = writeln!(
+        out,
+        "<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">"
+    );
+    let _ = writeln!(
+        out,
+        "<title>{} — linearity report</title>",
+        escape(&report.plan)
+    );
     let _ = writeln!(out, "<style>{CSS}</style>\n</head>\n<body>");
     for block in blocks {
         match block {
@@ -423,14 +621,22 @@ pub fn html(report: &Report, blocks: &[Block], figures: &[Figure]) -> String {
             }
             Block::Paragraph(text) => {
                 let class = if text.starts_with("Verdict:") {
-                    if report.met { " class=\"verdict-met\"" } else { " class=\"verdict-not\"" }
+                    if report.met {
+                        " class=\"verdict-met\""
+                    } else {
+                        " class=\"verdict-not\""
+                    }
                 } else {
                     ""
                 };
                 let _ = writeln!(out, "<p{class}>{}</p>", escape(text));
             }
             Block::Caution(text) => {
-                let _ = writeln!(out, "<p class=\"caution\"><strong>Caution.</strong> {}</p>", escape(text));
+                let _ = writeln!(
+                    out,
+                    "<p class=\"caution\"><strong>Caution.</strong> {}</p>",
+                    escape(text)
+                );
             }
             Block::Bullets(items) => {
                 let _ = writeln!(out, "<ul>");
@@ -442,7 +648,12 @@ pub fn html(report: &Report, blocks: &[Block], figures: &[Figure]) -> String {
             Block::Table(table) => {
                 let _ = writeln!(out, "<table>\n<thead><tr>");
                 for (h, numeric) in table.header.iter().zip(&table.numeric) {
-                    let _ = write!(out, "<th{}>{}</th>", if *numeric { " class=\"num\"" } else { "" }, escape(h));
+                    let _ = write!(
+                        out,
+                        "<th{}>{}</th>",
+                        if *numeric { " class=\"num\"" } else { "" },
+                        escape(h)
+                    );
                 }
                 let _ = writeln!(out, "</tr></thead>\n<tbody>");
                 for row in &table.rows {
@@ -464,7 +675,14 @@ pub fn html(report: &Report, blocks: &[Block], figures: &[Figure]) -> String {
                 let figure = &figures[*index];
                 let _ = writeln!(out, "<figure id=\"{}\">", escape(&figure.stem));
                 let _ = writeln!(out, "<h3>{}</h3>", escape(&figure.title));
-                let svg = figure.svg.replacen("<svg ", &format!("<svg role=\"img\" aria-label=\"{}\" ", escape(&figure.title)), 1);
+                let svg = figure.svg.replacen(
+                    "<svg ",
+                    &format!(
+                        "<svg role=\"img\" aria-label=\"{}\" ",
+                        escape(&figure.title)
+                    ),
+                    1,
+                );
                 let _ = writeln!(out, "{}", svg.trim());
                 let _ = writeln!(
                     out,
