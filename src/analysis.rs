@@ -495,7 +495,7 @@ pub fn point_record(
         })
         .collect();
     let thd = tone.differential.raw_thd_dbc(plan.drive.thd_harmonics);
-    let (im3, im2, effective) = match plan.drive.two_tone_spacing {
+    let (im3, im2, effective, two_tone_fundamental) = match plan.drive.two_tone_spacing {
         Some(spacing) => {
             let two = engine.two_tone(amplitude_v, frequency_hz, spacing)?;
             let im3 = two.im3_dbc();
@@ -503,9 +503,14 @@ pub fn point_record(
             let im2 = two.im2_dbc();
             let im2 = (im2 >= floor).then_some(im2);
             let effective = im3.map(|d| amplitude_v * 10f64.powf(-d / 40.0));
-            (Some(im3), Some(im2), Some(effective))
+            (
+                Some(im3),
+                Some(im2),
+                Some(effective),
+                Some(two.fundamental_v),
+            )
         }
-        None => (None, None, None),
+        None => (None, None, None, None),
     };
     let fundamental = tone.differential.fundamental();
     let region = tone.region;
@@ -521,6 +526,7 @@ pub fn point_record(
         im3_dbc: im3,
         im2_dbc: im2,
         iip3_effective_v: effective,
+        two_tone_fundamental_v: two_tone_fundamental,
         single_ended_fundamental_v: tone.single_ended.fundamental(),
         single_ended_hd2_dbc: tone.single_ended.harmonic_dbc(2, floor),
         single_ended_hd3_dbc: tone.single_ended.harmonic_dbc(3, floor),

@@ -20,6 +20,7 @@ pub mod metrics;
 pub mod montecarlo;
 pub mod noise;
 pub mod plan;
+pub mod plots;
 pub mod report;
 pub mod roots;
 pub mod run;

@@ -113,13 +113,28 @@ fn main() -> ExitCode {
                 quiet,
                 max_work,
             };
+            // A spinner on standard error, only on a terminal and never with --quiet; standard
+            // output stays reserved for --json.
             let show_progress = !quiet && std::io::stderr().is_terminal();
-            let progress = move |line: &str| {
-                if show_progress {
-                    eprintln!("… {line}");
+            let spinner = if show_progress {
+                let bar = indicatif::ProgressBar::with_draw_target(
+                    None,
+                    indicatif::ProgressDrawTarget::stderr(),
+                );
+                if let Ok(style) =
+                    indicatif::ProgressStyle::with_template("{spinner} {elapsed:>3} {wide_msg}")
+                {
+                    bar.set_style(style);
                 }
+                bar.enable_steady_tick(std::time::Duration::from_millis(120));
+                bar
+            } else {
+                indicatif::ProgressBar::hidden()
             };
-            match run(&options, &progress) {
+            let progress = |line: &str| spinner.set_message(line.to_owned());
+            let outcome = run(&options, &progress);
+            spinner.finish_and_clear();
+            match outcome {
                 Ok(outcome) => {
                     for warning in &outcome.report.warnings {
                         eprintln!("warning: {warning}");

@@ -5,7 +5,7 @@ use crate::analysis;
 use crate::error::Error;
 use crate::plan::Plan;
 use crate::report::write::{check_output_dir, write_report_folder, OutputFile};
-use crate::report::{csv_export, markdown, Report};
+use crate::report::{csv_export, datasheet, markdown, Report};
 use crate::workload;
 use std::path::{Path, PathBuf};
 
@@ -43,7 +43,7 @@ pub fn render_files(report: &Report) -> Result<Vec<OutputFile>, Error> {
         path: "points.csv".into(),
         reason: e.to_string(),
     })?;
-    Ok(vec![
+    let mut files = vec![
         OutputFile {
             name: "report.json".into(),
             bytes: json,
@@ -56,7 +56,9 @@ pub fn render_files(report: &Report) -> Result<Vec<OutputFile>, Error> {
             name: "summary.md".into(),
             bytes: markdown::summary(report).into_bytes(),
         },
-    ])
+    ];
+    files.extend(datasheet::render_files(report)?);
+    Ok(files)
 }
 
 /// Validates a plan file, including its estimated work against the default limit.
@@ -81,6 +83,7 @@ pub fn run(options: &RunOptions, progress: &(dyn Fn(&str) + Sync)) -> Result<Run
     let plan = check_within(&options.plan, options.max_work)?;
     check_output_dir(&options.out)?;
     let report = analysis::evaluate(&plan, progress)?;
+    progress("drawing figures and writing the report");
     let files = render_files(&report)?;
     let folder = write_report_folder(&options.out, &plan.name, &files)?;
     Ok(RunOutcome { report, folder })

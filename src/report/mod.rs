@@ -4,6 +4,7 @@
 //! plan-and-report contract (see README). Extra fields are additions, never renames.
 
 pub mod csv_export;
+pub mod datasheet;
 pub mod markdown;
 pub mod write;
 
@@ -90,6 +91,9 @@ pub struct PointRecord {
     /// Intercept extrapolated from this point alone: A·10^(−IM3/40), V (two-tone only).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub iip3_effective_v: Option<Option<f64>>,
+    /// Peak differential output of one tone in the two-tone test, V (two-tone only).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub two_tone_fundamental_v: Option<f64>,
     /// Peak fundamental of the P-side collector voltage, V.
     pub single_ended_fundamental_v: f64,
     /// HD2 of the P-side collector voltage, dBc.

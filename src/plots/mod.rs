@@ -1,0 +1,237 @@
+//! Compliance figures drawn from the report structs, each as SVG (text) and PNG (bytes).
+//!
+//! Every figure reads only [`Report`]: what the JSON says is what the figure shows. A figure
+//! whose data is absent (no budget, no sizing, one frequency, no Monte Carlo) is skipped, not
+//! drawn empty. Text in the PNG is rasterised from the DejaVu Sans font compiled into the
+//! binary, so no system font or fontconfig is needed.
+//!
+//! Conventions shared by all figures: colour names the metric (or the stage, where stages are
+//! compared), the line pattern names the temperature (solid for the first one in the plan),
+//! green round markers pass a budget line and red crosses fail it.
+
+mod compare;
+mod frequency;
+mod harmonics;
+mod monte_carlo;
+mod sizing;
+mod spectrum;
+pub mod style;
+mod transfer;
+mod two_tone;
+
+use crate::error::Error;
+use crate::report::Report;
+use plotters::coord::Shift;
+use plotters::prelude::*;
+use rayon::prelude::*;
+use std::sync::Once;
+
+/// Width of every figure, pixels.
+pub const WIDTH_PX: u32 = 1500;
+/// Height of every figure, pixels.
+pub const HEIGHT_PX: u32 = 1000;
+
+/// The families of figures.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord)]
+pub enum PlotKind {
+    /// Normalised output current and incremental transconductance versus differential input.
+    Transfer,
+    /// HDn and THD versus input amplitude with the budget's limit masks.
+    Harmonics,
+    /// Two-tone output fundamental and IM3 versus input level with the fitted intercept.
+    TwoTone,
+    /// Budget margins versus emitter resistance with the chosen value.
+    Sizing,
+    /// Harmonic stems at one drive point.
+    Spectrum,
+    /// Several stages overlaid.
+    StageComparison,
+    /// HDn, THD and IIP3 versus frequency.
+    Frequency,
+    /// Monte Carlo spread of each metric.
+    MonteCarlo,
+}
+
+impl PlotKind {
+    /// File-name prefix of the family.
+    pub fn prefix(self) -> &'static str {
+        match self {
+            PlotKind::Transfer => "transfer",
+            PlotKind::Harmonics => "harmonics",
+            PlotKind::TwoTone => "two-tone",
+            PlotKind::Sizing => "sizing",
+            PlotKind::Spectrum => "spectrum",
+            PlotKind::StageComparison => "stage-comparison",
+            PlotKind::Frequency => "frequency",
+            PlotKind::MonteCarlo => "monte-carlo",
+        }
+    }
+}
+
+/// One rendered figure.
+#[derive(Debug, Clone)]
+pub struct Figure {
+    /// Which family it belongs to.
+    pub kind: PlotKind,
+    /// File stem: the figure is written as `<stem>.svg` and `<stem>.png`.
+    pub stem: String,
+    /// Title as drawn on the figure.
+    pub title: String,
+    /// One-sentence reading guide for the report.
+    pub caption: String,
+    /// The SVG document.
+    pub svg: String,
+    /// The PNG file.
+    pub png: Vec<u8>,
+}
+
+/// A drawing failure, kept as text (the backends' error types differ).
+#[derive(Debug)]
+pub struct PlotError(pub String);
+
+impl<E: std::error::Error + Send + Sync> From<DrawingAreaErrorKind<E>> for PlotError {
+    fn from(error: DrawingAreaErrorKind<E>) -> Self {
+        PlotError(error.to_string())
+    }
+}
+
+/// Result of drawing one figure.
+pub type DrawResult = Result<(), PlotError>;
+
+/// A figure that can draw itself on any plotters backend.
+pub(crate) trait Drawing: Send + Sync {
+    /// Family.
+    fn kind(&self) -> PlotKind;
+    /// File stem.
+    fn stem(&self) -> String;
+    /// Title.
+    fn title(&self) -> String;
+    /// Reading guide.
+    fn caption(&self) -> String;
+    /// Draws the whole figure on `root`.
+    fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> DrawResult;
+}
+
+static FONTS: Once = Once::new();
+
+/// Registers the embedded DejaVu Sans faces with plotters (once per process).
+pub fn register_fonts() {
+    FONTS.call_once(|| {
+        // The embedded faces are valid TrueType; a failure here would be a build defect and
+        // surfaces later as a `FontUnavailable` drawing error naming the figure.
+        let _ = plotters::style::register_font(
+            "sans-serif",
+            FontStyle::Normal,
+            dejavu::sans::regular(),
+        );
+        let _ = plotters::style::register_font("sans-serif", FontStyle::Bold, dejavu::sans::bold());
+        let _ = plotters::style::register_font(
+            "sans-serif",
+            FontStyle::Oblique,
+            dejavu::sans::oblique(),
+        );
+    });
+}
+
+fn render<D: Drawing>(drawing: &D) -> Result<Figure, Error> {
+    register_fonts();
+    let stem = drawing.stem();
+    let fail = |what: &str, reason: String| Error::Output {
+        path: format!("{stem}.{what}").into(),
+        reason,
+    };
+    let mut svg = String::new();
+    {
+        let root = SVGBackend::with_string(&mut svg, (WIDTH_PX, HEIGHT_PX)).into_drawing_area();
+        drawing.draw(&root).map_err(|e| fail("svg", e.0))?;
+        root.present().map_err(|e| fail("svg", e.to_string()))?;
+    }
+    let mut rgb = vec![0u8; (WIDTH_PX * HEIGHT_PX * 3) as usize];
+    {
+        let root = BitMapBackend::with_buffer(&mut rgb, (WIDTH_PX, HEIGHT_PX)).into_drawing_area();
+        drawing.draw(&root).map_err(|e| fail("png", e.0))?;
+        root.present().map_err(|e| fail("png", e.to_string()))?;
+    }
+    let mut png = Vec::new();
+    {
+        use image::ImageEncoder;
+        image::codecs::png::PngEncoder::new(&mut png)
+            .write_image(&rgb, WIDTH_PX, HEIGHT_PX, image::ColorType::Rgb8)
+            .map_err(|e| fail("png", e.to_string()))?;
+    }
+    Ok(Figure {
+        kind: drawing.kind(),
+        stem,
+        title: drawing.title(),
+        caption: drawing.caption(),
+        svg,
+        png,
+    })
+}
+
+type Job = Box<dyn Fn() -> Result<Figure, Error> + Send + Sync>;
+
+fn job<D: Drawing + 'static>(drawing: D) -> Job {
+    Box::new(move || render(&drawing))
+}
+
+/// Draws every figure the report has data for, in a fixed order (stage by stage, in plan
+/// order, then the cross-stage figures).
+pub fn render_all(report: &Report) -> Result<Vec<Figure>, Error> {
+    let mut jobs: Vec<Job> = Vec::new();
+    let stages = style::stage_names(report);
+    let mut stems: Vec<String> = Vec::new();
+    for stage in &stages {
+        let slug = unique_slug(stage, &mut stems);
+        if let Some(d) = transfer::TransferPlot::new(report, stage, &slug) {
+            jobs.push(job(d));
+        }
+        if let Some(d) = harmonics::HarmonicsPlot::new(report, stage, &slug) {
+            jobs.push(job(d));
+        }
+        if let Some(d) = two_tone::TwoTonePlot::new(report, stage, &slug) {
+            jobs.push(job(d));
+        }
+        if let Some(d) = spectrum::SpectrumPlot::new(report, stage, &slug) {
+            jobs.push(job(d));
+        }
+        if let Some(d) = sizing::SizingPlot::new(report, stage, &slug) {
+            jobs.push(job(d));
+        }
+        if let Some(d) = frequency::FrequencyPlot::new(report, stage, &slug) {
+            jobs.push(job(d));
+        }
+        if let Some(d) = monte_carlo::MonteCarloPlot::new(report, stage, &slug) {
+            jobs.push(job(d));
+        }
+    }
+    if let Some(d) = compare::ComparisonPlot::new(report) {
+        jobs.push(job(d));
+    }
+    jobs.par_iter().map(|j| j()).collect()
+}
+
+/// A file-name-safe form of a stage name, made unique among the stages already named.
+fn unique_slug(stage: &str, taken: &mut Vec<String>) -> String {
+    let mut slug: String = stage
+        .chars()
+        .map(|c| {
+            if c.is_ascii_alphanumeric() || c == '-' || c == '_' {
+                c
+            } else {
+                '-'
+            }
+        })
+        .collect();
+    if slug.is_empty() {
+        slug = "stage".into();
+    }
+    let base = slug.clone();
+    let mut n = 2;
+    while taken.contains(&slug) {
+        slug = format!("{base}-{n}");
+        n += 1;
+    }
+    taken.push(slug.clone());
+    slug
+}

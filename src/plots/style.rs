@@ -1,0 +1,567 @@
+//! The house style: palette, type sizes, the figure frame and the drawing helpers every
+//! figure shares.
+
+use super::{DrawResult, PlotError, HEIGHT_PX};
+use crate::report::Report;
+use plotters::chart::MeshStyle;
+use plotters::coord::types::RangedCoordf64;
+use plotters::coord::Shift;
+use plotters::element::DashedPathElement;
+use plotters::prelude::*;
+use plotters::style::text_anchor::{HPos, Pos, VPos};
+
+/// Text and axes.
+pub const INK: RGBColor = RGBColor(0x1b, 0x22, 0x30);
+/// Secondary text (subtitles, footers, notes).
+pub const MUTED: RGBColor = RGBColor(0x5b, 0x64, 0x72);
+/// Major grid lines.
+pub const GRID: RGBColor = RGBColor(0xdc, 0xe1, 0xe8);
+/// Minor grid lines.
+pub const GRID_MINOR: RGBColor = RGBColor(0xef, 0xf2, 0xf5);
+/// The plot background.
+pub const PAPER: RGBColor = RGBColor(0xff, 0xff, 0xff);
+/// The accent bar beside each title.
+pub const ACCENT: RGBColor = RGBColor(0x0e, 0x6e, 0x6a);
+/// Passing budget points.
+pub const PASS: RGBColor = RGBColor(0x1d, 0x8a, 0x4e);
+/// Failing budget points and forbidden regions.
+pub const FAIL: RGBColor = RGBColor(0xc4, 0x26, 0x3a);
+
+/// Series colours, in order of use.
+pub const SERIES: [RGBColor; 7] = [
+    RGBColor(0x0e, 0x6e, 0x6a), // deep teal
+    RGBColor(0xd2, 0x5a, 0x1e), // burnt orange
+    RGBColor(0x3b, 0x4c, 0xa8), // indigo
+    RGBColor(0xa8, 0x7d, 0x00), // mustard
+    RGBColor(0x8c, 0x3b, 0x7e), // plum
+    RGBColor(0x4f, 0x7f, 0x22), // moss
+    RGBColor(0x4a, 0x5d, 0x6e), // slate
+];
+
+/// Colour of a named metric, the same in every figure.
+pub fn metric_colour(metric: &str) -> RGBColor {
+    match metric {
+        "thd" => SERIES[0],
+        "hd3" => SERIES[1],
+        "hd2" => SERIES[2],
+        "hd5" => SERIES[4],
+        "im3" => SERIES[3],
+        "gain" => SERIES[6],
+        "iip3" => SERIES[5],
+        other => {
+            let order: usize = other.trim_start_matches("hd").parse().unwrap_or(0);
+            SERIES[order % SERIES.len()]
+        }
+    }
+}
+
+/// Title size, px.
+pub const TITLE_PX: f64 = 34.0;
+/// Subtitle size, px.
+pub const SUBTITLE_PX: f64 = 21.0;
+/// Axis description size, px.
+pub const AXIS_PX: f64 = 23.0;
+/// Tick label size, px.
+pub const TICK_PX: f64 = 20.0;
+/// Legend and annotation size, px.
+pub const LEGEND_PX: f64 = 19.0;
+/// Header height, px.
+const HEADER_PX: u32 = 104;
+/// Footer height, px.
+const FOOTER_PX: u32 = 36;
+
+/// A font of the house face.
+pub fn font(size: f64) -> FontDesc<'static> {
+    FontDesc::new(FontFamily::SansSerif, size, FontStyle::Normal)
+}
+
+/// A bold font of the house face.
+pub fn bold(size: f64) -> FontDesc<'static> {
+    FontDesc::new(FontFamily::SansSerif, size, FontStyle::Bold)
+}
+
+/// Text style of a given size and colour.
+pub fn text(size: f64, colour: RGBColor) -> TextStyle<'static> {
+    font(size).color(&colour)
+}
+
+/// Paints the background, the title block and the footer, and returns the area left for
+/// the chart.
+pub fn frame<DB: DrawingBackend>(
+    root: &DrawingArea<DB, Shift>,
+    title: &str,
+    subtitle: &str,
+) -> Result<DrawingArea<DB, Shift>, PlotError> {
+    root.fill(&PAPER)?;
+    let (header, rest) = root.split_vertically(HEADER_PX);
+    let (body, footer) = rest.split_vertically(HEIGHT_PX - HEADER_PX - FOOTER_PX);
+    header.draw(&Rectangle::new([(28, 26), (36, 88)], ACCENT.filled()))?;
+    header.draw(&Text::new(
+        title.to_owned(),
+        (52, 22),
+        bold(TITLE_PX).color(&INK),
+    ))?;
+    header.draw(&Text::new(
+        subtitle.to_owned(),
+        (52, 66),
+        text(SUBTITLE_PX, MUTED),
+    ))?;
+    let (width, _) = footer.dim_in_pixel();
+    footer.draw(&PathElement::new(
+        vec![(28, 2), (width as i32 - 28, 2)],
+        GRID.stroke_width(1),
+    ))?;
+    footer.draw(&Text::new(
+        format!(
+            "linbudget {} · model prediction, confirm against silicon",
+            env!("CARGO_PKG_VERSION")
+        ),
+        (width as i32 - 28, 10),
+        text(15.0, MUTED).pos(Pos::new(HPos::Right, VPos::Top)),
+    ))?;
+    Ok(body)
+}
+
+/// Line pattern of the `index`-th temperature: (dash, gap) in px; solid for the first.
+pub fn pattern(index: usize) -> (i32, i32) {
+    match index % 4 {
+        0 => (1_000_000, 1),
+        1 => (16, 9),
+        2 => (4, 7),
+        _ => (26, 8),
+    }
+}
+
+/// A polyline in the given pattern (solid when the dash is longer than the figure).
+pub fn dashed(
+    points: Vec<(f64, f64)>,
+    pattern: (i32, i32),
+    style: ShapeStyle,
+) -> DashedPathElement<std::vec::IntoIter<(f64, f64)>, i32> {
+    DashedPathElement::new(points, pattern.0, pattern.1, style)
+}
+
+/// Splits a polyline where a value is absent and clips it to `y_low..=y_high`, interpolating
+/// the crossing (in log x when `log_x`), so no line runs outside the plot.
+pub fn clip_runs(
+    points: &[(f64, Option<f64>)],
+    y_low: f64,
+    y_high: f64,
+    log_x: bool,
+) -> Vec<Vec<(f64, f64)>> {
+    let mut runs: Vec<Vec<(f64, f64)>> = Vec::new();
+    let mut current: Vec<(f64, f64)> = Vec::new();
+    let to_x = |x: f64| if log_x { x.ln() } else { x };
+    let from_x = |x: f64| if log_x { x.exp() } else { x };
+    let inside = |y: f64| y >= y_low && y <= y_high;
+    let mut previous: Option<(f64, f64)> = None;
+    for &(x, y) in points {
+        let Some(y) = y.filter(|y| y.is_finite()) else {
+            if current.len() > 1 {
+                runs.push(std::mem::take(&mut current));
+            }
+            current.clear();
+            previous = None;
+            continue;
+        };
+        if let Some((px, py)) = previous {
+            let crossing = |edge: f64| {
+                let t = (edge - py) / (y - py);
+                (from_x(to_x(px) + t * (to_x(x) - to_x(px))), edge)
+            };
+            match (inside(py), inside(y)) {
+                (true, true) => current.push((x, y)),
+                (true, false) => {
+                    current.push(crossing(if y > y_high { y_high } else { y_low }));
+                    if current.len() > 1 {
+                        runs.push(std::mem::take(&mut current));
+                    }
+                    current.clear();
+                }
+                (false, true) => {
+                    current.push(crossing(if py > y_high { y_high } else { y_low }));
+                    current.push((x, y));
+                }
+                (false, false) => {
+                    if (py > y_high && y < y_low) || (py < y_low && y > y_high) {
+                        let a = crossing(if py > y_high { y_high } else { y_low });
+                        let b = crossing(if y > y_high { y_high } else { y_low });
+                        runs.push(vec![a, b]);
+                    }
+                }
+            }
+        } else if inside(y) {
+            current.push((x, y));
+        }
+        previous = Some((x, y));
+    }
+    if current.len() > 1 {
+        runs.push(current);
+    }
+    runs
+}
+
+/// Draws a line in a cartesian chart as clipped runs; returns nothing to annotate.
+pub fn draw_runs<'a, DB: DrawingBackend + 'a, X: Ranged<ValueType = f64>>(
+    chart: &mut ChartContext<'a, DB, Cartesian2d<X, RangedCoordf64>>,
+    points: &[(f64, Option<f64>)],
+    y_range: (f64, f64),
+    log_x: bool,
+    pattern: (i32, i32),
+    style: ShapeStyle,
+) -> DrawResult {
+    for run in clip_runs(points, y_range.0, y_range.1, log_x) {
+        chart.draw_series(std::iter::once(dashed(run, pattern, style)))?;
+    }
+    Ok(())
+}
+
+/// Adds a label-only legend entry drawn as a line sample.
+pub fn legend_entry<'a, DB: DrawingBackend + 'a, X: Ranged<ValueType = f64>>(
+    chart: &mut ChartContext<'a, DB, Cartesian2d<X, RangedCoordf64>>,
+    label: &str,
+    pattern: (i32, i32),
+    style: ShapeStyle,
+    marker: Option<Marker>,
+) -> DrawResult {
+    chart
+        .draw_series(std::iter::empty::<Circle<(f64, f64), i32>>())?
+        .label(label)
+        .legend(move |(x, y)| {
+            let sample = if pattern.0 > 1000 {
+                (100, 1)
+            } else {
+                (pattern.0.min(10), pattern.1.min(6))
+            };
+            let line =
+                DashedPathElement::new(vec![(x - 2, y), (x + 30, y)], sample.0, sample.1, style);
+            let mark = match marker {
+                Some(m) => m.element((x + 14, y), style.color),
+                None => Polygon::new(vec![(x, y); 3], TRANSPARENT.filled()),
+            };
+            EmptyElement::at((0, 0)) + line + mark
+        });
+    Ok(())
+}
+
+/// Marker shapes used for data points.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Marker {
+    /// Filled circle.
+    Circle,
+    /// Filled square.
+    Square,
+    /// Filled triangle.
+    Triangle,
+    /// Filled diamond.
+    Diamond,
+}
+
+impl Marker {
+    /// The marker of the `index`-th series.
+    pub fn nth(index: usize) -> Marker {
+        [
+            Marker::Circle,
+            Marker::Square,
+            Marker::Triangle,
+            Marker::Diamond,
+        ][index % 4]
+    }
+
+    /// The marker as a polygon in pixel coordinates around `centre`.
+    pub fn element(self, centre: (i32, i32), colour: RGBAColor) -> Polygon<(i32, i32)> {
+        let (x, y) = centre;
+        let points = match self {
+            Marker::Circle => (0..16)
+                .map(|k| {
+                    let a = k as f64 * std::f64::consts::TAU / 16.0;
+                    (
+                        x + (6.0 * a.cos()).round() as i32,
+                        y + (6.0 * a.sin()).round() as i32,
+                    )
+                })
+                .collect(),
+            Marker::Square => vec![
+                (x - 5, y - 5),
+                (x + 5, y - 5),
+                (x + 5, y + 5),
+                (x - 5, y + 5),
+            ],
+            Marker::Triangle => vec![(x, y - 7), (x + 7, y + 5), (x - 7, y + 5)],
+            Marker::Diamond => vec![(x, y - 7), (x + 7, y), (x, y + 7), (x - 7, y)],
+        };
+        Polygon::new(points, colour.filled())
+    }
+}
+
+/// Draws data markers at every present point.
+pub fn draw_markers<'a, DB: DrawingBackend + 'a, X: Ranged<ValueType = f64>>(
+    chart: &mut ChartContext<'a, DB, Cartesian2d<X, RangedCoordf64>>,
+    points: &[(f64, Option<f64>)],
+    y_range: (f64, f64),
+    marker: Marker,
+    colour: RGBColor,
+) -> DrawResult {
+    chart.draw_series(
+        points
+            .iter()
+            .filter_map(|(x, y)| {
+                y.filter(|y| *y >= y_range.0 && *y <= y_range.1)
+                    .map(|y| (*x, y))
+            })
+            .map(move |coord| {
+                EmptyElement::at(coord)
+                    + marker.element((0, 0), colour.mix(1.0))
+                    + Circle::new((0, 0), 2, PAPER.filled())
+            }),
+    )?;
+    Ok(())
+}
+
+/// Ordered, distinct stage names as they appear in the report.
+pub fn stage_names(report: &Report) -> Vec<String> {
+    let mut names: Vec<String> = Vec::new();
+    let all = report
+        .stages
+        .iter()
+        .map(|s| &s.stage)
+        .chain(report.points.iter().map(|p| &p.stage))
+        .chain(report.sizing.iter().map(|s| &s.stage));
+    for name in all {
+        if !names.contains(name) {
+            names.push(name.clone());
+        }
+    }
+    names
+}
+
+/// Ordered, distinct temperatures of the report.
+pub fn temperatures(report: &Report) -> Vec<f64> {
+    let mut temps: Vec<f64> = Vec::new();
+    let all = report
+        .stages
+        .iter()
+        .map(|s| s.temperature_c)
+        .chain(report.points.iter().map(|p| p.temperature_c))
+        .chain(report.sizing.iter().map(|s| s.temperature_c));
+    for t in all {
+        if !temps.contains(&t) {
+            temps.push(t);
+        }
+    }
+    temps
+}
+
+/// Ordered, distinct frequencies of the report's drive points.
+pub fn frequencies(report: &Report) -> Vec<f64> {
+    let mut list: Vec<f64> = Vec::new();
+    for p in &report.points {
+        if !list.contains(&p.frequency_hz) {
+            list.push(p.frequency_hz);
+        }
+    }
+    list
+}
+
+/// The typical temperature: the one nearest 27 °C (room temperature, common practice).
+pub fn typical_temperature(temps: &[f64]) -> Option<f64> {
+    temps
+        .iter()
+        .copied()
+        .min_by(|a, b| (a - 27.0).abs().total_cmp(&(b - 27.0).abs()))
+}
+
+/// A number with a true minus sign.
+pub fn num(value: f64, decimals: usize) -> String {
+    let s = format!("{value:.decimals$}");
+    if let Some(rest) = s.strip_prefix('-') {
+        if rest.chars().all(|c| c == '0' || c == '.') {
+            rest.to_owned()
+        } else {
+            format!("\u{2212}{rest}")
+        }
+    } else {
+        s
+    }
+}
+
+/// A quantity with an SI prefix and a true minus sign.
+pub fn si(value: f64, unit: &str) -> String {
+    crate::units::format_si(value, unit).replace('-', "\u{2212}")
+}
+
+/// "27 °C" style temperature label.
+pub fn celsius(t: f64) -> String {
+    format!("{} °C", num(t, if t.fract() == 0.0 { 0 } else { 1 }))
+}
+
+/// Rounds a dB axis span outwards to a multiple of `step`.
+pub fn db_span(low: f64, high: f64, step: f64) -> (f64, f64) {
+    let low = (low / step).floor() * step;
+    let mut high = (high / step).ceil() * step;
+    if high - low < step {
+        high = low + step;
+    }
+    (low, high)
+}
+
+/// Log-axis bounds around `low..high` with a margin of `factor` on both ends.
+pub fn log_span(low: f64, high: f64, factor: f64) -> (f64, f64) {
+    let (low, high) = if high > low {
+        (low, high)
+    } else {
+        (low / 2.0, low * 2.0)
+    };
+    (low / factor, high * factor)
+}
+
+/// Applies the house mesh style to a chart.
+pub fn mesh_style<'a, 'b, DB: DrawingBackend, X: Ranged, Y: Ranged>(
+    mesh: &'b mut MeshStyle<'a, 'b, X, Y, DB>,
+) -> &'b mut MeshStyle<'a, 'b, X, Y, DB> {
+    mesh.axis_style(INK.stroke_width(2))
+        .bold_line_style(GRID.stroke_width(1))
+        .light_line_style(GRID_MINOR.stroke_width(1))
+        .max_light_lines(4)
+        .label_style(text(TICK_PX, INK))
+        .axis_desc_style(bold(AXIS_PX).color(&INK))
+}
+
+/// Places a legend in the house style.
+pub fn legend<'a, DB: DrawingBackend + 'a, CT: CoordTranslate>(
+    chart: &mut ChartContext<'a, DB, CT>,
+    position: SeriesLabelPosition,
+) -> DrawResult {
+    chart
+        .configure_series_labels()
+        .position(position)
+        .margin(14)
+        .legend_area_size(44)
+        .background_style(PAPER.mix(0.92))
+        .border_style(GRID.stroke_width(1))
+        .label_font(text(LEGEND_PX, INK))
+        .draw()?;
+    Ok(())
+}
+
+/// Draws the temperature key (line patterns) as legend entries when there are several.
+pub fn temperature_key<'a, DB: DrawingBackend + 'a, X: Ranged<ValueType = f64>>(
+    chart: &mut ChartContext<'a, DB, Cartesian2d<X, RangedCoordf64>>,
+    temps: &[f64],
+) -> DrawResult {
+    if temps.len() < 2 {
+        return Ok(());
+    }
+    for (i, t) in temps.iter().enumerate() {
+        legend_entry(chart, &celsius(*t), pattern(i), MUTED.stroke_width(3), None)?;
+    }
+    Ok(())
+}
+
+/// Moves label positions (pixels, in any order) apart so neighbours are at least `gap` apart,
+/// keeping them inside `low..=high` where possible; returns them in the input order.
+pub fn spread_labels(desired: &[i32], gap: i32, low: i32, high: i32) -> Vec<i32> {
+    let mut order: Vec<usize> = (0..desired.len()).collect();
+    order.sort_by_key(|&i| desired[i]);
+    let mut placed: Vec<i32> = order.iter().map(|&i| desired[i].max(low)).collect();
+    for k in 1..placed.len() {
+        placed[k] = placed[k].max(placed[k - 1] + gap);
+    }
+    if let Some(&last) = placed.last() {
+        if last > high {
+            let shift = last - high;
+            for p in placed.iter_mut() {
+                *p -= shift;
+            }
+            for k in (0..placed.len().saturating_sub(1)).rev() {
+                placed[k] = placed[k].min(placed[k + 1] - gap);
+            }
+        }
+    }
+    let mut result = vec![0; desired.len()];
+    for (k, &i) in order.iter().enumerate() {
+        result[i] = placed[k];
+    }
+    result
+}
+
+/// Draws a one-line label at a pixel position on a light backing so lines beneath stay
+/// readable; `right` anchors the label's right end at `x`, otherwise its left end.
+pub fn backed_label<DB: DrawingBackend>(
+    root: &DrawingArea<DB, Shift>,
+    label: &str,
+    (x, y): (i32, i32),
+    style: TextStyle<'static>,
+    right: bool,
+) -> DrawResult {
+    let (w, h) = root.estimate_text_size(label, &style)?;
+    let (w, h) = (w as i32, h as i32);
+    let left = if right { x - w } else { x };
+    root.draw(&Rectangle::new(
+        [(left - 4, y - h / 2 - 3), (left + w + 4, y + h / 2 + 3)],
+        PAPER.mix(0.85).filled(),
+    ))?;
+    root.draw(&Text::new(
+        label.to_owned(),
+        (left, y),
+        style.pos(Pos::new(HPos::Left, VPos::Center)),
+    ))?;
+    Ok(())
+}
+
+/// Tick label of a log axis: only mantissas 1, 2 and 5 are labelled, so short spans stay
+/// readable.
+pub fn log_tick(value: f64, unit: &str) -> String {
+    if value <= 0.0 || !value.is_finite() {
+        return String::new();
+    }
+    let mantissa = value / 10f64.powf(value.log10().floor());
+    if [1.0, 2.0, 5.0, 10.0]
+        .iter()
+        .any(|m| (mantissa - m).abs() < 1e-6 * m)
+    {
+        si(value, unit)
+    } else {
+        String::new()
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn labels_are_spread_at_least_a_gap_apart_in_input_order() {
+        let placed = spread_labels(&[100, 90, 95, 300], 24, 0, 1000);
+        let mut sorted = placed.clone();
+        sorted.sort();
+        assert!(sorted.windows(2).all(|w| w[1] - w[0] >= 24), "{placed:?}");
+        // The lowest wish keeps its place; the isolated label is untouched.
+        assert_eq!(placed[1], 90);
+        assert_eq!(placed[3], 300);
+    }
+
+    #[test]
+    fn clipping_interpolates_the_crossing_and_splits_at_gaps() {
+        // A straight line y = x from -10 to 10 clipped to 0..5 crosses at exactly 0 and 5
+        // (linear interpolation, exact for a straight line).
+        let line: Vec<(f64, Option<f64>)> = vec![(-10.0, Some(-10.0)), (10.0, Some(10.0))];
+        let runs = clip_runs(&line, 0.0, 5.0, false);
+        assert_eq!(runs, vec![vec![(0.0, 0.0), (5.0, 5.0)]]);
+        let gapped: Vec<(f64, Option<f64>)> = vec![
+            (1.0, Some(1.0)),
+            (2.0, Some(2.0)),
+            (3.0, None),
+            (4.0, Some(4.0)),
+            (5.0, Some(4.5)),
+        ];
+        assert_eq!(clip_runs(&gapped, 0.0, 5.0, false).len(), 2);
+    }
+
+    #[test]
+    fn log_ticks_label_one_two_five_only() {
+        assert_eq!(log_tick(0.01, "V"), crate::units::format_si(0.01, "V"));
+        assert_eq!(log_tick(0.02, "V"), crate::units::format_si(0.02, "V"));
+        assert_eq!(log_tick(0.03, "V"), "");
+    }
+}

@@ -1,0 +1,702 @@
+//! `report.md` and `report.html`: the datasheet-ready report with its figures.
+//!
+//! Both documents are rendered from one list of blocks, so they say the same thing: the
+//! conditions, a datasheet table per stage (typical at the temperature nearest 27 °C, minimum
+//! and maximum across the plan's temperatures), the budget verdicts, the sizing result, the
+//! figures, the model's assumptions and limits, and the caution. The HTML is self-contained
+//! (figures inline as SVG, styles inline) so it reads offline and prints to PDF.
+
+use super::write::OutputFile;
+use super::{Report, CAUTION};
+use crate::error::Error;
+use crate::plots::{self, style, Figure};
+use std::fmt::Write;
+
+/// One block of the report.
+#[derive(Debug, Clone)]
+pub enum Block {
+    /// Heading of level 1–3.
+    Heading(u8, String),
+    /// Paragraph of plain text.
+    Paragraph(String),
+    /// The caution, set apart.
+    Caution(String),
+    /// Bulleted list.
+    Bullets(Vec<String>),
+    /// Table.
+    Table(Table),
+    /// A figure: index into the figure list.
+    Figure(usize),
+}
+
+/// A table with a header row.
+#[derive(Debug, Clone, Default)]
+pub struct Table {
+    /// Column titles.
+    pub header: Vec<String>,
+    /// Whether each column holds numbers (right-aligned).
+    pub numeric: Vec<bool>,
+    /// Body rows.
+    pub rows: Vec<Vec<String>>,
+}
+
+/// Renders the figures (SVG and PNG) and the two report documents.
+pub fn render_files(report: &Report) -> Result<Vec<OutputFile>, Error> {
+    let figures: Vec<Figure> = plots::render_all(report)?;
+    let blocks = blocks(report, &figures);
+    let mut files = Vec::new();
+    for figure in &figures {
+        files.push(OutputFile {
+            name: format!("{}.svg", figure.stem),
+            bytes: figure.svg.clone().into_bytes(),
+        });
+        files.push(OutputFile {
+            name: format!("{}.png", figure.stem),
+            bytes: figure.png.clone(),
+        });
+    }
+    files.push(OutputFile {
+        name: "report.md".into(),
+        bytes: markdown(&blocks, &figures).into_bytes(),
+    });
+    files.push(OutputFile {
+        name: "report.html".into(),
+        bytes: html(report, &blocks, &figures).into_bytes(),
+    });
+    Ok(files)
+}
+
+/// Fixed-decimal number, or a dash when absent.
+fn fixed(value: Option<f64>, decimals: usize) -> String {
+    match value {
+        Some(v) if v.is_finite() => format!("{v:.decimals$}"),
+        _ => "—".into(),
+    }
+}
+
+/// Typical (at `typical_c`), minimum and maximum of a figure over temperatures.
+fn typ_min_max(
+    values: &[(f64, Option<f64>)],
+    typical_c: f64,
+) -> (Option<f64>, Option<f64>, Option<f64>) {
+    let present: Vec<f64> = values
+        .iter()
+        .filter_map(|(_, v)| *v)
+        .filter(|v| v.is_finite())
+        .collect();
+    let typical = values
+        .iter()
+        .find(|(t, _)| *t == typical_c)
+        .and_then(|(_, v)| *v);
+    let min = present.iter().copied().reduce(f64::min);
+    let max = present.iter().copied().reduce(f64::max);
+    (min, typical, max)
+}
+
+/// The datasheet table of one stage.
+pub fn datasheet_table(report: &Report, stage: &str) -> Table {
+    let temps = style::temperatures(report);
+    let typical = style::typical_temperature(&temps).unwrap_or(27.0);
+    let frequency = report
+        .points
+        .iter()
+        .find(|p| p.stage == stage)
+        .map(|p| p.frequency_hz);
+    let mut table = Table {
+        header: [
+            "parameter",
+            "symbol",
+            "conditions",
+            "min",
+            "typ",
+            "max",
+            "unit",
+        ]
+        .map(String::from)
+        .to_vec(),
+        numeric: vec![false, false, false, true, true, true, false],
+        rows: Vec::new(),
+    };
+    let f_text = frequency
+        .map(|f| format!("f = {}", crate::units::format_si(f, "Hz")))
+        .unwrap_or_default();
+    let mut row = |name: &str,
+                   symbol: &str,
+                   conditions: String,
+                   values: Vec<(f64, Option<f64>)>,
+                   decimals: usize,
+                   unit: &str| {
+        if values.iter().all(|(_, v)| v.is_none()) {
+            return;
+        }
+        let (min, typ, max) = typ_min_max(&values, typical);
+        table.rows.push(vec![
+            name.into(),
+            symbol.into(),
+            conditions,
+            fixed(min, decimals),
+            fixed(typ, decimals),
+            fixed(max, decimals),
+            unit.into(),
+        ]);
+    };
+    let intercepts: Vec<_> = report
+        .intercepts
+        .iter()
+        .filter(|i| i.stage == stage && Some(i.frequency_hz) == frequency)
+        .collect();
+    let stages: Vec<_> = report.stages.iter().filter(|s| s.stage == stage).collect();
+    let by_t =
+        |f: &dyn Fn(&crate::report::InterceptRecord) -> Option<f64>| -> Vec<(f64, Option<f64>)> {
+            intercepts.iter().map(|i| (i.temperature_c, f(i))).collect()
+        };
+    row(
+        "small-signal differential gain",
+        "A_v",
+        "v_d → 0".into(),
+        by_t(&|i| Some(i.small_signal_gain_db)),
+        2,
+        "dB",
+    );
+    row(
+        "transconductance",
+        "g_m",
+        "v_d = 0".into(),
+        stages
+            .iter()
+            .map(|s| (s.temperature_c, Some(s.transconductance_s * 1e3)))
+            .collect(),
+        3,
+        "mS",
+    );
+    row(
+        "input offset voltage",
+        "V_OS",
+        "from the plan's mismatch".into(),
+        stages
+            .iter()
+            .map(|s| (s.temperature_c, Some(s.input_offset_v * 1e6)))
+            .collect(),
+        2,
+        "µV",
+    );
+    row(
+        "steering range",
+        "",
+        format!(
+            "{:.0} % of I_tail on one side",
+            100.0 * report.analysis.steering_fraction
+        ),
+        by_t(&|i| Some(i.steering_range_v * 1e3)),
+        2,
+        "mV",
+    );
+    row(
+        "input noise density",
+        "e_n",
+        "white, differential".into(),
+        by_t(&|i| Some(i.input_noise_v_rthz * 1e9)),
+        3,
+        "nV/√Hz",
+    );
+    row(
+        "input third-order intercept",
+        "IIP3",
+        format!("per tone, peak, {f_text}"),
+        by_t(&|i| i.iip3_dbv),
+        2,
+        "dBV",
+    );
+    row(
+        "input third-order intercept",
+        "IIP3",
+        format!("per tone, peak, {f_text}"),
+        by_t(&|i| i.iip3_v.map(|v| v * 1e3)),
+        1,
+        "mV",
+    );
+    row(
+        "output third-order intercept",
+        "OIP3",
+        format!("per tone, peak, {f_text}"),
+        by_t(&|i| i.oip3_v),
+        3,
+        "V",
+    );
+    row(
+        "input 1 dB compression",
+        "P1dB",
+        format!("peak, {f_text}"),
+        by_t(&|i| i.p1db_v.map(|v| v * 1e3)),
+        1,
+        "mV",
+    );
+
+    // Distortion at the budget's amplitudes (those the plan drove) and at the largest drive.
+    let points: Vec<_> = report
+        .points
+        .iter()
+        .filter(|p| p.stage == stage && Some(p.frequency_hz) == frequency)
+        .collect();
+    let mut amplitudes: Vec<f64> = report
+        .budget
+        .iter()
+        .filter(|b| b.stage == stage && b.unit == "dBc")
+        .filter_map(|b| b.at_v)
+        .filter(|a| points.iter().any(|p| p.amplitude_v == *a))
+        .collect();
+    if let Some(largest) = points.iter().map(|p| p.amplitude_v).reduce(f64::max) {
+        amplitudes.push(largest);
+    }
+    amplitudes.sort_by(f64::total_cmp);
+    amplitudes.dedup();
+    for a in amplitudes {
+        let at = points.iter().filter(|p| p.amplitude_v == a);
+        let conditions = format!("v_d = {} peak, {f_text}", crate::units::format_si(a, "V"));
+        for (name, symbol, get) in [
+            (
+                "second harmonic",
+                "HD2",
+                (|p: &crate::report::PointRecord| p.harmonic(2))
+                    as fn(&crate::report::PointRecord) -> Option<f64>,
+            ),
+            ("third harmonic", "HD3", |p| p.harmonic(3)),
+            ("total harmonic distortion", "THD", |p| p.thd_dbc),
+            ("third-order intermodulation", "IM3", |p| {
+                p.im3_dbc.flatten()
+            }),
+        ] {
+            row(
+                name,
+                symbol,
+                conditions.clone(),
+                at.clone().map(|p| (p.temperature_c, get(p))).collect(),
+                2,
+                "dBc",
+            );
+        }
+    }
+    table
+}
+
+/// The budget verdict table.
+pub fn budget_table(report: &Report) -> Table {
+    Table {
+        header: [
+            "stage",
+            "T (°C)",
+            "metric",
+            "at",
+            "limit",
+            "value",
+            "margin (dB)",
+            "verdict",
+        ]
+        .map(String::from)
+        .to_vec(),
+        numeric: vec![false, true, false, true, true, true, true, false],
+        rows: report
+            .budget
+            .iter()
+            .map(|b| {
+                let value_text = |v: f64| {
+                    if b.unit == "V" {
+                        crate::units::format_si(v, "V")
+                    } else {
+                        format!("{v:.2} {}", b.unit)
+                    }
+                };
+                vec![
+                    b.stage.clone(),
+                    format!("{}", b.temperature_c),
+                    b.metric.to_uppercase(),
+                    b.at_v
+                        .map(|a| crate::units::format_si(a, "V"))
+                        .unwrap_or_else(|| "—".into()),
+                    format!("{} {}", b.kind, value_text(b.limit)),
+                    b.value
+                        .map(value_text)
+                        .unwrap_or_else(|| "below floor".into()),
+                    fixed(b.margin, 2),
+                    if b.pass { "pass".into() } else { "FAIL".into() },
+                ]
+            })
+            .collect(),
+    }
+}
+
+/// The sizing table.
+pub fn sizing_table(report: &Report) -> Table {
+    Table {
+        header: [
+            "stage",
+            "T (°C)",
+            "R_E (Ω)",
+            "binding line",
+            "worst margin (dB)",
+            "gain (dB)",
+            "gain cost (dB)",
+            "steering range",
+            "load (Ω)",
+            "result",
+        ]
+        .map(String::from)
+        .to_vec(),
+        numeric: vec![
+            false, true, true, false, true, true, true, true, true, false,
+        ],
+        rows: report
+            .sizing
+            .iter()
+            .map(|s| {
+                vec![
+                    s.stage.clone(),
+                    format!("{}", s.temperature_c),
+                    fixed(s.emitter_resistance_ohm, 1),
+                    s.binding_metric.to_uppercase(),
+                    fixed(Some(s.best_margin), 2),
+                    fixed(s.gain_db, 2),
+                    fixed(s.gain_cost_db, 2),
+                    s.steering_range_v
+                        .map(|v| crate::units::format_si(v, "V"))
+                        .unwrap_or_else(|| "—".into()),
+                    fixed(s.load_resistance_ohm, 1),
+                    if s.met {
+                        "met".into()
+                    } else {
+                        "not met".into()
+                    },
+                ]
+            })
+            .collect(),
+    }
+}
+
+fn list_of(values: &[f64], unit: &str) -> String {
+    values
+        .iter()
+        .map(|v| crate::units::format_si(*v, unit))
+        .collect::<Vec<_>>()
+        .join(", ")
+}
+
+/// The report as blocks.
+pub fn blocks(report: &Report, figures: &[Figure]) -> Vec<Block> {
+    let mut out = Vec::new();
+    out.push(Block::Heading(
+        1,
+        format!("{} — linearity report", report.plan),
+    ));
+    out.push(Block::Caution(CAUTION.to_owned()));
+    out.push(Block::Paragraph(format!(
+        "Verdict: the plan is {}.",
+        if report.met { "met" } else { "NOT met" }
+    )));
+
+    let stages = style::stage_names(report);
+    let temps = style::temperatures(report);
+    let typical = style::typical_temperature(&temps).unwrap_or(27.0);
+    let mut amplitudes: Vec<f64> = report.points.iter().map(|p| p.amplitude_v).collect();
+    amplitudes.sort_by(f64::total_cmp);
+    amplitudes.dedup();
+    let two_tone = report.points.iter().any(|p| p.im3_dbc.is_some());
+    out.push(Block::Heading(2, "Conditions".into()));
+    out.push(Block::Bullets(vec![
+        format!("Stages: {}", stages.join(", ")),
+        format!(
+            "Temperatures: {} (typical values are at {})",
+            temps.iter().map(|t| format!("{t} °C")).collect::<Vec<_>>().join(", "),
+            style::celsius(typical)
+        ),
+        format!("Frequencies: {}", list_of(&style::frequencies(report), "Hz")),
+        format!("Drive amplitudes (peak differential, per tone): {}", list_of(&amplitudes, "V")),
+        format!("Two-tone test: {}", if two_tone { "yes (IM3 and IIP3 reported)" } else { "no" }),
+        format!(
+            "Analysis: THD over harmonics 2–{}; harmonics below {} dBc are reported as below the floor; FFT refined until every figure moves less than {} dB; linbudget {}",
+            report.analysis.thd_harmonics, report.analysis.analysis_floor_dbc, report.analysis.convergence_db, report.analysis.version
+        ),
+    ]));
+
+    for stage in &stages {
+        out.push(Block::Heading(2, format!("Datasheet — {stage}")));
+        out.push(Block::Paragraph(format!(
+            "Typical at {}; min and max across the plan's temperatures ({}). A dash is a figure that is not available or below the analysis floor.",
+            style::celsius(typical),
+            temps.iter().map(|t| style::celsius(*t)).collect::<Vec<_>>().join(", ")
+        )));
+        out.push(Block::Table(datasheet_table(report, stage)));
+    }
+
+    if !report.budget.is_empty() {
+        out.push(Block::Heading(2, "Budget verdict".into()));
+        let failed = report.budget.iter().filter(|b| !b.pass).count();
+        out.push(Block::Paragraph(format!(
+            "{} of {} checks pass. Margin is in dB and positive when the line passes.",
+            report.budget.len() - failed,
+            report.budget.len()
+        )));
+        out.push(Block::Table(budget_table(report)));
+    }
+    if !report.sizing.is_empty() {
+        out.push(Block::Heading(2, "Degeneration sizing".into()));
+        out.push(Block::Paragraph(
+            "The least emitter resistance per side that meets every budget line (or the best found when none does).".into(),
+        ));
+        out.push(Block::Table(sizing_table(report)));
+    }
+    if !report.yield_.is_empty() {
+        out.push(Block::Heading(2, "Monte Carlo yield".into()));
+        out.push(Block::Table(Table {
+            header: ["stage", "T (°C)", "runs", "pass fraction"]
+                .map(String::from)
+                .to_vec(),
+            numeric: vec![false, true, true, true],
+            rows: report
+                .yield_
+                .iter()
+                .map(|y| {
+                    vec![
+                        y.stage.clone(),
+                        format!("{}", y.temperature_c),
+                        y.runs.to_string(),
+                        format!("{:.4}", y.pass_fraction),
+                    ]
+                })
+                .collect(),
+        }));
+    }
+
+    if !figures.is_empty() {
+        out.push(Block::Heading(2, "Figures".into()));
+        for index in 0..figures.len() {
+            out.push(Block::Figure(index));
+        }
+    }
+
+    out.push(Block::Heading(2, "Model assumptions and limits".into()));
+    out.push(Block::Bullets(vec![
+        "Each stage is a bipolar emitter-coupled pair solved exactly at every instant: exponential collector current with the Early effect and finite β where given, series base, emitter and source resistances, and a finite tail resistance where given. High-level injection, quasi-saturation, self-heating and package parasitics are not modelled.".into(),
+        "Temperature enters through the thermal voltage kT/q and the saturation current's temperature law; resistors are taken as temperature-independent.".into(),
+        "Without capacitance or transit time the stage is memoryless and the frequency only labels the points; with them, figures are the circuit's periodic steady state.".into(),
+        "Harmonics come from an FFT of the exact periodic output; THD sums the harmonics listed under Conditions. IIP3 is extrapolated from the small-signal region where the IM3 slope is 3:1, not from the largest drive.".into(),
+        "Min and max in the datasheet tables span the plan's temperatures only; they are not process limits or a statistical spread (see Monte Carlo where the plan asks for it).".into(),
+        "Points where a transistor leaves forward-active operation are flagged under Warnings; the model's validity ends there.".into(),
+    ]));
+    if !report.warnings.is_empty() {
+        out.push(Block::Heading(2, "Warnings".into()));
+        out.push(Block::Bullets(report.warnings.clone()));
+    }
+    out
+}
+
+fn md_cell(text: &str) -> String {
+    text.replace('|', "\\|")
+}
+
+/// Renders the blocks as Markdown (figures as linked PNG images, SVG beside).
+pub fn markdown(blocks: &[Block], figures: &[Figure]) -> String {
+    let mut out = String::new();
+    for block in blocks {
+        match block {
+            Block::Heading(level, text) => {
+                let _ = writeln!(out, "{} {}\n", "#".repeat(*level as usize), text);
+            }
+            Block::Paragraph(text) => {
+                let _ = writeln!(out, "{text}\n");
+            }
+            Block::Caution(text) => {
+                let _ = writeln!(out, "> **Caution.** {text}\n");
+            }
+            Block::Bullets(items) => {
+                for item in items {
+                    let _ = writeln!(out, "- {item}");
+                }
+                let _ = writeln!(out);
+            }
+            Block::Table(table) => {
+                let _ = writeln!(
+                    out,
+                    "| {} |",
+                    table
+                        .header
+                        .iter()
+                        .map(|h| md_cell(h))
+                        .collect::<Vec<_>>()
+                        .join(" | ")
+                );
+                let _ = writeln!(
+                    out,
+                    "|{}|",
+                    table
+                        .numeric
+                        .iter()
+                        .map(|n| if *n { "---:" } else { "---" })
+                        .collect::<Vec<_>>()
+                        .join("|")
+                );
+                for row in &table.rows {
+                    let _ = writeln!(
+                        out,
+                        "| {} |",
+                        row.iter()
+                            .map(|c| md_cell(c))
+                            .collect::<Vec<_>>()
+                            .join(" | ")
+                    );
+                }
+                let _ = writeln!(out);
+            }
+            Block::Figure(index) => {
+                let figure = &figures[*index];
+                let _ = writeln!(out, "### {}\n", figure.title);
+                let _ = writeln!(out, "![{}]({}.png)\n", figure.title, figure.stem);
+                let _ = writeln!(
+                    out,
+                    "{} Vector version: [{}.svg]({}.svg).\n",
+                    figure.caption, figure.stem, figure.stem
+                );
+            }
+        }
+    }
+    out
+}
+
+/// Escapes text for HTML.
+pub fn escape(text: &str) -> String {
+    text.replace('&', "&amp;")
+        .replace('<', "&lt;")
+        .replace('>', "&gt;")
+        .replace('"', "&quot;")
+}
+
+const CSS: &str = "
+:root { --ink: #1b2230; --muted: #5b6472; --rule: #dce1e8; --accent: #0e6e6a; --pass: #1d8a4e; --fail: #c4263a; }
+* { box-sizing: border-box; }
+body { font-family: 'DejaVu Sans', 'Segoe UI', Helvetica, Arial, sans-serif; color: var(--ink); margin: 0 auto; max-width: 1080px; padding: 32px 28px 64px; line-height: 1.45; font-size: 15px; }
+h1 { font-size: 28px; border-left: 8px solid var(--accent); padding-left: 14px; margin: 0 0 18px; }
+h2 { font-size: 21px; margin: 34px 0 10px; padding-bottom: 4px; border-bottom: 2px solid var(--rule); }
+h3 { font-size: 17px; margin: 26px 0 8px; }
+.caution { border: 1px solid #e8c5a0; background: #fdf6ee; padding: 10px 14px; border-radius: 4px; }
+.verdict-met { color: var(--pass); font-weight: bold; }
+.verdict-not { color: var(--fail); font-weight: bold; }
+table { border-collapse: collapse; width: 100%; margin: 8px 0 16px; font-size: 13.5px; }
+th, td { padding: 5px 9px; border-bottom: 1px solid var(--rule); text-align: left; vertical-align: top; }
+th { background: #f3f5f8; font-weight: 600; }
+td.num, th.num { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
+td.fail { color: var(--fail); font-weight: bold; }
+td.pass { color: var(--pass); }
+figure { margin: 18px 0 28px; page-break-inside: avoid; break-inside: avoid; }
+figure svg { width: 100%; height: auto; display: block; border: 1px solid var(--rule); }
+figcaption { color: var(--muted); font-size: 13.5px; margin-top: 6px; }
+a { color: var(--accent); }
+@media print {
+  body { max-width: none; padding: 0; font-size: 11pt; }
+  h2 { break-after: avoid; page-break-after: avoid; }
+  table, tr { break-inside: avoid; page-break-inside: avoid; }
+  figure { page-break-before: auto; }
+}
+";
+
+/// Renders the blocks as a self-contained HTML page with the figures inline as SVG.
+pub fn html(report: &Report, blocks: &[Block], figures: &[Figure]) -> String {
+    let mut out = String::new();
+    let _ = writeln!(
+        out,
+        "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">"
+    );
+    let _ = writeln!(
+        out,
+        "<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">"
+    );
+    let _ = writeln!(
+        out,
+        "<title>{} — linearity report</title>",
+        escape(&report.plan)
+    );
+    let _ = writeln!(out, "<style>{CSS}</style>\n</head>\n<body>");
+    for block in blocks {
+        match block {
+            Block::Heading(level, text) => {
+                let _ = writeln!(out, "<h{level}>{}</h{level}>", escape(text));
+            }
+            Block::Paragraph(text) => {
+                let class = if text.starts_with("Verdict:") {
+                    if report.met {
+                        " class=\"verdict-met\""
+                    } else {
+                        " class=\"verdict-not\""
+                    }
+                } else {
+                    ""
+                };
+                let _ = writeln!(out, "<p{class}>{}</p>", escape(text));
+            }
+            Block::Caution(text) => {
+                let _ = writeln!(
+                    out,
+                    "<p class=\"caution\"><strong>Caution.</strong> {}</p>",
+                    escape(text)
+                );
+            }
+            Block::Bullets(items) => {
+                let _ = writeln!(out, "<ul>");
+                for item in items {
+                    let _ = writeln!(out, "<li>{}</li>", escape(item));
+                }
+                let _ = writeln!(out, "</ul>");
+            }
+            Block::Table(table) => {
+                let _ = writeln!(out, "<table>\n<thead><tr>");
+                for (h, numeric) in table.header.iter().zip(&table.numeric) {
+                    let _ = write!(
+                        out,
+                        "<th{}>{}</th>",
+                        if *numeric { " class=\"num\"" } else { "" },
+                        escape(h)
+                    );
+                }
+                let _ = writeln!(out, "</tr></thead>\n<tbody>");
+                for row in &table.rows {
+                    let _ = write!(out, "<tr>");
+                    for (cell, numeric) in row.iter().zip(&table.numeric) {
+                        let class = match (cell.as_str(), *numeric) {
+                            ("FAIL" | "not met", _) => " class=\"fail\"",
+                            ("pass" | "met", _) => " class=\"pass\"",
+                            (_, true) => " class=\"num\"",
+                            _ => "",
+                        };
+                        let _ = write!(out, "<td{class}>{}</td>", escape(cell));
+                    }
+                    let _ = writeln!(out, "</tr>");
+                }
+                let _ = writeln!(out, "</tbody>\n</table>");
+            }
+            Block::Figure(index) => {
+                let figure = &figures[*index];
+                let _ = writeln!(out, "<figure id=\"{}\">", escape(&figure.stem));
+                let _ = writeln!(out, "<h3>{}</h3>", escape(&figure.title));
+                let svg = figure.svg.replacen(
+                    "<svg ",
+                    &format!(
+                        "<svg role=\"img\" aria-label=\"{}\" ",
+                        escape(&figure.title)
+                    ),
+                    1,
+                );
+                let _ = writeln!(out, "{}", svg.trim());
+                let _ = writeln!(
+                    out,
+                    "<figcaption>{} Files: <a href=\"{}.svg\">{}.svg</a>, <a href=\"{}.png\">{}.png</a>.</figcaption>",
+                    escape(&figure.caption),
+                    figure.stem,
+                    figure.stem,
+                    figure.stem,
+                    figure.stem
+                );
+                let _ = writeln!(out, "</figure>");
+            }
+        }
+    }
+    let _ = writeln!(out, "</body>\n</html>");
+    out
+}
