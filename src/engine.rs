@@ -75,11 +75,15 @@ impl ResponseEngine for MemorylessEngine {
     }
 }
 
-/// Builds the right engine for a stage at one temperature.
-pub fn engine_for(circuit: StageCircuit, cache: Arc<FftCache>) -> Result<Box<dyn ResponseEngine>, String> {
+/// Builds the right engine for a stage at one temperature: the memoryless fast path when
+/// the stage stores no charge, the periodic steady state otherwise.
+pub fn engine_for(
+    circuit: StageCircuit,
+    cache: Arc<FftCache>,
+) -> Result<Box<dyn ResponseEngine>, String> {
     if circuit.is_memoryless() {
         Ok(Box::new(MemorylessEngine::new(circuit, cache)))
     } else {
-        Err("stages with capacitance need the periodic steady-state engine, which is not built yet".into())
+        Ok(Box::new(crate::dynamic::DynamicEngine::new(circuit, cache)))
     }
 }

@@ -9,6 +9,7 @@
 pub mod analysis;
 pub mod budget;
 pub mod device;
+pub mod dynamic;
 pub mod engine;
 pub mod error;
 pub mod metrics;
