@@ -80,9 +80,7 @@ pub fn evaluate(plan: &Plan, progress: &(dyn Fn(&str) + Sync)) -> Result<Report,
     ));
     let per_corner: Vec<CornerResult> = corners
         .par_iter()
-        .map(|(index, temperature)| {
-            evaluate_corner(plan, &plan.stages[*index], *temperature, &context)
-        })
+        .map(|(index, temperature)| evaluate_corner(plan, &plan.stages[*index], *temperature, &context))
         .collect::<Result<Vec<_>, Error>>()?;
 
     let mut report = Report {
@@ -159,32 +157,17 @@ fn evaluate_corner(
     let engine_ref = engine.as_ref();
     let points: Vec<PointRecord> = drive_points
         .par_iter()
-        .map(|(frequency, amplitude)| {
-            point_record(
-                plan,
-                spec,
-                temperature_c,
-                engine_ref,
-                *frequency,
-                *amplitude,
-            )
-        })
+        .map(|(frequency, amplitude)| point_record(plan, spec, temperature_c, engine_ref, *frequency, *amplitude))
         .collect::<Result<Vec<_>, SolveFailure>>()
         .map_err(&fail)?;
     for point in &points {
         if !point.forward_active {
             let mut reasons = Vec::new();
             if point.max_base_collector_v > 0.0 {
-                reasons.push(format!(
-                    "collector-base forward-biased by {:.3} V",
-                    point.max_base_collector_v
-                ));
+                reasons.push(format!("collector-base forward-biased by {:.3} V", point.max_base_collector_v));
             }
             if point.min_current_fraction < CUTOFF_FRACTION {
-                reasons.push(format!(
-                    "a side cuts off ({:.1e} of the tail current)",
-                    point.min_current_fraction.max(0.0)
-                ));
+                reasons.push(format!("a side cuts off ({:.1e} of the tail current)", point.min_current_fraction.max(0.0)));
             }
             warnings.push(format!(
                 "stage `{}` at {} °C, {} Hz, {} V: leaves forward-active operation ({}); the model's validity ends there",
@@ -211,12 +194,7 @@ fn evaluate_corner(
             ));
         }
         if let Some(i) = intercept {
-            let smallest = plan
-                .drive
-                .amplitudes
-                .iter()
-                .copied()
-                .fold(f64::INFINITY, f64::min);
+            let smallest = plan.drive.amplitudes.iter().copied().fold(f64::INFINITY, f64::min);
             if plan.drive.two_tone_spacing.is_some() && smallest > 2.0 * i.fit_amplitude_v {
                 warnings.push(format!(
                     "stage `{}` at {} °C: every plan amplitude is above the small-signal region (IM3 slope 3:1 only below about {:.3e} V); extrapolating an intercept from the plan's points would be wrong, so it was fitted at {:.3e} V",
@@ -285,10 +263,7 @@ fn evaluate_corner(
             stage: spec.name.clone(),
             temperature_c,
             metric: line.metric.name(),
-            at_v: line
-                .metric
-                .needs_amplitude()
-                .then(|| line_amplitude(line, plan)),
+            at_v: line.metric.needs_amplitude().then(|| line_amplitude(line, plan)),
             frequency_hz: line_frequency(line, plan),
             limit: line.limit.value(),
             kind: match line.limit {
@@ -328,10 +303,7 @@ fn offset_voltage(solver: &crate::transfer::StaticSolver) -> Result<f64, SolveFa
     crate::roots::safe_newton(
         |v| {
             let step = 1e-6 * c.thermal_voltage;
-            (
-                balance(v),
-                (balance(v + step) - balance(v - step)) / (2.0 * step),
-            )
+            (balance(v), (balance(v + step) - balance(v - step)) / (2.0 * step))
         },
         low,
         high,
@@ -369,12 +341,7 @@ pub fn point_record(
         })
         .fold(NAMED_HARMONICS, usize::max);
     let named: BTreeMap<String, Option<f64>> = (2..=highest_named)
-        .map(|k| {
-            (
-                format!("hd{k}_dbc"),
-                tone.differential.harmonic_dbc(k, floor),
-            )
-        })
+        .map(|k| (format!("hd{k}_dbc"), tone.differential.harmonic_dbc(k, floor)))
         .collect();
     let thd = tone.differential.raw_thd_dbc(plan.drive.thd_harmonics);
     let (im3, im2, effective) = match plan.drive.two_tone_spacing {

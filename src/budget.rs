@@ -94,9 +94,7 @@ impl<'a> Figures<'a> {
             self.spacing(frequency_hz),
             start,
         )?;
-        self.intercepts
-            .borrow_mut()
-            .insert(frequency_hz.to_bits(), value);
+        self.intercepts.borrow_mut().insert(frequency_hz.to_bits(), value);
         Ok(value)
     }
 
@@ -117,24 +115,16 @@ impl<'a> Figures<'a> {
         let amplitude = line_amplitude(line, self.plan);
         Ok(match line.metric {
             Metric::Harmonic(order) => {
-                let tone = self.engine.tone(
-                    amplitude,
-                    frequency,
-                    self.plan.drive.thd_harmonics.max(order),
-                )?;
+                let tone = self.engine.tone(amplitude, frequency, self.plan.drive.thd_harmonics.max(order))?;
                 tone.differential.harmonic_dbc(order, tone.floor_dbc)
             }
             Metric::Thd => {
-                let tone = self
-                    .engine
-                    .tone(amplitude, frequency, self.plan.drive.thd_harmonics)?;
+                let tone = self.engine.tone(amplitude, frequency, self.plan.drive.thd_harmonics)?;
                 let thd = tone.differential.raw_thd_dbc(self.plan.drive.thd_harmonics);
                 (thd >= tone.floor_dbc).then_some(thd)
             }
             Metric::Im3 => {
-                let result = self
-                    .engine
-                    .two_tone(amplitude, frequency, self.spacing(frequency))?;
+                let result = self.engine.two_tone(amplitude, frequency, self.spacing(frequency))?;
                 let im3 = result.im3_dbc();
                 (im3 >= crate::spectrum::ANALYSIS_FLOOR_DBC).then_some(im3)
             }
@@ -202,11 +192,7 @@ mod tests {
 
     #[test]
     fn margins_follow_the_contract() {
-        let (m, pass) = judge(
-            &line(Metric::Harmonic(3), Limit::Max(-60.0)),
-            Some(-36.6),
-            -200.0,
-        );
+        let (m, pass) = judge(&line(Metric::Harmonic(3), Limit::Max(-60.0)), Some(-36.6), -200.0);
         assert!((m.unwrap() + 23.4).abs() < 1e-12 && !pass);
         let (m, pass) = judge(&line(Metric::Gain, Limit::Min(6.0)), Some(10.0), -200.0);
         assert!((m.unwrap() - 4.0).abs() < 1e-12 && pass);

@@ -63,10 +63,7 @@ mod tests {
     #[test]
     fn saturation_current_unchanged_at_nominal() {
         let spec = TransistorSpec::default();
-        assert_eq!(
-            saturation_current_at(&spec, spec.nominal_temperature_c),
-            spec.saturation_current
-        );
+        assert_eq!(saturation_current_at(&spec, spec.nominal_temperature_c), spec.saturation_current);
     }
 
     #[test]
@@ -74,9 +71,7 @@ mod tests {
         // Common practice: V_BE at constant collector current falls by roughly 1.5 to 2.2 mV/K.
         let spec = TransistorSpec::default();
         let current = 0.5e-3;
-        let vbe = |t: f64| {
-            crate::units::thermal_voltage(t) * (current / saturation_current_at(&spec, t)).ln()
-        };
+        let vbe = |t: f64| crate::units::thermal_voltage(t) * (current / saturation_current_at(&spec, t)).ln();
         let slope = (vbe(37.0) - vbe(17.0)) / 20.0;
         assert!(slope < -1.5e-3 && slope > -2.2e-3, "dV_BE/dT = {slope}");
     }

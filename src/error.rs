@@ -57,11 +57,7 @@ impl PlanError {
 
 impl fmt::Display for PlanError {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        let file = if self.file.is_empty() {
-            "<plan>"
-        } else {
-            &self.file
-        };
+        let file = if self.file.is_empty() { "<plan>" } else { &self.file };
         write!(f, "{file}:{}:{}: ", self.line, self.column)?;
         if !self.key_path.is_empty() {
             write!(f, "{}: ", self.key_path)?;

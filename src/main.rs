@@ -58,22 +58,13 @@ fn main() -> ExitCode {
         Ok(cli) => cli,
         Err(err) => {
             let _ = err.print();
-            return if err.use_stderr() {
-                ExitCode::from(2)
-            } else {
-                ExitCode::SUCCESS
-            };
+            return if err.use_stderr() { ExitCode::from(2) } else { ExitCode::SUCCESS };
         }
     };
     match cli.command {
         Command::Check { plan } => match check(&plan) {
             Ok(p) => {
-                eprintln!(
-                    "{}: valid plan `{}` ({} stage(s))",
-                    plan.display(),
-                    p.name,
-                    p.stages.len()
-                );
+                eprintln!("{}: valid plan `{}` ({} stage(s))", plan.display(), p.name, p.stages.len());
                 ExitCode::SUCCESS
             }
             Err(err) => {
@@ -81,18 +72,8 @@ fn main() -> ExitCode {
                 ExitCode::from(2)
             }
         },
-        Command::Run {
-            plan,
-            out,
-            json,
-            quiet,
-        } => {
-            let options = RunOptions {
-                plan,
-                out,
-                json,
-                quiet,
-            };
+        Command::Run { plan, out, json, quiet } => {
+            let options = RunOptions { plan, out, json, quiet };
             let show_progress = !quiet && std::io::stderr().is_terminal();
             let progress = move |line: &str| {
                 if show_progress {
@@ -116,11 +97,7 @@ fn main() -> ExitCode {
                         if outcome.report.met { "met" } else { "NOT met" },
                         outcome.folder.display()
                     );
-                    if outcome.report.met {
-                        ExitCode::SUCCESS
-                    } else {
-                        ExitCode::from(1)
-                    }
+                    if outcome.report.met { ExitCode::SUCCESS } else { ExitCode::from(1) }
                 }
                 Err(err) => {
                     eprintln!("error: {err}");

@@ -35,10 +35,8 @@ impl RegionCheck {
 
     fn update(&mut self, point: &crate::transfer::OperatingPoint, tail: f64) {
         for side in [&point.p, &point.m] {
-            self.max_base_collector_v =
-                self.max_base_collector_v.max(side.base_collector_voltage());
-            self.min_current_fraction =
-                self.min_current_fraction.min(side.collector_current / tail);
+            self.max_base_collector_v = self.max_base_collector_v.max(side.base_collector_voltage());
+            self.min_current_fraction = self.min_current_fraction.min(side.collector_current / tail);
         }
     }
 
@@ -101,13 +99,11 @@ pub fn single_tone(
             out[1] = point.p.collector_voltage;
             Ok(())
         },
-        |n, change| {
-            SolveFailure {
+        |n, change| SolveFailure {
             point: format!("amplitude {amplitude_v:e} V"),
             reason: format!(
                 "harmonics did not converge to {CONVERGED_DB} dB with {n} samples per period (last change {change:.2e} dB)"
             ),
-        }
         },
     )?;
     let mut spectra = result.spectra.into_iter();
@@ -169,12 +165,8 @@ pub fn two_tone(
             };
             let changes = [
                 (20.0 * (result.fundamental_v / before.fundamental_v).log10()).abs(),
-                (clamp(result.im3_v, result.fundamental_v)
-                    - clamp(before.im3_v, before.fundamental_v))
-                .abs(),
-                (clamp(result.im2_v, result.fundamental_v)
-                    - clamp(before.im2_v, before.fundamental_v))
-                .abs(),
+                (clamp(result.im3_v, result.fundamental_v) - clamp(before.im3_v, before.fundamental_v)).abs(),
+                (clamp(result.im2_v, result.fundamental_v) - clamp(before.im2_v, before.fundamental_v)).abs(),
             ];
             if changes.iter().all(|c| *c <= CONVERGED_DB) {
                 return Ok(result);
@@ -300,13 +292,10 @@ pub fn input_p1db(
     small_signal_gain: f64,
     start_v: f64,
 ) -> Result<Option<f64>, SolveFailure> {
-    let compression =
-        |amplitude: f64| -> Result<f64, SolveFailure> {
-            let tone = engine.tone(amplitude, frequency_hz, 9)?;
-            Ok(20.0
-                * (tone.differential.fundamental() / (amplitude * small_signal_gain.abs())).log10()
-                + 1.0)
-        };
+    let compression = |amplitude: f64| -> Result<f64, SolveFailure> {
+        let tone = engine.tone(amplitude, frequency_hz, 9)?;
+        Ok(20.0 * (tone.differential.fundamental() / (amplitude * small_signal_gain.abs())).log10() + 1.0)
+    };
     // Bracket in log amplitude: compression + 1 dB goes from > 0 (small) to < 0 (compressed).
     let mut high = start_v;
     let mut value_high = compression(high)?;

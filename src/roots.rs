@@ -58,7 +58,9 @@ pub fn safe_newton(
     }
     if f_low.signum() == f_high.signum() {
         return Err(RootFailure {
-            reason: format!("no sign change in [{low:e}, {high:e}] (values {f_low:e}, {f_high:e})"),
+            reason: format!(
+                "no sign change in [{low:e}, {high:e}] (values {f_low:e}, {f_high:e})"
+            ),
         });
     }
     // Orient so that f(low) < 0 < f(high).
@@ -87,8 +89,10 @@ pub fn safe_newton(
             high = x;
         }
         let newton = x - value / slope;
-        let inside =
-            slope.is_finite() && slope != 0.0 && newton > low.min(high) && newton < low.max(high);
+        let inside = slope.is_finite()
+            && slope != 0.0
+            && newton > low.min(high)
+            && newton < low.max(high);
         let step;
         if inside && (newton - x).abs() <= 0.5 * previous_step {
             step = newton - x;
@@ -145,9 +149,7 @@ pub fn bracket_increasing(
         }
     }
     Err(RootFailure {
-        reason: format!(
-            "could not bracket a root near {guess:e} (last interval [{low:e}, {high:e}])"
-        ),
+        reason: format!("could not bracket a root near {guess:e} (last interval [{low:e}, {high:e}])"),
     })
 }
 
@@ -157,14 +159,8 @@ mod tests {
 
     #[test]
     fn finds_cube_root_of_two() {
-        let root = safe_newton(
-            |x| (x * x * x - 2.0, 3.0 * x * x),
-            0.0,
-            2.0,
-            1.0,
-            Tolerance::MACHINE,
-        )
-        .unwrap();
+        let root = safe_newton(|x| (x * x * x - 2.0, 3.0 * x * x), 0.0, 2.0, 1.0, Tolerance::MACHINE)
+            .unwrap();
         assert!((root - 2f64.cbrt()).abs() < 1e-15);
     }
 
@@ -184,13 +180,7 @@ mod tests {
 
     #[test]
     fn reports_a_missing_sign_change() {
-        let err = safe_newton(
-            |x| (x * x + 1.0, 2.0 * x),
-            -1.0,
-            1.0,
-            0.0,
-            Tolerance::MACHINE,
-        );
+        let err = safe_newton(|x| (x * x + 1.0, 2.0 * x), -1.0, 1.0, 0.0, Tolerance::MACHINE);
         assert!(err.unwrap_err().reason.contains("no sign change"));
     }
 

@@ -40,16 +40,8 @@ impl Trial {
     /// Worst margin over the lines (and headroom, in dB of 1 V for ranking only).
     fn worst(&self, plan: &Plan) -> (f64, String) {
         let mut worst = (f64::INFINITY, String::from("none"));
-        for (line, (margin, pass)) in plan
-            .budget
-            .iter()
-            .zip(self.margins.iter().zip(&self.passes))
-        {
-            let m = margin.unwrap_or(if *pass {
-                f64::INFINITY
-            } else {
-                f64::NEG_INFINITY
-            });
+        for (line, (margin, pass)) in plan.budget.iter().zip(self.margins.iter().zip(&self.passes)) {
+            let m = margin.unwrap_or(if *pass { f64::INFINITY } else { f64::NEG_INFINITY });
             if m < worst.0 {
                 worst = (m, line.metric.name());
             }
@@ -201,11 +193,7 @@ pub fn size_stage(
                 stage: stage.name.clone(),
                 temperature_c,
                 emitter_resistance_ohm: Some(t.emitter_resistance),
-                binding_metric: if headroom_binds {
-                    "headroom".into()
-                } else {
-                    binding
-                },
+                binding_metric: if headroom_binds { "headroom".into() } else { binding },
                 met: true,
                 best_margin: worst,
                 gain_db: Some(t.gain_db),
@@ -223,8 +211,8 @@ pub fn size_stage(
                 .cloned()
                 .unwrap_or_else(|| scan[0].clone());
             let (worst, binding) = best.worst(plan);
-            let headroom_binds =
-                best.headroom_v.is_some_and(|h| h < 0.0) && best.passes.iter().all(|p| *p);
+            let headroom_binds = best.headroom_v.is_some_and(|h| h < 0.0)
+                && best.passes.iter().all(|p| *p);
             SizingRecord {
                 stage: stage.name.clone(),
                 temperature_c,

@@ -36,10 +36,7 @@ impl std::fmt::Debug for FftCache {
 impl FftCache {
     /// The forward FFT plan of size `n`.
     pub fn plan(&self, n: usize) -> Arc<dyn Fft<f64>> {
-        let mut plans = self
-            .plans
-            .lock()
-            .unwrap_or_else(|poisoned| poisoned.into_inner());
+        let mut plans = self.plans.lock().unwrap_or_else(|poisoned| poisoned.into_inner());
         plans
             .entry(n)
             .or_insert_with(|| FftPlanner::new().plan_fft_forward(n))
@@ -174,10 +171,7 @@ pub fn analyse_adaptive<E>(
         // New samples sit halfway between the old ones.
         let mut fresh: Vec<Vec<f64>> = vec![Vec::with_capacity(n); channels];
         for i in 0..n {
-            sample(
-                std::f64::consts::TAU * (2 * i + 1) as f64 / doubled as f64,
-                &mut values,
-            )?;
+            sample(std::f64::consts::TAU * (2 * i + 1) as f64 / doubled as f64, &mut values)?;
             for (channel, v) in fresh.iter_mut().zip(&values) {
                 channel.push(*v);
             }

@@ -184,9 +184,8 @@ impl StaticSolver {
         let v_in_m = c.input_common_mode - 0.5 * v_d;
         let p_point = side(p, j_p, v_in_p);
         let m_point = side(m, j_m, v_in_m);
-        let tail_voltage = p_point.base_voltage
-            - p_point.base_emitter_voltage
-            - p.emitter_resistance * p_point.emitter_current;
+        let tail_voltage =
+            p_point.base_voltage - p_point.base_emitter_voltage - p.emitter_resistance * p_point.emitter_current;
         Ok((
             y,
             OperatingPoint {
@@ -285,8 +284,7 @@ impl SideSolution {
             collector_current: self.collector_current,
             base_current: self.base_current,
             emitter_current: self.emitter_current,
-            base_emitter_voltage: c.thermal_voltage
-                * (self.log_transport - side.saturation_current.ln()),
+            base_emitter_voltage: c.thermal_voltage * (self.log_transport - side.saturation_current.ln()),
             collector_voltage: c.supply - side.load_resistance * self.collector_current,
             base_voltage: v_in - side.base_path_resistance * self.base_current,
         }
@@ -306,8 +304,7 @@ fn side_currents(c: &StageCircuit, side: &Side, u: f64, v_tail: f64) -> (f64, f6
     let collector = numerator / denominator;
     let d_num_dj = 1.0 + q * (c.supply - v_tail) - 2.0 * q * r_e * j * side.beta_inv;
     let d_den_dj = q * (side.load_resistance + r_e);
-    let d_collector_dj =
-        (d_num_dj * denominator - numerator * d_den_dj) / (denominator * denominator);
+    let d_collector_dj = (d_num_dj * denominator - numerator * d_den_dj) / (denominator * denominator);
     let base = j * side.beta_inv;
     let emitter = collector + base;
     let d_emitter_du = j * (d_collector_dj + side.beta_inv);

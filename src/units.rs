@@ -139,16 +139,11 @@ fn split_number(text: &str) -> Option<(f64, &str)> {
 pub fn parse_quantity(text: &str, unit: Unit) -> Result<f64, String> {
     let trimmed = text.trim();
     let lowered = trimmed.to_ascii_lowercase();
-    if matches!(
-        lowered.as_str(),
-        "inf" | ".inf" | "+inf" | "+.inf" | "infinity"
-    ) {
+    if matches!(lowered.as_str(), "inf" | ".inf" | "+inf" | "+.inf" | "infinity") {
         return Ok(f64::INFINITY);
     }
     let Some((number, suffix)) = split_number(trimmed) else {
-        return Err(format!(
-            "\"{trimmed}\" is not a number with an optional SI prefix and unit"
-        ));
+        return Err(format!("\"{trimmed}\" is not a number with an optional SI prefix and unit"));
     };
     let suffix = suffix.trim_start();
     if suffix.is_empty() {
@@ -241,10 +236,7 @@ mod tests {
         ];
         for (text, unit, expected) in cases {
             let got = parse_quantity(text, unit).unwrap();
-            assert!(
-                (got - expected).abs() <= 1e-15 * expected.abs(),
-                "{text}: {got}"
-            );
+            assert!((got - expected).abs() <= 1e-15 * expected.abs(), "{text}: {got}");
         }
         assert_eq!(parse_quantity(".inf", Unit::Ohm).unwrap(), f64::INFINITY);
     }

@@ -107,6 +107,9 @@ struct Refined {
     region: RegionCheck,
 }
 
+/// One refinement level: steps per period, differential and P-collector phasors.
+type Level = (usize, Vec<Complex<f64>>, Vec<Complex<f64>>);
+
 /// dB of an amplitude relative to a reference, clamped at the floor.
 fn dbc_clamped(level: f64, reference: f64) -> f64 {
     let db = 20.0 * (level / reference).log10();
@@ -150,7 +153,7 @@ impl DynamicEngine {
         };
         let mut monodromy: Option<Lu> = None;
         let mut steps = first_steps;
-        let mut coarser: Option<(usize, Vec<Complex<f64>>, Vec<Complex<f64>>)> = None;
+        let mut coarser: Option<Level> = None;
         let mut previous_figures: Option<Vec<f64>> = None;
         let mut last_change = f64::INFINITY;
         while steps <= MAX_STEPS {

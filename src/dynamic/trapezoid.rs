@@ -30,6 +30,9 @@
 //! *odd* number it flips sign and the matrix stays well conditioned. Callers therefore use
 //! odd step counts.
 
+// Index loops mirror the matrix formulas they implement.
+#![allow(clippy::needless_range_loop)]
+
 use super::dense::Lu;
 
 /// A circuit in charge-based form (see the module docs).

@@ -450,12 +450,8 @@ impl Plan {
             stages.push(stage);
         }
 
-        let drive =
-            read_drive(&top.required("drive", "a mapping with amplitudes and frequencies")?)?;
-        let monte_carlo = top
-            .get("monte_carlo")
-            .map(|at| read_monte_carlo(&at))
-            .transpose()?;
+        let drive = read_drive(&top.required("drive", "a mapping with amplitudes and frequencies")?)?;
+        let monte_carlo = top.get("monte_carlo").map(|at| read_monte_carlo(&at)).transpose()?;
         let budget = match top.get("budget") {
             Some(at) => at
                 .seq("budget lines")?
@@ -519,10 +515,7 @@ fn read_stage(at: &At) -> Result<StageSpec, PlanError> {
     let name_at = map.required("name", "a unique stage name")?;
     let name = name_at.text("a stage name")?.to_owned();
     if name.is_empty() || name.len() > 100 || name.chars().any(|c| c.is_control()) {
-        return Err(name_at.error(
-            "the stage name is empty, too long or has control characters",
-            "1 to 100 printable characters",
-        ));
+        return Err(name_at.error("the stage name is empty, too long or has control characters", "1 to 100 printable characters"));
     }
     let supply = map.quantity_or("supply", Unit::Volt, Range::Positive, 5.0)?;
     let transistor = match map.get("transistor") {
@@ -533,43 +526,18 @@ fn read_stage(at: &At) -> Result<StageSpec, PlanError> {
         name,
         tail_current: map.quantity("tail_current", Unit::Ampere, Range::Positive)?,
         load_resistance: map.quantity("load_resistance", Unit::Ohm, Range::Positive)?,
-        emitter_resistance: map.quantity_or(
-            "emitter_resistance",
-            Unit::Ohm,
-            Range::NonNegative,
-            0.0,
-        )?,
-        source_resistance: map.quantity_or(
-            "source_resistance",
-            Unit::Ohm,
-            Range::NonNegative,
-            0.0,
-        )?,
+        emitter_resistance: map.quantity_or("emitter_resistance", Unit::Ohm, Range::NonNegative, 0.0)?,
+        source_resistance: map.quantity_or("source_resistance", Unit::Ohm, Range::NonNegative, 0.0)?,
         tail_resistance: map.quantity_or(
             "tail_resistance",
             Unit::Ohm,
             Range::PositiveOrInfinite,
             f64::INFINITY,
         )?,
-        load_capacitance: map.quantity_or(
-            "load_capacitance",
-            Unit::Farad,
-            Range::NonNegative,
-            0.0,
-        )?,
-        tail_capacitance: map.quantity_or(
-            "tail_capacitance",
-            Unit::Farad,
-            Range::NonNegative,
-            0.0,
-        )?,
+        load_capacitance: map.quantity_or("load_capacitance", Unit::Farad, Range::NonNegative, 0.0)?,
+        tail_capacitance: map.quantity_or("tail_capacitance", Unit::Farad, Range::NonNegative, 0.0)?,
         supply,
-        input_common_mode: map.quantity_or(
-            "input_common_mode",
-            Unit::Volt,
-            Range::Finite,
-            supply / 2.0,
-        )?,
+        input_common_mode: map.quantity_or("input_common_mode", Unit::Volt, Range::Finite, supply / 2.0)?,
         transistor,
         mismatch: read_mismatch(&map, "mismatch", Range::Between(-0.9, 9.0))?,
         mismatch_sigma: read_mismatch(&map, "mismatch_sigma", Range::Between(-1e-300, 0.5))?,
@@ -581,85 +549,20 @@ fn read_transistor(at: &At) -> Result<TransistorSpec, PlanError> {
     let map = at.map(TRANSISTOR_KEYS)?;
     let d = TransistorSpec::default();
     Ok(TransistorSpec {
-        saturation_current: map.quantity_or(
-            "saturation_current",
-            Unit::Ampere,
-            Range::Positive,
-            d.saturation_current,
-        )?,
+        saturation_current: map.quantity_or("saturation_current", Unit::Ampere, Range::Positive, d.saturation_current)?,
         beta: map.quantity_or("beta", Unit::Ratio, Range::PositiveOrInfinite, d.beta)?,
-        early_voltage: map.quantity_or(
-            "early_voltage",
-            Unit::Volt,
-            Range::PositiveOrInfinite,
-            d.early_voltage,
-        )?,
-        base_resistance: map.quantity_or(
-            "base_resistance",
-            Unit::Ohm,
-            Range::NonNegative,
-            d.base_resistance,
-        )?,
-        transit_time: map.quantity_or(
-            "transit_time",
-            Unit::Second,
-            Range::NonNegative,
-            d.transit_time,
-        )?,
-        emitter_junction_capacitance: map.quantity_or(
-            "emitter_junction_capacitance",
-            Unit::Farad,
-            Range::NonNegative,
-            0.0,
-        )?,
-        collector_junction_capacitance: map.quantity_or(
-            "collector_junction_capacitance",
-            Unit::Farad,
-            Range::NonNegative,
-            0.0,
-        )?,
-        emitter_junction_potential: map.quantity_or(
-            "emitter_junction_potential",
-            Unit::Volt,
-            Range::Between(0.1, 2.0),
-            d.emitter_junction_potential,
-        )?,
-        emitter_grading: map.quantity_or(
-            "emitter_grading",
-            Unit::Ratio,
-            Range::Between(0.0, 0.9),
-            d.emitter_grading,
-        )?,
-        collector_junction_potential: map.quantity_or(
-            "collector_junction_potential",
-            Unit::Volt,
-            Range::Between(0.1, 2.0),
-            d.collector_junction_potential,
-        )?,
-        collector_grading: map.quantity_or(
-            "collector_grading",
-            Unit::Ratio,
-            Range::Between(0.0, 0.9),
-            d.collector_grading,
-        )?,
-        nominal_temperature_c: map.quantity_or(
-            "nominal_temperature_c",
-            Unit::Ratio,
-            Range::Between(-273.15, 1000.0),
-            d.nominal_temperature_c,
-        )?,
-        bandgap_ev: map.quantity_or(
-            "bandgap_ev",
-            Unit::ElectronVolt,
-            Range::Between(0.1, 5.0),
-            d.bandgap_ev,
-        )?,
-        saturation_current_exponent: map.quantity_or(
-            "saturation_current_exponent",
-            Unit::Ratio,
-            Range::Between(-10.0, 10.0),
-            d.saturation_current_exponent,
-        )?,
+        early_voltage: map.quantity_or("early_voltage", Unit::Volt, Range::PositiveOrInfinite, d.early_voltage)?,
+        base_resistance: map.quantity_or("base_resistance", Unit::Ohm, Range::NonNegative, d.base_resistance)?,
+        transit_time: map.quantity_or("transit_time", Unit::Second, Range::NonNegative, d.transit_time)?,
+        emitter_junction_capacitance: map.quantity_or("emitter_junction_capacitance", Unit::Farad, Range::NonNegative, 0.0)?,
+        collector_junction_capacitance: map.quantity_or("collector_junction_capacitance", Unit::Farad, Range::NonNegative, 0.0)?,
+        emitter_junction_potential: map.quantity_or("emitter_junction_potential", Unit::Volt, Range::Between(0.1, 2.0), d.emitter_junction_potential)?,
+        emitter_grading: map.quantity_or("emitter_grading", Unit::Ratio, Range::Between(0.0, 0.9), d.emitter_grading)?,
+        collector_junction_potential: map.quantity_or("collector_junction_potential", Unit::Volt, Range::Between(0.1, 2.0), d.collector_junction_potential)?,
+        collector_grading: map.quantity_or("collector_grading", Unit::Ratio, Range::Between(0.0, 0.9), d.collector_grading)?,
+        nominal_temperature_c: map.quantity_or("nominal_temperature_c", Unit::Ratio, Range::Between(-273.15, 1000.0), d.nominal_temperature_c)?,
+        bandgap_ev: map.quantity_or("bandgap_ev", Unit::ElectronVolt, Range::Between(0.1, 5.0), d.bandgap_ev)?,
+        saturation_current_exponent: map.quantity_or("saturation_current_exponent", Unit::Ratio, Range::Between(-10.0, 10.0), d.saturation_current_exponent)?,
     })
 }
 
@@ -698,18 +601,11 @@ fn read_sweep(at: &At, unit: Unit, what: &str) -> Result<Vec<f64>, PlanError> {
                 },
             };
             if points > 1 && to <= from {
-                return Err(at.error(
-                    "`to` must exceed `from`",
-                    format!("a sweep of {what} with from < to"),
-                ));
+                return Err(at.error("`to` must exceed `from`", format!("a sweep of {what} with from < to")));
             }
             (0..points)
                 .map(|i| {
-                    let t = if points == 1 {
-                        0.0
-                    } else {
-                        i as f64 / (points - 1) as f64
-                    };
+                    let t = if points == 1 { 0.0 } else { i as f64 / (points - 1) as f64 };
                     if log {
                         from * (to / from).powf(t)
                     } else {
@@ -737,10 +633,7 @@ fn read_sweep(at: &At, unit: Unit, what: &str) -> Result<Vec<f64>, PlanError> {
 fn read_drive(at: &At) -> Result<Drive, PlanError> {
     let map = at.map(DRIVE_KEYS)?;
     let amplitudes = read_sweep(
-        &map.required(
-            "amplitudes",
-            "a list of peak differential amplitudes, e.g. [1 mV, 10 mV]",
-        )?,
+        &map.required("amplitudes", "a list of peak differential amplitudes, e.g. [1 mV, 10 mV]")?,
         Unit::Volt,
         "amplitudes",
     )?;
@@ -767,9 +660,7 @@ fn read_drive(at: &At) -> Result<Drive, PlanError> {
 fn read_monte_carlo(at: &At) -> Result<MonteCarloSpec, PlanError> {
     let map = at.map(&["runs", "seed"])?;
     Ok(MonteCarloSpec {
-        runs: map
-            .required("runs", "a whole number of runs")?
-            .count(1, 1_000_000)?,
+        runs: map.required("runs", "a whole number of runs")?.count(1, 1_000_000)?,
         seed: match map.get("seed") {
             Some(s) => s.count(0, u64::MAX)?,
             None => 1,
@@ -781,16 +672,14 @@ fn read_budget_line(at: &At, drive: &Drive) -> Result<BudgetLine, PlanError> {
     let map = at.map(BUDGET_KEYS)?;
     let metric_at = map.required("metric", METRIC_NAMES)?;
     let metric_name = metric_at.text(METRIC_NAMES)?;
-    let metric = Metric::parse(metric_name)
-        .ok_or_else(|| metric_at.error(format!("unknown metric `{metric_name}`"), METRIC_NAMES))?;
+    let metric = Metric::parse(metric_name).ok_or_else(|| {
+        metric_at.error(format!("unknown metric `{metric_name}`"), METRIC_NAMES)
+    })?;
     if let Metric::Harmonic(order) = metric {
         if order > drive.thd_harmonics.max(9) {
             return Err(metric_at.error(
                 format!("hd{order} is above the analysed orders"),
-                format!(
-                    "hd2 to hd{} (raise drive.thd_harmonics for more)",
-                    drive.thd_harmonics.max(9)
-                ),
+                format!("hd2 to hd{} (raise drive.thd_harmonics for more)", drive.thd_harmonics.max(9)),
             ));
         }
     }
@@ -860,9 +749,5 @@ fn read_sizing(at: &At) -> Result<SizingSpec, PlanError> {
         Some(h) => h.boolean()?,
         None => false,
     };
-    Ok(SizingSpec {
-        from,
-        to,
-        hold_gain,
-    })
+    Ok(SizingSpec { from, to, hold_gain })
 }

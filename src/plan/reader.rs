@@ -45,10 +45,7 @@ impl<'a> At<'a> {
     pub fn map(&self, allowed: &[&str]) -> Result<MapAt<'a>, PlanError> {
         let NodeValue::Map(entries) = &self.node.value else {
             return Err(self.error(
-                format!(
-                    "expected a mapping of keys, found {}",
-                    self.node.value.kind()
-                ),
+                format!("expected a mapping of keys, found {}", self.node.value.kind()),
                 format!("a mapping with keys: {}", allowed.join(", ")),
             ));
         };
@@ -131,7 +128,11 @@ impl<'a> At<'a> {
     }
 
     /// A finite quantity satisfying `check`, which names the accepted range.
-    pub fn quantity_where(&self, unit: Unit, range: Range) -> Result<f64, PlanError> {
+    pub fn quantity_where(
+        &self,
+        unit: Unit,
+        range: Range,
+    ) -> Result<f64, PlanError> {
         let value = self.quantity(unit)?;
         range.check(value).map_err(|why| {
             self.error(
@@ -248,19 +249,15 @@ impl<'a> MapAt<'a> {
 
     /// The value under `key`, if present and not null.
     pub fn get(&self, key: &str) -> Option<At<'a>> {
-        self.entries
-            .iter()
-            .find_map(|(k, v)| match (&k.value, &v.value) {
-                (NodeValue::Text(name), value)
-                    if name == key && !matches!(value, NodeValue::Null) =>
-                {
-                    Some(At {
-                        node: v,
-                        path: join(&self.at.path, key),
-                    })
-                }
-                _ => None,
-            })
+        self.entries.iter().find_map(|(k, v)| match (&k.value, &v.value) {
+            (NodeValue::Text(name), value) if name == key && !matches!(value, NodeValue::Null) => {
+                Some(At {
+                    node: v,
+                    path: join(&self.at.path, key),
+                })
+            }
+            _ => None,
+        })
     }
 
     /// The value under `key`, or an error saying it is required.
@@ -292,8 +289,7 @@ impl<'a> MapAt<'a> {
 
     /// A required quantity.
     pub fn quantity(&self, key: &str, unit: Unit, range: Range) -> Result<f64, PlanError> {
-        self.required(key, unit.describe())?
-            .quantity_where(unit, range)
+        self.required(key, unit.describe())?.quantity_where(unit, range)
     }
 }
 

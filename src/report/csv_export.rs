@@ -27,16 +27,8 @@ pub fn points_csv(report: &Report) -> Result<Vec<u8>, csv::Error> {
     ];
     header.extend(sorted_orders.iter().cloned());
     header.extend(
-        [
-            "thd_dbc",
-            "im3_dbc",
-            "im2_dbc",
-            "single_ended_hd2_dbc",
-            "single_ended_hd3_dbc",
-            "samples",
-            "forward_active",
-        ]
-        .map(String::from),
+        ["thd_dbc", "im3_dbc", "im2_dbc", "single_ended_hd2_dbc", "single_ended_hd3_dbc", "samples", "forward_active"]
+            .map(String::from),
     );
     writer.write_record(&header)?;
     let cell = |v: Option<f64>| v.map(|x| format!("{x}")).unwrap_or_default();
@@ -49,11 +41,7 @@ pub fn points_csv(report: &Report) -> Result<Vec<u8>, csv::Error> {
             p.fundamental_v.to_string(),
             p.gain_db.to_string(),
         ];
-        row.extend(
-            sorted_orders
-                .iter()
-                .map(|k| cell(p.harmonics.get(k).copied().flatten())),
-        );
+        row.extend(sorted_orders.iter().map(|k| cell(p.harmonics.get(k).copied().flatten())));
         row.push(cell(p.thd_dbc));
         row.push(cell(p.im3_dbc.flatten()));
         row.push(cell(p.im2_dbc.flatten()));

@@ -6,15 +6,11 @@ use crate::units::format_si;
 use std::fmt::Write;
 
 fn db(value: Option<f64>) -> String {
-    value
-        .map(|v| format!("{v:.2}"))
-        .unwrap_or_else(|| "—".into())
+    value.map(|v| format!("{v:.2}")).unwrap_or_else(|| "—".into())
 }
 
 fn volts(value: Option<f64>) -> String {
-    value
-        .map(|v| format_si(v, "V"))
-        .unwrap_or_else(|| "—".into())
+    value.map(|v| format_si(v, "V")).unwrap_or_else(|| "—".into())
 }
 
 /// Renders the summary tables as Markdown.
@@ -57,10 +53,7 @@ pub fn summary(report: &Report) -> String {
     for name in stage_names {
         let _ = writeln!(out, "## Stage `{name}`\n");
         let _ = writeln!(out, "| T (°C) | f (Hz) | amplitude | fundamental | gain (dB) | HD2 | HD3 | HD5 | THD | IM3 | in forward-active |");
-        let _ = writeln!(
-            out,
-            "|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---|"
-        );
+        let _ = writeln!(out, "|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---|");
         for p in report.points.iter().filter(|p| p.stage == name) {
             let _ = writeln!(
                 out,
@@ -98,10 +91,7 @@ pub fn summary(report: &Report) -> String {
         let _ = writeln!(out);
         let lines: Vec<_> = report.budget.iter().filter(|b| b.stage == name).collect();
         if !lines.is_empty() {
-            let _ = writeln!(
-                out,
-                "| T (°C) | metric | at | limit | value | margin (dB) | verdict |"
-            );
+            let _ = writeln!(out, "| T (°C) | metric | at | limit | value | margin (dB) | verdict |");
             let _ = writeln!(out, "|---:|---|---:|---:|---:|---:|---|");
             for b in lines {
                 let _ = writeln!(
@@ -113,9 +103,7 @@ pub fn summary(report: &Report) -> String {
                     b.kind,
                     b.limit,
                     b.unit,
-                    b.value
-                        .map(|v| format!("{v:.4}"))
-                        .unwrap_or_else(|| "—".into()),
+                    b.value.map(|v| format!("{v:.4}")).unwrap_or_else(|| "—".into()),
                     db(b.margin),
                     if b.pass { "pass" } else { "**FAIL**" }
                 );
@@ -146,12 +134,7 @@ pub fn summary(report: &Report) -> String {
         }
         let _ = writeln!(out);
     }
-    let _ = writeln!(
-        out,
-        "Plan {}: **{}**",
-        report.plan,
-        if report.met { "met" } else { "not met" }
-    );
+    let _ = writeln!(out, "Plan {}: **{}**", report.plan, if report.met { "met" } else { "not met" });
     out
 }
 

@@ -106,10 +106,7 @@ pub struct PointRecord {
 impl PointRecord {
     /// Harmonic `order` in dBc, if reported and above the floor.
     pub fn harmonic(&self, order: usize) -> Option<f64> {
-        self.harmonics
-            .get(&format!("hd{order}_dbc"))
-            .copied()
-            .flatten()
+        self.harmonics.get(&format!("hd{order}_dbc")).copied().flatten()
     }
 }
 

@@ -24,20 +24,13 @@ fn output_error(path: &Path, reason: impl std::fmt::Display) -> Error {
 /// Checks that `out_dir` is usable (an existing folder, or creatable) without writing.
 pub fn check_output_dir(out_dir: &Path) -> Result<(), Error> {
     if out_dir.exists() && !out_dir.is_dir() {
-        return Err(output_error(
-            out_dir,
-            "exists and is not a folder; pass a folder to --out",
-        ));
+        return Err(output_error(out_dir, "exists and is not a folder; pass a folder to --out"));
     }
     Ok(())
 }
 
 /// Writes `files` as `out_dir/<name>/`, replacing any previous report of that name whole.
-pub fn write_report_folder(
-    out_dir: &Path,
-    name: &str,
-    files: &[OutputFile],
-) -> Result<PathBuf, Error> {
+pub fn write_report_folder(out_dir: &Path, name: &str, files: &[OutputFile]) -> Result<PathBuf, Error> {
     check_output_dir(out_dir)?;
     fs::create_dir_all(out_dir).map_err(|e| output_error(out_dir, e))?;
     let target = out_dir.join(name);
