@@ -75,7 +75,8 @@ impl ResponseEngine for MemorylessEngine {
     }
 }
 
-/// Builds the right engine for a stage at one temperature.
+/// Builds the right engine for a stage at one temperature: the memoryless fast path when
+/// the stage stores no charge, the periodic steady state otherwise.
 pub fn engine_for(
     circuit: StageCircuit,
     cache: Arc<FftCache>,
@@ -83,9 +84,6 @@ pub fn engine_for(
     if circuit.is_memoryless() {
         Ok(Box::new(MemorylessEngine::new(circuit, cache)))
     } else {
-        Err(
-            "stages with capacitance need the periodic steady-state engine, which is not built yet"
-                .into(),
-        )
+        Ok(Box::new(crate::dynamic::DynamicEngine::new(circuit, cache)))
     }
 }

@@ -14,6 +14,7 @@ pub mod analysis;
 pub mod budget;
 pub mod corner;
 pub mod device;
+pub mod dynamic;
 pub mod engine;
 pub mod error;
 pub mod metrics;
