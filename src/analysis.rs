@@ -321,16 +321,17 @@ fn evaluate_corner(
             }
         }
         let iip3 = intercept.map(|i| i.iip3_v);
+        let gain_here = figures.gain_at(frequency).map_err(&fail)?;
         intercepts.push(InterceptRecord {
             stage: spec.name.clone(),
             temperature_c,
             frequency_hz: frequency,
             iip3_v: iip3,
-            oip3_v: iip3.map(|v| v * gain.abs()),
+            oip3_v: iip3.map(|v| v * gain_here.abs()),
             p1db_v: p1db,
             steering_range_v: steering_range,
             input_noise_v_rthz: noise,
-            small_signal_gain_db: 20.0 * gain.abs().log10(),
+            small_signal_gain_db: 20.0 * gain_here.abs().log10(),
             iip3_dbv: iip3.map(|v| 20.0 * v.log10()),
             iip3_dbm: match (iip3, plan.reference_impedance) {
                 // Peak differential volts into R: P = V²/(2R).
