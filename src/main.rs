@@ -49,6 +49,9 @@ enum Command {
         /// deliberately for a plan that is refused as too large.
         #[arg(long, value_name = "SOLVES", default_value_t = DEFAULT_MAX_WORK, value_parser = parse_work)]
         max_work: f64,
+        /// Write the tables and reports without drawing figures (fast scripted sweeps).
+        #[arg(long)]
+        no_figures: bool,
     },
     /// Validate a plan only; writes nothing.
     #[command(after_help = CHECK_EXAMPLES)]
@@ -105,6 +108,7 @@ fn main() -> ExitCode {
             json,
             quiet,
             max_work,
+            no_figures,
         } => {
             let options = RunOptions {
                 plan,
@@ -112,6 +116,7 @@ fn main() -> ExitCode {
                 json,
                 quiet,
                 max_work,
+                figures: !no_figures,
             };
             // A spinner on standard error, only on a terminal and never with --quiet; standard
             // output stays reserved for --json.

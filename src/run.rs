@@ -22,6 +22,8 @@ pub struct RunOptions {
     pub quiet: bool,
     /// Largest estimated work accepted, sample solves (see [`crate::workload`]).
     pub max_work: f64,
+    /// Draw the figures (SVG and PNG); false writes the tables and reports only.
+    pub figures: bool,
 }
 
 /// What a run produced.
@@ -34,16 +36,38 @@ pub struct RunOutcome {
 }
 
 /// Renders every file of the report folder from the report structs.
-pub fn render_files(report: &Report) -> Result<Vec<OutputFile>, Error> {
-    let json = serde_json::to_vec_pretty(report).map_err(|e| Error::Output {
+pub fn render_files(report: &Report, with_figures: bool) -> Result<Vec<OutputFile>, Error> {
+    // The tables and the figures are independent: render them side by side.
+    let (tables, figures) = rayon::join(
+        || table_files(report),
+        || datasheet::render_files(report, with_figures),
+    );
+    let mut files = tables?;
+    files.extend(figures?);
+    Ok(files)
+}
+
+/// The machine- and human-readable tables: report.json, points.csv, summary.md, rendered
+/// side by side (each is a pass over every point).
+fn table_files(report: &Report) -> Result<Vec<OutputFile>, Error> {
+    let (json, (csv, summary)) = rayon::join(
+        || serde_json::to_vec_pretty(report),
+        || {
+            rayon::join(
+                || csv_export::points_csv(report),
+                || markdown::summary(report),
+            )
+        },
+    );
+    let json = json.map_err(|e| Error::Output {
         path: "report.json".into(),
         reason: e.to_string(),
     })?;
-    let csv = csv_export::points_csv(report).map_err(|e| Error::Output {
+    let csv = csv.map_err(|e| Error::Output {
         path: "points.csv".into(),
         reason: e.to_string(),
     })?;
-    let mut files = vec![
+    Ok(vec![
         OutputFile {
             name: "report.json".into(),
             bytes: json,
@@ -54,11 +78,9 @@ pub fn render_files(report: &Report) -> Result<Vec<OutputFile>, Error> {
         },
         OutputFile {
             name: "summary.md".into(),
-            bytes: markdown::summary(report).into_bytes(),
+            bytes: summary.into_bytes(),
         },
-    ];
-    files.extend(datasheet::render_files(report)?);
-    Ok(files)
+    ])
 }
 
 /// Validates a plan file, including its estimated work against the default limit.
@@ -82,9 +104,13 @@ pub fn check_within(plan: &Path, max_work: f64) -> Result<Plan, Error> {
 pub fn run(options: &RunOptions, progress: &(dyn Fn(&str) + Sync)) -> Result<RunOutcome, Error> {
     let plan = check_within(&options.plan, options.max_work)?;
     check_output_dir(&options.out)?;
+    let t0 = std::time::Instant::now();
     let report = analysis::evaluate(&plan, progress)?;
+    eprintln!("TIMING eval {:?}", t0.elapsed());
     progress("drawing figures and writing the report");
-    let files = render_files(&report)?;
+    let t1 = std::time::Instant::now();
+    let files = render_files(&report, options.figures)?;
+    eprintln!("TIMING render {:?}", t1.elapsed());
     let folder = write_report_folder(&options.out, &plan.name, &files)?;
     Ok(RunOutcome { report, folder })
 }

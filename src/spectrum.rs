@@ -186,7 +186,9 @@ pub struct AdaptiveResult {
 
 /// The smallest power-of-two sample count that resolves `harmonics` orders with margin.
 pub fn initial_samples(harmonics: usize) -> usize {
-    (4 * (harmonics + 1)).next_power_of_two().max(64)
+    // Enough bins for every reported order; aliasing is then the convergence test's business
+    // (a small drive converges at once, a hard-driven one doubles on).
+    (2 * (harmonics + 1) + 2).next_power_of_two().max(32)
 }
 
 /// Samples `channels` waveforms over one period at phases `θ = 2π·n/N` through `sample`

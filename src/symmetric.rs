@@ -37,6 +37,8 @@ struct QuarterSample {
     output_v: f64,
     collector_p_v: f64,
     collector_m_v: f64,
+    /// The solved `y = ln(J_P/J_M)`, kept so finer grids start Newton from interpolation.
+    log_ratio: f64,
 }
 
 /// The reduced equation of a matched pair, prepared once per stage and temperature.
@@ -125,6 +127,7 @@ impl<'a> MatchedPair<'a> {
                 output_v: point.output_voltage,
                 collector_p_v: point.p.collector_voltage,
                 collector_m_v: point.m.collector_voltage,
+                log_ratio: *guess,
             });
         };
         *guess = y;
@@ -150,6 +153,7 @@ impl<'a> MatchedPair<'a> {
             output_v: side.load_resistance * self.transport_sum * t,
             collector_p_v,
             collector_m_v,
+            log_ratio: y,
         })
     }
 }
@@ -175,12 +179,19 @@ pub fn single_tone(
         let cosines = cache.quarter_cosines(n);
         // Keep the samples already solved (they sit at the even indices of the finer grid).
         let mut fresh = vec![QuarterSample::default(); n / 4 + 1];
-        for (i, slot) in fresh.iter_mut().enumerate() {
+        for i in 0..fresh.len() {
             if !quarter.is_empty() && i % 2 == 0 {
-                *slot = quarter[i / 2];
-            } else {
-                *slot = pair.sample(amplitude_v * cosines[i], guess, region)?;
+                fresh[i] = quarter[i / 2];
+                continue;
             }
+            // Warm start: the mean of both solved neighbours on a refined grid (error of
+            // second order in the spacing), else a linear extrapolation of the last two.
+            if !quarter.is_empty() {
+                *guess = 0.5 * (fresh[i - 1].log_ratio + quarter[(i + 1) / 2].log_ratio);
+            } else if i >= 2 {
+                *guess = 2.0 * fresh[i - 1].log_ratio - fresh[i - 2].log_ratio;
+            }
+            fresh[i] = pair.sample(amplitude_v * cosines[i], guess, region)?;
         }
         *quarter = fresh;
         let (output, collector) = unfold(quarter, n);

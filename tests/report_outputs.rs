@@ -16,6 +16,7 @@ fn run_plan(plan: &Path, out: &Path) -> (Report, PathBuf) {
         json: false,
         quiet: true,
         max_work: linbudget::workload::DEFAULT_MAX_WORK,
+        figures: true,
     };
     let outcome = run(&options, &|_| {}).expect("the plan runs");
     (outcome.report, outcome.folder)

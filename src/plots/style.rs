@@ -294,7 +294,10 @@ impl Marker {
     }
 }
 
-/// Draws data markers at every present point.
+/// Most markers drawn along one series (see [`draw_markers`]).
+pub const MAX_MARKERS: usize = 64;
+
+/// Draws point markers of one series (thinned to at most [`MAX_MARKERS`]).
 pub fn draw_markers<'a, DB: DrawingBackend + 'a, X: Ranged<ValueType = f64>>(
     chart: &mut ChartContext<'a, DB, Cartesian2d<X, RangedCoordf64>>,
     points: &[(f64, Option<f64>)],
@@ -302,9 +305,13 @@ pub fn draw_markers<'a, DB: DrawingBackend + 'a, X: Ranged<ValueType = f64>>(
     marker: Marker,
     colour: RGBColor,
 ) -> DrawResult {
+    // A dense sweep is read from its line; markers on every point would only blot it (and
+    // make the files large), so at most about MAX_MARKERS evenly spaced points are marked.
+    let stride = points.len().div_ceil(MAX_MARKERS).max(1);
     chart.draw_series(
         points
             .iter()
+            .step_by(stride)
             .filter_map(|(x, y)| {
                 y.filter(|y| *y >= y_range.0 && *y <= y_range.1)
                     .map(|y| (*x, y))

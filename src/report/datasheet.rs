@@ -41,8 +41,15 @@ pub struct Table {
 }
 
 /// Renders the figures (SVG and PNG) and the two report documents.
-pub fn render_files(report: &Report) -> Result<Vec<OutputFile>, Error> {
-    let figures: Vec<Figure> = plots::render_all(report)?;
+///
+/// With `with_figures` false no figure is drawn and the reports carry the tables only (for
+/// scripted sweeps where only the numbers matter).
+pub fn render_files(report: &Report, with_figures: bool) -> Result<Vec<OutputFile>, Error> {
+    let figures: Vec<Figure> = if with_figures {
+        plots::render_all(report)?
+    } else {
+        Vec::new()
+    };
     let blocks = blocks(report, &figures);
     let mut files = Vec::new();
     for figure in &figures {
