@@ -187,7 +187,7 @@ pub fn single_tone(
             // Warm start: the mean of both solved neighbours on a refined grid (error of
             // second order in the spacing), else a linear extrapolation of the last two.
             if !quarter.is_empty() {
-                *guess = 0.5 * (fresh[i - 1].log_ratio + quarter[(i + 1) / 2].log_ratio);
+                *guess = 0.5 * (fresh[i - 1].log_ratio + quarter[i.div_ceil(2)].log_ratio);
             } else if i >= 2 {
                 *guess = 2.0 * fresh[i - 1].log_ratio - fresh[i - 2].log_ratio;
             }
