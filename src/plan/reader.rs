@@ -136,7 +136,7 @@ impl<'a> At<'a> {
         range.check(value).map_err(|why| {
             self.error(
                 format!("{} {}", describe_value(value, unit), why),
-                format!("{} {}", unit.describe(), range.phrase()),
+                accepted_phrase(unit, range),
             )
         })?;
         Ok(value)
@@ -175,6 +175,16 @@ impl<'a> At<'a> {
                 "true or false",
             )),
         }
+    }
+}
+
+/// "a resistance in ohms greater than zero and finite, e.g. 2000, "2k"…": the range sits
+/// between the kind of quantity and its examples.
+fn accepted_phrase(unit: Unit, range: Range) -> String {
+    let description = unit.describe();
+    match description.split_once(", e.g.") {
+        Some((kind, examples)) => format!("{kind} {}, e.g.{examples}", range.phrase()),
+        None => format!("{description} {}", range.phrase()),
     }
 }
 
