@@ -83,13 +83,8 @@ impl Drawing for ComparisonPlot {
             .flat_map(|r| r.transfer.iter().map(|t| t.input_v.abs() * 1e3))
             .fold(1.0, f64::max);
         let y_range = (-1.1, 1.1);
-        let mut chart = ChartBuilder::on(&left)
-            .margin_left(24)
-            .margin_right(24)
-            .margin_top(8)
-            .x_label_area_size(70)
-            .y_label_area_size(90)
-            .build_cartesian_2d(-x_max..x_max, y_range.0..y_range.1)?;
+        let mut chart =
+            house_chart(&left, 24, 90).build_cartesian_2d(-x_max..x_max, y_range.0..y_range.1)?;
         mesh_style(&mut chart.configure_mesh())
             .x_desc("differential input (mV)")
             .y_desc("(I_CP − I_CM) / I_tail")
@@ -141,12 +136,7 @@ impl Drawing for ComparisonPlot {
                 (lo.min(p.amplitude_v), hi.max(p.amplitude_v))
             });
         let (x_low, x_high) = log_span(a_low, a_high, 1.5);
-        let mut chart = ChartBuilder::on(&right)
-            .margin_left(24)
-            .margin_right(40)
-            .margin_top(8)
-            .x_label_area_size(70)
-            .y_label_area_size(90)
+        let mut chart = house_chart(&right, 40, 90)
             .build_cartesian_2d((x_low..x_high).log_scale(), y_low..y_high)?;
         mesh_style(&mut chart.configure_mesh())
             .x_desc("peak differential input (log)")

@@ -133,12 +133,7 @@ impl Drawing for FrequencyPlot {
             (-40.0, 20.0)
         };
 
-        let mut chart = ChartBuilder::on(&body)
-            .margin_left(24)
-            .margin_right(24)
-            .margin_top(8)
-            .x_label_area_size(70)
-            .y_label_area_size(96)
+        let mut chart = house_chart(&body, 24, 96)
             .right_y_label_area_size(100)
             .build_cartesian_2d((x_low..x_high).log_scale(), y_low..y_high)?
             .set_secondary_coord((x_low..x_high).log_scale(), i_low..i_high);

@@ -123,12 +123,7 @@ impl Drawing for MonteCarloPlot {
                 (lo.min(r.amplitude_v), hi.max(r.amplitude_v))
             });
         let (x_low, x_high) = log_span(a_low, a_high, 1.6);
-        let mut chart = ChartBuilder::on(&body)
-            .margin_left(24)
-            .margin_right(48)
-            .margin_top(8)
-            .x_label_area_size(70)
-            .y_label_area_size(96)
+        let mut chart = house_chart(&body, 48, 96)
             .build_cartesian_2d((x_low..x_high).log_scale(), y_low..y_high)?;
         mesh_style(&mut chart.configure_mesh())
             .x_desc("peak differential input per tone (log)")

@@ -131,12 +131,7 @@ impl Drawing for SizingPlot {
         let g_pad = nice_ceiling(((g_high - g_low) * 0.1).max(1.0));
         let (g_low, g_high) = db_span(g_low - g_pad, g_high + g_pad, g_pad);
 
-        let mut chart = ChartBuilder::on(&body)
-            .margin_left(24)
-            .margin_right(24)
-            .margin_top(8)
-            .x_label_area_size(70)
-            .y_label_area_size(96)
+        let mut chart = house_chart(&body, 24, 96)
             .right_y_label_area_size(100)
             .build_cartesian_2d(r_low..r_high, y_low..y_high)?
             .set_secondary_coord(r_low..r_high, g_low..g_high);

@@ -113,13 +113,8 @@ impl Drawing for SpectrumPlot {
         let (y_low, _) = db_span((lowest - 10.0).max(self.floor_dbc), 0.0, 20.0);
         let y_high = 10.0;
         let x_high = self.highest_order as f64 + 0.6;
-        let mut chart = ChartBuilder::on(&body)
-            .margin_left(24)
-            .margin_right(48)
-            .margin_top(8)
-            .x_label_area_size(70)
-            .y_label_area_size(96)
-            .build_cartesian_2d(0.4..x_high, y_low..y_high)?;
+        let mut chart =
+            house_chart(&body, 48, 96).build_cartesian_2d(0.4..x_high, y_low..y_high)?;
         mesh_style(&mut chart.configure_mesh())
             .disable_x_mesh()
             .x_labels(self.highest_order)

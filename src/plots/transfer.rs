@@ -90,12 +90,7 @@ impl Drawing for TransferPlot {
         };
         let y_range = (-1.1, 1.1);
 
-        let mut chart = ChartBuilder::on(&body)
-            .margin_left(24)
-            .margin_right(24)
-            .margin_top(8)
-            .x_label_area_size(70)
-            .y_label_area_size(96)
+        let mut chart = house_chart(&body, 24, 96)
             .right_y_label_area_size(100)
             .build_cartesian_2d(-x_max_mv..x_max_mv, y_range.0..y_range.1)?
             .set_secondary_coord(-x_max_mv..x_max_mv, gm_bottom..gm_top);

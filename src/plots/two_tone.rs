@@ -160,13 +160,8 @@ impl Drawing for TwoTonePlot {
         });
         let (y_low, y_high) = db_span((y_min - 10.0).max(y_max - 220.0), y_max + 12.0, 20.0);
 
-        let mut chart = ChartBuilder::on(&body)
-            .margin_left(24)
-            .margin_right(48)
-            .margin_top(8)
-            .x_label_area_size(70)
-            .y_label_area_size(96)
-            .build_cartesian_2d(x_low..x_high, y_low..y_high)?;
+        let mut chart =
+            house_chart(&body, 48, 96).build_cartesian_2d(x_low..x_high, y_low..y_high)?;
         mesh_style(&mut chart.configure_mesh())
             .x_desc("input per tone (dBV, peak)")
             .y_desc("output per tone (dBV, peak)")
