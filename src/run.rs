@@ -104,13 +104,9 @@ pub fn check_within(plan: &Path, max_work: f64) -> Result<Plan, Error> {
 pub fn run(options: &RunOptions, progress: &(dyn Fn(&str) + Sync)) -> Result<RunOutcome, Error> {
     let plan = check_within(&options.plan, options.max_work)?;
     check_output_dir(&options.out)?;
-    let t0 = std::time::Instant::now();
     let report = analysis::evaluate(&plan, progress)?;
-    eprintln!("TIMING eval {:?}", t0.elapsed());
     progress("drawing figures and writing the report");
-    let t1 = std::time::Instant::now();
     let files = render_files(&report, options.figures)?;
-    eprintln!("TIMING render {:?}", t1.elapsed());
     let folder = write_report_folder(&options.out, &plan.name, &files)?;
     Ok(RunOutcome { report, folder })
 }

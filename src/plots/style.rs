@@ -533,6 +533,23 @@ pub fn log_tick(value: f64, unit: &str) -> String {
     }
 }
 
+/// The house chart frame: standard margins and label areas around a plot body, with the right
+/// margin (wider when a second axis is drawn) and the left label width given.
+pub fn house_chart<'a, 'b, DB: DrawingBackend>(
+    area: &'a DrawingArea<DB, Shift>,
+    margin_right: u32,
+    y_label_width: u32,
+) -> ChartBuilder<'a, 'b, DB> {
+    let mut builder = ChartBuilder::on(area);
+    builder
+        .margin_left(24)
+        .margin_right(margin_right)
+        .margin_top(8)
+        .x_label_area_size(70)
+        .y_label_area_size(y_label_width);
+    builder
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -571,21 +588,4 @@ mod tests {
         assert_eq!(log_tick(0.02, "V"), crate::units::format_si(0.02, "V"));
         assert_eq!(log_tick(0.03, "V"), "");
     }
-}
-
-/// The house chart frame: standard margins and label areas around a plot body, with the right
-/// margin (wider when a second axis is drawn) and the left label width given.
-pub fn house_chart<'a, 'b, DB: DrawingBackend>(
-    area: &'a DrawingArea<DB, Shift>,
-    margin_right: u32,
-    y_label_width: u32,
-) -> ChartBuilder<'a, 'b, DB> {
-    let mut builder = ChartBuilder::on(area);
-    builder
-        .margin_left(24)
-        .margin_right(margin_right)
-        .margin_top(8)
-        .x_label_area_size(70)
-        .y_label_area_size(y_label_width);
-    builder
 }
