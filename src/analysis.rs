@@ -159,9 +159,10 @@ pub fn evaluate(plan: &Plan, progress: &(dyn Fn(&str) + Sync)) -> Result<Report,
             "Monte Carlo: {} run(s) per stage and temperature",
             spec.runs
         ));
-        let (distributions, yields) = crate::montecarlo::evaluate(plan, spec, &context)?;
+        let (distributions, yields, warnings) = crate::montecarlo::evaluate(plan, spec, &context)?;
         report.monte_carlo = distributions;
         report.yield_ = yields;
+        report.warnings.extend(warnings);
     }
 
     if let Some(spec) = &plan.sizing {
@@ -266,7 +267,11 @@ fn evaluate_corner(
                 format_si(point.frequency_hz, "Hz"),
                 format_si(point.amplitude_v, "V"),
                 reasons.join(", ")
-            ));
+            ) + if spec.bias_defaulted {
+                " — note that the supply or input common mode is the default (5 V, half the supply); set `supply` and `input_common_mode` to the design's bias"
+            } else {
+                ""
+            });
         }
     }
 

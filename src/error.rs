@@ -62,7 +62,11 @@ impl fmt::Display for PlanError {
         } else {
             &self.file
         };
-        write!(f, "{file}:{}:{}: ", self.line, self.column)?;
+        if self.line > 0 {
+            write!(f, "{file}:{}:{}: ", self.line, self.column)?;
+        } else {
+            write!(f, "{file}: ")?;
+        }
         if !self.key_path.is_empty() {
             write!(f, "{}: ", self.key_path)?;
         }
@@ -73,7 +77,7 @@ impl fmt::Display for PlanError {
         if let Some(source) = &self.source_line {
             let gutter = self.line.to_string();
             write!(f, "\n  {gutter} | {source}")?;
-            if self.column > 0 {
+            if self.column > 0 && (self.column as usize) <= source.chars().count() + 1 {
                 let pad = " ".repeat(gutter.len());
                 let indent = " ".repeat((self.column - 1) as usize);
                 write!(f, "\n  {pad} | {indent}^")?;

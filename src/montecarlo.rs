@@ -184,17 +184,33 @@ fn measure_amplitude(
     Ok((values, amplitudes))
 }
 
-/// Runs the Monte Carlo analysis of every stage and temperature.
+/// Distributions, yields and warnings of a Monte Carlo analysis.
+pub type MonteCarloOutcome = (Vec<MonteCarloRecord>, Vec<YieldRecord>, Vec<String>);
+
+/// Runs the Monte Carlo analysis of every stage and temperature. Stages with no
+/// `mismatch_sigma` have nothing to draw and are left out; stages with capacitance are left out
+/// with a warning (a periodic steady state per run would cost thousands of times more).
 pub fn evaluate(
     plan: &Plan,
     spec: &MonteCarloSpec,
     context: &Context,
-) -> Result<(Vec<MonteCarloRecord>, Vec<YieldRecord>), Error> {
+) -> Result<MonteCarloOutcome, Error> {
     let typical = &plan.corners[0];
     let mut distributions = Vec::new();
     let mut yields = Vec::new();
+    let mut warnings = Vec::new();
     for (stage_index, nominal) in plan.stages.iter().enumerate() {
+        if nominal.mismatch_sigma == Mismatch::default() {
+            continue;
+        }
         let stage = typical.apply(nominal);
+        if !StageCircuit::new(&stage, plan.temperatures_c[0]).is_memoryless() {
+            warnings.push(format!(
+                "stage `{}`: Monte Carlo left out because the stage has capacitance; mismatch statistics are drawn on memoryless stages (evaluate a copy without capacitance for the low-frequency spread)",
+                stage.name
+            ));
+            continue;
+        }
         for (temperature_index, &temperature_c) in plan.temperatures_c.iter().enumerate() {
             let (d, y) = evaluate_one(
                 plan,
@@ -210,7 +226,7 @@ pub fn evaluate(
             yields.push(y);
         }
     }
-    Ok((distributions, yields))
+    Ok((distributions, yields, warnings))
 }
 
 #[allow(clippy::too_many_arguments)]

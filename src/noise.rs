@@ -119,6 +119,7 @@ mod tests {
             tail_capacitance: 0.0,
             supply: 5.0,
             input_common_mode: 2.0,
+            bias_defaulted: false,
             transistor: TransistorSpec {
                 base_resistance: base,
                 ..TransistorSpec::default()

@@ -48,6 +48,12 @@ pub enum Unit {
     ElectronVolt,
     /// A plain ratio; `%` is accepted.
     Ratio,
+    /// A plain number with no unit and no percentage (β, exponents, coefficients).
+    Number,
+    /// A temperature in degrees Celsius; `°C` is accepted, SI prefixes are not.
+    Celsius,
+    /// A level in decibels (dB, dBc); SI prefixes and percentages are not accepted.
+    Decibel,
 }
 
 impl Unit {
@@ -61,7 +67,9 @@ impl Unit {
             Unit::Farad => &["F"],
             Unit::Second => &["s"],
             Unit::ElectronVolt => &["eV"],
-            Unit::Ratio => &[],
+            Unit::Ratio | Unit::Number => &[],
+            Unit::Celsius => &["°C", "degC", "C"],
+            Unit::Decibel => &["dB", "dBc"],
         }
     }
 
@@ -76,6 +84,9 @@ impl Unit {
             Unit::Second => "a time in seconds, e.g. 1e-11, \"10 ps\", \"1 ns\"",
             Unit::ElectronVolt => "an energy in electron-volts, e.g. 1.11, \"1.11 eV\"",
             Unit::Ratio => "a plain number or a percentage, e.g. 0.01, \"1%\"",
+            Unit::Number => "a plain number, e.g. 100",
+            Unit::Celsius => "a temperature in °C, e.g. 27, \"-40 °C\"",
+            Unit::Decibel => "a level in dB (dBc for distortion), e.g. -60, \"-60 dBc\"",
         }
     }
 
@@ -163,6 +174,12 @@ pub fn parse_quantity(text: &str, unit: Unit) -> Result<f64, String> {
     }
     if unit.symbols().contains(&suffix) {
         return Ok(number);
+    }
+    if matches!(unit, Unit::Number | Unit::Celsius | Unit::Decibel) {
+        return Err(format!(
+            "\"{suffix}\" is not accepted here (expected {})",
+            unit.describe()
+        ));
     }
     let mut chars = suffix.chars();
     let first = chars.next().unwrap_or(' ');
@@ -255,6 +272,12 @@ mod tests {
         assert!(parse_quantity("2k volts", Unit::Ohm).is_err());
         assert!(parse_quantity("abc", Unit::Volt).is_err());
         assert!(parse_quantity("1 x", Unit::Ratio).is_err());
+        // A dB limit, a temperature or a plain number never takes a percentage or a prefix.
+        assert!(parse_quantity("1%", Unit::Decibel).is_err());
+        assert!(parse_quantity("50%", Unit::Celsius).is_err());
+        assert!(parse_quantity("1k", Unit::Number).is_err());
+        assert_eq!(parse_quantity("-60 dBc", Unit::Decibel).unwrap(), -60.0);
+        assert_eq!(parse_quantity("-40 °C", Unit::Celsius).unwrap(), -40.0);
     }
 
     #[test]

@@ -24,6 +24,7 @@ fn ideal_stage(tail_current: f64, load: f64, emitter: f64) -> StageSpec {
         tail_capacitance: 0.0,
         supply: 5.0,
         input_common_mode: 2.5,
+        bias_defaulted: false,
         transistor: TransistorSpec::default(),
         mismatch: Default::default(),
         mismatch_sigma: Default::default(),

@@ -64,6 +64,9 @@ pub struct StageSpec {
     pub supply: f64,
     /// Input common-mode voltage, V.
     pub input_common_mode: f64,
+    /// Whether the supply or the input common mode was left to its default (bias warnings
+    /// then say so).
+    pub bias_defaulted: bool,
     /// Transistor model parameters.
     pub transistor: TransistorSpec,
     /// Fractional excess of the P side over the M side (P = M·(1+δ)).
@@ -445,7 +448,7 @@ impl Plan {
                 check_list_len(&at, items.len(), "temperature")?;
                 items
                     .iter()
-                    .map(|item| item.quantity_where(Unit::Ratio, Range::Between(-273.15, 1000.0)))
+                    .map(|item| item.quantity_where(Unit::Celsius, Range::Between(-273.15, 1000.0)))
                     .collect::<Result<Vec<_>, _>>()?
             }
             None => vec![27.0],
@@ -627,6 +630,7 @@ fn read_stage(at: &At) -> Result<StageSpec, PlanError> {
             0.0,
         )?,
         supply,
+        bias_defaulted: map.get("supply").is_none() || map.get("input_common_mode").is_none(),
         input_common_mode: map.quantity_or(
             "input_common_mode",
             Unit::Volt,
@@ -655,7 +659,7 @@ fn read_transistor(at: &At) -> Result<TransistorSpec, PlanError> {
             Range::Positive,
             d.saturation_current,
         )?,
-        beta: map.quantity_or("beta", Unit::Ratio, Range::PositiveOrInfinite, d.beta)?,
+        beta: map.quantity_or("beta", Unit::Number, Range::PositiveOrInfinite, d.beta)?,
         early_voltage: map.quantity_or(
             "early_voltage",
             Unit::Volt,
@@ -694,7 +698,7 @@ fn read_transistor(at: &At) -> Result<TransistorSpec, PlanError> {
         )?,
         emitter_grading: map.quantity_or(
             "emitter_grading",
-            Unit::Ratio,
+            Unit::Number,
             Range::Between(0.0, 0.9),
             d.emitter_grading,
         )?,
@@ -706,13 +710,13 @@ fn read_transistor(at: &At) -> Result<TransistorSpec, PlanError> {
         )?,
         collector_grading: map.quantity_or(
             "collector_grading",
-            Unit::Ratio,
+            Unit::Number,
             Range::Between(0.0, 0.9),
             d.collector_grading,
         )?,
         nominal_temperature_c: map.quantity_or(
             "nominal_temperature_c",
-            Unit::Ratio,
+            Unit::Celsius,
             Range::Between(-273.15, 1000.0),
             d.nominal_temperature_c,
         )?,
@@ -724,19 +728,19 @@ fn read_transistor(at: &At) -> Result<TransistorSpec, PlanError> {
         )?,
         saturation_current_exponent: map.quantity_or(
             "saturation_current_exponent",
-            Unit::Ratio,
+            Unit::Number,
             Range::Between(-10.0, 10.0),
             d.saturation_current_exponent,
         )?,
         flicker_coefficient: map.quantity_or(
             "flicker_coefficient",
-            Unit::Ratio,
+            Unit::Number,
             Range::NonNegative,
             d.flicker_coefficient,
         )?,
         flicker_exponent: map.quantity_or(
             "flicker_exponent",
-            Unit::Ratio,
+            Unit::Number,
             Range::Between(0.5, 3.0),
             d.flicker_exponent,
         )?,
@@ -917,7 +921,7 @@ fn read_budget_line(at: &At, drive: &Drive) -> Result<BudgetLine, PlanError> {
             return Ok(None);
         };
         let value = if metric.is_decibel() {
-            limit_at.quantity_where(Unit::Ratio, Range::Finite)?
+            limit_at.quantity_where(Unit::Decibel, Range::Finite)?
         } else if metric == Metric::InputNoise {
             limit_at.quantity_where(Unit::Volt, Range::Positive)?
         } else {

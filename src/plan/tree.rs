@@ -139,7 +139,23 @@ pub fn parse_tree(text: &str) -> Result<Node, (String, u64, u64)> {
             .location()
             .map(|loc| (loc.line(), loc.column()))
             .unwrap_or((0, 0));
-        let message = err.without_snippet().to_string();
+        let raw = err.without_snippet().to_string();
+        // The parser's resource budgets speak in its own terms; say what they mean for a plan.
+        let message = if raw.contains("budget breached") {
+            let detail = raw
+                .split("budget breached:")
+                .nth(1)
+                .unwrap_or("")
+                .trim()
+                .replace(['{', '}'], "")
+                .to_lowercase();
+            format!(
+                "the document is larger or more deeply nested than any plan needs (parser limit reached: {})",
+                detail.split_whitespace().collect::<Vec<_>>().join(" ")
+            )
+        } else {
+            raw
+        };
         (message, line, column)
     })
 }

@@ -288,34 +288,38 @@ pub fn datasheet_table(report: &Report, stage: &str) -> Table {
 
 /// The budget verdict table.
 pub fn budget_table(report: &Report) -> Table {
+    // A corner column only when the plan names process corners.
+    let with_corner = report
+        .budget
+        .iter()
+        .any(|b| !b.corner.is_empty() && b.corner != crate::corner::TYPICAL);
+    let mut header = vec!["stage", "T (°C)"];
+    let mut numeric = vec![false, true];
+    if with_corner {
+        header.push("corner");
+        numeric.push(false);
+    }
+    header.extend(["metric", "at", "limit", "value", "margin (dB)", "verdict"]);
+    numeric.extend([false, true, true, true, true, false]);
     Table {
-        header: [
-            "stage",
-            "T (°C)",
-            "metric",
-            "at",
-            "limit",
-            "value",
-            "margin (dB)",
-            "verdict",
-        ]
-        .map(String::from)
-        .to_vec(),
-        numeric: vec![false, true, false, true, true, true, true, false],
+        header: header.into_iter().map(String::from).collect(),
+        numeric,
         rows: report
             .budget
             .iter()
             .map(|b| {
                 let value_text = |v: f64| {
-                    if b.unit == "V" {
-                        crate::units::format_si(v, "V")
+                    if b.unit.starts_with('V') {
+                        crate::units::format_si(v, &b.unit)
                     } else {
                         format!("{v:.2} {}", b.unit)
                     }
                 };
-                vec![
-                    b.stage.clone(),
-                    format!("{}", b.temperature_c),
+                let mut row = vec![b.stage.clone(), format!("{}", b.temperature_c)];
+                if with_corner {
+                    row.push(b.corner.clone());
+                }
+                row.extend([
                     b.metric.to_uppercase(),
                     b.at_v
                         .map(|a| crate::units::format_si(a, "V"))
@@ -326,7 +330,8 @@ pub fn budget_table(report: &Report) -> Table {
                         .unwrap_or_else(|| "below floor".into()),
                     fixed(b.margin, 2),
                     if b.pass { "pass".into() } else { "FAIL".into() },
-                ]
+                ]);
+                row
             })
             .collect(),
     }
@@ -395,10 +400,42 @@ pub fn blocks(report: &Report, figures: &[Figure]) -> Vec<Block> {
         format!("{} — linearity report", report.plan),
     ));
     out.push(Block::Caution(CAUTION.to_owned()));
-    out.push(Block::Paragraph(format!(
-        "Verdict: the plan is {}.",
-        if report.met { "met" } else { "NOT met" }
-    )));
+    let failing_lines = report.budget.iter().filter(|b| !b.pass).count();
+    out.push(Block::Paragraph(if report.sizing.is_empty() {
+        format!(
+            "Verdict: the plan is {}.",
+            if report.met { "met" } else { "NOT met" }
+        )
+    } else {
+        format!(
+            "Verdict: the plan is {} by sizing — {} (the stages as planned fail {} of {} budget checks; see Degeneration sizing).",
+            if report.met { "met" } else { "NOT met" },
+            if report.met {
+                "a degeneration meeting every budget line was found for every stage"
+            } else {
+                "for at least one stage no degeneration in the range meets every line"
+            },
+            failing_lines,
+            report.budget.len()
+        )
+    }));
+    let corner_names: Vec<&str> = {
+        let mut names: Vec<&str> = Vec::new();
+        for i in &report.intercepts {
+            if !i.corner.is_empty() && !names.contains(&i.corner.as_str()) {
+                names.push(&i.corner);
+            }
+        }
+        names
+    };
+    let spread = if corner_names.len() > 1 {
+        format!(
+            "temperatures and process corners ({})",
+            corner_names.join(", ")
+        )
+    } else {
+        "temperatures".to_owned()
+    };
 
     let stages = style::stage_names(report);
     let temps = style::temperatures(report);
@@ -427,7 +464,7 @@ pub fn blocks(report: &Report, figures: &[Figure]) -> Vec<Block> {
     for stage in &stages {
         out.push(Block::Heading(2, format!("Datasheet — {stage}")));
         out.push(Block::Paragraph(format!(
-            "Typical at {}; min and max across the plan's temperatures ({}). A dash is a figure that is not available or below the analysis floor.",
+            "Typical at {} in the typical process; min and max across the plan's {spread} at {}. A dash is a figure that is not available or below the analysis floor.",
             style::celsius(typical),
             temps.iter().map(|t| style::celsius(*t)).collect::<Vec<_>>().join(", ")
         )));
@@ -450,6 +487,19 @@ pub fn blocks(report: &Report, figures: &[Figure]) -> Vec<Block> {
             "The least emitter resistance per side that meets every budget line (or the best found when none does).".into(),
         ));
         out.push(Block::Table(sizing_table(report)));
+        let to_build: Vec<String> = stages
+            .iter()
+            .filter_map(|stage| {
+                crate::report::value_to_build(report, stage)
+                    .map(|r| format!("`{stage}`: {}", crate::units::format_si(r, "Ω")))
+            })
+            .collect();
+        if !to_build.is_empty() {
+            out.push(Block::Paragraph(format!(
+                "R_E to build (the largest per-temperature least value; every scanned value from each temperature's least value up to it passed every line): {}.",
+                to_build.join("; ")
+            )));
+        }
     }
     if !report.yield_.is_empty() {
         out.push(Block::Heading(2, "Monte Carlo yield".into()));
@@ -486,7 +536,7 @@ pub fn blocks(report: &Report, figures: &[Figure]) -> Vec<Block> {
         "Temperature enters through the thermal voltage kT/q and the saturation current's temperature law; resistors are taken as temperature-independent.".into(),
         "Without capacitance or transit time the stage is memoryless and the frequency only labels the points; with them, figures are the circuit's periodic steady state.".into(),
         "Harmonics come from an FFT of the exact periodic output; THD sums the harmonics listed under Conditions. IIP3 is extrapolated from the small-signal region where the IM3 slope is 3:1, not from the largest drive.".into(),
-        "Min and max in the datasheet tables span the plan's temperatures only; they are not process limits or a statistical spread (see Monte Carlo where the plan asks for it).".into(),
+        "Min and max in the datasheet tables span the plan's temperatures and named process corners only; they are not a statistical spread (see Monte Carlo where the plan asks for it).".into(),
         "Points where a transistor leaves forward-active operation are flagged under Warnings; the model's validity ends there.".into(),
     ]));
     if !report.warnings.is_empty() {

@@ -98,24 +98,47 @@ pub fn summary(report: &Report) -> String {
         let _ = writeln!(out);
         let lines: Vec<_> = report.budget.iter().filter(|b| b.stage == name).collect();
         if !lines.is_empty() {
-            let _ = writeln!(
-                out,
-                "| T (°C) | metric | at | limit | value | margin (dB) | verdict |"
-            );
-            let _ = writeln!(out, "|---:|---|---:|---:|---:|---:|---|");
-            for b in lines {
+            let with_corner = lines
+                .iter()
+                .any(|b| !b.corner.is_empty() && b.corner != crate::corner::TYPICAL);
+            if !report.sizing.is_empty() {
                 let _ = writeln!(
                     out,
-                    "| {} | {} | {} | {} {} {} | {} | {} | {} |",
+                    "Budget lines checked on the stage as planned (before sizing):\n"
+                );
+            }
+            let _ = writeln!(
+                out,
+                "| T (°C) |{} metric | at | limit | value | margin (dB) | verdict |",
+                if with_corner { " corner |" } else { "" }
+            );
+            let _ = writeln!(
+                out,
+                "|---:|{}---|---:|---:|---:|---:|---|",
+                if with_corner { "---|" } else { "" }
+            );
+            for b in lines {
+                let quantity = |v: f64| {
+                    if b.unit.starts_with('V') {
+                        format_si(v, &b.unit)
+                    } else {
+                        format!("{v:.2} {}", b.unit)
+                    }
+                };
+                let _ = writeln!(
+                    out,
+                    "| {} |{} {} | {} | {} {} | {} | {} | {} |",
                     b.temperature_c,
+                    if with_corner {
+                        format!(" {} |", b.corner)
+                    } else {
+                        String::new()
+                    },
                     b.metric,
                     volts(b.at_v),
                     b.kind,
-                    b.limit,
-                    b.unit,
-                    b.value
-                        .map(|v| format!("{v:.4}"))
-                        .unwrap_or_else(|| "—".into()),
+                    quantity(b.limit),
+                    b.value.map(quantity).unwrap_or_else(|| "—".into()),
                     db(b.margin),
                     if b.pass { "pass" } else { "**FAIL**" }
                 );
@@ -136,6 +159,13 @@ pub fn summary(report: &Report) -> String {
                 volts(s.steering_range_v),
                 s.load_resistance_ohm.map(|r| format_si(r, "Ω")).unwrap_or_else(|| "—".into()),
                 if s.headroom_binds { "; headroom, not distortion, binds" } else { "" }
+            );
+        }
+        if let Some(value) = super::value_to_build(report, name) {
+            let _ = writeln!(
+                out,
+                "**R_E to build for `{name}`: {}** — the largest of the per-temperature least values; every scanned value from each temperature's least value up to it passed every line.\n",
+                format_si(value, "Ω")
             );
         }
     }

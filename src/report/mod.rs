@@ -14,6 +14,31 @@ use std::collections::BTreeMap;
 /// Caution carried by every report.
 pub const CAUTION: &str = "These figures are model predictions. Confirm them against measured silicon and the foundry's device models, following your local qualification practice, before committing a design or a datasheet limit.";
 
+/// The emitter resistance to build for `stage`: the largest of its per-temperature least
+/// values, offered only when sizing met the budget at every temperature (and corner) and every
+/// scanned value between each least value and that largest one passed every line too.
+pub fn value_to_build(report: &Report, stage: &str) -> Option<f64> {
+    let records: Vec<&SizingRecord> = report.sizing.iter().filter(|s| s.stage == stage).collect();
+    if records.is_empty() || !records.iter().all(|s| s.met) {
+        return None;
+    }
+    let largest = records
+        .iter()
+        .filter_map(|s| s.emitter_resistance_ohm)
+        .reduce(f64::max)?;
+    let holds = records.iter().all(|s| {
+        let least = s.emitter_resistance_ohm.unwrap_or(largest);
+        s.scan
+            .iter()
+            .filter(|t| t.emitter_resistance_ohm >= least && t.emitter_resistance_ohm <= largest)
+            .all(|t| {
+                t.margins.iter().all(|m| m.is_none_or(|m| m >= 0.0))
+                    && t.headroom_v.is_none_or(|h| h >= 0.0)
+            })
+    });
+    holds.then_some(largest)
+}
+
 /// The whole result of a plan.
 #[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
 pub struct Report {
