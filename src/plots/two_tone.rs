@@ -186,10 +186,8 @@ impl Drawing for TwoTonePlot {
         }
         for (line, x) in self.budget.iter().zip(&limits) {
             let colour = if line.pass { PASS } else { FAIL };
-            chart.draw_series(std::iter::once(Rectangle::new(
-                [(x_low, y_low), (*x, y_high)],
-                FAIL.mix(0.05).filled(),
-            )))?;
+            // A line, not a shaded area: the whole plane left of it would read as "failing"
+            // although only the intercept point is judged against it.
             chart
                 .draw_series(std::iter::once(dashed(
                     vec![(*x, y_low), (*x, y_high)],
@@ -197,7 +195,7 @@ impl Drawing for TwoTonePlot {
                     colour.stroke_width(2),
                 )))?
                 .label(format!(
-                    "IIP3 budget ≥ {} ({} dBV)",
+                    "IIP3 budget ≥ {} ({} dBV): the intercept must lie right of this line",
                     si(line.limit, "V"),
                     num(*x, 1)
                 ))
