@@ -11,7 +11,7 @@ use std::process::ExitCode;
 const RUN_EXAMPLES: &str = "Examples:
   linbudget run specs/sensor-front-end.yaml
   linbudget run specs/sensor-front-end.yaml --out results --json > report.json
-  linbudget run specs/vga-sizing.yaml --quiet
+  linbudget run specs/sonar-vga-sizing.yaml --quiet --no-figures
 
 Exit status: 0 the plan is met, 1 not met, 2 bad input or a failed solve (nothing written).";
 
