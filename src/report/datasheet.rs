@@ -308,13 +308,7 @@ pub fn budget_table(report: &Report) -> Table {
             .budget
             .iter()
             .map(|b| {
-                let value_text = |v: f64| {
-                    if b.unit.starts_with('V') {
-                        crate::units::format_si(v, &b.unit)
-                    } else {
-                        format!("{v:.2} {}", b.unit)
-                    }
-                };
+                let value_text = |v: f64| b.quantity_text(v);
                 let mut row = vec![b.stage.clone(), format!("{}", b.temperature_c)];
                 if with_corner {
                     row.push(b.corner.clone());

@@ -118,13 +118,7 @@ pub fn summary(report: &Report) -> String {
                 if with_corner { "---|" } else { "" }
             );
             for b in lines {
-                let quantity = |v: f64| {
-                    if b.unit.starts_with('V') {
-                        format_si(v, &b.unit)
-                    } else {
-                        format!("{v:.2} {}", b.unit)
-                    }
-                };
+                let quantity = |v: f64| b.quantity_text(v);
                 let _ = writeln!(
                     out,
                     "| {} |{} {} | {} | {} {} | {} | {} | {} |",

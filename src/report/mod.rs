@@ -14,6 +14,17 @@ use std::collections::BTreeMap;
 /// Caution carried by every report.
 pub const CAUTION: &str = "These figures are model predictions. Confirm them against measured silicon and the foundry's device models, following your local qualification practice, before committing a design or a datasheet limit.";
 
+impl BudgetRecord {
+    /// A limit or value of this line in its unit: SI-prefixed volts, or dB to two decimals.
+    pub fn quantity_text(&self, value: f64) -> String {
+        if self.unit.starts_with('V') {
+            crate::units::format_si(value, &self.unit)
+        } else {
+            format!("{value:.2} {}", self.unit)
+        }
+    }
+}
+
 /// The emitter resistance to build for `stage`: the largest of its per-temperature least
 /// values, offered only when sizing met the budget at every temperature (and corner) and every
 /// scanned value between each least value and that largest one passed every line too.
