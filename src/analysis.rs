@@ -7,7 +7,7 @@ use crate::error::{Error, SolveFailure};
 use crate::metrics::{self, CUTOFF_FRACTION, STEERING_FRACTION};
 use crate::plan::{Limit, Plan, StageSpec};
 use crate::report::{
-    AnalysisRecord, BudgetRecord, InterceptRecord, PointRecord, Report, StageRecord,
+    AnalysisRecord, BudgetRecord, Harmonics, InterceptRecord, PointRecord, Report, StageRecord,
     TransferRecord, CAUTION,
 };
 use crate::sizing;
@@ -15,7 +15,6 @@ use crate::spectrum::{FftCache, ANALYSIS_FLOOR_DBC, CONVERGED_DB};
 use crate::stage::StageCircuit;
 use crate::units::format_si;
 use rayon::prelude::*;
-use std::collections::BTreeMap;
 use std::sync::Arc;
 
 /// Highest harmonic order given its own `hdN_dbc` field in each point.
@@ -245,35 +244,7 @@ fn evaluate_corner(
         })
         .collect::<Result<Vec<_>, SolveFailure>>()
         .map_err(&fail)?;
-    for point in &points {
-        if !point.forward_active {
-            let mut reasons = Vec::new();
-            if point.max_base_collector_v > 0.0 {
-                reasons.push(format!(
-                    "collector-base forward-biased by {:.3} V",
-                    point.max_base_collector_v
-                ));
-            }
-            if point.min_current_fraction < CUTOFF_FRACTION {
-                reasons.push(format!(
-                    "a side cuts off ({:.1e} of the tail current)",
-                    point.min_current_fraction.max(0.0)
-                ));
-            }
-            warnings.push(format!(
-                "stage `{}` at {} °C, {}, {}: leaves forward-active operation ({}); the model's validity ends there",
-                spec.name,
-                temperature_c,
-                format_si(point.frequency_hz, "Hz"),
-                format_si(point.amplitude_v, "V"),
-                reasons.join(", ")
-            ) + if spec.bias_defaulted {
-                " — note that the supply or input common mode is the default (5 V, half the supply); set `supply` and `input_common_mode` to the design's bias"
-            } else {
-                ""
-            });
-        }
-    }
+    warnings.extend(forward_active_warnings(spec, temperature_c, &points));
 
     let gain = figures.gain().map_err(&fail)?;
     let (steer_low, steer_high) = figures.steering().map_err(&fail)?;
@@ -290,8 +261,8 @@ fn evaluate_corner(
     for point in &mut points {
         let spurs = point
             .harmonics
-            .values()
-            .copied()
+            .iter()
+            .map(|(_, level)| level)
             .chain([point.im3_dbc.flatten(), point.im2_dbc.flatten()]);
         point.sfdr_dbc = crate::noise::sfdr_dbc(spurs);
         if let Some(noise_rms) = band_noise {
@@ -461,6 +432,114 @@ pub fn offset_voltage(solver: &crate::transfer::StaticSolver) -> Result<f64, Sol
     })
 }
 
+/// Largest number of amplitude ranges a forward-active warning lists one by one.
+const LISTED_RANGES: usize = 4;
+
+/// One warning per frequency for the drive points that leave forward-active operation,
+/// naming the amplitude ranges where they do (in increasing amplitude) and the worst case,
+/// rather than one line per point: a dense sweep into hard drive would otherwise print
+/// hundreds of near-identical lines.
+fn forward_active_warnings(
+    spec: &StageSpec,
+    temperature_c: f64,
+    points: &[PointRecord],
+) -> Vec<String> {
+    let mut frequencies: Vec<f64> = Vec::new();
+    for p in points {
+        if !frequencies.contains(&p.frequency_hz) {
+            frequencies.push(p.frequency_hz);
+        }
+    }
+    let mut warnings = Vec::new();
+    for frequency in frequencies {
+        let mut here: Vec<&PointRecord> = points
+            .iter()
+            .filter(|p| p.frequency_hz == frequency)
+            .collect();
+        here.sort_by(|a, b| a.amplitude_v.total_cmp(&b.amplitude_v));
+        // Runs of consecutive amplitudes outside forward-active operation: (first, last, count).
+        let mut runs: Vec<(f64, f64, usize)> = Vec::new();
+        let mut inside_run = false;
+        for p in &here {
+            match (p.forward_active, inside_run, runs.last_mut()) {
+                (false, true, Some(run)) => {
+                    run.1 = p.amplitude_v;
+                    run.2 += 1;
+                }
+                (false, _, _) => runs.push((p.amplitude_v, p.amplitude_v, 1)),
+                (true, _, _) => {}
+            }
+            inside_run = !p.forward_active;
+        }
+        if runs.is_empty() {
+            continue;
+        }
+        let outside: Vec<&&PointRecord> = here.iter().filter(|p| !p.forward_active).collect();
+        let mut reasons = Vec::new();
+        let worst_forward_bias = outside
+            .iter()
+            .map(|p| p.max_base_collector_v)
+            .fold(f64::NEG_INFINITY, f64::max);
+        if worst_forward_bias > 0.0 {
+            reasons.push(format!(
+                "collector-base forward-biased by up to {:.3} V",
+                worst_forward_bias
+            ));
+        }
+        let least_current = outside
+            .iter()
+            .map(|p| p.min_current_fraction)
+            .fold(f64::INFINITY, f64::min);
+        if least_current < CUTOFF_FRACTION {
+            reasons.push(format!(
+                "a side cuts off, down to {:.1e} of the tail current",
+                least_current.max(0.0)
+            ));
+        }
+        let range_text = |&(first, last, count): &(f64, f64, usize)| {
+            if count == 1 {
+                format_si(first, "V")
+            } else {
+                format!("{} to {}", format_si(first, "V"), format_si(last, "V"))
+            }
+        };
+        let place = match runs.as_slice() {
+            [(first, _, 1)] if here.len() == 1 => format!(", {}", format_si(*first, "V")),
+            [single] if single.2 > 1 => format!(" from {}", range_text(single)),
+            _ => {
+                let mut listed: Vec<String> =
+                    runs.iter().take(LISTED_RANGES).map(range_text).collect();
+                if runs.len() > LISTED_RANGES {
+                    listed.push(format!("{} more ranges", runs.len() - LISTED_RANGES));
+                }
+                format!(" at {}", listed.join(", "))
+            }
+        };
+        if here.len() > 1 {
+            reasons.insert(0, format!("{} of {} amplitudes", outside.len(), here.len()));
+        }
+        let (point, span) = if here.len() == 1 {
+            (place, String::new())
+        } else {
+            (String::new(), place)
+        };
+        warnings.push(
+            format!(
+                "stage `{}` at {} °C, {}{point}: leaves forward-active operation{span} ({}); the model's validity ends there",
+                spec.name,
+                temperature_c,
+                format_si(frequency, "Hz"),
+                reasons.join("; ")
+            ) + if spec.bias_defaulted {
+                " — note that the supply or input common mode is the default (5 V, half the supply); set `supply` and `input_common_mode` to the design's bias"
+            } else {
+                ""
+            },
+        );
+    }
+    warnings
+}
+
 /// Names the drive point (amplitude and frequency) in a solver failure inside it.
 pub fn at_drive_point(failure: SolveFailure, amplitude_v: f64, frequency_hz: f64) -> SolveFailure {
     SolveFailure {
@@ -492,14 +571,11 @@ pub fn point_record(
             _ => None,
         })
         .fold(NAMED_HARMONICS, usize::max);
-    let named: BTreeMap<String, Option<f64>> = (2..=highest_named)
-        .map(|k| {
-            (
-                format!("hd{k}_dbc"),
-                tone.differential.harmonic_dbc(k, floor),
-            )
-        })
-        .collect();
+    let named = Harmonics::from_levels(
+        (2..=highest_named)
+            .map(|k| tone.differential.harmonic_dbc(k, floor))
+            .collect(),
+    );
     let thd = tone.differential.raw_thd_dbc(plan.drive.thd_harmonics);
     let (im3, im2, effective, two_tone_fundamental) = match plan.drive.two_tone_spacing {
         Some(spacing) => {
@@ -545,4 +621,49 @@ pub fn point_record(
         sfdr_dbc: None,
         dynamic_range_db: None,
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn point(amplitude_v: f64, forward_active: bool) -> PointRecord {
+        serde_json::from_value(serde_json::json!({
+            "stage": "s", "temperature_c": 27.0, "frequency_hz": 1000.0,
+            "amplitude_v": amplitude_v, "fundamental_v": 1.0, "gain_db": 0.0,
+            "thd_dbc": null, "single_ended_fundamental_v": 0.5,
+            "single_ended_hd2_dbc": null, "single_ended_hd3_dbc": null, "samples": 256,
+            "forward_active": forward_active, "max_base_collector_v": -1.0,
+            "min_current_fraction": if forward_active { 0.1 } else { 1e-9 },
+        }))
+        .unwrap()
+    }
+
+    fn spec() -> StageSpec {
+        let text = "name: p\nstages: [{name: s, tail_current: 1 mA, load_resistance: 2k, supply: 5 V, input_common_mode: 2.5 V}]\ndrive: {amplitudes: [1 mV]}\n";
+        Plan::from_yaml(text, "p.yaml").unwrap().stages.remove(0)
+    }
+
+    /// Points outside forward-active operation are summed up per frequency as amplitude
+    /// ranges in increasing amplitude, whatever order the plan lists them in.
+    #[test]
+    fn forward_active_warnings_name_ranges_not_points() {
+        let points: Vec<PointRecord> = [0.5, 0.1, 0.6, 0.2, 0.7, 0.3, 0.01]
+            .iter()
+            .map(|&a| point(a, a < 0.15 || (0.25..0.55).contains(&a)))
+            .collect();
+        let warnings = forward_active_warnings(&spec(), 27.0, &points);
+        assert_eq!(warnings.len(), 1, "{warnings:?}");
+        let w = &warnings[0];
+        assert!(w.contains("at 200 mV, 600 mV to 700 mV"), "{w}");
+        assert!(w.contains("3 of 7 amplitudes"), "{w}");
+        assert!(w.contains("a side cuts off, down to 1.0e-9"), "{w}");
+        let all_inside: Vec<PointRecord> = [0.1, 0.2].iter().map(|&a| point(a, true)).collect();
+        assert!(forward_active_warnings(&spec(), 27.0, &all_inside).is_empty());
+        let one = forward_active_warnings(&spec(), 27.0, &[point(0.4, false)]);
+        assert!(
+            one[0].contains("1.00 kHz, 400 mV: leaves forward-active operation ("),
+            "{one:?}"
+        );
+    }
 }

@@ -1,7 +1,7 @@
 //! `summary.md`: the human tables — per stage the drive points, the intercepts, the budget
 //! verdict and the sizing result.
 
-use super::{Report, CAUTION};
+use super::{PointRecord, Report, CAUTION};
 use crate::units::format_si;
 use std::fmt::Write;
 
@@ -61,7 +61,16 @@ pub fn summary(report: &Report) -> String {
             out,
             "|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---|"
         );
-        for p in report.points.iter().filter(|p| p.stage == name) {
+        let of_stage: Vec<&PointRecord> =
+            report.points.iter().filter(|p| p.stage == name).collect();
+        let budget_amplitudes: Vec<f64> = report
+            .budget
+            .iter()
+            .filter(|b| b.stage == name)
+            .filter_map(|b| b.at_v)
+            .collect();
+        let shown = shown_points(&of_stage, &budget_amplitudes);
+        for p in &shown {
             let _ = writeln!(
                 out,
                 "| {} | {} | {} | {} | {:.2} | {} | {} | {} | {} | {} | {} |",
@@ -76,6 +85,15 @@ pub fn summary(report: &Report) -> String {
                 db(p.thd_dbc),
                 db(p.im3_dbc.flatten()),
                 if p.forward_active { "yes" } else { "**no**" }
+            );
+        }
+        if shown.len() < of_stage.len() {
+            let _ = writeln!(
+                out,
+                "\n{} of {} drive points shown: evenly spaced through each sweep{}. Every point is in `points.csv` and `report.json`.",
+                shown.len(),
+                of_stage.len(),
+                if budget_amplitudes.is_empty() { "" } else { ", plus the amplitudes the budget names" }
             );
         }
         let _ = writeln!(out);
@@ -180,6 +198,54 @@ pub fn summary(report: &Report) -> String {
     out
 }
 
+/// Rows per temperature, corner and frequency above which a sweep is thinned in the table.
+const ROWS_PER_SWEEP: usize = 41;
+
+/// The points of one stage to tabulate: all of them for a short list of amplitudes; for a
+/// longer sweep, `ROWS_PER_SWEEP` evenly spaced through each temperature, corner and
+/// frequency (first and last included), plus the point nearest each budget amplitude.
+fn shown_points<'a>(points: &[&'a PointRecord], budget_amplitudes: &[f64]) -> Vec<&'a PointRecord> {
+    let mut shown = Vec::new();
+    let mut start = 0;
+    while start < points.len() {
+        let first = points[start];
+        let same_sweep = |p: &&PointRecord| {
+            p.temperature_c == first.temperature_c
+                && p.corner == first.corner
+                && p.frequency_hz == first.frequency_hz
+        };
+        let length = points[start..].iter().take_while(|p| same_sweep(p)).count();
+        let sweep = &points[start..start + length];
+        if length <= ROWS_PER_SWEEP {
+            shown.extend_from_slice(sweep);
+        } else {
+            let mut keep = vec![false; length];
+            for i in 0..ROWS_PER_SWEEP {
+                keep[(i * (length - 1) + (ROWS_PER_SWEEP - 1) / 2) / (ROWS_PER_SWEEP - 1)] = true;
+            }
+            for at in budget_amplitudes {
+                let nearest = (0..length).min_by(|&a, &b| {
+                    (sweep[a].amplitude_v - at)
+                        .abs()
+                        .total_cmp(&(sweep[b].amplitude_v - at).abs())
+                });
+                if let Some(i) = nearest {
+                    keep[i] = true;
+                }
+            }
+            shown.extend(
+                sweep
+                    .iter()
+                    .zip(&keep)
+                    .filter(|(_, k)| **k)
+                    .map(|(p, _)| *p),
+            );
+        }
+        start += length;
+    }
+    shown
+}
+
 fn verdict_of(report: &Report, stage: &str, temperature_c: f64) -> &'static str {
     let lines: Vec<_> = report
         .budget
@@ -282,5 +348,42 @@ fn population_sections(report: &Report, out: &mut String) {
             s.noise_greatest_emitter_resistance_ohm.map(|r| format_si(r, "Ω")).unwrap_or_default(),
             s.conflict_gap_ohm.map(|r| format_si(r, "Ω")).unwrap_or_default()
         );
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn point(amplitude_v: f64, frequency_hz: f64) -> PointRecord {
+        serde_json::from_value(serde_json::json!({
+            "stage": "s", "temperature_c": 27.0, "frequency_hz": frequency_hz,
+            "amplitude_v": amplitude_v, "fundamental_v": 1.0, "gain_db": 0.0,
+            "thd_dbc": null, "single_ended_fundamental_v": 0.5,
+            "single_ended_hd2_dbc": null, "single_ended_hd3_dbc": null, "samples": 256,
+            "forward_active": true, "max_base_collector_v": -1.0, "min_current_fraction": 0.1,
+        }))
+        .unwrap()
+    }
+
+    /// A long sweep is thinned to evenly spaced rows with both ends and the budget's
+    /// amplitude; a short list of amplitudes is shown whole; each frequency separately.
+    #[test]
+    fn long_sweeps_are_thinned_short_lists_kept() {
+        let mut points: Vec<PointRecord> = (0..1000).map(|i| point(i as f64 * 1e-3, 1e3)).collect();
+        points.extend((0..5).map(|i| point(i as f64 * 1e-3, 1e6)));
+        let refs: Vec<&PointRecord> = points.iter().collect();
+        let shown = shown_points(&refs, &[0.4567]);
+        let at_1k: Vec<f64> = shown
+            .iter()
+            .filter(|p| p.frequency_hz == 1e3)
+            .map(|p| p.amplitude_v)
+            .collect();
+        assert_eq!(at_1k.len(), ROWS_PER_SWEEP + 1);
+        assert_eq!(at_1k[0], 0.0);
+        assert_eq!(*at_1k.last().unwrap(), 0.999);
+        assert!(at_1k.contains(&0.457), "{at_1k:?}");
+        assert!(at_1k.windows(2).all(|w| w[0] < w[1]));
+        assert_eq!(shown.iter().filter(|p| p.frequency_hz == 1e6).count(), 5);
     }
 }
