@@ -13,7 +13,7 @@ transfer (all samples and amplitudes at once, vectorised), takes the differentia
 R_L * (I_P - I_M), and measures HD3 and THD (harmonics 2..40) with a general complex FFT.
 
 Usage:
-    python3 reference_sweep.py                     # writes reference.csv (amplitude, hd3, thd)
+    python3 reference_sweep.py                     # writes out/reference-sweep.csv (amplitude, hd3, thd)
     python3 reference_sweep.py --compare report.json   # also prints the largest differences
 """
 import argparse
@@ -61,7 +61,7 @@ def main():
     parser = argparse.ArgumentParser()
     parser.add_argument("--emitter-resistance", type=float, default=200.0)
     parser.add_argument("--compare", help="a linbudget report.json of the same sweep")
-    parser.add_argument("--output", default="reference.csv")
+    parser.add_argument("--output", default="out/reference-sweep.csv")
     args = parser.parse_args()
     amplitudes = 1e-3 * (1e3) ** (np.arange(4096) / 4095.0)
     hd3, thd = sweep(1e-3, 2e3, args.emitter_resistance, 27.0, amplitudes)

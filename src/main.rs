@@ -146,8 +146,9 @@ fn main() -> ExitCode {
                     }
                     if json {
                         let mut stdout = std::io::stdout().lock();
-                        let _ = serde_json::to_writer_pretty(&mut stdout, &outcome.report);
-                        let _ = writeln!(stdout);
+                        if let Ok(text) = linbudget::report::json::to_json(&outcome.report) {
+                            let _ = stdout.write_all(&text);
+                        }
                     }
                     eprintln!(
                         "{}: plan `{}` {} — report in {}",

@@ -5,7 +5,7 @@ use crate::analysis;
 use crate::error::Error;
 use crate::plan::Plan;
 use crate::report::write::{check_output_dir, write_report_folder, OutputFile};
-use crate::report::{csv_export, datasheet, markdown, Report};
+use crate::report::{csv_export, datasheet, json, markdown, Report};
 use crate::workload;
 use std::path::{Path, PathBuf};
 
@@ -51,7 +51,7 @@ pub fn render_files(report: &Report, with_figures: bool) -> Result<Vec<OutputFil
 /// side by side (each is a pass over every point).
 fn table_files(report: &Report) -> Result<Vec<OutputFile>, Error> {
     let (json, (csv, summary)) = rayon::join(
-        || serde_json::to_vec_pretty(report),
+        || json::to_json(report),
         || {
             rayon::join(
                 || csv_export::points_csv(report),

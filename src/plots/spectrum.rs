@@ -46,16 +46,7 @@ impl SpectrumPlot {
             .filter(|p| p.amplitude_v == amplitude_v)
             .cloned()
             .collect();
-        let highest_order = points
-            .iter()
-            .flat_map(|p| p.harmonics.keys())
-            .filter_map(|k| {
-                k.trim_start_matches("hd")
-                    .trim_end_matches("_dbc")
-                    .parse::<usize>()
-                    .ok()
-            })
-            .max()?;
+        let highest_order = points.iter().map(|p| p.harmonics.highest_order()).max()?;
         (highest_order >= 2).then(|| SpectrumPlot {
             stage: stage.to_owned(),
             slug: slug.to_owned(),

@@ -1,31 +1,30 @@
 //! `points.csv`: one row per drive point, for spreadsheets and scripts.
 
-use super::Report;
+use super::{Harmonics, Report};
 
 /// Renders the drive points as CSV (dB figures empty below the analysis floor).
+///
+/// Numbers are written in their shortest round-trip form, so a script reading the table gets
+/// back exactly the values of `report.json`.
 pub fn points_csv(report: &Report) -> Result<Vec<u8>, csv::Error> {
-    let mut writer = csv::Writer::from_writer(Vec::new());
-    let orders: Vec<String> = report
+    let mut writer = csv::Writer::from_writer(Vec::with_capacity(200 * report.points.len()));
+    let highest = report
         .points
-        .first()
-        .map(|p| p.harmonics.keys().cloned().collect())
-        .unwrap_or_default();
-    let mut sorted_orders = orders.clone();
-    sorted_orders.sort_by_key(|k| {
-        k.trim_start_matches("hd")
-            .trim_end_matches("_dbc")
-            .parse::<usize>()
-            .unwrap_or(0)
-    });
-    let mut header = vec![
-        "stage".to_string(),
-        "temperature_c".into(),
-        "frequency_hz".into(),
-        "amplitude_v".into(),
-        "fundamental_v".into(),
-        "gain_db".into(),
-    ];
-    header.extend(sorted_orders.iter().cloned());
+        .iter()
+        .map(|p| p.harmonics.highest_order())
+        .max()
+        .unwrap_or(1);
+    let mut header: Vec<String> = [
+        "stage",
+        "temperature_c",
+        "frequency_hz",
+        "amplitude_v",
+        "fundamental_v",
+        "gain_db",
+    ]
+    .map(String::from)
+    .to_vec();
+    header.extend((2..=highest).map(|k| Harmonics::field_name(k).into_owned()));
     header.extend(
         [
             "thd_dbc",
@@ -39,29 +38,38 @@ pub fn points_csv(report: &Report) -> Result<Vec<u8>, csv::Error> {
         .map(String::from),
     );
     writer.write_record(&header)?;
-    let cell = |v: Option<f64>| v.map(|x| format!("{x}")).unwrap_or_default();
+    let mut text = ryu::Buffer::new();
+    let mut number = |writer: &mut csv::Writer<Vec<u8>>, value: Option<f64>| match value {
+        Some(v) if v.is_finite() => writer.write_field(text.format_finite(v)),
+        Some(v) => writer.write_field(v.to_string()),
+        None => writer.write_field(""),
+    };
     for p in &report.points {
-        let mut row = vec![
-            p.stage.clone(),
-            p.temperature_c.to_string(),
-            p.frequency_hz.to_string(),
-            p.amplitude_v.to_string(),
-            p.fundamental_v.to_string(),
-            p.gain_db.to_string(),
-        ];
-        row.extend(
-            sorted_orders
-                .iter()
-                .map(|k| cell(p.harmonics.get(k).copied().flatten())),
-        );
-        row.push(cell(p.thd_dbc));
-        row.push(cell(p.im3_dbc.flatten()));
-        row.push(cell(p.im2_dbc.flatten()));
-        row.push(cell(p.single_ended_hd2_dbc));
-        row.push(cell(p.single_ended_hd3_dbc));
-        row.push(p.samples.to_string());
-        row.push(p.forward_active.to_string());
-        writer.write_record(&row)?;
+        writer.write_field(&p.stage)?;
+        for value in [
+            p.temperature_c,
+            p.frequency_hz,
+            p.amplitude_v,
+            p.fundamental_v,
+            p.gain_db,
+        ] {
+            number(&mut writer, Some(value))?;
+        }
+        for order in 2..=highest {
+            number(&mut writer, p.harmonic(order))?;
+        }
+        for value in [
+            p.thd_dbc,
+            p.im3_dbc.flatten(),
+            p.im2_dbc.flatten(),
+            p.single_ended_hd2_dbc,
+            p.single_ended_hd3_dbc,
+        ] {
+            number(&mut writer, value)?;
+        }
+        writer.write_field(p.samples.to_string())?;
+        writer.write_field(if p.forward_active { "true" } else { "false" })?;
+        writer.write_record(None::<&[u8]>)?;
     }
     writer.into_inner().map_err(|e| e.into_error().into())
 }

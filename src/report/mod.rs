@@ -5,6 +5,7 @@
 
 pub mod csv_export;
 pub mod datasheet;
+pub mod json;
 pub mod markdown;
 pub mod write;
 
@@ -115,7 +116,7 @@ pub struct PointRecord {
     pub gain_db: f64,
     /// hd2_dbc … hdN_dbc: harmonics of the differential output, dBc (null below the floor).
     #[serde(flatten)]
-    pub harmonics: BTreeMap<String, Option<f64>>,
+    pub harmonics: Harmonics,
     /// THD over harmonics 2 through thd_harmonics, dBc.
     pub thd_dbc: Option<f64>,
     /// Larger third-order product relative to one tone's output, dBc (two-tone plans only).
@@ -161,10 +162,112 @@ pub struct PointRecord {
 impl PointRecord {
     /// Harmonic `order` in dBc, if reported and above the floor.
     pub fn harmonic(&self, order: usize) -> Option<f64> {
-        self.harmonics
-            .get(&format!("hd{order}_dbc"))
+        self.harmonics.get(order)
+    }
+}
+
+/// The named harmonics of one drive point, HD2 upward without gaps: dBc of the differential
+/// output, `None` below the analysis floor. Serialised as one field per order, `hd2_dbc`,
+/// `hd3_dbc`, … (flattened into the point).
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct Harmonics {
+    /// Level of order `k` at index `k − 2`.
+    levels: Vec<Option<f64>>,
+}
+
+impl Harmonics {
+    /// Harmonics from HD2 upward (`levels[0]` is HD2).
+    pub fn from_levels(levels: Vec<Option<f64>>) -> Self {
+        Harmonics { levels }
+    }
+
+    /// Level of harmonic `order` in dBc, if named and above the floor.
+    pub fn get(&self, order: usize) -> Option<f64> {
+        order
+            .checked_sub(2)
+            .and_then(|i| self.levels.get(i))
             .copied()
             .flatten()
+    }
+
+    /// Highest order named (1 when none is).
+    pub fn highest_order(&self) -> usize {
+        self.levels.len() + 1
+    }
+
+    /// `(order, level)` of every named harmonic, in increasing order.
+    pub fn iter(&self) -> impl Iterator<Item = (usize, Option<f64>)> + '_ {
+        self.levels.iter().enumerate().map(|(i, v)| (i + 2, *v))
+    }
+
+    /// The report field name of harmonic `order` (`hd3_dbc`).
+    pub fn field_name(order: usize) -> std::borrow::Cow<'static, str> {
+        const NAMES: [&str; 8] = [
+            "hd2_dbc", "hd3_dbc", "hd4_dbc", "hd5_dbc", "hd6_dbc", "hd7_dbc", "hd8_dbc", "hd9_dbc",
+        ];
+        match order.checked_sub(2).and_then(|i| NAMES.get(i)) {
+            Some(name) => (*name).into(),
+            None => format!("hd{order}_dbc").into(),
+        }
+    }
+
+    /// The order a field name stands for (`hd3_dbc` → 3).
+    fn order_of(field: &str) -> Option<usize> {
+        field
+            .strip_prefix("hd")?
+            .strip_suffix("_dbc")?
+            .parse::<usize>()
+            .ok()
+            .filter(|k| (2..=MAX_NAMED_ORDER).contains(k))
+    }
+}
+
+/// Highest harmonic order read back from a report (a guard against absurd field names).
+const MAX_NAMED_ORDER: usize = 1024;
+
+impl Serialize for Harmonics {
+    fn serialize<S: serde::Serializer>(&self, serializer: S) -> Result<S::Ok, S::Error> {
+        use serde::ser::SerializeMap;
+        let mut map = serializer.serialize_map(Some(self.levels.len()))?;
+        for (order, level) in self.iter() {
+            map.serialize_entry(&*Harmonics::field_name(order), &level)?;
+        }
+        map.end()
+    }
+}
+
+impl<'de> Deserialize<'de> for Harmonics {
+    fn deserialize<D: serde::Deserializer<'de>>(deserializer: D) -> Result<Self, D::Error> {
+        struct Fields;
+        impl<'de> serde::de::Visitor<'de> for Fields {
+            type Value = Harmonics;
+            fn expecting(&self, f: &mut std::fmt::Formatter) -> std::fmt::Result {
+                f.write_str("fields hd2_dbc, hd3_dbc, … holding dBc or null")
+            }
+            fn visit_map<A: serde::de::MapAccess<'de>>(
+                self,
+                mut map: A,
+            ) -> Result<Harmonics, A::Error> {
+                let mut found: BTreeMap<usize, Option<f64>> = BTreeMap::new();
+                while let Some(key) = map.next_key::<String>()? {
+                    match Harmonics::order_of(&key) {
+                        Some(order) => {
+                            found.insert(order, map.next_value()?);
+                        }
+                        None => {
+                            map.next_value::<serde::de::IgnoredAny>()?;
+                        }
+                    }
+                }
+                let highest = found.keys().next_back().copied().unwrap_or(1);
+                Ok(Harmonics::from_levels(
+                    (2..=highest)
+                        .map(|k| found.get(&k).copied().flatten())
+                        .collect(),
+                ))
+            }
+        }
+        deserializer.deserialize_map(Fields)
     }
 }
 
@@ -438,4 +541,37 @@ pub struct SizingScanRecord {
     /// Headroom margin (collector-base), V (hold_gain only).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub headroom_v: Option<f64>,
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A drive point read back from its JSON keeps every `hdN_dbc` field (nulls included),
+    /// ignores fields it does not know, and writes the same document again (serde_json is
+    /// the reference reader).
+    #[test]
+    fn harmonic_fields_round_trip_through_json() {
+        let text = r#"{"stage": "s", "temperature_c": 27.0, "frequency_hz": 1000.0,
+            "amplitude_v": 0.01, "fundamental_v": 0.08, "gain_db": 18.0,
+            "hd2_dbc": null, "hd3_dbc": -70.5, "hd4_dbc": null, "hd5_dbc": -120.25,
+            "hd11_dbc": -150.0, "thd_dbc": -70.5, "single_ended_fundamental_v": 0.04,
+            "single_ended_hd2_dbc": null, "single_ended_hd3_dbc": -70.5, "samples": 256,
+            "forward_active": true, "max_base_collector_v": -1.0,
+            "min_current_fraction": 0.4, "a_future_field": [1, 2]}"#;
+        let point: PointRecord = serde_json::from_str(text).unwrap();
+        assert_eq!(point.harmonic(2), None);
+        assert_eq!(point.harmonic(3), Some(-70.5));
+        assert_eq!(point.harmonic(5), Some(-120.25));
+        assert_eq!(point.harmonic(7), None);
+        assert_eq!(point.harmonic(11), Some(-150.0));
+        assert_eq!(point.harmonics.highest_order(), 11);
+        let again: serde_json::Value =
+            serde_json::from_str(&serde_json::to_string(&point).unwrap()).unwrap();
+        assert_eq!(again["hd5_dbc"], serde_json::json!(-120.25));
+        assert_eq!(again["hd10_dbc"], serde_json::Value::Null);
+        assert_eq!(again["hd11_dbc"], serde_json::json!(-150.0));
+        let back: PointRecord = serde_json::from_value(again).unwrap();
+        assert_eq!(back, point);
+    }
 }
