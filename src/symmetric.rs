@@ -223,10 +223,23 @@ fn single_tone_in(
                 fresh.push(coarse[i / 2]);
                 continue;
             }
-            // Warm start: the mean of both solved neighbours on a refined grid (error of
-            // second order in the spacing), else a linear extrapolation of the last two.
+            // Warm start: on a refined grid, cubic interpolation between the four nearest
+            // solved samples (error of fourth order in the spacing; beyond either end of the
+            // quarter, y is even about θ = 0 and odd about θ = π/2), else a linear
+            // extrapolation of the last two.
             if !first {
-                *guess = 0.5 * (fresh[i - 1].log_ratio + coarse[i.div_ceil(2)].log_ratio);
+                let last = coarse.len() as isize - 1;
+                let at = |k: isize| -> f64 {
+                    if k < 0 {
+                        coarse[(-k) as usize].log_ratio
+                    } else if k > last {
+                        -coarse[(2 * last - k) as usize].log_ratio
+                    } else {
+                        coarse[k as usize].log_ratio
+                    }
+                };
+                let k = (i / 2) as isize;
+                *guess = (9.0 * (at(k) + at(k + 1)) - (at(k - 1) + at(k + 2))) / 16.0;
             } else if i >= 2 {
                 *guess = 2.0 * fresh[i - 1].log_ratio - fresh[i - 2].log_ratio;
             }
