@@ -12,7 +12,7 @@
 use num_complex::Complex;
 use rustfft::{Fft, FftPlanner};
 use std::collections::HashMap;
-use std::sync::{Arc, Mutex};
+use std::sync::{Arc, Mutex, OnceLock};
 
 /// Largest change in any reported dB figure accepted as converged between N and 2N.
 pub const CONVERGED_DB: f64 = 1e-3;
@@ -21,11 +21,20 @@ pub const ANALYSIS_FLOOR_DBC: f64 = -200.0;
 /// Largest sample count tried before the analysis is declared unconverged.
 pub const MAX_SAMPLES: usize = 1 << 20;
 
+/// Powers of two up to this exponent get lock-free slots in [`FftCache`]; other sizes go
+/// through the locked maps.
+const SLOTS: usize = 21;
+
+/// The forward FFT plan and the quarter-period cosines of one size.
+type SizeTables = (Arc<dyn Fft<f64>>, Arc<Vec<f64>>);
+
 /// Shared FFT plans, built once per size and reused across points and threads.
 #[derive(Default)]
 pub struct FftCache {
     plans: Mutex<HashMap<usize, Arc<dyn Fft<f64>>>>,
     quarter_cosines: Mutex<HashMap<usize, Arc<Vec<f64>>>>,
+    /// Plans and quarter cosines of `n = 2^k`, read without a lock once built.
+    power_of_two: [OnceLock<SizeTables>; SLOTS],
 }
 
 impl std::fmt::Debug for FftCache {
@@ -35,8 +44,23 @@ impl std::fmt::Debug for FftCache {
 }
 
 impl FftCache {
+    /// The forward FFT plan and the quarter-period cosines of a power-of-two size `n`, built
+    /// once and then read without locking; `None` for other sizes.
+    fn power_of_two_tables(&self, n: usize) -> Option<&SizeTables> {
+        let slot = self.power_of_two.get(n.trailing_zeros() as usize)?;
+        n.is_power_of_two()
+            .then(|| slot.get_or_init(|| (self.locked_plan(n), self.locked_quarter_cosines(n))))
+    }
+
     /// The forward FFT plan of size `n`.
     pub fn plan(&self, n: usize) -> Arc<dyn Fft<f64>> {
+        match self.power_of_two_tables(n) {
+            Some((plan, _)) => plan.clone(),
+            None => self.locked_plan(n),
+        }
+    }
+
+    fn locked_plan(&self, n: usize) -> Arc<dyn Fft<f64>> {
         let mut plans = self
             .plans
             .lock()
@@ -50,6 +74,13 @@ impl FftCache {
     /// `cos(2π·i/n)` for `i = 0..=n/4` (the first quarter period), computed once per `n` with
     /// the same expression as the general sampler so both see bit-identical drive values.
     pub fn quarter_cosines(&self, n: usize) -> Arc<Vec<f64>> {
+        match self.power_of_two_tables(n) {
+            Some((_, cosines)) => cosines.clone(),
+            None => self.locked_quarter_cosines(n),
+        }
+    }
+
+    fn locked_quarter_cosines(&self, n: usize) -> Arc<Vec<f64>> {
         let mut tables = self
             .quarter_cosines
             .lock()
@@ -71,10 +102,27 @@ impl FftCache {
     /// `A_k = (Z_k + conj Z_{N−k})/2`, `B_k = (Z_k − conj Z_{N−k})/(2i)`). Same normalisation
     /// as [`FftCache::harmonic_amplitudes`].
     pub fn two_real_amplitudes(&self, a: &[f64], b: &[f64], count: usize) -> (Vec<f64>, Vec<f64>) {
-        let n = a.len();
         let mut buffer: Vec<Complex<f64>> =
             a.iter().zip(b).map(|(&x, &y)| Complex::new(x, y)).collect();
-        self.plan(n).process(&mut buffer);
+        self.two_real_amplitudes_packed(&mut buffer, &mut Vec::new(), count)
+    }
+
+    /// [`FftCache::two_real_amplitudes`] of a buffer already packed as `a + i·b` (transformed
+    /// in place), with a reusable FFT scratch vector.
+    pub fn two_real_amplitudes_packed(
+        &self,
+        buffer: &mut [Complex<f64>],
+        scratch: &mut Vec<Complex<f64>>,
+        count: usize,
+    ) -> (Vec<f64>, Vec<f64>) {
+        let n = buffer.len();
+        let plan = self.plan(n);
+        scratch.resize(plan.get_inplace_scratch_len(), Complex::new(0.0, 0.0));
+        plan.process_with_scratch(buffer, scratch);
+        let scale = 1.0 / n as f64;
+        // Peak amplitudes are volts: no overflow is possible in re² + im², so the plain
+        // square root replaces the slower overflow-safe `hypot` of `Complex::norm`.
+        let modulus = |z: Complex<f64>| (z.re * z.re + z.im * z.im).sqrt();
         let mut first = Vec::with_capacity(count + 1);
         let mut second = Vec::with_capacity(count + 1);
         for k in 0..=count {
@@ -85,8 +133,8 @@ impl FftCache {
                 let z = buffer[k];
                 let mirror = buffer[n - k].conj();
                 // |A_k| = |Z_k + conj Z_{N−k}|/2 and |B_k| = |Z_k − conj Z_{N−k}|/2; peak = 2|·|/N.
-                first.push((z + mirror).norm() / n as f64);
-                second.push((z - mirror).norm() / n as f64);
+                first.push(modulus(z + mirror) * scale);
+                second.push(modulus(z - mirror) * scale);
             } else {
                 first.push(0.0);
                 second.push(0.0);
@@ -173,6 +221,97 @@ impl Spectrum {
     }
 }
 
+/// Largest change, dB, of any figure [`Spectrum::reported_figures`] compares between two
+/// spectra (0 where both figures are equal, including both −∞).
+pub(crate) fn largest_change_db(
+    before: &Spectrum,
+    after: &Spectrum,
+    highest: usize,
+    floor_dbc: f64,
+) -> f64 {
+    let before = before.reported_figures(highest, floor_dbc);
+    let after = after.reported_figures(highest, floor_dbc);
+    before
+        .iter()
+        .zip(&after)
+        .map(|(a, b)| if a == b { 0.0 } else { (a - b).abs() })
+        .fold(0.0, f64::max)
+}
+
+/// Whether `largest_change_db(before, after, …) <= CONVERGED_DB`, decided without logarithms.
+///
+/// Each figure change is `|20·log10 q|` (`|10·log10 q|` for THD) of a linear ratio `q`: the
+/// fundamentals' ratio, or `max(a_k/f, F)` over the same of the other spectrum with the floor
+/// `F = 10^(floor/20)` (the clamp commutes with the monotone logarithm). A ratio inside
+/// `10^(±(c − δ)/20)` is within the limit and one outside `10^(±(c + δ)/20)` beyond it, with a
+/// guard band `δ = 1e-9 dB` far wider than the rounding of either form (≈ 1e-13 dB); anything
+/// inside the band, or any fundamental that is not finite and positive, is decided by
+/// [`largest_change_db`] itself, so the decision is always the logarithmic rule's.
+pub(crate) fn converged(
+    before: &Spectrum,
+    after: &Spectrum,
+    highest: usize,
+    floor_dbc: f64,
+) -> bool {
+    const GUARD_DB: f64 = 1e-9;
+    let exact = || largest_change_db(before, after, highest, floor_dbc) <= CONVERGED_DB;
+    let (f_b, f_a) = (before.fundamental(), after.fundamental());
+    if !(f_b > 0.0 && f_a > 0.0 && f_b.is_finite() && f_a.is_finite() && floor_dbc.is_finite()) {
+        return exact();
+    }
+    let inner = 10f64.powf((CONVERGED_DB - GUARD_DB) / 20.0);
+    let outer = 10f64.powf((CONVERGED_DB + GUARD_DB) / 20.0);
+    let floor = 10f64.powf(floor_dbc / 20.0);
+    // 0: clearly within, 1: in the guard band, 2: clearly beyond. `q` is a ratio of amplitudes;
+    // a ratio of powers is compared against the squared limits.
+    let classify = |q: f64, power: bool| -> u8 {
+        let q = if q < 1.0 { 1.0 / q } else { q };
+        let (inner, outer) = if power {
+            (inner * inner, outer * outer)
+        } else {
+            (inner, outer)
+        };
+        if q <= inner {
+            0
+        } else if q > outer {
+            2
+        } else {
+            // Inside the guard band, or NaN (∞/∞): the logarithmic rule decides.
+            1
+        }
+    };
+    let mut doubtful = false;
+    let mut tally = |class: u8| -> bool {
+        doubtful |= class == 1;
+        class == 2
+    };
+    if tally(classify(f_a / f_b, false)) {
+        return false;
+    }
+    let (inv_b, inv_a) = (1.0 / f_b, 1.0 / f_a);
+    let level = |s: &Spectrum, k: usize| s.amplitudes.get(k).copied().unwrap_or(0.0);
+    let (mut power_b, mut power_a) = (0.0, 0.0);
+    for k in 2..=highest {
+        let (a_b, a_a) = (level(before, k), level(after, k));
+        power_b += a_b * a_b;
+        power_a += a_a * a_a;
+        let q = (a_a * inv_a).max(floor) / (a_b * inv_b).max(floor);
+        if tally(classify(q, false)) {
+            return false;
+        }
+    }
+    let q =
+        (power_a * inv_a * inv_a).max(floor * floor) / (power_b * inv_b * inv_b).max(floor * floor);
+    if tally(classify(q, true)) {
+        return false;
+    }
+    if doubtful {
+        exact()
+    } else {
+        true
+    }
+}
+
 /// Result of an adaptive analysis of several simultaneous waveforms (channels).
 #[derive(Debug, Clone)]
 pub struct AdaptiveResult {
@@ -248,21 +387,18 @@ pub fn analyse_adaptive<E>(
                 amplitudes: cache.harmonic_amplitudes(d, harmonics),
             })
             .collect();
-        let before = previous[0].reported_figures(harmonics, floor_dbc);
-        let after = current[0].reported_figures(harmonics, floor_dbc);
-        change = before
-            .iter()
-            .zip(&after)
-            .map(|(a, b)| if a == b { 0.0 } else { (a - b).abs() })
-            .fold(0.0, f64::max);
-        previous = current;
-        if change <= CONVERGED_DB {
+        if converged(&previous[0], &current[0], harmonics, floor_dbc) {
+            change = largest_change_db(&previous[0], &current[0], harmonics, floor_dbc);
             return Ok(AdaptiveResult {
-                spectra: previous,
+                spectra: current,
                 samples: n,
                 last_change_db: change,
             });
         }
+        if 2 * n > MAX_SAMPLES {
+            change = largest_change_db(&previous[0], &current[0], harmonics, floor_dbc);
+        }
+        previous = current;
     }
     Err(on_unconverged(n, change))
 }
@@ -270,6 +406,51 @@ pub fn analyse_adaptive<E>(
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// The logarithm-free convergence test must decide as the dB rule it replaces, here on
+    /// spectra whose figures move by amounts straddling the limit (dB definition: common
+    /// practice), with harmonics on both sides of the floor and an absent fundamental.
+    #[test]
+    fn the_linear_convergence_test_decides_as_the_db_rule() {
+        let base = [0.0, 1.0, 3e-3, 1e-5, 2e-9, 1e-10, 0.0];
+        let mut cases = 0;
+        for figure in 1..base.len() {
+            for change_db in [
+                0.0, 5e-4, 9.999e-4, 1e-3, 1.0001e-3, 2e-3, 50.0, -1.0001e-3, -9.999e-4,
+            ] {
+                let mut moved = base;
+                let factor = 10f64.powf(change_db / 20.0);
+                moved[figure] = if moved[figure] == 0.0 {
+                    1e-11 * factor
+                } else {
+                    moved[figure] * factor
+                };
+                for (a, b) in [(base, moved), (moved, base)] {
+                    let (a, b) = (
+                        Spectrum {
+                            amplitudes: a.to_vec(),
+                        },
+                        Spectrum {
+                            amplitudes: b.to_vec(),
+                        },
+                    );
+                    let exact = largest_change_db(&a, &b, 6, -200.0) <= CONVERGED_DB;
+                    assert_eq!(
+                        converged(&a, &b, 6, -200.0),
+                        exact,
+                        "figure {figure}, {change_db} dB"
+                    );
+                    cases += usize::from(exact);
+                }
+            }
+        }
+        assert!(cases > 10);
+        let silent = Spectrum {
+            amplitudes: vec![0.0; 7],
+        };
+        let exact = largest_change_db(&silent, &silent, 6, -200.0) <= CONVERGED_DB;
+        assert_eq!(converged(&silent, &silent, 6, -200.0), exact);
+    }
 
     #[test]
     fn pure_tones_come_out_at_their_amplitudes() {

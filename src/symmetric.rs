@@ -20,10 +20,13 @@
 use crate::error::SolveFailure;
 use crate::metrics::{RegionCheck, ToneResult};
 use crate::spectrum::{
-    initial_samples, FftCache, Spectrum, ANALYSIS_FLOOR_DBC, CONVERGED_DB, MAX_SAMPLES,
+    converged, initial_samples, largest_change_db, FftCache, Spectrum, ANALYSIS_FLOOR_DBC,
+    CONVERGED_DB, MAX_SAMPLES,
 };
 use crate::stage::StageCircuit;
 use crate::transfer::{StaticSolver, WarmStart};
+use num_complex::Complex;
+use std::cell::RefCell;
 
 /// Whether the symmetric fast path applies: matched sides, ideal tail, no Early effect.
 pub fn applies(circuit: &StageCircuit) -> bool {
@@ -158,6 +161,20 @@ impl<'a> MatchedPair<'a> {
     }
 }
 
+/// Buffers reused from point to point on each thread (quarter samples of the current and the
+/// previous grid, the packed FFT input and the FFT's scratch).
+#[derive(Default)]
+struct Scratch {
+    quarter: Vec<QuarterSample>,
+    coarse: Vec<QuarterSample>,
+    packed: Vec<Complex<f64>>,
+    fft: Vec<Complex<f64>>,
+}
+
+thread_local! {
+    static SCRATCH: RefCell<Scratch> = RefCell::new(Scratch::default());
+}
+
 /// Analyses `v_d = A·cos θ` of a matched pair from quarter periods (see the module docs).
 /// Callers check [`applies`] first; otherwise the general path must be used.
 pub fn single_tone(
@@ -166,91 +183,120 @@ pub fn single_tone(
     amplitude_v: f64,
     harmonics: usize,
 ) -> Result<ToneResult, SolveFailure> {
+    SCRATCH.with(|scratch| match scratch.try_borrow_mut() {
+        Ok(mut scratch) => single_tone_in(solver, cache, amplitude_v, harmonics, &mut scratch),
+        // Only reachable if a solve re-entered this function on the same thread.
+        Err(_) => single_tone_in(
+            solver,
+            cache,
+            amplitude_v,
+            harmonics,
+            &mut Scratch::default(),
+        ),
+    })
+}
+
+fn single_tone_in(
+    solver: &StaticSolver,
+    cache: &FftCache,
+    amplitude_v: f64,
+    harmonics: usize,
+    scratch: &mut Scratch,
+) -> Result<ToneResult, SolveFailure> {
     let pair = MatchedPair::new(solver);
     let mut region = RegionCheck::new();
     let mut n = initial_samples(harmonics);
-    let mut quarter: Vec<QuarterSample> = Vec::new();
     let mut guess = amplitude_v / (pair.phi + 0.5 * pair.drop_v);
-    let spectra = |n: usize,
-                   quarter: &mut Vec<QuarterSample>,
-                   guess: &mut f64,
-                   region: &mut RegionCheck|
+    let refine = |n: usize,
+                  scratch: &mut Scratch,
+                  first: bool,
+                  guess: &mut f64,
+                  region: &mut RegionCheck|
      -> Result<(Spectrum, Spectrum), SolveFailure> {
         let cosines = cache.quarter_cosines(n);
-        // Keep the samples already solved (they sit at the even indices of the finer grid).
-        let mut fresh = vec![QuarterSample::default(); n / 4 + 1];
-        for i in 0..fresh.len() {
-            if !quarter.is_empty() && i % 2 == 0 {
-                fresh[i] = quarter[i / 2];
+        std::mem::swap(&mut scratch.quarter, &mut scratch.coarse);
+        let (fresh, coarse) = (&mut scratch.quarter, &scratch.coarse);
+        fresh.clear();
+        for i in 0..=n / 4 {
+            // Keep the samples already solved (they sit at the even indices of the finer grid).
+            if !first && i % 2 == 0 {
+                fresh.push(coarse[i / 2]);
                 continue;
             }
-            // Warm start: the mean of both solved neighbours on a refined grid (error of
-            // second order in the spacing), else a linear extrapolation of the last two.
-            if !quarter.is_empty() {
-                *guess = 0.5 * (fresh[i - 1].log_ratio + quarter[i.div_ceil(2)].log_ratio);
+            // Warm start: on a refined grid, cubic interpolation between the four nearest
+            // solved samples (error of fourth order in the spacing; beyond either end of the
+            // quarter, y is even about θ = 0 and odd about θ = π/2), else a linear
+            // extrapolation of the last two.
+            if !first {
+                let last = coarse.len() as isize - 1;
+                let at = |k: isize| -> f64 {
+                    if k < 0 {
+                        coarse[(-k) as usize].log_ratio
+                    } else if k > last {
+                        -coarse[(2 * last - k) as usize].log_ratio
+                    } else {
+                        coarse[k as usize].log_ratio
+                    }
+                };
+                let k = (i / 2) as isize;
+                *guess = (9.0 * (at(k) + at(k + 1)) - (at(k - 1) + at(k + 2))) / 16.0;
             } else if i >= 2 {
                 *guess = 2.0 * fresh[i - 1].log_ratio - fresh[i - 2].log_ratio;
             }
-            fresh[i] = pair.sample(amplitude_v * cosines[i], guess, region)?;
+            fresh.push(pair.sample(amplitude_v * cosines[i], guess, region)?);
         }
-        *quarter = fresh;
-        let (output, collector) = unfold(quarter, n);
-        let (a, b) = cache.two_real_amplitudes(&output, &collector, harmonics);
+        unfold_packed(fresh, n, &mut scratch.packed);
+        let (a, b) =
+            cache.two_real_amplitudes_packed(&mut scratch.packed, &mut scratch.fft, harmonics);
         Ok((Spectrum { amplitudes: a }, Spectrum { amplitudes: b }))
     };
-    let mut previous = spectra(n, &mut quarter, &mut guess, &mut region)?;
-    let mut change = f64::INFINITY;
+    let mut previous = refine(n, scratch, true, &mut guess, &mut region)?;
     while 2 * n <= MAX_SAMPLES {
         n *= 2;
-        let current = spectra(n, &mut quarter, &mut guess, &mut region)?;
-        let before = previous.0.reported_figures(harmonics, ANALYSIS_FLOOR_DBC);
-        let after = current.0.reported_figures(harmonics, ANALYSIS_FLOOR_DBC);
-        change = before
-            .iter()
-            .zip(&after)
-            .map(|(a, b)| if a == b { 0.0 } else { (a - b).abs() })
-            .fold(0.0, f64::max);
-        previous = current;
-        if change <= CONVERGED_DB {
+        let current = refine(n, scratch, false, &mut guess, &mut region)?;
+        if converged(&previous.0, &current.0, harmonics, ANALYSIS_FLOOR_DBC) {
             return Ok(ToneResult {
                 amplitude_v,
-                differential: previous.0,
-                single_ended: previous.1,
+                differential: current.0,
+                single_ended: current.1,
                 samples: n,
                 floor_dbc: ANALYSIS_FLOOR_DBC,
                 region,
             });
         }
+        if 2 * n > MAX_SAMPLES {
+            let change = largest_change_db(&previous.0, &current.0, harmonics, ANALYSIS_FLOOR_DBC);
+            return Err(SolveFailure {
+                point: format!("amplitude {amplitude_v:e} V"),
+                reason: format!(
+                    "harmonics did not converge to {CONVERGED_DB} dB with {n} samples per period (last change {change:.2e} dB)"
+                ),
+            });
+        }
+        previous = current;
     }
-    Err(SolveFailure {
-        point: format!("amplitude {amplitude_v:e} V"),
-        reason: format!(
-            "harmonics did not converge to {CONVERGED_DB} dB with {n} samples per period (last change {change:.2e} dB)"
-        ),
-    })
+    unreachable!("MAX_SAMPLES is a power of two above the first sample count")
 }
 
-/// The full period (`n` samples at `θ = 2π·j/n`) of the differential output and the P-side
-/// collector voltage from the quarter samples `j = 0..=n/4`.
-fn unfold(quarter: &[QuarterSample], n: usize) -> (Vec<f64>, Vec<f64>) {
-    let mut output = vec![0.0; n];
-    let mut collector = vec![0.0; n];
+/// The full period (`n` samples at `θ = 2π·j/n`) of the differential output (real part) and
+/// the P-side collector voltage (imaginary part) from the quarter samples `j = 0..=n/4`,
+/// packed for [`FftCache::two_real_amplitudes_packed`].
+fn unfold_packed(quarter: &[QuarterSample], n: usize, packed: &mut Vec<Complex<f64>>) {
+    packed.clear();
+    packed.resize(n, Complex::new(0.0, 0.0));
     for j in 0..=n / 2 {
-        let (out, col) = if j <= n / 4 {
-            (quarter[j].output_v, quarter[j].collector_p_v)
+        let value = if j <= n / 4 {
+            Complex::new(quarter[j].output_v, quarter[j].collector_p_v)
         } else {
             // θ = π − θ' with θ' in the first quarter: the input is negated, the sides swap.
             let mirror = quarter[n / 2 - j];
-            (-mirror.output_v, mirror.collector_m_v)
+            Complex::new(-mirror.output_v, mirror.collector_m_v)
         };
-        output[j] = out;
-        collector[j] = col;
+        packed[j] = value;
         if j > 0 && j < n / 2 {
-            output[n - j] = out;
-            collector[n - j] = col;
+            packed[n - j] = value;
         }
     }
-    (output, collector)
 }
 
 #[cfg(test)]
