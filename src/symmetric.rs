@@ -20,8 +20,8 @@
 use crate::error::SolveFailure;
 use crate::metrics::{RegionCheck, ToneResult};
 use crate::spectrum::{
-    converged, initial_samples, largest_change_db, FftCache, Spectrum, ANALYSIS_FLOOR_DBC,
-    CONVERGED_DB, MAX_SAMPLES,
+    converged, largest_change_db, FftCache, Spectrum, ANALYSIS_FLOOR_DBC, CONVERGED_DB,
+    INITIAL_SAMPLES, MAX_SAMPLES,
 };
 use crate::stage::StageCircuit;
 use crate::transfer::{StaticSolver, WarmStart};
@@ -205,7 +205,7 @@ fn single_tone_in(
 ) -> Result<ToneResult, SolveFailure> {
     let pair = MatchedPair::new(solver);
     let mut region = RegionCheck::new();
-    let mut n = initial_samples(harmonics);
+    let mut n = INITIAL_SAMPLES;
     let mut guess = amplitude_v / (pair.phi + 0.5 * pair.drop_v);
     let refine = |n: usize,
                   scratch: &mut Scratch,
