@@ -4,7 +4,7 @@
 use crate::analysis;
 use crate::error::Error;
 use crate::plan::Plan;
-use crate::report::write::{check_output_dir, write_report_folder, OutputFile};
+use crate::report::write::{check_output_dir, write_report_folder_with, Staging};
 use crate::report::{csv_export, datasheet, json, markdown, Report};
 use crate::workload;
 use std::path::{Path, PathBuf};
@@ -35,52 +35,42 @@ pub struct RunOutcome {
     pub folder: PathBuf,
 }
 
-/// Renders every file of the report folder from the report structs.
-pub fn render_files(report: &Report, with_figures: bool) -> Result<Vec<OutputFile>, Error> {
-    // The tables and the figures are independent: render them side by side.
-    let (tables, figures) = rayon::join(
-        || table_files(report),
-        || datasheet::render_files(report, with_figures),
+/// Renders every file of the report folder into `staging`, each written as soon as it is
+/// ready: the tables (report.json, points.csv, summary.md), the figures and the report
+/// documents, side by side.
+pub fn write_files(report: &Report, with_figures: bool, staging: &Staging) -> Result<(), Error> {
+    let (tables, documents) = rayon::join(
+        || write_tables(report, staging),
+        || datasheet::write_into(report, with_figures, staging),
     );
-    let mut files = tables?;
-    files.extend(figures?);
-    Ok(files)
+    tables.and(documents)
 }
 
-/// The machine- and human-readable tables: report.json, points.csv, summary.md, rendered
-/// side by side (each is a pass over every point).
-fn table_files(report: &Report) -> Result<Vec<OutputFile>, Error> {
+/// The machine- and human-readable tables: report.json, points.csv, summary.md (each a pass
+/// over every point, so rendered side by side).
+fn write_tables(report: &Report, staging: &Staging) -> Result<(), Error> {
     let (json, (csv, summary)) = rayon::join(
-        || json::to_json(report),
+        || {
+            let bytes = json::to_json(report).map_err(|e| Error::Output {
+                path: "report.json".into(),
+                reason: e.to_string(),
+            })?;
+            staging.put("report.json", &bytes)
+        },
         || {
             rayon::join(
-                || csv_export::points_csv(report),
-                || markdown::summary(report),
+                || {
+                    let bytes = csv_export::points_csv(report).map_err(|e| Error::Output {
+                        path: "points.csv".into(),
+                        reason: e.to_string(),
+                    })?;
+                    staging.put("points.csv", &bytes)
+                },
+                || staging.put("summary.md", markdown::summary(report).as_bytes()),
             )
         },
     );
-    let json = json.map_err(|e| Error::Output {
-        path: "report.json".into(),
-        reason: e.to_string(),
-    })?;
-    let csv = csv.map_err(|e| Error::Output {
-        path: "points.csv".into(),
-        reason: e.to_string(),
-    })?;
-    Ok(vec![
-        OutputFile {
-            name: "report.json".into(),
-            bytes: json,
-        },
-        OutputFile {
-            name: "points.csv".into(),
-            bytes: csv,
-        },
-        OutputFile {
-            name: "summary.md".into(),
-            bytes: summary.into_bytes(),
-        },
-    ])
+    json.and(csv).and(summary)
 }
 
 /// Validates a plan file, including its estimated work against the default limit.
@@ -106,7 +96,8 @@ pub fn run(options: &RunOptions, progress: &(dyn Fn(&str) + Sync)) -> Result<Run
     check_output_dir(&options.out)?;
     let report = analysis::evaluate(&plan, progress)?;
     progress("drawing figures and writing the report");
-    let files = render_files(&report, options.figures)?;
-    let folder = write_report_folder(&options.out, &plan.name, &files)?;
+    let folder = write_report_folder_with(&options.out, &plan.name, |staging| {
+        write_files(&report, options.figures, staging)
+    })?;
     Ok(RunOutcome { report, folder })
 }

@@ -206,6 +206,15 @@ fn job<D: Drawing + Sync + Send + 'static>(drawing: D) -> Job {
 /// Draws every figure the report has data for, in a fixed order (stage by stage, in plan
 /// order, then the cross-stage figures).
 pub fn render_all(report: &Report) -> Result<Vec<Figure>, Error> {
+    render_all_with(report, &|_| Ok(()))
+}
+
+/// [`render_all`], handing each figure to `on_drawn` as soon as it is drawn, from the worker
+/// that drew it (to write its files while the others are still being drawn).
+pub fn render_all_with(
+    report: &Report,
+    on_drawn: &(dyn Fn(&Figure) -> Result<(), Error> + Sync),
+) -> Result<Vec<Figure>, Error> {
     let mut jobs: Vec<Job> = Vec::new();
     let stages = style::stage_names(report);
     let mut stems: Vec<String> = Vec::new();
@@ -236,7 +245,13 @@ pub fn render_all(report: &Report) -> Result<Vec<Figure>, Error> {
     if let Some(d) = compare::ComparisonPlot::new(report) {
         jobs.push(job(d));
     }
-    jobs.par_iter().map(|j| j()).collect()
+    jobs.par_iter()
+        .map(|job| {
+            let figure = job()?;
+            on_drawn(&figure)?;
+            Ok(figure)
+        })
+        .collect()
 }
 
 /// A file-name-safe form of a stage name, made unique among the stages already named.

@@ -6,7 +6,7 @@
 //! figures, the model's assumptions and limits, and the caution. The HTML is self-contained
 //! (figures inline as SVG, styles inline) so it reads offline and prints to PDF.
 
-use super::write::OutputFile;
+use super::write::Staging;
 use super::{Report, CAUTION};
 use crate::error::Error;
 use crate::plots::{self, style, Figure};
@@ -40,37 +40,23 @@ pub struct Table {
     pub rows: Vec<Vec<String>>,
 }
 
-/// Renders the figures (SVG and PNG) and the two report documents.
+/// Draws the figures (SVG and PNG) and renders the two report documents into `staging`,
+/// each figure's files as soon as it is drawn.
 ///
 /// With `with_figures` false no figure is drawn and the reports carry the tables only (for
 /// scripted sweeps where only the numbers matter).
-pub fn render_files(report: &Report, with_figures: bool) -> Result<Vec<OutputFile>, Error> {
+pub fn write_into(report: &Report, with_figures: bool, staging: &Staging) -> Result<(), Error> {
     let figures: Vec<Figure> = if with_figures {
-        plots::render_all(report)?
+        plots::render_all_with(report, &|figure| {
+            staging.put(&format!("{}.svg", figure.stem), figure.svg.as_bytes())?;
+            staging.put(&format!("{}.png", figure.stem), &figure.png)
+        })?
     } else {
         Vec::new()
     };
     let blocks = blocks(report, &figures);
-    let mut files = Vec::new();
-    for figure in &figures {
-        files.push(OutputFile {
-            name: format!("{}.svg", figure.stem),
-            bytes: figure.svg.clone().into_bytes(),
-        });
-        files.push(OutputFile {
-            name: format!("{}.png", figure.stem),
-            bytes: figure.png.clone(),
-        });
-    }
-    files.push(OutputFile {
-        name: "report.md".into(),
-        bytes: markdown(&blocks, &figures).into_bytes(),
-    });
-    files.push(OutputFile {
-        name: "report.html".into(),
-        bytes: html(report, &blocks, &figures).into_bytes(),
-    });
-    Ok(files)
+    staging.put("report.md", markdown(&blocks, &figures).as_bytes())?;
+    staging.put("report.html", html(report, &blocks, &figures).as_bytes())
 }
 
 /// Fixed-decimal number, or a dash when absent.

@@ -91,6 +91,22 @@ pub fn write_report_folder(
     name: &str,
     files: &[OutputFile],
 ) -> Result<PathBuf, Error> {
+    write_report_folder_with(out_dir, name, |staging| {
+        files
+            .iter()
+            .try_for_each(|file| staging.put(&file.name, &file.bytes))
+    })
+}
+
+/// Writes `out_dir/<name>/` from `fill`, which puts each file into the staging folder as
+/// soon as it is ready (from any thread), so writing overlaps the drawing of the rest. The
+/// folder is installed whole when `fill` succeeds; when it fails nothing new is left behind
+/// and the previous report is intact, as with [`write_report_folder`].
+pub fn write_report_folder_with(
+    out_dir: &Path,
+    name: &str,
+    fill: impl FnOnce(&Staging) -> Result<(), Error>,
+) -> Result<PathBuf, Error> {
     if !is_safe_folder_name(name) {
         return Err(output_error(
             &out_dir.join(name),
@@ -99,7 +115,7 @@ pub fn write_report_folder(
     }
     check_output_dir(out_dir)?;
     let created = create_missing(out_dir)?;
-    let result = write_inside(out_dir, name, files);
+    let result = write_inside(out_dir, name, fill);
     if result.is_err() {
         // Remove only folders this call created, deepest first, and only while empty.
         for dir in created.iter().rev() {
@@ -107,6 +123,31 @@ pub fn write_report_folder(
         }
     }
     result
+}
+
+/// The hidden folder a report is written into before it is moved into place.
+pub struct Staging {
+    dir: PathBuf,
+}
+
+impl Staging {
+    /// Writes one file of the report. `name` is a plain file name (no folder part); this may
+    /// be called from several threads at once for different files.
+    pub fn put(&self, name: &str, bytes: &[u8]) -> Result<(), Error> {
+        let path = self.dir.join(name);
+        if !is_safe_file_name(name) {
+            return Err(output_error(
+                &path,
+                "not a plain file name inside the report folder",
+            ));
+        }
+        fs::write(&path, bytes).map_err(|e| output_error(&path, e))
+    }
+}
+
+/// Whether `name` names a file directly inside the report folder.
+fn is_safe_file_name(name: &str) -> bool {
+    !name.is_empty() && name != "." && name != ".." && !name.contains(['/', '\\', '\0'])
 }
 
 /// Creates `dir` and its missing ancestors, returning those it created (outermost first).
@@ -137,7 +178,11 @@ fn create_missing(dir: &Path) -> Result<Vec<PathBuf>, Error> {
     Ok(created)
 }
 
-fn write_inside(out_dir: &Path, name: &str, files: &[OutputFile]) -> Result<PathBuf, Error> {
+fn write_inside(
+    out_dir: &Path,
+    name: &str,
+    fill: impl FnOnce(&Staging) -> Result<(), Error>,
+) -> Result<PathBuf, Error> {
     let target = out_dir.join(name);
     if target.exists() && !target.is_dir() {
         return Err(output_error(
@@ -151,10 +196,9 @@ fn write_inside(out_dir: &Path, name: &str, files: &[OutputFile]) -> Result<Path
     }
     let result = (|| {
         fs::create_dir(&staging).map_err(|e| output_error(&staging, e))?;
-        for file in files {
-            let path = staging.join(&file.name);
-            fs::write(&path, &file.bytes).map_err(|e| output_error(&path, e))?;
-        }
+        fill(&Staging {
+            dir: staging.clone(),
+        })?;
         install(&staging, &target, out_dir, name)?;
         Ok(target.clone())
     })();
@@ -222,7 +266,7 @@ mod tests {
     fn a_failed_write_keeps_the_previous_report() {
         let dir = tempfile::tempdir().unwrap();
         write_report_folder(dir.path(), "p", &report("old")).unwrap();
-        // A file name with a separator into a missing folder cannot be written.
+        // A file name with a folder part is refused.
         let bad = vec![OutputFile {
             name: "missing/report.json".into(),
             bytes: b"new".to_vec(),
