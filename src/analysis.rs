@@ -146,7 +146,12 @@ pub fn evaluate(plan: &Plan, progress: &(dyn Fn(&str) + Sync)) -> Result<Report,
         caution: CAUTION.to_owned(),
     };
     for corner in per_corner {
-        report.points.extend(corner.points);
+        if report.points.is_empty() {
+            // One case (the usual single stage and temperature): take its points whole.
+            report.points = corner.points;
+        } else {
+            report.points.extend(corner.points);
+        }
         report.intercepts.extend(corner.intercepts);
         report.stages.push(corner.stage);
         report.budget.extend(corner.budget);

@@ -4,7 +4,7 @@
 use clap::{Parser, Subcommand};
 use linbudget::run::{check_within, run, RunOptions};
 use linbudget::workload::DEFAULT_MAX_WORK;
-use std::io::{IsTerminal, Write};
+use std::io::IsTerminal;
 use std::path::PathBuf;
 use std::process::ExitCode;
 
@@ -146,9 +146,10 @@ fn main() -> ExitCode {
                     }
                     if json {
                         let mut stdout = std::io::stdout().lock();
-                        if let Ok(text) = linbudget::report::json::to_json(&outcome.report) {
-                            let _ = stdout.write_all(&text);
-                        }
+                        let _ = linbudget::report::json::write_json(
+                            &outcome.report,
+                            std::io::BufWriter::new(&mut stdout),
+                        );
                     }
                     eprintln!(
                         "{}: plan `{}` {} — report in {}",

@@ -51,20 +51,18 @@ pub fn write_files(report: &Report, with_figures: bool, staging: &Staging) -> Re
 fn write_tables(report: &Report, staging: &Staging) -> Result<(), Error> {
     let (json, (csv, summary)) = rayon::join(
         || {
-            let bytes = json::to_json(report).map_err(|e| Error::Output {
-                path: "report.json".into(),
-                reason: e.to_string(),
-            })?;
-            staging.put("report.json", &bytes)
+            staging.put_streamed("report.json", |file| {
+                json::write_json(report, file).map_err(|e| e.to_string())
+            })
         },
         || {
             rayon::join(
                 || {
-                    let bytes = csv_export::points_csv(report).map_err(|e| Error::Output {
-                        path: "points.csv".into(),
-                        reason: e.to_string(),
-                    })?;
-                    staging.put("points.csv", &bytes)
+                    staging.put_streamed("points.csv", |file| {
+                        csv_export::write_points_csv(report, file)
+                            .map(|_| ())
+                            .map_err(|e| e.to_string())
+                    })
                 },
                 || staging.put("summary.md", markdown::summary(report).as_bytes()),
             )

@@ -7,7 +7,12 @@ use super::{Harmonics, Report};
 /// Numbers are written in their shortest round-trip form, so a script reading the table gets
 /// back exactly the values of `report.json`.
 pub fn points_csv(report: &Report) -> Result<Vec<u8>, csv::Error> {
-    let mut writer = csv::Writer::from_writer(Vec::with_capacity(200 * report.points.len()));
+    write_points_csv(report, Vec::with_capacity(200 * report.points.len()))
+}
+
+/// Streams the drive points as CSV into `sink` (buffered by the CSV writer), returning it.
+pub fn write_points_csv<W: std::io::Write>(report: &Report, sink: W) -> Result<W, csv::Error> {
+    let mut writer = csv::Writer::from_writer(sink);
     let highest = report
         .points
         .iter()
@@ -39,7 +44,7 @@ pub fn points_csv(report: &Report) -> Result<Vec<u8>, csv::Error> {
     );
     writer.write_record(&header)?;
     let mut text = ryu::Buffer::new();
-    let mut number = |writer: &mut csv::Writer<Vec<u8>>, value: Option<f64>| match value {
+    let mut number = |writer: &mut csv::Writer<W>, value: Option<f64>| match value {
         Some(v) if v.is_finite() => writer.write_field(text.format_finite(v)),
         Some(v) => writer.write_field(v.to_string()),
         None => writer.write_field(""),

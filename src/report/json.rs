@@ -16,11 +16,21 @@ const LINED_DEPTH: usize = 2;
 
 /// The report as JSON text (UTF-8, ending in a newline).
 pub fn to_json(report: &Report) -> serde_json::Result<Vec<u8>> {
-    let mut bytes = Vec::with_capacity(600 * report.points.len() + 64 * 1024);
-    let mut serializer = serde_json::Serializer::with_formatter(&mut bytes, RecordLines::default());
-    report.serialize(&mut serializer)?;
-    bytes.push(b'\n');
+    let mut bytes = Vec::with_capacity(800 * report.points.len() + 64 * 1024);
+    write_json(report, &mut bytes)?;
     Ok(bytes)
+}
+
+/// Streams the report as JSON text (UTF-8, ending in a newline) into `writer`; give it a
+/// buffered writer.
+pub fn write_json<W: Write>(report: &Report, mut writer: W) -> serde_json::Result<()> {
+    let mut serializer =
+        serde_json::Serializer::with_formatter(&mut writer, RecordLines::default());
+    report.serialize(&mut serializer)?;
+    writer
+        .write_all(b"\n")
+        .and_then(|()| writer.flush())
+        .map_err(serde_json::Error::io)
 }
 
 /// Indents the outer containers and keeps every deeper one on a single line.

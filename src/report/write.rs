@@ -143,6 +143,27 @@ impl Staging {
         }
         fs::write(&path, bytes).map_err(|e| output_error(&path, e))
     }
+
+    /// Writes one file of the report by streaming into it through a buffer, for large
+    /// tables that need not be held in memory whole. `write` reports failures as text.
+    pub fn put_streamed(
+        &self,
+        name: &str,
+        write: impl FnOnce(&mut std::io::BufWriter<fs::File>) -> Result<(), String>,
+    ) -> Result<(), Error> {
+        let path = self.dir.join(name);
+        if !is_safe_file_name(name) {
+            return Err(output_error(
+                &path,
+                "not a plain file name inside the report folder",
+            ));
+        }
+        let file = fs::File::create(&path).map_err(|e| output_error(&path, e))?;
+        let mut buffered = std::io::BufWriter::with_capacity(1 << 16, file);
+        write(&mut buffered).map_err(|reason| output_error(&path, reason))?;
+        use std::io::Write;
+        buffered.flush().map_err(|e| output_error(&path, e))
+    }
 }
 
 /// Whether `name` names a file directly inside the report folder.
