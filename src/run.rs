@@ -4,6 +4,7 @@
 use crate::analysis;
 use crate::error::Error;
 use crate::plan::Plan;
+use crate::plots;
 use crate::report::write::{check_output_dir, write_report_folder_with, Staging};
 use crate::report::{csv_export, datasheet, json, markdown, Report};
 use crate::workload;
@@ -36,39 +37,75 @@ pub struct RunOutcome {
 }
 
 /// Renders every file of the report folder into `staging`, each written as soon as it is
-/// ready: the tables (report.json, points.csv, summary.md), the figures and the report
-/// documents, side by side.
+/// ready: the tables (report.json, points.csv, summary.md), the figures (SVG and PNG) and the
+/// report documents.
+///
+/// The pieces are independent tasks of very unequal cost (a dense sweep's harmonics raster
+/// takes ten times its summary), so they are started longest first: with the workers
+/// greedily taking the next task, the last one to finish is then a short one.
 pub fn write_files(report: &Report, with_figures: bool, staging: &Staging) -> Result<(), Error> {
-    let (tables, documents) = rayon::join(
-        || write_tables(report, staging),
-        || datasheet::write_into(report, with_figures, staging),
-    );
-    tables.and(documents)
-}
-
-/// The machine- and human-readable tables: report.json, points.csv, summary.md (each a pass
-/// over every point, so rendered side by side).
-fn write_tables(report: &Report, staging: &Staging) -> Result<(), Error> {
-    let (json, (csv, summary)) = rayon::join(
-        || {
+    let sketches = if with_figures {
+        plots::sketches(report)
+    } else {
+        Vec::new()
+    };
+    type Task<'a> = Box<dyn FnOnce() -> Result<(), Error> + Send + 'a>;
+    // (relative cost, task); the costs are rough shares of a dense sweep's run.
+    let mut tasks: Vec<(u32, Task)> = Vec::new();
+    for sketch in &sketches {
+        tasks.push((
+            sketch.raster_cost(),
+            Box::new(move || staging.put(&format!("{}.png", sketch.stem()), &sketch.draw_png()?)),
+        ));
+    }
+    tasks.push((
+        5,
+        Box::new(|| {
             staging.put_streamed("report.json", |file| {
                 json::write_json(report, file).map_err(|e| e.to_string())
             })
-        },
-        || {
-            rayon::join(
-                || {
-                    staging.put_streamed("points.csv", |file| {
-                        csv_export::write_points_csv(report, file)
-                            .map(|_| ())
-                            .map_err(|e| e.to_string())
-                    })
-                },
-                || staging.put("summary.md", markdown::summary(report).as_bytes()),
-            )
-        },
-    );
-    json.and(csv).and(summary)
+        }),
+    ));
+    tasks.push((
+        3,
+        Box::new(|| {
+            staging.put_streamed("points.csv", |file| {
+                csv_export::write_points_csv(report, file)
+                    .map(|_| ())
+                    .map_err(|e| e.to_string())
+            })
+        }),
+    ));
+    tasks.push((
+        1 + sketches.len() as u32,
+        Box::new(|| datasheet::write_documents(report, &sketches, staging)),
+    ));
+    tasks.push((
+        1,
+        Box::new(|| staging.put("summary.md", markdown::summary(report).as_bytes())),
+    ));
+    tasks.sort_by_key(|(cost, _)| std::cmp::Reverse(*cost));
+    let first_error = std::sync::Mutex::new(None);
+    rayon::scope_fifo(|scope| {
+        for (_, task) in tasks {
+            let first_error = &first_error;
+            scope.spawn_fifo(move |_| {
+                if let Err(error) = task() {
+                    first_error
+                        .lock()
+                        .unwrap_or_else(|poisoned| poisoned.into_inner())
+                        .get_or_insert(error);
+                }
+            });
+        }
+    });
+    match first_error
+        .into_inner()
+        .unwrap_or_else(|poisoned| poisoned.into_inner())
+    {
+        Some(error) => Err(error),
+        None => Ok(()),
+    }
 }
 
 /// Validates a plan file, including its estimated work against the default limit.

@@ -69,10 +69,19 @@ pub struct HarmonicsPlot {
     slug: String,
     frequency_hz: f64,
     temps: Vec<f64>,
-    points: Vec<PointRecord>,
+    points: Vec<Row>,
     budget: Vec<BudgetRecord>,
     series: Vec<Series>,
     floor_dbc: f64,
+}
+
+/// What the figure reads of one drive point (a dense sweep has thousands: copying whole
+/// records cost more than drawing them).
+struct Row {
+    temperature_c: f64,
+    amplitude_v: f64,
+    /// The value of each series, in series order.
+    values: Vec<Option<f64>>,
 }
 
 impl HarmonicsPlot {
@@ -83,12 +92,6 @@ impl HarmonicsPlot {
             .iter()
             .find(|p| p.stage == stage)?
             .frequency_hz;
-        let points: Vec<PointRecord> = report
-            .points
-            .iter()
-            .filter(|p| p.stage == stage && p.frequency_hz == frequency_hz)
-            .cloned()
-            .collect();
         let budget: Vec<BudgetRecord> = report
             .budget
             .iter()
@@ -102,6 +105,16 @@ impl HarmonicsPlot {
             }
         }
         let series: Vec<Series> = metrics.into_iter().map(Series::new).collect();
+        let points: Vec<Row> = report
+            .points
+            .iter()
+            .filter(|p| p.stage == stage && p.frequency_hz == frequency_hz)
+            .map(|p| Row {
+                temperature_c: p.temperature_c,
+                amplitude_v: p.amplitude_v,
+                values: series.iter().map(|s| s.value(p)).collect(),
+            })
+            .collect();
         let temps: Vec<f64> = temperatures(report)
             .into_iter()
             .filter(|t| points.iter().any(|p| p.temperature_c == *t))
@@ -144,8 +157,9 @@ impl Drawing for HarmonicsPlot {
         let missing: Vec<String> = self
             .series
             .iter()
-            .filter(|s| self.points.iter().all(|p| s.value(p).is_none()))
-            .map(|s| s.label.clone())
+            .enumerate()
+            .filter(|(k, _)| self.points.iter().all(|p| p.values[*k].is_none()))
+            .map(|(_, s)| s.label.clone())
             .collect();
         let verdict = if self.budget.is_empty() {
             "no distortion budget lines".to_owned()
@@ -170,7 +184,7 @@ impl Drawing for HarmonicsPlot {
         let values = self
             .points
             .iter()
-            .flat_map(|p| self.series.iter().filter_map(move |s| s.value(p)))
+            .flat_map(|p| p.values.iter().flatten().copied())
             .chain(
                 self.budget
                     .iter()
@@ -257,7 +271,7 @@ impl Drawing for HarmonicsPlot {
         }
 
         for (ti, t) in self.temps.iter().enumerate() {
-            let at_t: Vec<&PointRecord> = self
+            let at_t: Vec<&Row> = self
                 .points
                 .iter()
                 .filter(|p| p.temperature_c == *t)
@@ -270,7 +284,7 @@ impl Drawing for HarmonicsPlot {
                 let colour = metric_colour(&series.metric);
                 let data: Vec<(f64, Option<f64>)> = at_t
                     .iter()
-                    .map(|p| (p.amplitude_v, series.value(p)))
+                    .map(|p| (p.amplitude_v, p.values[si_]))
                     .collect();
                 let style = if series.metric == "thd" {
                     colour.mix(0.45).stroke_width(9)

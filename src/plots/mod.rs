@@ -133,35 +133,102 @@ pub fn register_fonts() {
     });
 }
 
-fn render<D: Drawing + Sync>(drawing: &D) -> Result<Figure, Error> {
-    register_fonts();
-    let stem = drawing.stem();
-    let fail = |what: &str, reason: String| Error::Output {
+/// A figure prepared for drawing: its data gathered from the report, its vector and raster
+/// forms not drawn yet (they are independent, so they can be drawn on different workers).
+pub struct Sketch {
+    kind: PlotKind,
+    stem: String,
+    title: String,
+    caption: String,
+    svg: Box<dyn Fn() -> Result<String, Error> + Send + Sync>,
+    png: Box<dyn Fn() -> Result<Vec<u8>, Error> + Send + Sync>,
+}
+
+impl Sketch {
+    fn new<D: Drawing + Send + Sync + 'static>(drawing: D) -> Self {
+        let drawing = std::sync::Arc::new(drawing);
+        let for_png = drawing.clone();
+        Sketch {
+            kind: drawing.kind(),
+            stem: drawing.stem(),
+            title: drawing.title(),
+            caption: drawing.caption(),
+            png: Box::new(move || {
+                CANVAS.with(|canvas| raster(&*for_png, &mut canvas.borrow_mut()))
+            }),
+            svg: Box::new(move || vector(&*drawing)),
+        }
+    }
+
+    /// The family of the figure.
+    pub fn kind(&self) -> PlotKind {
+        self.kind
+    }
+
+    /// File stem: the figure is written as `<stem>.svg` and `<stem>.png`.
+    pub fn stem(&self) -> &str {
+        &self.stem
+    }
+
+    /// The SVG document.
+    pub fn draw_svg(&self) -> Result<String, Error> {
+        (self.svg)()
+    }
+
+    /// The PNG file.
+    pub fn draw_png(&self) -> Result<Vec<u8>, Error> {
+        (self.png)()
+    }
+
+    /// Both forms, drawn side by side.
+    pub fn draw(&self) -> Result<Figure, Error> {
+        let (png, svg) = rayon::join(|| self.draw_png(), || self.draw_svg());
+        Ok(self.figure(svg?, png?))
+    }
+
+    /// The figure from its drawn forms (`png` may be empty when it was written elsewhere).
+    pub fn figure(&self, svg: String, png: Vec<u8>) -> Figure {
+        Figure {
+            kind: self.kind,
+            stem: self.stem.clone(),
+            title: self.title.clone(),
+            caption: self.caption.clone(),
+            svg,
+            png,
+        }
+    }
+
+    /// Rough relative cost of drawing the raster form, for scheduling the longest first: the
+    /// figures drawing every drive point as thick lines cost most.
+    pub fn raster_cost(&self) -> u32 {
+        match self.kind {
+            PlotKind::Harmonics | PlotKind::TwoTone => 8,
+            PlotKind::Transfer => 6,
+            PlotKind::StageComparison | PlotKind::Frequency | PlotKind::Sizing => 5,
+            PlotKind::MonteCarlo => 4,
+            PlotKind::Spectrum => 3,
+        }
+    }
+}
+
+fn failure(stem: &str, what: &str, reason: String) -> Error {
+    Error::Output {
         path: format!("{stem}.{what}").into(),
         reason,
-    };
-    // The vector and the raster drawing are independent: draw them side by side.
-    let (svg, png) = rayon::join(
-        || -> Result<String, Error> {
-            let mut svg = String::new();
-            {
-                let root =
-                    SVGBackend::with_string(&mut svg, (WIDTH_PX, HEIGHT_PX)).into_drawing_area();
-                drawing.draw(&root).map_err(|e| fail("svg", e.0))?;
-                root.present().map_err(|e| fail("svg", e.to_string()))?;
-            }
-            Ok(svg)
-        },
-        || CANVAS.with(|canvas| raster(drawing, &mut canvas.borrow_mut(), &fail)),
-    );
-    Ok(Figure {
-        kind: drawing.kind(),
-        stem,
-        title: drawing.title(),
-        caption: drawing.caption(),
-        svg: svg?,
-        png: png?,
-    })
+    }
+}
+
+/// The SVG form of a drawing.
+fn vector<D: Drawing>(drawing: &D) -> Result<String, Error> {
+    register_fonts();
+    let fail = |reason| failure(&drawing.stem(), "svg", reason);
+    let mut svg = String::new();
+    {
+        let root = SVGBackend::with_string(&mut svg, (WIDTH_PX, HEIGHT_PX)).into_drawing_area();
+        drawing.draw(&root).map_err(|e| fail(e.0))?;
+        root.present().map_err(|e| fail(e.to_string()))?;
+    }
+    Ok(svg)
 }
 
 thread_local! {
@@ -171,16 +238,14 @@ thread_local! {
 }
 
 /// Draws `drawing` on `canvas` (resized to the figure) and encodes it as PNG.
-fn raster<D: Drawing>(
-    drawing: &D,
-    canvas: &mut Vec<u8>,
-    fail: &dyn Fn(&str, String) -> Error,
-) -> Result<Vec<u8>, Error> {
+fn raster<D: Drawing>(drawing: &D, canvas: &mut Vec<u8>) -> Result<Vec<u8>, Error> {
+    register_fonts();
+    let fail = |reason| failure(&drawing.stem(), "png", reason);
     canvas.resize((WIDTH_PX * HEIGHT_PX * 3) as usize, 0);
     {
         let root = BitMapBackend::with_buffer(canvas, (WIDTH_PX, HEIGHT_PX)).into_drawing_area();
-        drawing.draw(&root).map_err(|e| fail("png", e.0))?;
-        root.present().map_err(|e| fail("png", e.to_string()))?;
+        drawing.draw(&root).map_err(|e| fail(e.0))?;
+        root.present().map_err(|e| fail(e.to_string()))?;
     }
     let mut png = Vec::new();
     use image::ImageEncoder;
@@ -193,64 +258,53 @@ fn raster<D: Drawing>(
         image::codecs::png::FilterType::Paeth,
     )
     .write_image(canvas, WIDTH_PX, HEIGHT_PX, image::ColorType::Rgb8)
-    .map_err(|e| fail("png", e.to_string()))?;
+    .map_err(|e| fail(e.to_string()))?;
     Ok(png)
-}
-
-type Job = Box<dyn Fn() -> Result<Figure, Error> + Send + Sync>;
-
-fn job<D: Drawing + Sync + Send + 'static>(drawing: D) -> Job {
-    Box::new(move || render(&drawing))
 }
 
 /// Draws every figure the report has data for, in a fixed order (stage by stage, in plan
 /// order, then the cross-stage figures).
 pub fn render_all(report: &Report) -> Result<Vec<Figure>, Error> {
-    render_all_with(report, &|_| Ok(()))
+    sketches(report).par_iter().map(Sketch::draw).collect()
 }
 
-/// [`render_all`], handing each figure to `on_drawn` as soon as it is drawn, from the worker
-/// that drew it (to write its files while the others are still being drawn).
-pub fn render_all_with(
-    report: &Report,
-    on_drawn: &(dyn Fn(&Figure) -> Result<(), Error> + Sync),
-) -> Result<Vec<Figure>, Error> {
-    let mut jobs: Vec<Job> = Vec::new();
-    let stages = style::stage_names(report);
+type Maker<'a> = Box<dyn Fn() -> Option<Sketch> + Send + Sync + 'a>;
+
+fn maker<'a, D: Drawing + Send + Sync + 'static>(
+    make: impl Fn() -> Option<D> + Send + Sync + 'a,
+) -> Maker<'a> {
+    Box::new(move || make().map(Sketch::new))
+}
+
+/// Every figure the report has data for, prepared (in parallel) but not drawn, in the fixed
+/// order of [`render_all`].
+pub fn sketches(report: &Report) -> Vec<Sketch> {
+    let mut makers: Vec<Maker> = Vec::new();
     let mut stems: Vec<String> = Vec::new();
-    for stage in &stages {
-        let slug = unique_slug(stage, &mut stems);
-        if let Some(d) = transfer::TransferPlot::new(report, stage, &slug) {
-            jobs.push(job(d));
+    for stage in style::stage_names(report) {
+        let slug = unique_slug(&stage, &mut stems);
+        let (stage, slug) = (std::sync::Arc::new(stage), std::sync::Arc::new(slug));
+        macro_rules! per_stage {
+            ($plot:path) => {{
+                let (stage, slug) = (stage.clone(), slug.clone());
+                makers.push(maker(move || $plot(report, &stage, &slug)));
+            }};
         }
-        if let Some(d) = harmonics::HarmonicsPlot::new(report, stage, &slug) {
-            jobs.push(job(d));
-        }
-        if let Some(d) = two_tone::TwoTonePlot::new(report, stage, &slug) {
-            jobs.push(job(d));
-        }
-        if let Some(d) = spectrum::SpectrumPlot::new(report, stage, &slug) {
-            jobs.push(job(d));
-        }
-        if let Some(d) = sizing::SizingPlot::new(report, stage, &slug) {
-            jobs.push(job(d));
-        }
-        if let Some(d) = frequency::FrequencyPlot::new(report, stage, &slug) {
-            jobs.push(job(d));
-        }
-        if let Some(d) = monte_carlo::MonteCarloPlot::new(report, stage, &slug) {
-            jobs.push(job(d));
-        }
+        per_stage!(transfer::TransferPlot::new);
+        per_stage!(harmonics::HarmonicsPlot::new);
+        per_stage!(two_tone::TwoTonePlot::new);
+        per_stage!(spectrum::SpectrumPlot::new);
+        per_stage!(sizing::SizingPlot::new);
+        per_stage!(frequency::FrequencyPlot::new);
+        per_stage!(monte_carlo::MonteCarloPlot::new);
     }
-    if let Some(d) = compare::ComparisonPlot::new(report) {
-        jobs.push(job(d));
-    }
-    jobs.par_iter()
-        .map(|job| {
-            let figure = job()?;
-            on_drawn(&figure)?;
-            Ok(figure)
-        })
+    makers.push(maker(move || compare::ComparisonPlot::new(report)));
+    makers
+        .par_iter()
+        .map(|make| make())
+        .collect::<Vec<_>>()
+        .into_iter()
+        .flatten()
         .collect()
 }
 

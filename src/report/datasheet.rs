@@ -40,20 +40,22 @@ pub struct Table {
     pub rows: Vec<Vec<String>>,
 }
 
-/// Draws the figures (SVG and PNG) and renders the two report documents into `staging`,
-/// each figure's files as soon as it is drawn.
-///
-/// With `with_figures` false no figure is drawn and the reports carry the tables only (for
-/// scripted sweeps where only the numbers matter).
-pub fn write_into(report: &Report, with_figures: bool, staging: &Staging) -> Result<(), Error> {
-    let figures: Vec<Figure> = if with_figures {
-        plots::render_all_with(report, &|figure| {
-            staging.put(&format!("{}.svg", figure.stem), figure.svg.as_bytes())?;
-            staging.put(&format!("{}.png", figure.stem), &figure.png)
-        })?
-    } else {
-        Vec::new()
-    };
+/// Draws the vector form of every figure and renders the two report documents into
+/// `staging` (the SVGs inline in report.html). The PNGs are drawn and written separately.
+pub fn write_documents(
+    report: &Report,
+    sketches: &[plots::Sketch],
+    staging: &Staging,
+) -> Result<(), Error> {
+    use rayon::prelude::*;
+    let figures: Vec<Figure> = sketches
+        .par_iter()
+        .map(|sketch| {
+            let svg = sketch.draw_svg()?;
+            staging.put(&format!("{}.svg", sketch.stem()), svg.as_bytes())?;
+            Ok(sketch.figure(svg, Vec::new()))
+        })
+        .collect::<Result<_, Error>>()?;
     let blocks = blocks(report, &figures);
     staging.put("report.md", markdown(&blocks, &figures).as_bytes())?;
     staging.put("report.html", html(report, &blocks, &figures).as_bytes())
