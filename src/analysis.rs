@@ -224,7 +224,6 @@ fn evaluate_corner(
 ) -> Result<CornerResult, Error> {
     let engine = build_engine(spec, temperature_c, context)?;
     let fail = attribute(spec, temperature_c);
-    let figures = Figures::new(engine.as_ref(), plan);
     let mut warnings = Vec::new();
 
     let drive_points: Vec<(f64, f64)> = plan
@@ -234,21 +233,40 @@ fn evaluate_corner(
         .flat_map(|f| plan.drive.amplitudes.iter().map(move |a| (*f, *a)))
         .collect();
     let engine_ref = engine.as_ref();
-    let points: Vec<PointRecord> = drive_points
-        .par_iter()
-        .map(|(frequency, amplitude)| {
-            point_record(
-                plan,
-                spec,
-                temperature_c,
-                engine_ref,
-                *frequency,
-                *amplitude,
-            )
-            .map_err(|failure| at_drive_point(failure, *amplitude, *frequency))
-        })
-        .collect::<Result<Vec<_>, SolveFailure>>()
-        .map_err(&fail)?;
+    // The stage-wide figures (gain, steering, noise, intercepts, compression) do not depend
+    // on the drive points: work them out alongside, so no core waits for the other.
+    let (points, figures) = rayon::join(
+        || {
+            drive_points
+                .par_iter()
+                .map(|(frequency, amplitude)| {
+                    point_record(
+                        plan,
+                        spec,
+                        temperature_c,
+                        engine_ref,
+                        *frequency,
+                        *amplitude,
+                    )
+                    .map_err(|failure| at_drive_point(failure, *amplitude, *frequency))
+                })
+                .collect::<Result<Vec<_>, SolveFailure>>()
+        },
+        || {
+            let figures = Figures::new(engine_ref, plan);
+            figures.gain()?;
+            figures.steering()?;
+            figures.noise()?;
+            for &frequency in &plan.drive.frequencies {
+                figures.intercept(frequency)?;
+                figures.p1db(frequency)?;
+                figures.gain_at(frequency)?;
+            }
+            Ok::<_, SolveFailure>(figures)
+        },
+    );
+    let points = points.map_err(&fail)?;
+    let figures = figures.map_err(&fail)?;
     warnings.extend(forward_active_warnings(spec, temperature_c, &points));
 
     let gain = figures.gain().map_err(&fail)?;
