@@ -314,8 +314,12 @@ fn evaluate_corner(
                 .fold(f64::INFINITY, f64::min);
             if plan.drive.two_tone_spacing.is_some() && smallest > 2.0 * i.fit_amplitude_v {
                 warnings.push(format!(
-                    "stage `{}` at {} °C: every plan amplitude is above the small-signal region (IM3 slope 3:1 only below about {:.3e} V); extrapolating an intercept from the plan's points would be wrong, so it was fitted at {:.3e} V",
-                    spec.name, temperature_c, 2.0 * i.fit_amplitude_v, i.fit_amplitude_v
+                    "stage `{}` at {} °C, {}: every plan amplitude is above the small-signal region (IM3 slope 3:1 only below about {}); extrapolating an intercept from the plan's points would be wrong, so it was fitted at {}",
+                    spec.name,
+                    temperature_c,
+                    format_si(frequency, "Hz"),
+                    format_si(2.0 * i.fit_amplitude_v, "V"),
+                    format_si(i.fit_amplitude_v, "V")
                 ));
             }
         }
