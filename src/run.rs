@@ -85,25 +85,28 @@ pub fn write_files(report: &Report, with_figures: bool, staging: &Staging) -> Re
         Box::new(|| staging.put("summary.md", markdown::summary(report).as_bytes())),
     ));
     tasks.sort_by_key(|(cost, _)| std::cmp::Reverse(*cost));
-    let first_error = std::sync::Mutex::new(None);
+    // When several tasks fail, report the one first in the list, whatever finished first.
+    let failure: std::sync::Mutex<Option<(usize, Error)>> = std::sync::Mutex::new(None);
     rayon::scope_fifo(|scope| {
-        for (_, task) in tasks {
-            let first_error = &first_error;
+        for (index, (_, task)) in tasks.into_iter().enumerate() {
+            let failure = &failure;
             scope.spawn_fifo(move |_| {
                 if let Err(error) = task() {
-                    first_error
+                    let mut slot = failure
                         .lock()
-                        .unwrap_or_else(|poisoned| poisoned.into_inner())
-                        .get_or_insert(error);
+                        .unwrap_or_else(|poisoned| poisoned.into_inner());
+                    if slot.as_ref().is_none_or(|(first, _)| index < *first) {
+                        *slot = Some((index, error));
+                    }
                 }
             });
         }
     });
-    match first_error
+    match failure
         .into_inner()
         .unwrap_or_else(|poisoned| poisoned.into_inner())
     {
-        Some(error) => Err(error),
+        Some((_, error)) => Err(error),
         None => Ok(()),
     }
 }
