@@ -97,18 +97,11 @@ impl FftCache {
             .clone()
     }
 
-    /// Peak amplitudes of harmonics `0..=count` of two real waveforms of the same length,
-    /// from one complex FFT of `a + i·b` (the standard packing of two real transforms:
-    /// `A_k = (Z_k + conj Z_{N−k})/2`, `B_k = (Z_k − conj Z_{N−k})/(2i)`). Same normalisation
-    /// as [`FftCache::harmonic_amplitudes`].
-    pub fn two_real_amplitudes(&self, a: &[f64], b: &[f64], count: usize) -> (Vec<f64>, Vec<f64>) {
-        let mut buffer: Vec<Complex<f64>> =
-            a.iter().zip(b).map(|(&x, &y)| Complex::new(x, y)).collect();
-        self.two_real_amplitudes_packed(&mut buffer, &mut Vec::new(), count)
-    }
-
-    /// [`FftCache::two_real_amplitudes`] of a buffer already packed as `a + i·b` (transformed
-    /// in place), with a reusable FFT scratch vector.
+    /// Peak amplitudes of harmonics `0..=count` of two real waveforms `a` and `b` of the same
+    /// length, packed as `a + i·b` in `buffer` (transformed in place, with a reusable FFT
+    /// scratch vector): one complex FFT gives both by the standard packing of two real
+    /// transforms, `A_k = (Z_k + conj Z_{N−k})/2`, `B_k = (Z_k − conj Z_{N−k})/(2i)`. Same
+    /// normalisation as [`FftCache::harmonic_amplitudes`].
     pub fn two_real_amplitudes_packed(
         &self,
         buffer: &mut [Complex<f64>],
@@ -319,8 +312,6 @@ pub struct AdaptiveResult {
     pub spectra: Vec<Spectrum>,
     /// The sample count reported.
     pub samples: usize,
-    /// Largest figure change between the last two sample counts, dB.
-    pub last_change_db: f64,
 }
 
 /// The first sample count of the adaptive analysis, whatever the number of harmonics
@@ -362,8 +353,7 @@ pub fn analyse_adaptive<E>(
             amplitudes: cache.harmonic_amplitudes(d, harmonics),
         })
         .collect();
-    let mut change = f64::INFINITY;
-    while 2 * n <= MAX_SAMPLES {
+    loop {
         let doubled = 2 * n;
         // New samples sit halfway between the old ones.
         let mut fresh: Vec<Vec<f64>> = vec![Vec::with_capacity(n); channels];
@@ -392,19 +382,17 @@ pub fn analyse_adaptive<E>(
             })
             .collect();
         if converged(&previous[0], &current[0], harmonics, floor_dbc) {
-            change = largest_change_db(&previous[0], &current[0], harmonics, floor_dbc);
             return Ok(AdaptiveResult {
                 spectra: current,
                 samples: n,
-                last_change_db: change,
             });
         }
         if 2 * n > MAX_SAMPLES {
-            change = largest_change_db(&previous[0], &current[0], harmonics, floor_dbc);
+            let change = largest_change_db(&previous[0], &current[0], harmonics, floor_dbc);
+            return Err(on_unconverged(n, change));
         }
         previous = current;
     }
-    Err(on_unconverged(n, change))
 }
 
 #[cfg(test)]

@@ -251,7 +251,7 @@ fn single_tone_in(
         Ok((Spectrum { amplitudes: a }, Spectrum { amplitudes: b }))
     };
     let mut previous = refine(n, scratch, true, &mut guess, &mut region)?;
-    while 2 * n <= MAX_SAMPLES {
+    loop {
         n *= 2;
         let current = refine(n, scratch, false, &mut guess, &mut region)?;
         if converged(&previous.0, &current.0, harmonics, ANALYSIS_FLOOR_DBC) {
@@ -275,7 +275,6 @@ fn single_tone_in(
         }
         previous = current;
     }
-    unreachable!("MAX_SAMPLES is a power of two above the first sample count")
 }
 
 /// The full period (`n` samples at `θ = 2π·j/n`) of the differential output (real part) and
