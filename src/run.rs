@@ -5,7 +5,7 @@ use crate::analysis;
 use crate::error::Error;
 use crate::plan::Plan;
 use crate::plots;
-use crate::report::write::{check_output_dir, write_report_folder_with, Staging};
+use crate::report::write::{check_output_dir, write_report_folder, Staging};
 use crate::report::{csv_export, datasheet, json, markdown, Report};
 use crate::workload;
 use std::path::{Path, PathBuf};
@@ -70,9 +70,7 @@ pub fn write_files(report: &Report, with_figures: bool, staging: &Staging) -> Re
         3,
         Box::new(|| {
             staging.put_streamed("points.csv", |file| {
-                csv_export::write_points_csv(report, file)
-                    .map(|_| ())
-                    .map_err(|e| e.to_string())
+                csv_export::write_points_csv(report, file).map_err(|e| e.to_string())
             })
         }),
     ));
@@ -134,7 +132,7 @@ pub fn run(options: &RunOptions, progress: &(dyn Fn(&str) + Sync)) -> Result<Run
     check_output_dir(&options.out)?;
     let report = analysis::evaluate(&plan, progress)?;
     progress("drawing figures and writing the report");
-    let folder = write_report_folder_with(&options.out, &plan.name, |staging| {
+    let folder = write_report_folder(&options.out, &plan.name, |staging| {
         write_files(&report, options.figures, staging)
     })?;
     Ok(RunOutcome { report, folder })

@@ -2,16 +2,12 @@
 
 use super::{Harmonics, Report};
 
-/// Renders the drive points as CSV (dB figures empty below the analysis floor).
+/// Streams the drive points as CSV into `sink` (buffered by the CSV writer; dB figures empty
+/// below the analysis floor).
 ///
 /// Numbers are written in their shortest round-trip form, so a script reading the table gets
 /// back exactly the values of `report.json`.
-pub fn points_csv(report: &Report) -> Result<Vec<u8>, csv::Error> {
-    write_points_csv(report, Vec::with_capacity(200 * report.points.len()))
-}
-
-/// Streams the drive points as CSV into `sink` (buffered by the CSV writer), returning it.
-pub fn write_points_csv<W: std::io::Write>(report: &Report, sink: W) -> Result<W, csv::Error> {
+pub fn write_points_csv<W: std::io::Write>(report: &Report, sink: W) -> Result<(), csv::Error> {
     let mut writer = csv::Writer::from_writer(sink);
     let highest = report
         .points
@@ -76,5 +72,6 @@ pub fn write_points_csv<W: std::io::Write>(report: &Report, sink: W) -> Result<W
         writer.write_field(if p.forward_active { "true" } else { "false" })?;
         writer.write_record(None::<&[u8]>)?;
     }
-    writer.into_inner().map_err(|e| e.into_error().into())
+    writer.flush()?;
+    Ok(())
 }

@@ -14,13 +14,6 @@ use std::io::{self, Write};
 /// object (1) and its lists (2). Deeper containers (the records) stay on one line.
 const LINED_DEPTH: usize = 2;
 
-/// The report as JSON text (UTF-8, ending in a newline).
-pub fn to_json(report: &Report) -> serde_json::Result<Vec<u8>> {
-    let mut bytes = Vec::with_capacity(800 * report.points.len() + 64 * 1024);
-    write_json(report, &mut bytes)?;
-    Ok(bytes)
-}
-
 /// Streams the report as JSON text (UTF-8, ending in a newline) into `writer`; give it a
 /// buffered writer.
 pub fn write_json<W: Write>(report: &Report, mut writer: W) -> serde_json::Result<()> {

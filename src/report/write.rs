@@ -15,14 +15,6 @@ use crate::error::Error;
 use std::fs;
 use std::path::{Path, PathBuf};
 
-/// One file of the output folder.
-pub struct OutputFile {
-    /// File name inside the plan's folder.
-    pub name: String,
-    /// Contents.
-    pub bytes: Vec<u8>,
-}
-
 fn output_error(path: &Path, reason: impl std::fmt::Display) -> Error {
     Error::Output {
         path: path.to_owned(),
@@ -83,26 +75,12 @@ pub fn check_output_dir(out_dir: &Path) -> Result<(), Error> {
     Ok(())
 }
 
-/// Writes `files` as `out_dir/<name>/`, replacing any previous report of that name whole.
-/// On failure nothing new is left behind (a folder `out_dir` created by this call is removed
-/// again) and the previous report is intact.
+/// Writes `out_dir/<name>/`, replacing any previous report of that name whole, from `fill`,
+/// which puts each file into the staging folder as soon as it is ready (from any thread), so
+/// writing overlaps the drawing of the rest. The folder is installed whole when `fill`
+/// succeeds; when anything fails nothing new is left behind (a folder `out_dir` created by
+/// this call is removed again) and the previous report is intact.
 pub fn write_report_folder(
-    out_dir: &Path,
-    name: &str,
-    files: &[OutputFile],
-) -> Result<PathBuf, Error> {
-    write_report_folder_with(out_dir, name, |staging| {
-        files
-            .iter()
-            .try_for_each(|file| staging.put(&file.name, &file.bytes))
-    })
-}
-
-/// Writes `out_dir/<name>/` from `fill`, which puts each file into the staging folder as
-/// soon as it is ready (from any thread), so writing overlaps the drawing of the rest. The
-/// folder is installed whole when `fill` succeeds; when it fails nothing new is left behind
-/// and the previous report is intact, as with [`write_report_folder`].
-pub fn write_report_folder_with(
     out_dir: &Path,
     name: &str,
     fill: impl FnOnce(&Staging) -> Result<(), Error>,
@@ -131,9 +109,9 @@ pub struct Staging {
 }
 
 impl Staging {
-    /// Writes one file of the report. `name` is a plain file name (no folder part); this may
-    /// be called from several threads at once for different files.
-    pub fn put(&self, name: &str, bytes: &[u8]) -> Result<(), Error> {
+    /// The path of file `name` in the staging folder, refused unless `name` is a plain file
+    /// name (no folder part).
+    fn path_of(&self, name: &str) -> Result<PathBuf, Error> {
         let path = self.dir.join(name);
         if !is_safe_file_name(name) {
             return Err(output_error(
@@ -141,6 +119,13 @@ impl Staging {
                 "not a plain file name inside the report folder",
             ));
         }
+        Ok(path)
+    }
+
+    /// Writes one file of the report. `name` is a plain file name (no folder part); this may
+    /// be called from several threads at once for different files.
+    pub fn put(&self, name: &str, bytes: &[u8]) -> Result<(), Error> {
+        let path = self.path_of(name)?;
         fs::write(&path, bytes).map_err(|e| output_error(&path, e))
     }
 
@@ -151,13 +136,7 @@ impl Staging {
         name: &str,
         write: impl FnOnce(&mut std::io::BufWriter<fs::File>) -> Result<(), String>,
     ) -> Result<(), Error> {
-        let path = self.dir.join(name);
-        if !is_safe_file_name(name) {
-            return Err(output_error(
-                &path,
-                "not a plain file name inside the report folder",
-            ));
-        }
+        let path = self.path_of(name)?;
         let file = fs::File::create(&path).map_err(|e| output_error(&path, e))?;
         let mut buffered = std::io::BufWriter::with_capacity(1 << 16, file);
         write(&mut buffered).map_err(|reason| output_error(&path, reason))?;
@@ -260,18 +239,16 @@ fn install(staging: &Path, target: &Path, out_dir: &Path, name: &str) -> Result<
 mod tests {
     use super::*;
 
-    fn report(text: &str) -> Vec<OutputFile> {
-        vec![OutputFile {
-            name: "report.json".into(),
-            bytes: text.as_bytes().to_vec(),
-        }]
+    /// A one-file report.
+    fn report(text: &str) -> impl FnOnce(&Staging) -> Result<(), Error> + '_ {
+        move |staging| staging.put("report.json", text.as_bytes())
     }
 
     #[test]
     fn a_second_run_replaces_the_first_whole_and_leaves_no_litter() {
         let dir = tempfile::tempdir().unwrap();
-        write_report_folder(dir.path(), "p", &report("old")).unwrap();
-        let folder = write_report_folder(dir.path(), "p", &report("new")).unwrap();
+        write_report_folder(dir.path(), "p", report("old")).unwrap();
+        let folder = write_report_folder(dir.path(), "p", report("new")).unwrap();
         assert_eq!(
             fs::read_to_string(folder.join("report.json")).unwrap(),
             "new"
@@ -286,13 +263,10 @@ mod tests {
     #[test]
     fn a_failed_write_keeps_the_previous_report() {
         let dir = tempfile::tempdir().unwrap();
-        write_report_folder(dir.path(), "p", &report("old")).unwrap();
+        write_report_folder(dir.path(), "p", report("old")).unwrap();
         // A file name with a folder part is refused.
-        let bad = vec![OutputFile {
-            name: "missing/report.json".into(),
-            bytes: b"new".to_vec(),
-        }];
-        assert!(write_report_folder(dir.path(), "p", &bad).is_err());
+        let bad = |staging: &Staging| staging.put("missing/report.json", b"new");
+        assert!(write_report_folder(dir.path(), "p", bad).is_err());
         assert_eq!(
             fs::read_to_string(dir.path().join("p/report.json")).unwrap(),
             "old"
@@ -304,7 +278,7 @@ mod tests {
     fn names_that_could_escape_the_folder_are_refused() {
         let dir = tempfile::tempdir().unwrap();
         for name in ["..", "../x", "a/b", "", "/abs"] {
-            assert!(write_report_folder(&dir.path().join("out"), name, &report("x")).is_err());
+            assert!(write_report_folder(&dir.path().join("out"), name, report("x")).is_err());
         }
         assert_eq!(fs::read_dir(dir.path()).unwrap().count(), 0);
     }
