@@ -54,8 +54,8 @@ impl Drawing for ComparisonPlot {
     fn kind(&self) -> PlotKind {
         PlotKind::StageComparison
     }
-    fn stem(&self) -> String {
-        "stage-comparison".into()
+    fn slug(&self) -> Option<&str> {
+        None
     }
     fn title(&self) -> String {
         "Stage comparison".into()

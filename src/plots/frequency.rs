@@ -72,8 +72,8 @@ impl Drawing for FrequencyPlot {
     fn kind(&self) -> PlotKind {
         PlotKind::Frequency
     }
-    fn stem(&self) -> String {
-        format!("frequency-{}", self.slug)
+    fn slug(&self) -> Option<&str> {
+        Some(&self.slug)
     }
     fn title(&self) -> String {
         format!("Distortion vs frequency · {}", self.stage)

@@ -139,8 +139,8 @@ impl Drawing for HarmonicsPlot {
     fn kind(&self) -> PlotKind {
         PlotKind::Harmonics
     }
-    fn stem(&self) -> String {
-        format!("harmonics-{}", self.slug)
+    fn slug(&self) -> Option<&str> {
+        Some(&self.slug)
     }
     fn title(&self) -> String {
         format!("Harmonic distortion vs amplitude · {}", self.stage)

@@ -102,8 +102,15 @@ pub type DrawResult = Result<(), PlotError>;
 pub(crate) trait Drawing: Send + Sync {
     /// Family.
     fn kind(&self) -> PlotKind;
-    /// File stem.
-    fn stem(&self) -> String;
+    /// File-name slug of the stage drawn; `None` for a figure across stages.
+    fn slug(&self) -> Option<&str>;
+    /// File stem: the family's prefix, then the stage's slug.
+    fn stem(&self) -> String {
+        match self.slug() {
+            Some(slug) => format!("{}-{slug}", self.kind().prefix()),
+            None => self.kind().prefix().to_owned(),
+        }
+    }
     /// Title.
     fn title(&self) -> String;
     /// Reading guide.

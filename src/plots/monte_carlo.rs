@@ -79,8 +79,8 @@ impl Drawing for MonteCarloPlot {
     fn kind(&self) -> PlotKind {
         PlotKind::MonteCarlo
     }
-    fn stem(&self) -> String {
-        format!("monte-carlo-{}", self.slug)
+    fn slug(&self) -> Option<&str> {
+        Some(&self.slug)
     }
     fn title(&self) -> String {
         format!("Monte Carlo spread · {}", self.stage)

@@ -73,8 +73,8 @@ impl Drawing for SizingPlot {
     fn kind(&self) -> PlotKind {
         PlotKind::Sizing
     }
-    fn stem(&self) -> String {
-        format!("sizing-{}", self.slug)
+    fn slug(&self) -> Option<&str> {
+        Some(&self.slug)
     }
     fn title(&self) -> String {
         format!("Degeneration sizing · {}", self.stage)

@@ -62,8 +62,8 @@ impl Drawing for SpectrumPlot {
     fn kind(&self) -> PlotKind {
         PlotKind::Spectrum
     }
-    fn stem(&self) -> String {
-        format!("spectrum-{}", self.slug)
+    fn slug(&self) -> Option<&str> {
+        Some(&self.slug)
     }
     fn title(&self) -> String {
         format!(

@@ -38,8 +38,8 @@ impl Drawing for TransferPlot {
     fn kind(&self) -> PlotKind {
         PlotKind::Transfer
     }
-    fn stem(&self) -> String {
-        format!("transfer-{}", self.slug)
+    fn slug(&self) -> Option<&str> {
+        Some(&self.slug)
     }
     fn title(&self) -> String {
         format!("Transfer curve · {}", self.stage)

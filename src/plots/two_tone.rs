@@ -85,8 +85,8 @@ impl Drawing for TwoTonePlot {
     fn kind(&self) -> PlotKind {
         PlotKind::TwoTone
     }
-    fn stem(&self) -> String {
-        format!("two-tone-{}", self.slug)
+    fn slug(&self) -> Option<&str> {
+        Some(&self.slug)
     }
     fn title(&self) -> String {
         format!("Two-tone intercept · {}", self.stage)
