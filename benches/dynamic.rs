@@ -2,11 +2,11 @@
 //! with every capacitance, at 10 MHz.
 
 use criterion::{criterion_group, criterion_main, Criterion};
-use linbudget::dynamic::DynamicEngine;
-use linbudget::engine::ResponseEngine;
-use linbudget::plan::Plan;
-use linbudget::spectrum::FftCache;
-use linbudget::stage::StageCircuit;
+use linbudget::model::circuit::StageCircuit;
+use linbudget::solve::dynamic::DynamicEngine;
+use linbudget::solve::response::ResponseEngine;
+use linbudget::solve::spectrum::FftCache;
+use linbudget::Plan;
 use std::hint::black_box;
 use std::sync::Arc;
 

@@ -3,11 +3,11 @@
 //! Figures are recorded in benches/README.md.
 
 use criterion::{criterion_group, criterion_main, Criterion};
-use linbudget::metrics::{single_tone, single_tone_general};
-use linbudget::plan::Plan;
-use linbudget::spectrum::FftCache;
-use linbudget::stage::StageCircuit;
-use linbudget::transfer::StaticSolver;
+use linbudget::model::circuit::StageCircuit;
+use linbudget::solve::memoryless::{single_tone, single_tone_general};
+use linbudget::solve::spectrum::FftCache;
+use linbudget::solve::transfer::StaticSolver;
+use linbudget::Plan;
 use std::hint::black_box;
 
 fn solver(emitter_resistance: &str) -> StaticSolver {

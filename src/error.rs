@@ -115,6 +115,29 @@ pub enum Error {
         /// Why it failed.
         reason: String,
     },
+    /// A value handed to the library is out of range.
+    #[error("{name}: {problem}\n  accepted: {accepted}")]
+    Argument {
+        /// Which argument or field.
+        name: String,
+        /// What is wrong.
+        problem: String,
+        /// What would be accepted.
+        accepted: String,
+    },
+    /// A figure that does not exist for this stage (an intercept without a small-signal
+    /// region, a compression point beyond any input).
+    #[error("stage `{stage}` at {temperature_c} °C: {figure} is not defined: {reason}")]
+    NotDefined {
+        /// Stage name.
+        stage: String,
+        /// Temperature, °C.
+        temperature_c: f64,
+        /// The figure asked for.
+        figure: String,
+        /// Why it does not exist.
+        reason: String,
+    },
     /// The output folder could not be prepared or written.
     #[error("cannot write output {path}: {reason}")]
     Output {
@@ -123,6 +146,18 @@ pub enum Error {
         /// What went wrong.
         reason: String,
     },
+}
+
+impl Error {
+    /// A solver failure attributed to its stage and temperature.
+    pub fn solve(stage: &str, temperature_c: f64, failure: SolveFailure) -> Error {
+        Error::Solve {
+            stage: stage.to_owned(),
+            temperature_c,
+            point: failure.point,
+            reason: failure.reason,
+        }
+    }
 }
 
 impl From<PlanError> for Error {
@@ -145,3 +180,5 @@ impl fmt::Display for SolveFailure {
         write!(f, "{}: {}", self.point, self.reason)
     }
 }
+
+impl std::error::Error for SolveFailure {}

@@ -2,8 +2,7 @@
 //! (0 met, 1 not met, 2 bad input or a failed solve).
 
 use clap::{Parser, Subcommand};
-use linbudget::run::{check_within, run, RunOptions};
-use linbudget::workload::DEFAULT_MAX_WORK;
+use linbudget::run::{check_within, run, RunOptions, DEFAULT_MAX_WORK};
 use std::io::IsTerminal;
 use std::path::PathBuf;
 use std::process::ExitCode;

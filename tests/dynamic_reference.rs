@@ -2,12 +2,13 @@
 //! theory for a capacitively loaded pair, the memoryless engine in the low-frequency limit,
 //! and the trapezoidal rule's textbook error order.
 
-use linbudget::dynamic::trapezoid::{integrate, ChargeSystem, State, StepTolerance};
-use linbudget::dynamic::DynamicEngine;
-use linbudget::engine::{MemorylessEngine, ResponseEngine};
-use linbudget::plan::Plan;
-use linbudget::spectrum::FftCache;
-use linbudget::stage::StageCircuit;
+use linbudget::model::circuit::StageCircuit;
+use linbudget::solve::dynamic::trapezoid::{integrate, ChargeSystem, State, StepTolerance};
+use linbudget::solve::dynamic::DynamicEngine;
+use linbudget::solve::memoryless::MemorylessEngine;
+use linbudget::solve::response::ResponseEngine;
+use linbudget::solve::spectrum::FftCache;
+use linbudget::Plan;
 use std::f64::consts::TAU;
 use std::sync::Arc;
 

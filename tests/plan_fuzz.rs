@@ -4,7 +4,7 @@
 //! hand-edited file typically suffers. A `cargo fuzz` target (fuzz/) drives the same entry
 //! point without these shape limits.
 
-use linbudget::plan::Plan;
+use linbudget::Plan;
 use proptest::prelude::*;
 
 const DEMO: &str = include_str!("../specs/sensor-front-end.yaml");

@@ -1,10 +1,10 @@
 //! Corners, mismatch Monte Carlo and temperature laws checked against outside references.
 
-use linbudget::analysis::{evaluate, offset_voltage};
-use linbudget::montecarlo::{draw_mismatch, quantile, run_rng, wilson_interval, Z_95};
-use linbudget::plan::{Mismatch, Plan};
-use linbudget::stage::StageCircuit;
-use linbudget::transfer::StaticSolver;
+use linbudget::measure::small_signal::offset_voltage;
+use linbudget::model::circuit::StageCircuit;
+use linbudget::solve::transfer::StaticSolver;
+use linbudget::study::montecarlo::{draw_mismatch, quantile, run_rng, wilson_interval, Z_95};
+use linbudget::{Mismatch, Plan};
 use std::f64::consts::{PI, TAU};
 
 /// φT = kT/q with the exact SI constants (CODATA 2018: k = 1.380649e-23 J/K,
@@ -17,8 +17,6 @@ fn thermal_voltage(temperature_c: f64) -> f64 {
 fn normal_cdf(x: f64) -> f64 {
     0.5 * puruspe::erfc(-x / std::f64::consts::SQRT_2)
 }
-
-fn quiet(_: &str) {}
 
 #[test]
 fn saturation_current_mismatch_gives_the_exponential_law_offset() {
@@ -138,7 +136,7 @@ fn monte_carlo_hd2_median_and_yield_match_the_tanh_pair_with_offset() {
         "name: mc\nstages:\n  - {{name: ideal, tail_current: 1 mA, load_resistance: 1k, mismatch_sigma: {{saturation_current: 1%}}}}\ndrive: {{amplitudes: [20 mV]}}\nmonte_carlo: {{runs: 4000, seed: 42}}\nbudget:\n  - {{metric: hd2, at: 20 mV, max: {ceiling}}}\n"
     );
     let plan = Plan::from_yaml(&text, "mc.yaml").unwrap();
-    let report = evaluate(&plan, &quiet).unwrap();
+    let report = plan.evaluate().unwrap();
     let record = report
         .monte_carlo
         .iter()
@@ -170,7 +168,7 @@ fn the_same_seed_gives_the_same_report_whatever_the_thread_count() {
             .num_threads(threads)
             .build()
             .unwrap();
-        pool.install(|| serde_json::to_string(&evaluate(&plan, &quiet).unwrap()).unwrap())
+        pool.install(|| serde_json::to_string(&plan.evaluate().unwrap()).unwrap())
     };
     let one = run_with(1);
     assert_eq!(one, run_with(3));
@@ -179,7 +177,7 @@ fn the_same_seed_gives_the_same_report_whatever_the_thread_count() {
     let other = Plan::from_yaml(&text.replace("seed: 9", "seed: 10"), "det.yaml").unwrap();
     assert_ne!(
         one,
-        serde_json::to_string(&evaluate(&other, &quiet).unwrap()).unwrap()
+        serde_json::to_string(&other.evaluate().unwrap()).unwrap()
     );
 }
 

@@ -2,37 +2,27 @@
 //! small-signal distortion formulas, the exact implicit transfer of the ideal degenerated pair,
 //! and facts of the trade. Each check names its source and tolerance.
 
-use linbudget::engine::{MemorylessEngine, ResponseEngine};
-use linbudget::metrics::{self, single_tone, steering_points, third_order_intercept};
-use linbudget::plan::{StageSpec, TransistorSpec};
-use linbudget::spectrum::FftCache;
-use linbudget::stage::StageCircuit;
-use linbudget::transfer::StaticSolver;
+use linbudget::measure::large_signal::third_order_intercept;
+use linbudget::measure::small_signal::{small_signal_gain, steering_points};
+use linbudget::model::circuit::StageCircuit;
+use linbudget::solve::memoryless::single_tone;
+use linbudget::solve::memoryless::MemorylessEngine;
+use linbudget::solve::response::ResponseEngine;
+use linbudget::solve::spectrum::FftCache;
+use linbudget::solve::transfer::StaticSolver;
 use linbudget::units::thermal_voltage;
+use linbudget::Stage;
 use std::f64::consts::TAU;
 use std::sync::Arc;
 
-fn ideal_stage(tail_current: f64, load: f64, emitter: f64) -> StageSpec {
-    StageSpec {
-        name: "reference".into(),
-        tail_current,
-        load_resistance: load,
-        emitter_resistance: emitter,
-        source_resistance: 0.0,
-        tail_resistance: f64::INFINITY,
-        load_capacitance: 0.0,
-        tail_capacitance: 0.0,
-        supply: 5.0,
-        input_common_mode: 2.5,
-        bias_defaulted: false,
-        transistor: TransistorSpec::default(),
-        mismatch: Default::default(),
-        mismatch_sigma: Default::default(),
-        tail_current_law: Default::default(),
-    }
+fn ideal_stage(tail_current: f64, load: f64, emitter: f64) -> Stage {
+    Stage::new("reference", tail_current, load)
+        .emitter_resistance(emitter)
+        .supply(5.0)
+        .input_common_mode(2.5)
 }
 
-fn solver(spec: &StageSpec, temperature_c: f64) -> StaticSolver {
+fn solver(spec: &Stage, temperature_c: f64) -> StaticSolver {
     StaticSolver::new(StageCircuit::new(spec, temperature_c))
 }
 
@@ -211,7 +201,7 @@ fn small_signal_gain_matches_gm_times_load() {
         let solver = solver(&spec, 27.0);
         let gm = spec.tail_current / (2.0 * solver.circuit().thermal_voltage);
         let expected = spec.load_resistance / (emitter + 1.0 / gm);
-        let got = metrics::small_signal_gain(&solver).unwrap();
+        let got = small_signal_gain(&solver).unwrap();
         assert!((got / expected - 1.0).abs() < 1e-9, "{got} vs {expected}");
     }
 }

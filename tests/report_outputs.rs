@@ -15,7 +15,7 @@ fn run_plan(plan: &Path, out: &Path) -> (Report, PathBuf) {
         out: out.to_owned(),
         json: false,
         quiet: true,
-        max_work: linbudget::workload::DEFAULT_MAX_WORK,
+        max_work: linbudget::run::DEFAULT_MAX_WORK,
         figures: true,
     };
     let outcome = run(&options, &|_| {}).expect("the plan runs");
@@ -368,7 +368,7 @@ fn markdown_datasheet_and_budget_tables_match_the_json() {
         assert_eq!(row[0], line.stage);
         assert_eq!(row[2], line.metric.to_uppercase());
         assert_eq!(row[6], format!("{:.2}", line.margin.unwrap()));
-        assert_eq!(row[7], if line.pass { "pass" } else { "FAIL" });
+        assert_eq!(row[7], if line.pass { "pass" } else { "**FAIL**" });
     }
     let passed = report.budget.iter().filter(|b| b.pass).count();
     assert!(budget.contains(&format!("{passed} of {} checks pass", report.budget.len())));

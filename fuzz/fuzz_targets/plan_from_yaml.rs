@@ -6,7 +6,7 @@ use libfuzzer_sys::fuzz_target;
 
 fuzz_target!(|data: &[u8]| {
     if let Ok(text) = std::str::from_utf8(data) {
-        if let Err(err) = linbudget::plan::Plan::from_yaml(text, "fuzz.yaml") {
+        if let Err(err) = linbudget::Plan::from_yaml(text, "fuzz.yaml") {
             assert!(!err.problem.is_empty());
         }
     }

@@ -5,314 +5,24 @@
 //!    numeric ever runs on an unvalidated plan. Every error names the file, line, column, key
 //!    path, what is wrong and what is accepted.
 
-pub mod reader;
-pub mod tree;
+pub(crate) mod reader;
+pub(crate) mod tree;
+
+mod corners;
+mod tail;
 
 use crate::error::{Error, PlanError};
+use crate::model::budget::{BudgetLine, Limit, Metric, METRIC_NAMES};
+use crate::model::drive::{Drive, DEFAULT_THD_HARMONICS};
+use crate::model::plan::{MonteCarloSettings, NoiseBand, Plan, SizingSettings};
+use crate::model::stage::{Mismatch, Stage};
+use crate::model::transistor::Transistor;
 use crate::units::Unit;
 use reader::{At, MapAt, Range};
 use std::path::Path;
 
 /// Largest plan file read, bytes (a plan is a page of text, not a data set).
 pub const MAX_PLAN_BYTES: u64 = 4 * 1024 * 1024;
-
-/// A validated plan with every quantity in SI base units.
-#[derive(Debug, Clone, PartialEq)]
-pub struct Plan {
-    /// Plan name; the output folder's name.
-    pub name: String,
-    /// Temperatures to evaluate, °C.
-    pub temperatures_c: Vec<f64>,
-    /// Stages compared side by side.
-    pub stages: Vec<StageSpec>,
-    /// Drive amplitudes and frequencies.
-    pub drive: Drive,
-    /// Monte Carlo mismatch analysis, if asked for.
-    pub monte_carlo: Option<MonteCarloSpec>,
-    /// Budget lines, checked for every stage and temperature.
-    pub budget: Vec<BudgetLine>,
-    /// Degeneration sizing, if asked for.
-    pub sizing: Option<SizingSpec>,
-    /// Noise bandwidth for integrated noise and SNR, if given.
-    pub noise_band: Option<NoiseBand>,
-    /// Reference impedance for dBm figures, ohms, if given.
-    pub reference_impedance: Option<f64>,
-    /// Process corners, the typical one first (see [`crate::corner`]).
-    pub corners: Vec<crate::corner::Corner>,
-}
-
-/// One differential-pair stage as the plan describes it (nominal values).
-#[derive(Debug, Clone, PartialEq)]
-pub struct StageSpec {
-    /// Unique name.
-    pub name: String,
-    /// Tail current, A.
-    pub tail_current: f64,
-    /// Load resistance per side, collector to supply, Ω.
-    pub load_resistance: f64,
-    /// Emitter degeneration per side, Ω.
-    pub emitter_resistance: f64,
-    /// Source resistance per side, Ω.
-    pub source_resistance: f64,
-    /// Output resistance of the tail source, Ω (infinite = ideal).
-    pub tail_resistance: f64,
-    /// Capacitance across each load resistor, F.
-    pub load_capacitance: f64,
-    /// Capacitance from the tail node to ground, F.
-    pub tail_capacitance: f64,
-    /// Positive supply, V.
-    pub supply: f64,
-    /// Input common-mode voltage, V.
-    pub input_common_mode: f64,
-    /// Whether the supply or the input common mode was left to its default (bias warnings
-    /// then say so).
-    pub bias_defaulted: bool,
-    /// Transistor model parameters.
-    pub transistor: TransistorSpec,
-    /// Fractional excess of the P side over the M side (P = M·(1+δ)).
-    pub mismatch: Mismatch,
-    /// Standard deviations of the mismatch fractions, for Monte Carlo.
-    pub mismatch_sigma: Mismatch,
-    /// How the tail current moves with temperature.
-    pub tail_current_law: crate::tail::TailCurrentLaw,
-}
-
-/// Bipolar transistor parameters (forward-active Gummel–Poon subset).
-#[derive(Debug, Clone, PartialEq)]
-pub struct TransistorSpec {
-    /// Saturation current at the nominal temperature, A.
-    pub saturation_current: f64,
-    /// Forward current gain β (infinite = no base current).
-    pub beta: f64,
-    /// Forward Early voltage, V (infinite = no Early effect).
-    pub early_voltage: f64,
-    /// Ohmic base resistance, Ω.
-    pub base_resistance: f64,
-    /// Forward transit time, s.
-    pub transit_time: f64,
-    /// Zero-bias base-emitter junction capacitance, F.
-    pub emitter_junction_capacitance: f64,
-    /// Zero-bias base-collector junction capacitance, F.
-    pub collector_junction_capacitance: f64,
-    /// Base-emitter built-in potential, V.
-    pub emitter_junction_potential: f64,
-    /// Base-emitter grading exponent.
-    pub emitter_grading: f64,
-    /// Base-collector built-in potential, V.
-    pub collector_junction_potential: f64,
-    /// Base-collector grading exponent.
-    pub collector_grading: f64,
-    /// Temperature at which `saturation_current` is given, °C.
-    pub nominal_temperature_c: f64,
-    /// Band-gap energy for the saturation current's temperature law, eV.
-    pub bandgap_ev: f64,
-    /// Temperature exponent of the saturation current (XTI).
-    pub saturation_current_exponent: f64,
-    /// Flicker-noise coefficient of the base current, KF: `i_b² = KF·I_B^AF/f` (A²/Hz at
-    /// 1 Hz when AF = 1); 0 = no flicker noise.
-    pub flicker_coefficient: f64,
-    /// Flicker-noise exponent of the base current, AF.
-    pub flicker_exponent: f64,
-}
-
-impl Default for TransistorSpec {
-    fn default() -> Self {
-        TransistorSpec {
-            saturation_current: 1e-16,
-            beta: f64::INFINITY,
-            early_voltage: f64::INFINITY,
-            base_resistance: 0.0,
-            transit_time: 0.0,
-            emitter_junction_capacitance: 0.0,
-            collector_junction_capacitance: 0.0,
-            emitter_junction_potential: 0.75,
-            emitter_grading: 0.33,
-            collector_junction_potential: 0.75,
-            collector_grading: 0.33,
-            nominal_temperature_c: 27.0,
-            bandgap_ev: 1.11,
-            saturation_current_exponent: 3.0,
-            flicker_coefficient: 0.0,
-            flicker_exponent: 1.0,
-        }
-    }
-}
-
-/// P-over-M fractional differences of the matched parameters.
-#[derive(Debug, Clone, Copy, PartialEq, Default)]
-pub struct Mismatch {
-    /// Saturation current.
-    pub saturation_current: f64,
-    /// Emitter resistance.
-    pub emitter_resistance: f64,
-    /// Load resistance.
-    pub load_resistance: f64,
-    /// Base resistance.
-    pub base_resistance: f64,
-    /// Current gain β.
-    pub beta: f64,
-}
-
-/// How the stage is driven.
-#[derive(Debug, Clone, PartialEq)]
-pub struct Drive {
-    /// Peak differential input amplitudes per tone, V (ascending order as given).
-    pub amplitudes: Vec<f64>,
-    /// Signal frequencies, Hz.
-    pub frequencies: Vec<f64>,
-    /// Two-tone spacing, Hz, when the plan asks for two-tone analysis.
-    pub two_tone_spacing: Option<f64>,
-    /// THD sums harmonics 2 through this order.
-    pub thd_harmonics: usize,
-}
-
-/// Monte Carlo settings.
-#[derive(Debug, Clone, PartialEq)]
-pub struct MonteCarloSpec {
-    /// Number of draws per stage and temperature.
-    pub runs: u64,
-    /// Random seed; the same seed gives the same report.
-    pub seed: u64,
-}
-
-/// Integration band for noise, Hz.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub struct NoiseBand {
-    /// Lower edge, Hz.
-    pub from: f64,
-    /// Upper edge, Hz.
-    pub to: f64,
-}
-
-/// A figure the budget can constrain.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
-pub enum Metric {
-    /// The n-th harmonic, dBc (n ≥ 2).
-    Harmonic(usize),
-    /// Total harmonic distortion, dBc.
-    Thd,
-    /// Third-order intermodulation, dBc.
-    Im3,
-    /// Input third-order intercept, peak V per tone.
-    Iip3,
-    /// Output third-order intercept, peak V per tone.
-    Oip3,
-    /// Input 1 dB compression point, peak V.
-    P1db,
-    /// Small-signal differential voltage gain, dB.
-    Gain,
-    /// Input at which one side carries 95 % of the tail current, V.
-    SteeringRange,
-    /// White input-referred differential noise density, V/√Hz.
-    InputNoise,
-}
-
-impl Metric {
-    /// The name used in plans and reports.
-    pub fn name(self) -> String {
-        match self {
-            Metric::Harmonic(n) => format!("hd{n}"),
-            Metric::Thd => "thd".into(),
-            Metric::Im3 => "im3".into(),
-            Metric::Iip3 => "iip3".into(),
-            Metric::Oip3 => "oip3".into(),
-            Metric::P1db => "p1db".into(),
-            Metric::Gain => "gain".into(),
-            Metric::SteeringRange => "steering_range".into(),
-            Metric::InputNoise => "input_noise".into(),
-        }
-    }
-
-    /// Whether the metric is a level in dB (limits are plain numbers) rather than a quantity.
-    pub fn is_decibel(self) -> bool {
-        matches!(
-            self,
-            Metric::Harmonic(_) | Metric::Thd | Metric::Im3 | Metric::Gain
-        )
-    }
-
-    /// Whether the metric depends on the drive amplitude (`at`).
-    pub fn needs_amplitude(self) -> bool {
-        matches!(self, Metric::Harmonic(_) | Metric::Thd | Metric::Im3)
-    }
-
-    /// The unit of the limit.
-    pub fn unit(self) -> Unit {
-        Unit::Volt
-    }
-
-    /// Unit label for reports.
-    pub fn unit_label(self) -> &'static str {
-        match self {
-            Metric::Harmonic(_) | Metric::Thd | Metric::Im3 => "dBc",
-            Metric::Gain => "dB",
-            Metric::InputNoise => "V/√Hz",
-            _ => "V",
-        }
-    }
-
-    fn parse(text: &str) -> Option<Metric> {
-        Some(match text {
-            "thd" => Metric::Thd,
-            "im3" => Metric::Im3,
-            "iip3" => Metric::Iip3,
-            "oip3" => Metric::Oip3,
-            "p1db" => Metric::P1db,
-            "gain" => Metric::Gain,
-            "steering_range" => Metric::SteeringRange,
-            "input_noise" => Metric::InputNoise,
-            other => {
-                let order: usize = other.strip_prefix("hd")?.parse().ok()?;
-                if order < 2 {
-                    return None;
-                }
-                Metric::Harmonic(order)
-            }
-        })
-    }
-}
-
-/// Whether a budget line is an upper or a lower bound.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub enum Limit {
-    /// The value must not exceed this.
-    Max(f64),
-    /// The value must be at least this.
-    Min(f64),
-}
-
-impl Limit {
-    /// The limit's number.
-    pub fn value(self) -> f64 {
-        match self {
-            Limit::Max(v) | Limit::Min(v) => v,
-        }
-    }
-}
-
-/// One budget line.
-#[derive(Debug, Clone, PartialEq)]
-pub struct BudgetLine {
-    /// The constrained figure.
-    pub metric: Metric,
-    /// Input amplitude, V (amplitude-dependent metrics; default: the largest drive amplitude).
-    pub at: Option<f64>,
-    /// Frequency, Hz (default: the first drive frequency).
-    pub frequency: Option<f64>,
-    /// The bound.
-    pub limit: Limit,
-}
-
-/// Degeneration sizing settings.
-#[derive(Debug, Clone, PartialEq)]
-pub struct SizingSpec {
-    /// Lower end of the emitter-resistance search, Ω.
-    pub from: f64,
-    /// Upper end of the emitter-resistance search, Ω.
-    pub to: f64,
-    /// Rescale the load to hold the small-signal gain of the undegenerated stage.
-    pub hold_gain: bool,
-}
 
 const TOP_KEYS: &[&str] = &[
     "name",
@@ -375,19 +85,24 @@ const DRIVE_KEYS: &[&str] = &[
 ];
 const SWEEP_KEYS: &[&str] = &["from", "to", "points", "spacing"];
 const BUDGET_KEYS: &[&str] = &["metric", "at", "frequency", "max", "min"];
-const METRIC_NAMES: &str =
-    "hd2, hd3, hd5 (any hdN, N ≥ 2), thd, im3, iip3, oip3, p1db, gain, steering_range, input_noise";
 
 /// Most amplitudes, frequencies or temperatures a plan may list or sweep before it is refused
-/// (the list is held in memory); below this the whole-plan work limit of [`crate::workload`]
-/// applies.
+/// (the list is held in memory); below this the whole-plan work limit applies.
 pub const MAX_LIST: u64 = 100_000;
 /// Largest Monte Carlo run count read; the work limit normally refuses far fewer.
 pub const MAX_RUNS: u64 = 1_000_000_000_000_000;
 
-impl Plan {
-    /// Reads and validates a plan file.
-    pub fn load(path: &Path) -> Result<Plan, Error> {
+/// A plan file's text and the name it is shown by in messages.
+pub struct PlanSource {
+    /// The file's text.
+    pub text: String,
+    /// The path as given, for messages.
+    pub shown: String,
+}
+
+impl PlanSource {
+    /// Reads a plan file of at most [`MAX_PLAN_BYTES`].
+    pub fn read(path: &Path) -> Result<PlanSource, Error> {
         let shown = path.display().to_string();
         let meta = std::fs::metadata(path).map_err(|source| Error::ReadPlan {
             path: path.to_owned(),
@@ -408,7 +123,58 @@ impl Plan {
             path: path.to_owned(),
             source,
         })?;
-        Plan::from_yaml(&text, &shown).map_err(Error::from)
+        Ok(PlanSource { text, shown })
+    }
+
+    /// Validates the text into a plan.
+    pub fn plan(&self) -> Result<Plan, PlanError> {
+        Plan::from_yaml(&self.text, &self.shown)
+    }
+
+    /// An error about the value at a dotted key path (`monte_carlo.runs`), located in the text
+    /// where the key is found.
+    pub fn error_at_key(
+        &self,
+        key_path: &str,
+        problem: impl Into<String>,
+        accepted: impl Into<String>,
+    ) -> PlanError {
+        let (line, column) = locate(&self.text, key_path).unwrap_or((0, 0));
+        PlanError::at(line, column, key_path, problem, accepted).in_file(&self.shown, &self.text)
+    }
+}
+
+/// Line and column of the value at a dotted key path, by reading the text again.
+fn locate(text: &str, key_path: &str) -> Option<(u64, u64)> {
+    let root = tree::parse_tree(text).ok()?;
+    let mut node = &root;
+    for key in key_path.split('.') {
+        let tree::NodeValue::Map(entries) = &node.value else {
+            return None;
+        };
+        node = entries
+            .iter()
+            .find(|(k, _)| matches!(&k.value, tree::NodeValue::Text(name) if name == key))
+            .map(|(_, v)| v)?;
+    }
+    Some((node.line, node.column))
+}
+
+impl Plan {
+    /// Reads and validates a plan file, with the same located errors as `linbudget check`
+    /// (file, line, column, key path, what is wrong and what is accepted).
+    ///
+    /// ```
+    /// use linbudget::Plan;
+    ///
+    /// let plan = Plan::from_file("specs/sensor-front-end.yaml")?;
+    /// assert_eq!(plan.stages.len(), 2);
+    /// let missing = Plan::from_file("specs/no-such-plan.yaml");
+    /// assert!(missing.is_err());
+    /// # Ok::<(), linbudget::Error>(())
+    /// ```
+    pub fn from_file(path: impl AsRef<Path>) -> Result<Plan, Error> {
+        Ok(PlanSource::read(path.as_ref())?.plan()?)
     }
 
     /// Parses and validates plan text; `file` names it in errors.
@@ -463,7 +229,7 @@ impl Plan {
         let mut stages = Vec::with_capacity(stage_items.len());
         for item in &stage_items {
             let stage = read_stage(item)?;
-            if stages.iter().any(|s: &StageSpec| s.name == stage.name) {
+            if stages.iter().any(|s: &Stage| s.name == stage.name) {
                 return Err(item.error(
                     format!("stage name `{}` is used twice", stage.name),
                     "a unique name for each stage",
@@ -512,7 +278,7 @@ impl Plan {
             .map(|at| at.quantity_where(Unit::Ohm, Range::Positive))
             .transpose()?;
 
-        let corners = crate::corner::read_corners(top.get("corners").as_ref())?;
+        let corners = corners::read_corners(top.get("corners").as_ref())?;
         check_tail_laws(&stage_items, &stages, &temperatures_c)?;
         if let (Some(band), Some(band_at)) = (&noise_band, top.get("noise_band")) {
             if band.from == 0.0
@@ -545,7 +311,7 @@ impl Plan {
 /// Refuses a tail-current law that would turn the tail current off at a plan temperature.
 fn check_tail_laws(
     items: &[At],
-    stages: &[StageSpec],
+    stages: &[Stage],
     temperatures_c: &[f64],
 ) -> Result<(), PlanError> {
     for (item, stage) in items.iter().zip(stages) {
@@ -580,7 +346,7 @@ fn check_list_len(at: &At, len: usize, what: &str) -> Result<(), PlanError> {
     Ok(())
 }
 
-fn read_stage(at: &At) -> Result<StageSpec, PlanError> {
+fn read_stage(at: &At) -> Result<Stage, PlanError> {
     let map = at.map(STAGE_KEYS)?;
     let name_at = map.required("name", "a unique stage name")?;
     let name = name_at.text("a stage name")?.to_owned();
@@ -590,12 +356,11 @@ fn read_stage(at: &At) -> Result<StageSpec, PlanError> {
             "1 to 100 printable characters",
         ));
     }
-    let supply = map.quantity_or("supply", Unit::Volt, Range::Positive, 5.0)?;
     let transistor = match map.get("transistor") {
         Some(t) => read_transistor(&t)?,
-        None => TransistorSpec::default(),
+        None => Transistor::default(),
     };
-    let stage = StageSpec {
+    let stage = Stage {
         name,
         tail_current: map.quantity("tail_current", Unit::Ampere, Range::Positive)?,
         load_resistance: map.quantity("load_resistance", Unit::Ohm, Range::Positive)?,
@@ -629,30 +394,30 @@ fn read_stage(at: &At) -> Result<StageSpec, PlanError> {
             Range::NonNegative,
             0.0,
         )?,
-        supply,
-        bias_defaulted: map.get("supply").is_none() || map.get("input_common_mode").is_none(),
-        input_common_mode: map.quantity_or(
-            "input_common_mode",
-            Unit::Volt,
-            Range::Finite,
-            supply / 2.0,
-        )?,
+        supply: map
+            .get("supply")
+            .map(|at| at.quantity_where(Unit::Volt, Range::Positive))
+            .transpose()?,
+        input_common_mode: map
+            .get("input_common_mode")
+            .map(|at| at.quantity_where(Unit::Volt, Range::Finite))
+            .transpose()?,
         transistor,
         mismatch: read_mismatch(&map, "mismatch", Range::Between(-0.9, 9.0))?,
         mismatch_sigma: read_mismatch(&map, "mismatch_sigma", Range::Between(-1e-300, 0.5))?,
         tail_current_law: map
             .get("tail_current_law")
-            .map(|law| crate::tail::TailCurrentLaw::read(&law))
+            .map(|law| tail::read_tail_law(&law))
             .transpose()?
             .unwrap_or_default(),
     };
     Ok(stage)
 }
 
-fn read_transistor(at: &At) -> Result<TransistorSpec, PlanError> {
+fn read_transistor(at: &At) -> Result<Transistor, PlanError> {
     let map = at.map(TRANSISTOR_KEYS)?;
-    let d = TransistorSpec::default();
-    Ok(TransistorSpec {
+    let d = Transistor::default();
+    Ok(Transistor {
         saturation_current: map.quantity_or(
             "saturation_current",
             Unit::Ampere,
@@ -773,10 +538,8 @@ fn read_sweep(at: &At, unit: Unit, what: &str) -> Result<Vec<f64>, PlanError> {
             if points > MAX_LIST {
                 return Err(points_at.error(
                     format!(
-                        "{points} {what} would be about {:.1e} sample solves per stage and temperature \
-                         (each point takes about {} samples) and would be held in memory",
-                        points as f64 * crate::workload::SAMPLES_PER_TONE,
-                        crate::workload::SAMPLES_PER_TONE
+                        "{points} {what} would be held in memory and each solved over whole periods, \
+                         more sample solves than any run can finish"
                     ),
                     format!(
                         "at most {MAX_LIST} points per sweep; split the plan, or coarsen the sweep \
@@ -852,7 +615,7 @@ fn read_drive(at: &At) -> Result<Drive, PlanError> {
         .transpose()?;
     let thd_harmonics = match map.get("thd_harmonics") {
         Some(h) => h.count(2, 200)? as usize,
-        None => 40,
+        None => DEFAULT_THD_HARMONICS,
     };
     Ok(Drive {
         amplitudes,
@@ -862,11 +625,11 @@ fn read_drive(at: &At) -> Result<Drive, PlanError> {
     })
 }
 
-fn read_monte_carlo(at: &At) -> Result<MonteCarloSpec, PlanError> {
+fn read_monte_carlo(at: &At) -> Result<MonteCarloSettings, PlanError> {
     let map = at.map(&["runs", "seed"])?;
-    Ok(MonteCarloSpec {
+    Ok(MonteCarloSettings {
         // Runs are not held in memory, so the only cap here is representational; the work
-        // estimate (crate::workload) refuses plans whose runs would take too long.
+        // estimate refuses plans whose runs would take too long.
         runs: map
             .required("runs", "a whole number of runs")?
             .count(1, MAX_RUNS)?,
@@ -881,7 +644,7 @@ fn read_budget_line(at: &At, drive: &Drive) -> Result<BudgetLine, PlanError> {
     let map = at.map(BUDGET_KEYS)?;
     let metric_at = map.required("metric", METRIC_NAMES)?;
     let metric_name = metric_at.text(METRIC_NAMES)?;
-    let metric = Metric::parse(metric_name)
+    let metric = Metric::from_name(metric_name)
         .ok_or_else(|| metric_at.error(format!("unknown metric `{metric_name}`"), METRIC_NAMES))?;
     if let Metric::Harmonic(order) = metric {
         if order > drive.thd_harmonics.max(9) {
@@ -922,10 +685,9 @@ fn read_budget_line(at: &At, drive: &Drive) -> Result<BudgetLine, PlanError> {
         };
         let value = if metric.is_decibel() {
             limit_at.quantity_where(Unit::Decibel, Range::Finite)?
-        } else if metric == Metric::InputNoise {
-            limit_at.quantity_where(Unit::Volt, Range::Positive)?
         } else {
-            limit_at.quantity_where(metric.unit(), Range::Positive)?
+            // Intercepts, compression, steering range and noise density are all in volts.
+            limit_at.quantity_where(Unit::Volt, Range::Positive)?
         };
         Ok(Some(value))
     };
@@ -947,7 +709,7 @@ fn read_budget_line(at: &At, drive: &Drive) -> Result<BudgetLine, PlanError> {
     })
 }
 
-fn read_sizing(at: &At) -> Result<SizingSpec, PlanError> {
+fn read_sizing(at: &At) -> Result<SizingSettings, PlanError> {
     let map = at.map(&["emitter_resistance", "hold_gain"])?;
     let range_at = map.required("emitter_resistance", "{from: 0, to: 5k}")?;
     let range = range_at.map(&["from", "to"])?;
@@ -960,9 +722,151 @@ fn read_sizing(at: &At) -> Result<SizingSpec, PlanError> {
         Some(h) => h.boolean()?,
         None => false,
     };
-    Ok(SizingSpec {
+    Ok(SizingSettings {
         from,
         to,
         hold_gain,
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::model::corner::TYPICAL;
+    use crate::model::tail::TailCurrentLaw;
+
+    const MINIMAL: &str =
+        "name: p\nstages:\n  - {name: a, tail_current: 800 uA, load_resistance: 2.2k}\ndrive: {amplitudes: [100 mV]}\n";
+
+    fn read(text: &str) -> Plan {
+        Plan::from_yaml(text, "p.yaml").unwrap()
+    }
+
+    fn stage_with(keys: &str) -> Stage {
+        let text = format!(
+            "name: p\nstages:\n  - {{name: a, tail_current: 1 mA, load_resistance: 2k, {keys}}}\ndrive: {{amplitudes: [1 mV]}}\n"
+        );
+        read(&text).stages.remove(0)
+    }
+
+    #[test]
+    fn quantities_are_read_into_si_base_units() {
+        let plan = read(MINIMAL);
+        let stage = &plan.stages[0];
+        assert!((stage.tail_current - 800e-6).abs() < 1e-18);
+        assert!((stage.load_resistance - 2200.0).abs() < 1e-9);
+        assert!((plan.drive.amplitudes[0] - 0.1).abs() < 1e-15);
+        let stage =
+            stage_with("emitter_resistance: 470 ohm, load_capacitance: 1 pF, supply: 3.3 V");
+        assert_eq!(stage.emitter_resistance, 470.0);
+        assert!((stage.load_capacitance - 1e-12).abs() < 1e-24);
+        assert_eq!(stage.supply, Some(3.3));
+    }
+
+    #[test]
+    fn absent_keys_take_their_documented_defaults() {
+        let plan = read(MINIMAL);
+        assert_eq!(plan.temperatures_c, vec![27.0]);
+        assert_eq!(plan.drive.frequencies, vec![1e3]);
+        assert_eq!(plan.drive.thd_harmonics, DEFAULT_THD_HARMONICS);
+        assert_eq!(plan.drive.two_tone_spacing, None);
+        assert_eq!(plan.corners.len(), 1);
+        assert_eq!(plan.corners[0].name, TYPICAL);
+        let stage = &plan.stages[0];
+        assert_eq!(stage.supply, None);
+        assert_eq!(stage.supply_v(), 5.0);
+        assert_eq!(stage.input_common_mode_v(), 2.5);
+        assert!(stage.bias_is_default());
+        assert!(stage.tail_resistance.is_infinite());
+        assert_eq!(stage.emitter_resistance, 0.0);
+        assert_eq!(stage.transistor, Transistor::default());
+        assert_eq!(stage.tail_current_law, TailCurrentLaw::Constant);
+        let with_mc = read(&format!("{MINIMAL}monte_carlo: {{runs: 10}}\n"));
+        assert_eq!(with_mc.monte_carlo.unwrap().seed, 1);
+    }
+
+    #[test]
+    fn sweeps_are_log_spaced_unless_linear_and_include_both_ends() {
+        let log = read(
+            "name: p\nstages:\n  - {name: a, tail_current: 1 mA, load_resistance: 2k}\ndrive:\n  amplitudes: {from: 1 mV, to: 1 V, points: 4}\n",
+        );
+        let expected = [1e-3, 1e-2, 1e-1, 1.0];
+        for (got, want) in log.drive.amplitudes.iter().zip(expected) {
+            assert!((got / want - 1.0).abs() < 1e-12, "{got} vs {want}");
+        }
+        let linear = read(
+            "name: p\nstages:\n  - {name: a, tail_current: 1 mA, load_resistance: 2k}\ndrive:\n  amplitudes: {from: 10 mV, to: 40 mV, points: 4, spacing: linear}\n",
+        );
+        for (got, want) in linear.drive.amplitudes.iter().zip([0.01, 0.02, 0.03, 0.04]) {
+            assert!((got - want).abs() < 1e-15, "{got} vs {want}");
+        }
+    }
+
+    #[test]
+    fn percentages_and_fractions_both_read_as_fractions() {
+        let stage = stage_with("mismatch: {saturation_current: 1%, beta: 0.02}");
+        assert!((stage.mismatch.saturation_current - 0.01).abs() < 1e-15);
+        assert!((stage.mismatch.beta - 0.02).abs() < 1e-15);
+    }
+
+    #[test]
+    fn tail_laws_are_read_by_name_or_coefficient() {
+        assert_eq!(
+            stage_with("tail_current_law: ptat").tail_current_law,
+            TailCurrentLaw::Ptat
+        );
+        assert_eq!(
+            stage_with("tail_current_law: constant").tail_current_law,
+            TailCurrentLaw::Constant
+        );
+        assert_eq!(
+            stage_with("tail_current_law: {temperature_coefficient: 0.2%}").tail_current_law,
+            TailCurrentLaw::Coefficient(0.002)
+        );
+        let text = "name: p\nstages:\n  - {name: a, tail_current: 1 mA, load_resistance: 2k, tail_current_law: ctat}\ndrive: {amplitudes: [1 mV]}\n";
+        let err = Plan::from_yaml(text, "p.yaml").unwrap_err();
+        assert_eq!(err.key_path, "stages[0].tail_current_law");
+        assert!(err.problem.contains("unknown tail-current law `ctat`"));
+        assert!(err.accepted.contains("ptat"));
+    }
+
+    #[test]
+    fn a_misspelt_key_is_refused_with_the_nearest_name() {
+        let text = "name: p\nstages:\n  - {name: a, tail_current: 1 mA, load_resistence: 2k}\ndrive: {amplitudes: [1 mV]}\n";
+        let err = Plan::from_yaml(text, "p.yaml").unwrap_err();
+        assert_eq!(err.key_path, "stages[0].load_resistence");
+        assert_eq!((err.line, err.column), (3, 35));
+        assert!(
+            err.problem.contains("did you mean `load_resistance`?"),
+            "{err}"
+        );
+    }
+
+    #[test]
+    fn a_quantity_with_the_wrong_unit_names_the_unit_it_needs() {
+        let text = "name: p\nstages:\n  - {name: a, tail_current: 1 mV, load_resistance: 2k}\ndrive: {amplitudes: [1 mV]}\n";
+        let err = Plan::from_yaml(text, "p.yaml").unwrap_err();
+        assert_eq!(err.key_path, "stages[0].tail_current");
+        assert!(err.accepted.contains("A"), "{err}");
+    }
+
+    #[test]
+    fn temperatures_below_absolute_zero_are_refused() {
+        let err =
+            Plan::from_yaml(&format!("temperatures_c: [-300]\n{MINIMAL}"), "p.yaml").unwrap_err();
+        assert_eq!(err.key_path, "temperatures_c[0]");
+    }
+
+    #[test]
+    fn the_key_locator_finds_nested_values() {
+        let source = PlanSource {
+            text: format!("{MINIMAL}monte_carlo:\n  runs: 5\n"),
+            shown: "p.yaml".into(),
+        };
+        let err = source.error_at_key("monte_carlo.runs", "too many", "fewer");
+        assert_eq!((err.line, err.column), (6, 9));
+        assert_eq!(err.key_path, "monte_carlo.runs");
+        let missing = source.error_at_key("no.such.key", "x", "y");
+        assert_eq!(missing.line, 0);
+    }
 }

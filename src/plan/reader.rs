@@ -205,8 +205,6 @@ pub enum Range {
     PositiveOrInfinite,
     /// Finite and zero or more.
     NonNegative,
-    /// Zero or more; `.inf` allowed.
-    NonNegativeOrInfinite,
     /// Any finite value.
     Finite,
     /// Finite, strictly between the bounds.
@@ -219,7 +217,6 @@ impl Range {
             Range::Positive => value.is_finite() && value > 0.0,
             Range::PositiveOrInfinite => value > 0.0,
             Range::NonNegative => value.is_finite() && value >= 0.0,
-            Range::NonNegativeOrInfinite => value >= 0.0,
             Range::Finite => value.is_finite(),
             Range::Between(low, high) => value.is_finite() && value > low && value < high,
         };
@@ -237,7 +234,6 @@ impl Range {
             Range::Positive => "greater than zero and finite".into(),
             Range::PositiveOrInfinite => "greater than zero (.inf means ideal)".into(),
             Range::NonNegative => "zero or more, finite".into(),
-            Range::NonNegativeOrInfinite => "zero or more (.inf means ideal)".into(),
             Range::Finite => "finite".into(),
             Range::Between(low, high) => format!("strictly between {low} and {high}"),
         }
@@ -251,11 +247,6 @@ pub struct MapAt<'a> {
 }
 
 impl<'a> MapAt<'a> {
-    /// The mapping itself (for errors about a missing key).
-    pub fn at(&self) -> &At<'a> {
-        &self.at
-    }
-
     /// The value under `key`, if present and not null.
     pub fn get(&self, key: &str) -> Option<At<'a>> {
         self.entries

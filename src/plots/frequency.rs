@@ -80,7 +80,7 @@ impl Drawing for FrequencyPlot {
     }
     fn caption(&self) -> String {
         format!(
-            "HD2, HD3 and THD of `{}` at {} peak differential input (left axis) and IIP3 (right axis, dBV) versus signal frequency.",
+            "HD2, HD3 and THD of “{}” at {} peak differential input (left axis) and IIP3 (right axis, dBV) versus signal frequency.",
             self.stage,
             si(self.amplitude_v, "V")
         )

@@ -147,7 +147,7 @@ impl Drawing for HarmonicsPlot {
     }
     fn caption(&self) -> String {
         format!(
-            "HDn and THD of the differential output of `{}` in dBc versus peak differential input at {}; shaded boxes are the budget's forbidden regions (a line applies up to its amplitude), round green markers pass, red crosses fail.",
+            "HDn and THD of the differential output of “{}” in dBc versus peak differential input at {}; shaded boxes are the budget's forbidden regions (a line applies up to its amplitude), round green markers pass, red crosses fail.",
             self.stage,
             si(self.frequency_hz, "Hz")
         )

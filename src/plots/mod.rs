@@ -15,11 +15,13 @@ mod harmonics;
 mod monte_carlo;
 mod sizing;
 mod spectrum;
-pub mod style;
+pub(crate) mod style;
 mod transfer;
 mod two_tone;
 
 use crate::error::Error;
+use crate::report::datasheet::EmbeddedFigure;
+use crate::report::queries::stage_names;
 use crate::report::Report;
 use plotters::coord::Shift;
 use plotters::prelude::*;
@@ -88,6 +90,14 @@ pub struct Figure {
 /// A drawing failure, kept as text (the backends' error types differ).
 #[derive(Debug)]
 pub struct PlotError(pub String);
+
+impl std::fmt::Display for PlotError {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(&self.0)
+    }
+}
+
+impl std::error::Error for PlotError {}
 
 impl<E: std::error::Error + Send + Sync> From<DrawingAreaErrorKind<E>> for PlotError {
     fn from(error: DrawingAreaErrorKind<E>) -> Self {
@@ -205,6 +215,16 @@ impl Sketch {
         }
     }
 
+    /// The figure as the report documents embed it, with its drawn SVG.
+    pub fn embedded(&self, svg: String) -> EmbeddedFigure {
+        EmbeddedFigure {
+            stem: self.stem.clone(),
+            title: self.title.clone(),
+            caption: self.caption.clone(),
+            svg,
+        }
+    }
+
     /// Rough relative cost of drawing the raster form, for scheduling the longest first: the
     /// figures drawing every drive point as thick lines cost most.
     pub fn raster_cost(&self) -> u32 {
@@ -288,7 +308,7 @@ fn maker<'a, D: Drawing + Send + Sync + 'static>(
 pub fn sketches(report: &Report) -> Vec<Sketch> {
     let mut makers: Vec<Maker> = Vec::new();
     let mut stems: Vec<String> = Vec::new();
-    for stage in style::stage_names(report) {
+    for stage in stage_names(report) {
         let slug = unique_slug(&stage, &mut stems);
         let (stage, slug) = (std::sync::Arc::new(stage), std::sync::Arc::new(slug));
         macro_rules! per_stage {

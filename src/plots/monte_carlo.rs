@@ -87,7 +87,7 @@ impl Drawing for MonteCarloPlot {
     }
     fn caption(&self) -> String {
         format!(
-            "Distribution over the Monte Carlo runs of `{}`: bars span the 5th to 95th percentile, markers are medians; temperatures are drawn side by side at each amplitude.",
+            "Distribution over the Monte Carlo runs of “{}”: bars span the 5th to 95th percentile, markers are medians; temperatures are drawn side by side at each amplitude.",
             self.stage
         )
     }

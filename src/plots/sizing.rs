@@ -81,7 +81,7 @@ impl Drawing for SizingPlot {
     }
     fn caption(&self) -> String {
         format!(
-            "Margin of each budget line of `{}` (left axis, dB, positive passes) and small-signal gain (right axis) versus emitter resistance per side; the vertical line marks the chosen value.",
+            "Margin of each budget line of “{}” (left axis, dB, positive passes) and small-signal gain (right axis) versus emitter resistance per side; the vertical line marks the chosen value.",
             self.stage
         )
     }

@@ -74,7 +74,7 @@ impl Drawing for SpectrumPlot {
     }
     fn caption(&self) -> String {
         format!(
-            "Harmonics of the differential output of `{}` in dBc at {} peak differential input; a hollow marker on the bottom axis is a harmonic below the analysis floor.",
+            "Harmonics of the differential output of “{}” in dBc at {} peak differential input; a hollow marker on the bottom axis is a harmonic below the analysis floor.",
             self.stage,
             si(self.amplitude_v, "V")
         )

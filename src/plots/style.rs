@@ -2,7 +2,8 @@
 //! figure shares.
 
 use super::{DrawResult, PlotError, HEIGHT_PX};
-use crate::report::Report;
+pub use crate::report::queries::{stage_names, temperatures, typical_temperature};
+pub use crate::report::text::{celsius, num, si};
 use plotters::chart::MeshStyle;
 use plotters::coord::types::RangedCoordf64;
 use plotters::coord::Shift;
@@ -323,83 +324,6 @@ pub fn draw_markers<'a, DB: DrawingBackend + 'a, X: Ranged<ValueType = f64>>(
             }),
     )?;
     Ok(())
-}
-
-/// Ordered, distinct stage names as they appear in the report.
-pub fn stage_names(report: &Report) -> Vec<String> {
-    let mut names: Vec<String> = Vec::new();
-    let all = report
-        .stages
-        .iter()
-        .map(|s| &s.stage)
-        .chain(report.points.iter().map(|p| &p.stage))
-        .chain(report.sizing.iter().map(|s| &s.stage));
-    for name in all {
-        if !names.contains(name) {
-            names.push(name.clone());
-        }
-    }
-    names
-}
-
-/// Ordered, distinct temperatures of the report.
-pub fn temperatures(report: &Report) -> Vec<f64> {
-    let mut temps: Vec<f64> = Vec::new();
-    let all = report
-        .stages
-        .iter()
-        .map(|s| s.temperature_c)
-        .chain(report.points.iter().map(|p| p.temperature_c))
-        .chain(report.sizing.iter().map(|s| s.temperature_c));
-    for t in all {
-        if !temps.contains(&t) {
-            temps.push(t);
-        }
-    }
-    temps
-}
-
-/// Ordered, distinct frequencies of the report's drive points.
-pub fn frequencies(report: &Report) -> Vec<f64> {
-    let mut list: Vec<f64> = Vec::new();
-    for p in &report.points {
-        if !list.contains(&p.frequency_hz) {
-            list.push(p.frequency_hz);
-        }
-    }
-    list
-}
-
-/// The typical temperature: the one nearest 27 °C (room temperature, common practice).
-pub fn typical_temperature(temps: &[f64]) -> Option<f64> {
-    temps
-        .iter()
-        .copied()
-        .min_by(|a, b| (a - 27.0).abs().total_cmp(&(b - 27.0).abs()))
-}
-
-/// A number with a true minus sign.
-pub fn num(value: f64, decimals: usize) -> String {
-    let s = format!("{value:.decimals$}");
-    if let Some(rest) = s.strip_prefix('-') {
-        if rest.chars().all(|c| c == '0' || c == '.') {
-            rest.to_owned()
-        } else {
-            format!("\u{2212}{rest}")
-        }
-    } else {
-        s
-    }
-}
-
-/// A quantity with an SI prefix and a true minus sign.
-pub fn si(value: f64, unit: &str) -> String {
-    crate::units::format_si(value, unit).replace('-', "\u{2212}")
-}
-
-/// "27 °C" style temperature label.
-pub fn celsius(t: f64) -> String {
-    format!("{} °C", num(t, if t.fract() == 0.0 { 0 } else { 1 }))
 }
 
 /// Rounds a dB axis span outwards to a multiple of `step`.

@@ -46,7 +46,7 @@ impl Drawing for TransferPlot {
     }
     fn caption(&self) -> String {
         format!(
-            "Normalised differential output current (left axis) and incremental transconductance (right axis) of `{}` versus differential input; the shaded band is the steering range, where each side carries between {:.0} % and {:.0} % of the tail current.",
+            "Normalised differential output current (left axis) and incremental transconductance (right axis) of “{}” versus differential input; the shaded band is the steering range, where each side carries between {:.0} % and {:.0} % of the tail current.",
             self.stage,
             100.0 * (1.0 - self.steering_fraction),
             100.0 * self.steering_fraction

@@ -93,7 +93,7 @@ impl Drawing for TwoTonePlot {
     }
     fn caption(&self) -> String {
         format!(
-            "Output fundamental of one tone and the larger IM3 product of `{}` versus input level per tone (dBV, peak) at {}; the fitted 1:1 and 3:1 lines (dashed) meet at the third-order intercept, extrapolated from the shaded small-signal fit region.",
+            "Output fundamental of one tone and the larger IM3 product of “{}” versus input level per tone (dBV, peak) at {}; the fitted 1:1 and 3:1 lines (dashed) meet at the third-order intercept, extrapolated from the shaded small-signal fit region.",
             self.stage,
             celsius(self.temperature_c)
         )

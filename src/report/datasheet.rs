@@ -6,11 +6,25 @@
 //! figures, the model's assumptions and limits, and the caution. The HTML is self-contained
 //! (figures inline as SVG, styles inline) so it reads offline and prints to PDF.
 
-use super::write::Staging;
+use super::queries::{frequencies, stage_names, temperatures, typical_temperature};
+use super::table::{html_text, markdown_text, Cell, Table};
+use super::text::celsius;
 use super::{Report, CAUTION};
-use crate::error::Error;
-use crate::plots::{self, style, Figure};
+use crate::model::corner::TYPICAL;
 use std::fmt::Write;
+
+/// A figure as the documents show it: the SVG inline in HTML, the PNG linked from Markdown.
+#[derive(Debug, Clone)]
+pub struct EmbeddedFigure {
+    /// File stem (`<stem>.svg`, `<stem>.png`).
+    pub stem: String,
+    /// Title.
+    pub title: String,
+    /// One-sentence reading guide.
+    pub caption: String,
+    /// The SVG document.
+    pub svg: String,
+}
 
 /// One block of the report.
 #[derive(Debug, Clone)]
@@ -27,38 +41,6 @@ pub enum Block {
     Table(Table),
     /// A figure: index into the figure list.
     Figure(usize),
-}
-
-/// A table with a header row.
-#[derive(Debug, Clone, Default)]
-pub struct Table {
-    /// Column titles.
-    pub header: Vec<String>,
-    /// Whether each column holds numbers (right-aligned).
-    pub numeric: Vec<bool>,
-    /// Body rows.
-    pub rows: Vec<Vec<String>>,
-}
-
-/// Draws the vector form of every figure and renders the two report documents into
-/// `staging` (the SVGs inline in report.html). The PNGs are drawn and written separately.
-pub fn write_documents(
-    report: &Report,
-    sketches: &[plots::Sketch],
-    staging: &Staging,
-) -> Result<(), Error> {
-    use rayon::prelude::*;
-    let figures: Vec<Figure> = sketches
-        .par_iter()
-        .map(|sketch| {
-            let svg = sketch.draw_svg()?;
-            staging.put(&format!("{}.svg", sketch.stem()), svg.as_bytes())?;
-            Ok(sketch.figure(svg, Vec::new()))
-        })
-        .collect::<Result<_, Error>>()?;
-    let blocks = blocks(report, &figures);
-    staging.put("report.md", markdown(&blocks, &figures).as_bytes())?;
-    staging.put("report.html", html(report, &blocks, &figures).as_bytes())
 }
 
 /// Fixed-decimal number, or a dash when absent.
@@ -90,28 +72,22 @@ fn typ_min_max(
 
 /// The datasheet table of one stage.
 pub fn datasheet_table(report: &Report, stage: &str) -> Table {
-    let temps = style::temperatures(report);
-    let typical = style::typical_temperature(&temps).unwrap_or(27.0);
+    let temps = temperatures(report);
+    let typical = typical_temperature(&temps).unwrap_or(27.0);
     let frequency = report
         .points
         .iter()
         .find(|p| p.stage == stage)
         .map(|p| p.frequency_hz);
-    let mut table = Table {
-        header: [
-            "parameter",
-            "symbol",
-            "conditions",
-            "min",
-            "typ",
-            "max",
-            "unit",
-        ]
-        .map(String::from)
-        .to_vec(),
-        numeric: vec![false, false, false, true, true, true, false],
-        rows: Vec::new(),
-    };
+    let mut table = Table::new([
+        ("parameter", false),
+        ("symbol", false),
+        ("conditions", false),
+        ("min", true),
+        ("typ", true),
+        ("max", true),
+        ("unit", false),
+    ]);
     let f_text = frequency
         .map(|f| format!("f = {}", crate::units::format_si(f, "Hz")))
         .unwrap_or_default();
@@ -125,13 +101,13 @@ pub fn datasheet_table(report: &Report, stage: &str) -> Table {
             return;
         }
         let (min, typ, max) = typ_min_max(&values, typical);
-        table.rows.push(vec![
+        table.push(vec![
             name.into(),
             symbol.into(),
-            conditions,
-            fixed(min, decimals),
-            fixed(typ, decimals),
-            fixed(max, decimals),
+            conditions.into(),
+            fixed(min, decimals).into(),
+            fixed(typ, decimals).into(),
+            fixed(max, decimals).into(),
             unit.into(),
         ]);
     };
@@ -280,90 +256,80 @@ pub fn budget_table(report: &Report) -> Table {
     let with_corner = report
         .budget
         .iter()
-        .any(|b| !b.corner.is_empty() && b.corner != crate::corner::TYPICAL);
-    let mut header = vec!["stage", "T (°C)"];
-    let mut numeric = vec![false, true];
+        .any(|b| !b.corner.is_empty() && b.corner != TYPICAL);
+    let mut columns = vec![("stage", false), ("T (°C)", true)];
     if with_corner {
-        header.push("corner");
-        numeric.push(false);
+        columns.push(("corner", false));
     }
-    header.extend(["metric", "at", "limit", "value", "margin (dB)", "verdict"]);
-    numeric.extend([false, true, true, true, true, false]);
-    Table {
-        header: header.into_iter().map(String::from).collect(),
-        numeric,
-        rows: report
-            .budget
-            .iter()
-            .map(|b| {
-                let value_text = |v: f64| b.quantity_text(v);
-                let mut row = vec![b.stage.clone(), format!("{}", b.temperature_c)];
-                if with_corner {
-                    row.push(b.corner.clone());
-                }
-                row.extend([
-                    b.metric.to_uppercase(),
-                    b.at_v
-                        .map(|a| crate::units::format_si(a, "V"))
-                        .unwrap_or_else(|| "—".into()),
-                    format!("{} {}", b.kind, value_text(b.limit)),
-                    b.value
-                        .map(value_text)
-                        .unwrap_or_else(|| "below floor".into()),
-                    fixed(b.margin, 2),
-                    if b.pass { "pass".into() } else { "FAIL".into() },
-                ]);
-                row
-            })
-            .collect(),
+    columns.extend([
+        ("metric", false),
+        ("at", true),
+        ("limit", true),
+        ("value", true),
+        ("margin (dB)", true),
+        ("verdict", false),
+    ]);
+    let mut table = Table::new(columns);
+    for b in &report.budget {
+        let value_text = |v: f64| b.quantity_text(v);
+        let mut row: Vec<Cell> = vec![
+            b.stage.as_str().into(),
+            format!("{}", b.temperature_c).into(),
+        ];
+        if with_corner {
+            row.push(b.corner.as_str().into());
+        }
+        row.extend([
+            b.metric.to_uppercase().into(),
+            b.at_v
+                .map(|a| crate::units::format_si(a, "V"))
+                .unwrap_or_else(|| "—".into())
+                .into(),
+            format!("{} {}", b.kind, value_text(b.limit)).into(),
+            b.value
+                .map(value_text)
+                .unwrap_or_else(|| "below floor".into())
+                .into(),
+            fixed(b.margin, 2).into(),
+            Cell::verdict(b.pass, "pass", "FAIL"),
+        ]);
+        table.push(row);
     }
+    table
 }
 
 /// The sizing table.
 pub fn sizing_table(report: &Report) -> Table {
-    Table {
-        header: [
-            "stage",
-            "T (°C)",
-            "R_E (Ω)",
-            "binding line",
-            "worst margin (dB)",
-            "gain (dB)",
-            "gain cost (dB)",
-            "steering range",
-            "load (Ω)",
-            "result",
-        ]
-        .map(String::from)
-        .to_vec(),
-        numeric: vec![
-            false, true, true, false, true, true, true, true, true, false,
-        ],
-        rows: report
-            .sizing
-            .iter()
-            .map(|s| {
-                vec![
-                    s.stage.clone(),
-                    format!("{}", s.temperature_c),
-                    fixed(s.emitter_resistance_ohm, 1),
-                    s.binding_metric.to_uppercase(),
-                    fixed(Some(s.best_margin), 2),
-                    fixed(s.gain_db, 2),
-                    fixed(s.gain_cost_db, 2),
-                    s.steering_range_v
-                        .map(|v| crate::units::format_si(v, "V"))
-                        .unwrap_or_else(|| "—".into()),
-                    fixed(s.load_resistance_ohm, 1),
-                    if s.met {
-                        "met".into()
-                    } else {
-                        "not met".into()
-                    },
-                ]
-            })
-            .collect(),
+    let mut table = Table::new([
+        ("stage", false),
+        ("T (°C)", true),
+        ("R_E (Ω)", true),
+        ("binding line", false),
+        ("worst margin (dB)", true),
+        ("gain (dB)", true),
+        ("gain cost (dB)", true),
+        ("steering range", true),
+        ("load (Ω)", true),
+        ("result", false),
+    ]);
+    for s in &report.sizing {
+        table.push(vec![
+            s.stage.as_str().into(),
+            format!("{}", s.temperature_c).into(),
+            fixed(s.emitter_resistance_ohm, 1).into(),
+            s.binding_metric.to_uppercase().into(),
+            fixed(Some(s.best_margin), 2).into(),
+            fixed(s.gain_db, 2).into(),
+            fixed(s.gain_cost_db, 2).into(),
+            s.steering_range_v
+                .map(|v| crate::units::format_si(v, "V"))
+                .unwrap_or_else(|| "—".into())
+                .into(),
+            fixed(s.load_resistance_ohm, 1).into(),
+            Cell::verdict(s.met, "met", "not met"),
+        ]);
     }
+    table
 }
 
 fn list_of(values: &[f64], unit: &str) -> String {
@@ -375,7 +341,7 @@ fn list_of(values: &[f64], unit: &str) -> String {
 }
 
 /// The report as blocks.
-pub fn blocks(report: &Report, figures: &[Figure]) -> Vec<Block> {
+pub fn blocks(report: &Report, figures: &[EmbeddedFigure]) -> Vec<Block> {
     let mut out = Vec::new();
     out.push(Block::Heading(
         1,
@@ -419,9 +385,9 @@ pub fn blocks(report: &Report, figures: &[Figure]) -> Vec<Block> {
         "temperatures".to_owned()
     };
 
-    let stages = style::stage_names(report);
-    let temps = style::temperatures(report);
-    let typical = style::typical_temperature(&temps).unwrap_or(27.0);
+    let stages = stage_names(report);
+    let temps = temperatures(report);
+    let typical = typical_temperature(&temps).unwrap_or(27.0);
     let mut amplitudes: Vec<f64> = report.points.iter().map(|p| p.amplitude_v).collect();
     amplitudes.sort_by(f64::total_cmp);
     amplitudes.dedup();
@@ -432,9 +398,9 @@ pub fn blocks(report: &Report, figures: &[Figure]) -> Vec<Block> {
         format!(
             "Temperatures: {} (typical values are at {})",
             temps.iter().map(|t| format!("{t} °C")).collect::<Vec<_>>().join(", "),
-            style::celsius(typical)
+            celsius(typical)
         ),
-        format!("Frequencies: {}", list_of(&style::frequencies(report), "Hz")),
+        format!("Frequencies: {}", list_of(&frequencies(report), "Hz")),
         format!("Drive amplitudes (peak differential, per tone): {}", list_of(&amplitudes, "V")),
         format!("Two-tone test: {}", if two_tone { "yes (IM3 and IIP3 reported)" } else { "no" }),
         format!(
@@ -447,8 +413,8 @@ pub fn blocks(report: &Report, figures: &[Figure]) -> Vec<Block> {
         out.push(Block::Heading(2, format!("Datasheet — {stage}")));
         out.push(Block::Paragraph(format!(
             "Typical at {} in the typical process; min and max across the plan's {spread} at {}. A dash is a figure that is not available or below the analysis floor.",
-            style::celsius(typical),
-            temps.iter().map(|t| style::celsius(*t)).collect::<Vec<_>>().join(", ")
+            celsius(typical),
+            temps.iter().map(|t| celsius(*t)).collect::<Vec<_>>().join(", ")
         )));
         out.push(Block::Table(datasheet_table(report, stage)));
     }
@@ -472,8 +438,8 @@ pub fn blocks(report: &Report, figures: &[Figure]) -> Vec<Block> {
         let to_build: Vec<String> = stages
             .iter()
             .filter_map(|stage| {
-                crate::report::value_to_build(report, stage)
-                    .map(|r| format!("`{stage}`: {}", crate::units::format_si(r, "Ω")))
+                super::queries::value_to_build(report, stage)
+                    .map(|r| format!("{stage}: {}", crate::units::format_si(r, "Ω")))
             })
             .collect();
         if !to_build.is_empty() {
@@ -485,24 +451,21 @@ pub fn blocks(report: &Report, figures: &[Figure]) -> Vec<Block> {
     }
     if !report.yield_.is_empty() {
         out.push(Block::Heading(2, "Monte Carlo yield".into()));
-        out.push(Block::Table(Table {
-            header: ["stage", "T (°C)", "runs", "pass fraction"]
-                .map(String::from)
-                .to_vec(),
-            numeric: vec![false, true, true, true],
-            rows: report
-                .yield_
-                .iter()
-                .map(|y| {
-                    vec![
-                        y.stage.clone(),
-                        format!("{}", y.temperature_c),
-                        y.runs.to_string(),
-                        format!("{:.4}", y.pass_fraction),
-                    ]
-                })
-                .collect(),
-        }));
+        let mut table = Table::new([
+            ("stage", false),
+            ("T (°C)", true),
+            ("runs", true),
+            ("pass fraction", true),
+        ]);
+        for y in &report.yield_ {
+            table.push(vec![
+                y.stage.as_str().into(),
+                format!("{}", y.temperature_c).into(),
+                y.runs.to_string().into(),
+                format!("{:.4}", y.pass_fraction).into(),
+            ]);
+        }
+        out.push(Block::Table(table));
     }
 
     if !figures.is_empty() {
@@ -528,84 +491,54 @@ pub fn blocks(report: &Report, figures: &[Figure]) -> Vec<Block> {
     out
 }
 
-fn md_cell(text: &str) -> String {
-    text.replace('|', "\\|")
-}
-
 /// Renders the blocks as Markdown (figures as linked PNG images, SVG beside).
-pub fn markdown(blocks: &[Block], figures: &[Figure]) -> String {
+pub fn markdown(blocks: &[Block], figures: &[EmbeddedFigure]) -> String {
     let mut out = String::new();
     for block in blocks {
         match block {
             Block::Heading(level, text) => {
-                let _ = writeln!(out, "{} {}\n", "#".repeat(*level as usize), text);
+                let _ = writeln!(
+                    out,
+                    "{} {}\n",
+                    "#".repeat(*level as usize),
+                    markdown_text(text)
+                );
             }
             Block::Paragraph(text) => {
-                let _ = writeln!(out, "{text}\n");
+                let _ = writeln!(out, "{}\n", markdown_text(text));
             }
             Block::Caution(text) => {
-                let _ = writeln!(out, "> **Caution.** {text}\n");
+                let _ = writeln!(out, "> **Caution.** {}\n", markdown_text(text));
             }
             Block::Bullets(items) => {
                 for item in items {
-                    let _ = writeln!(out, "- {item}");
+                    let _ = writeln!(out, "- {}", markdown_text(item));
                 }
                 let _ = writeln!(out);
             }
             Block::Table(table) => {
-                let _ = writeln!(
-                    out,
-                    "| {} |",
-                    table
-                        .header
-                        .iter()
-                        .map(|h| md_cell(h))
-                        .collect::<Vec<_>>()
-                        .join(" | ")
-                );
-                let _ = writeln!(
-                    out,
-                    "|{}|",
-                    table
-                        .numeric
-                        .iter()
-                        .map(|n| if *n { "---:" } else { "---" })
-                        .collect::<Vec<_>>()
-                        .join("|")
-                );
-                for row in &table.rows {
-                    let _ = writeln!(
-                        out,
-                        "| {} |",
-                        row.iter()
-                            .map(|c| md_cell(c))
-                            .collect::<Vec<_>>()
-                            .join(" | ")
-                    );
-                }
-                let _ = writeln!(out);
+                let _ = writeln!(out, "{}", table.to_markdown());
             }
             Block::Figure(index) => {
                 let figure = &figures[*index];
-                let _ = writeln!(out, "### {}\n", figure.title);
-                let _ = writeln!(out, "![{}]({}.png)\n", figure.title, figure.stem);
+                let _ = writeln!(out, "### {}\n", markdown_text(&figure.title));
+                let _ = writeln!(
+                    out,
+                    "![{}]({}.png)\n",
+                    markdown_text(&figure.title),
+                    figure.stem
+                );
                 let _ = writeln!(
                     out,
                     "{} Vector version: [{}.svg]({}.svg).\n",
-                    figure.caption, figure.stem, figure.stem
+                    markdown_text(&figure.caption),
+                    figure.stem,
+                    figure.stem
                 );
             }
         }
     }
     out
-}
-
-/// Escapes text for HTML.
-pub fn escape(text: &str) -> String {
-    text.replace('&', "&amp;")
-        .replace('<', "&lt;")
-        .replace('>', "&gt;")
-        .replace('"', "&quot;")
 }
 
 const CSS: &str = "
@@ -637,7 +570,7 @@ a { color: var(--accent); }
 ";
 
 /// Renders the blocks as a self-contained HTML page with the figures inline as SVG.
-pub fn html(report: &Report, blocks: &[Block], figures: &[Figure]) -> String {
+pub fn html(report: &Report, blocks: &[Block], figures: &[EmbeddedFigure]) -> String {
     let mut out = String::new();
     let _ = writeln!(
         out,
@@ -650,13 +583,13 @@ pub fn html(report: &Report, blocks: &[Block], figures: &[Figure]) -> String {
     let _ = writeln!(
         out,
         "<title>{} — linearity report</title>",
-        escape(&report.plan)
+        html_text(&report.plan)
     );
     let _ = writeln!(out, "<style>{CSS}</style>\n</head>\n<body>");
     for block in blocks {
         match block {
             Block::Heading(level, text) => {
-                let _ = writeln!(out, "<h{level}>{}</h{level}>", escape(text));
+                let _ = writeln!(out, "<h{level}>{}</h{level}>", html_text(text));
             }
             Block::Paragraph(text) => {
                 let class = if text.starts_with("Verdict:") {
@@ -668,57 +601,34 @@ pub fn html(report: &Report, blocks: &[Block], figures: &[Figure]) -> String {
                 } else {
                     ""
                 };
-                let _ = writeln!(out, "<p{class}>{}</p>", escape(text));
+                let _ = writeln!(out, "<p{class}>{}</p>", html_text(text));
             }
             Block::Caution(text) => {
                 let _ = writeln!(
                     out,
                     "<p class=\"caution\"><strong>Caution.</strong> {}</p>",
-                    escape(text)
+                    html_text(text)
                 );
             }
             Block::Bullets(items) => {
                 let _ = writeln!(out, "<ul>");
                 for item in items {
-                    let _ = writeln!(out, "<li>{}</li>", escape(item));
+                    let _ = writeln!(out, "<li>{}</li>", html_text(item));
                 }
                 let _ = writeln!(out, "</ul>");
             }
             Block::Table(table) => {
-                let _ = writeln!(out, "<table>\n<thead><tr>");
-                for (h, numeric) in table.header.iter().zip(&table.numeric) {
-                    let _ = write!(
-                        out,
-                        "<th{}>{}</th>",
-                        if *numeric { " class=\"num\"" } else { "" },
-                        escape(h)
-                    );
-                }
-                let _ = writeln!(out, "</tr></thead>\n<tbody>");
-                for row in &table.rows {
-                    let _ = write!(out, "<tr>");
-                    for (cell, numeric) in row.iter().zip(&table.numeric) {
-                        let class = match (cell.as_str(), *numeric) {
-                            ("FAIL" | "not met", _) => " class=\"fail\"",
-                            ("pass" | "met", _) => " class=\"pass\"",
-                            (_, true) => " class=\"num\"",
-                            _ => "",
-                        };
-                        let _ = write!(out, "<td{class}>{}</td>", escape(cell));
-                    }
-                    let _ = writeln!(out, "</tr>");
-                }
-                let _ = writeln!(out, "</tbody>\n</table>");
+                out.push_str(&table.to_html());
             }
             Block::Figure(index) => {
                 let figure = &figures[*index];
-                let _ = writeln!(out, "<figure id=\"{}\">", escape(&figure.stem));
-                let _ = writeln!(out, "<h3>{}</h3>", escape(&figure.title));
+                let _ = writeln!(out, "<figure id=\"{}\">", html_text(&figure.stem));
+                let _ = writeln!(out, "<h3>{}</h3>", html_text(&figure.title));
                 let svg = figure.svg.replacen(
                     "<svg ",
                     &format!(
                         "<svg role=\"img\" aria-label=\"{}\" ",
-                        escape(&figure.title)
+                        html_text(&figure.title)
                     ),
                     1,
                 );
@@ -726,7 +636,7 @@ pub fn html(report: &Report, blocks: &[Block], figures: &[Figure]) -> String {
                 let _ = writeln!(
                     out,
                     "<figcaption>{} Files: <a href=\"{}.svg\">{}.svg</a>, <a href=\"{}.png\">{}.png</a>.</figcaption>",
-                    escape(&figure.caption),
+                    html_text(&figure.caption),
                     figure.stem,
                     figure.stem,
                     figure.stem,

@@ -1,13 +1,20 @@
-//! The report: result structs shared by every exporter and plot.
+//! The report layer: the records of `report.json`, built from a plan's typed evaluation
+//! ([`build`], the one place warnings are worded), the queries figures and tables share
+//! ([`queries`]), one table model for every Markdown and HTML table ([`table`]), and the
+//! writers: JSON ([`json`]), CSV ([`csv`]), `summary.md` ([`summary`]) and the datasheet
+//! report ([`datasheet`]).
 //!
-//! `report.json` is this structure serialised; its field names and meanings are fixed by the
+//! `report.json` is [`Report`] serialised; its field names and meanings are fixed by the
 //! plan-and-report contract (see README). Extra fields are additions, never renames.
 
-pub mod csv_export;
+pub mod build;
+pub mod csv;
 pub mod datasheet;
 pub mod json;
-pub mod markdown;
-pub mod write;
+pub mod queries;
+pub mod summary;
+pub mod table;
+pub mod text;
 
 use serde::{Deserialize, Serialize};
 use std::collections::BTreeMap;
@@ -26,32 +33,19 @@ impl BudgetRecord {
     }
 }
 
-/// The emitter resistance to build for `stage`: the largest of its per-temperature least
-/// values, offered only when sizing met the budget at every temperature (and corner) and every
-/// scanned value between each least value and that largest one passed every line too.
-pub fn value_to_build(report: &Report, stage: &str) -> Option<f64> {
-    let records: Vec<&SizingRecord> = report.sizing.iter().filter(|s| s.stage == stage).collect();
-    if records.is_empty() || !records.iter().all(|s| s.met) {
-        return None;
-    }
-    let largest = records
-        .iter()
-        .filter_map(|s| s.emitter_resistance_ohm)
-        .reduce(f64::max)?;
-    let holds = records.iter().all(|s| {
-        let least = s.emitter_resistance_ohm.unwrap_or(largest);
-        s.scan
-            .iter()
-            .filter(|t| t.emitter_resistance_ohm >= least && t.emitter_resistance_ohm <= largest)
-            .all(|t| {
-                t.margins.iter().all(|m| m.is_none_or(|m| m >= 0.0))
-                    && t.headroom_v.is_none_or(|h| h >= 0.0)
-            })
-    });
-    holds.then_some(largest)
-}
-
-/// The whole result of a plan.
+/// The whole result of a plan: what `report.json` holds.
+///
+/// ```
+/// use linbudget::{Drive, Plan, Report, Stage};
+///
+/// let report: Report = Plan::new("r", vec![Stage::new("pair", 1e-3, 2e3)], Drive::new(vec![0.01]))
+///     .evaluate()?;
+/// let json = serde_json::to_string(&report).unwrap();
+/// let back: Report = serde_json::from_str(&json).unwrap();
+/// assert_eq!(back, report);
+/// assert!(report.met()); // no budget: met
+/// # Ok::<(), linbudget::Error>(())
+/// ```
 #[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
 pub struct Report {
     /// Plan name.
@@ -82,6 +76,15 @@ pub struct Report {
     pub met: bool,
     /// Caution to confirm against silicon.
     pub caution: String,
+}
+
+impl Report {
+    /// Whether the plan is met: every budget line passes for every stage (or there is no
+    /// budget), or, where the plan asks for sizing, a value meeting every line was found for
+    /// every stage.
+    pub fn met(&self) -> bool {
+        self.met
+    }
 }
 
 /// How the figures were obtained.

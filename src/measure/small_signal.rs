@@ -1,0 +1,147 @@
+//! Static figures of a stage: the gain at zero input, the steering points, the input offset
+//! and the transfer curve, all from the exact static solve.
+
+use crate::error::SolveFailure;
+use crate::solve::roots::{bracket_increasing, safe_newton, Tolerance};
+use crate::solve::transfer::{StaticSolver, WarmStart};
+
+/// Fraction of the tail current that defines the steering range (95 %).
+pub const STEERING_FRACTION: f64 = 0.95;
+
+/// Small-signal differential voltage gain at zero input, V/V, by a Richardson-extrapolated
+/// central difference (step 10⁻³·φT, truncation error of order 10⁻¹²).
+pub fn small_signal_gain(solver: &StaticSolver) -> Result<f64, SolveFailure> {
+    let h = 1e-3 * solver.circuit().thermal_voltage;
+    let slope = |step: f64| -> Result<f64, SolveFailure> {
+        let up = solver.solve_cold(step)?.output_voltage;
+        let down = solver.solve_cold(-step)?.output_voltage;
+        Ok((up - down) / (2.0 * step))
+    };
+    let coarse = slope(h)?;
+    let fine = slope(0.5 * h)?;
+    Ok((4.0 * fine - coarse) / 3.0)
+}
+
+/// Inputs at which the P side carries 95 % and 5 % of the total emitter current, V.
+pub fn steering_points(solver: &StaticSolver) -> Result<(f64, f64), SolveFailure> {
+    let c = solver.circuit();
+    let guess = 3.0 * c.thermal_voltage + 0.9 * c.tail_current * c.p.emitter_resistance;
+    let solve_for = |target: f64, start: f64| -> Result<f64, SolveFailure> {
+        let fraction = |v: f64| solver.solve_cold(v).map(|p| p.p_fraction() - target);
+        let wrap = |e: crate::solve::roots::RootFailure| SolveFailure {
+            point: format!("steering fraction {target}"),
+            reason: e.reason,
+        };
+        let (low, high) = bracket_increasing(
+            |v| fraction(v).unwrap_or(f64::NAN),
+            start,
+            c.thermal_voltage,
+            60,
+        )
+        .map_err(wrap)?;
+        safe_newton(
+            |v| {
+                let value = fraction(v).unwrap_or(f64::NAN);
+                let step = 1e-6 * c.thermal_voltage;
+                let slope = (fraction(v + step).unwrap_or(f64::NAN)
+                    - fraction(v - step).unwrap_or(f64::NAN))
+                    / (2.0 * step);
+                (value, slope)
+            },
+            low,
+            high,
+            start,
+            Tolerance {
+                relative: 1e-13,
+                scale: c.thermal_voltage,
+                max_iterations: 200,
+            },
+        )
+        .map_err(wrap)
+    };
+    let high = solve_for(STEERING_FRACTION, guess)?;
+    let low = solve_for(1.0 - STEERING_FRACTION, -guess)?;
+    Ok((low, high))
+}
+
+/// The differential input at which the two collector currents are equal, V.
+pub fn offset_voltage(solver: &StaticSolver) -> Result<f64, SolveFailure> {
+    let c = solver.circuit();
+    let balance = |v: f64| -> f64 {
+        solver
+            .solve_cold(v)
+            .map(|p| (p.p.collector_current - p.m.collector_current) / c.tail_current)
+            .unwrap_or(f64::NAN)
+    };
+    let (low, high) = crate::solve::roots::bracket_increasing(balance, 0.0, c.thermal_voltage, 60)
+        .map_err(|e| SolveFailure {
+            point: "offset search".into(),
+            reason: e.reason,
+        })?;
+    crate::solve::roots::safe_newton(
+        |v| {
+            let step = 1e-6 * c.thermal_voltage;
+            (
+                balance(v),
+                (balance(v + step) - balance(v - step)) / (2.0 * step),
+            )
+        },
+        low,
+        high,
+        0.0,
+        crate::solve::roots::Tolerance {
+            relative: 1e-14,
+            scale: c.thermal_voltage,
+            max_iterations: 200,
+        },
+    )
+    .map_err(|e| SolveFailure {
+        point: "offset search".into(),
+        reason: e.reason,
+    })
+}
+
+/// One point of the transfer curve.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct TransferSample {
+    /// Differential input, V.
+    pub input_v: f64,
+    /// (I_CP − I_CM)/I_tail.
+    pub normalised_current: f64,
+    /// Incremental transconductance d(I_CP − I_CM)/dv_d, S.
+    pub transconductance_s: f64,
+    /// Differential output voltage, V.
+    pub output_v: f64,
+}
+
+/// The transfer curve over `±span_v` with `points` samples.
+pub fn transfer_curve(
+    solver: &StaticSolver,
+    span_v: f64,
+    points: usize,
+) -> Result<Vec<TransferSample>, SolveFailure> {
+    let c = solver.circuit();
+    let mut warm = WarmStart::default();
+    let current = |v: f64, warm: &mut WarmStart| {
+        solver
+            .solve(v, warm)
+            .map(|p| p.p.collector_current - p.m.collector_current)
+    };
+    let step = 1e-4 * c.thermal_voltage;
+    (0..points)
+        .map(|i| {
+            let v = -span_v + 2.0 * span_v * i as f64 / (points - 1).max(1) as f64;
+            let point = solver.solve(v, &mut warm)?;
+            let mut probe = warm;
+            let up = current(v + step, &mut probe)?;
+            let down = current(v - step, &mut probe)?;
+            Ok(TransferSample {
+                input_v: v,
+                normalised_current: (point.p.collector_current - point.m.collector_current)
+                    / c.tail_current,
+                transconductance_s: (up - down) / (2.0 * step),
+                output_v: point.output_voltage,
+            })
+        })
+        .collect()
+}

@@ -1,0 +1,416 @@
+//! `summary.md`: the human tables — per stage the drive points, the intercepts, the budget
+//! verdict and the sizing result.
+
+use super::queries::value_to_build;
+use super::table::{markdown_text, Cell, Table};
+use super::{PointRecord, Report, CAUTION};
+use crate::model::corner::TYPICAL;
+use crate::units::format_si;
+use std::fmt::Write;
+
+fn db(value: Option<f64>) -> String {
+    value
+        .map(|v| format!("{v:.2}"))
+        .unwrap_or_else(|| "—".into())
+}
+
+fn volts(value: Option<f64>) -> String {
+    value
+        .map(|v| format_si(v, "V"))
+        .unwrap_or_else(|| "—".into())
+}
+
+/// Renders the summary tables as Markdown.
+pub fn summary(report: &Report) -> String {
+    let mut out = String::new();
+    let _ = writeln!(
+        out,
+        "# {} — linearity summary\n",
+        markdown_text(&report.plan)
+    );
+    let _ = writeln!(out, "> {CAUTION}\n");
+    let _ = writeln!(
+        out,
+        "Harmonics are of the differential output in dBc; THD sums harmonics 2–{}; a dash is below the analysis floor ({} dBc) or not available.\n",
+        report.analysis.thd_harmonics, report.analysis.analysis_floor_dbc
+    );
+    let mut stage_names: Vec<&str> = Vec::new();
+    for s in &report.stages {
+        if !stage_names.contains(&s.stage.as_str()) {
+            stage_names.push(&s.stage);
+        }
+    }
+    if stage_names.len() > 1 {
+        let _ = writeln!(out, "## Stages side by side\n");
+        let mut table = Table::new([
+            ("stage", false),
+            ("T (°C)", true),
+            ("gain (dB)", true),
+            ("IIP3", true),
+            ("P1dB", true),
+            ("steering range", true),
+            ("noise (nV/√Hz)", true),
+            ("budget", false),
+        ]);
+        for i in &report.intercepts {
+            table.push(vec![
+                i.stage.as_str().into(),
+                i.temperature_c.to_string().into(),
+                format!("{:.2}", i.small_signal_gain_db).into(),
+                volts(i.iip3_v).into(),
+                volts(i.p1db_v).into(),
+                format_si(i.steering_range_v, "V").into(),
+                format!("{:.2}", i.input_noise_v_rthz * 1e9).into(),
+                verdict_of(report, &i.stage, i.temperature_c),
+            ]);
+        }
+        let _ = writeln!(out, "{}", table.to_markdown());
+    }
+    for name in stage_names {
+        let _ = writeln!(out, "## Stage {}\n", markdown_text(name));
+        let mut table = Table::new([
+            ("T (°C)", true),
+            ("f (Hz)", true),
+            ("amplitude", true),
+            ("fundamental", true),
+            ("gain (dB)", true),
+            ("HD2", true),
+            ("HD3", true),
+            ("HD5", true),
+            ("THD", true),
+            ("IM3", true),
+            ("in forward-active", false),
+        ]);
+        let of_stage: Vec<&PointRecord> =
+            report.points.iter().filter(|p| p.stage == name).collect();
+        let budget_amplitudes: Vec<f64> = report
+            .budget
+            .iter()
+            .filter(|b| b.stage == name)
+            .filter_map(|b| b.at_v)
+            .collect();
+        let shown = shown_points(&of_stage, &budget_amplitudes);
+        for p in &shown {
+            table.push(vec![
+                p.temperature_c.to_string().into(),
+                p.frequency_hz.to_string().into(),
+                format_si(p.amplitude_v, "V").into(),
+                format_si(p.fundamental_v, "V").into(),
+                format!("{:.2}", p.gain_db).into(),
+                db(p.harmonic(2)).into(),
+                db(p.harmonic(3)).into(),
+                db(p.harmonic(5)).into(),
+                db(p.thd_dbc).into(),
+                db(p.im3_dbc.flatten()).into(),
+                Cell::verdict(p.forward_active, "yes", "no"),
+            ]);
+        }
+        let _ = write!(out, "{}", table.to_markdown());
+        if shown.len() < of_stage.len() {
+            let _ = writeln!(
+                out,
+                "\n{} of {} drive points shown: evenly spaced through each sweep{}. Every point is in `points.csv` and `report.json`.",
+                shown.len(),
+                of_stage.len(),
+                if budget_amplitudes.is_empty() { "" } else { ", plus the amplitudes the budget names" }
+            );
+        }
+        let _ = writeln!(out);
+        let mut table = Table::new([
+            ("T (°C)", true),
+            ("f (Hz)", true),
+            ("small-signal gain (dB)", true),
+            ("IIP3", true),
+            ("OIP3", true),
+            ("P1dB", true),
+            ("steering range", true),
+            ("input noise (nV/√Hz)", true),
+        ]);
+        for i in report.intercepts.iter().filter(|i| i.stage == name) {
+            table.push(vec![
+                i.temperature_c.to_string().into(),
+                i.frequency_hz.to_string().into(),
+                format!("{:.2}", i.small_signal_gain_db).into(),
+                volts(i.iip3_v).into(),
+                volts(i.oip3_v).into(),
+                volts(i.p1db_v).into(),
+                format_si(i.steering_range_v, "V").into(),
+                format!("{:.3}", i.input_noise_v_rthz * 1e9).into(),
+            ]);
+        }
+        let _ = writeln!(out, "{}", table.to_markdown());
+        let lines: Vec<_> = report.budget.iter().filter(|b| b.stage == name).collect();
+        if !lines.is_empty() {
+            let with_corner = lines
+                .iter()
+                .any(|b| !b.corner.is_empty() && b.corner != TYPICAL);
+            if !report.sizing.is_empty() {
+                let _ = writeln!(
+                    out,
+                    "Budget lines checked on the stage as planned (before sizing):\n"
+                );
+            }
+            let mut columns = vec![("T (°C)", true)];
+            if with_corner {
+                columns.push(("corner", false));
+            }
+            columns.extend([
+                ("metric", false),
+                ("at", true),
+                ("limit", true),
+                ("value", true),
+                ("margin (dB)", true),
+                ("verdict", false),
+            ]);
+            let mut table = Table::new(columns);
+            for b in lines {
+                let quantity = |v: f64| b.quantity_text(v);
+                let mut row: Vec<Cell> = vec![b.temperature_c.to_string().into()];
+                if with_corner {
+                    row.push(b.corner.as_str().into());
+                }
+                row.extend([
+                    b.metric.as_str().into(),
+                    volts(b.at_v).into(),
+                    format!("{} {}", b.kind, quantity(b.limit)).into(),
+                    b.value.map(quantity).unwrap_or_else(|| "—".into()).into(),
+                    db(b.margin).into(),
+                    Cell::verdict(b.pass, "pass", "FAIL"),
+                ]);
+                table.push(row);
+            }
+            let _ = writeln!(out, "{}", table.to_markdown());
+        }
+        for s in report.sizing.iter().filter(|s| s.stage == name) {
+            let _ = writeln!(
+                out,
+                "Sizing at {} °C: {} R_E = {} (binding: {}, worst margin {:.2} dB, gain {} dB, gain cost {} dB, steering range {}, load {}){}\n",
+                s.temperature_c,
+                if s.met { "least" } else { "no value meets every line; best" },
+                s.emitter_resistance_ohm.map(|r| format_si(r, "Ω")).unwrap_or_else(|| "—".into()),
+                markdown_text(&s.binding_metric),
+                s.best_margin,
+                db(s.gain_db),
+                db(s.gain_cost_db),
+                volts(s.steering_range_v),
+                s.load_resistance_ohm.map(|r| format_si(r, "Ω")).unwrap_or_else(|| "—".into()),
+                if s.headroom_binds { "; headroom, not distortion, binds" } else { "" }
+            );
+        }
+        if let Some(value) = value_to_build(report, name) {
+            let _ = writeln!(
+                out,
+                "**R_E to build for {}: {}** — the largest of the per-temperature least values; every scanned value from each temperature's least value up to it passed every line.\n",
+                markdown_text(name),
+                format_si(value, "Ω")
+            );
+        }
+    }
+    population_sections(report, &mut out);
+    if !report.warnings.is_empty() {
+        let _ = writeln!(out, "## Warnings\n");
+        for w in &report.warnings {
+            let _ = writeln!(out, "- {}", markdown_text(w));
+        }
+        let _ = writeln!(out);
+    }
+    let _ = writeln!(
+        out,
+        "Plan {}: **{}**",
+        markdown_text(&report.plan),
+        if report.met { "met" } else { "not met" }
+    );
+    out
+}
+
+/// Rows per temperature, corner and frequency above which a sweep is thinned in the table.
+const ROWS_PER_SWEEP: usize = 41;
+
+/// The points of one stage to tabulate: all of them for a short list of amplitudes; for a
+/// longer sweep, `ROWS_PER_SWEEP` evenly spaced through each temperature, corner and
+/// frequency (first and last included), plus the point nearest each budget amplitude.
+fn shown_points<'a>(points: &[&'a PointRecord], budget_amplitudes: &[f64]) -> Vec<&'a PointRecord> {
+    let mut shown = Vec::new();
+    let mut start = 0;
+    while start < points.len() {
+        let first = points[start];
+        let same_sweep = |p: &&PointRecord| {
+            p.temperature_c == first.temperature_c
+                && p.corner == first.corner
+                && p.frequency_hz == first.frequency_hz
+        };
+        let length = points[start..].iter().take_while(|p| same_sweep(p)).count();
+        let sweep = &points[start..start + length];
+        if length <= ROWS_PER_SWEEP {
+            shown.extend_from_slice(sweep);
+        } else {
+            let mut keep = vec![false; length];
+            for i in 0..ROWS_PER_SWEEP {
+                keep[(i * (length - 1) + (ROWS_PER_SWEEP - 1) / 2) / (ROWS_PER_SWEEP - 1)] = true;
+            }
+            for at in budget_amplitudes {
+                let nearest = (0..length).min_by(|&a, &b| {
+                    (sweep[a].amplitude_v - at)
+                        .abs()
+                        .total_cmp(&(sweep[b].amplitude_v - at).abs())
+                });
+                if let Some(i) = nearest {
+                    keep[i] = true;
+                }
+            }
+            shown.extend(
+                sweep
+                    .iter()
+                    .zip(&keep)
+                    .filter(|(_, k)| **k)
+                    .map(|(p, _)| *p),
+            );
+        }
+        start += length;
+    }
+    shown
+}
+
+fn verdict_of(report: &Report, stage: &str, temperature_c: f64) -> Cell {
+    let lines: Vec<_> = report
+        .budget
+        .iter()
+        .filter(|b| b.stage == stage && b.temperature_c == temperature_c)
+        .collect();
+    if lines.is_empty() {
+        "—".into()
+    } else {
+        Cell::verdict(lines.iter().all(|b| b.pass), "pass", "FAIL")
+    }
+}
+
+fn figure(value: Option<f64>, unit: &str) -> String {
+    match (value, unit) {
+        (None, _) => "—".into(),
+        (Some(v), "dBc" | "dB") => format!("{v:.2}"),
+        (Some(v), "V/√Hz") => format!("{:.3} nV/√Hz", v * 1e9),
+        (Some(v), u) => format_si(v, u),
+    }
+}
+
+/// Corner spread, Monte Carlo distributions, yield and the noise-versus-distortion sizing gap.
+fn population_sections(report: &Report, out: &mut String) {
+    if !report.corner_spread.is_empty() {
+        let _ = writeln!(out, "## Process corners (typical, minimum, maximum)\n");
+        let mut table = Table::new([
+            ("stage", false),
+            ("T (°C)", true),
+            ("figure", false),
+            ("at", true),
+            ("typical", true),
+            ("min (corner)", true),
+            ("max (corner)", true),
+        ]);
+        for r in &report.corner_spread {
+            table.push(vec![
+                r.stage.as_str().into(),
+                r.temperature_c.to_string().into(),
+                r.metric.as_str().into(),
+                volts(r.at_v).into(),
+                figure(r.typical, &r.unit).into(),
+                format!("{} ({})", figure(r.min, &r.unit), r.min_corner).into(),
+                format!("{} ({})", figure(r.max, &r.unit), r.max_corner).into(),
+            ]);
+        }
+        let _ = writeln!(out, "{}", table.to_markdown());
+    }
+    if !report.monte_carlo.is_empty() {
+        let _ = writeln!(out, "## Monte Carlo mismatch\n");
+        let mut table = Table::new([
+            ("stage", false),
+            ("T (°C)", true),
+            ("f (Hz)", true),
+            ("amplitude", true),
+            ("metric", false),
+            ("runs", true),
+            ("p05", true),
+            ("median", true),
+            ("p95", true),
+        ]);
+        for r in &report.monte_carlo {
+            table.push(vec![
+                r.stage.as_str().into(),
+                r.temperature_c.to_string().into(),
+                r.frequency_hz.to_string().into(),
+                format_si(r.amplitude_v, "V").into(),
+                r.metric.as_str().into(),
+                r.runs.to_string().into(),
+                figure(r.p05, &r.unit).into(),
+                figure(r.median, &r.unit).into(),
+                figure(r.p95, &r.unit).into(),
+            ]);
+        }
+        let _ = writeln!(out, "{}", table.to_markdown());
+        for y in &report.yield_ {
+            let _ = writeln!(
+                out,
+                "Yield of {} at {} °C ({} corner): {:.1} % of {} runs meet every budget line ({}: {:.1} % to {:.1} %).\n",
+                markdown_text(&y.stage),
+                y.temperature_c,
+                markdown_text(&y.corner),
+                100.0 * y.pass_fraction,
+                y.runs,
+                y.interval,
+                100.0 * y.pass_fraction_low,
+                100.0 * y.pass_fraction_high
+            );
+        }
+    }
+    for s in report
+        .sizing
+        .iter()
+        .filter(|s| s.conflict_gap_ohm.is_some())
+    {
+        let _ = writeln!(
+            out,
+            "Sizing of {} at {} °C: distortion needs R_E ≥ {} but noise allows at most {}; no value meets both (gap {}).\n",
+            markdown_text(&s.stage),
+            s.temperature_c,
+            s.distortion_least_emitter_resistance_ohm.map(|r| format_si(r, "Ω")).unwrap_or_default(),
+            s.noise_greatest_emitter_resistance_ohm.map(|r| format_si(r, "Ω")).unwrap_or_default(),
+            s.conflict_gap_ohm.map(|r| format_si(r, "Ω")).unwrap_or_default()
+        );
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn point(amplitude_v: f64, frequency_hz: f64) -> PointRecord {
+        serde_json::from_value(serde_json::json!({
+            "stage": "s", "temperature_c": 27.0, "frequency_hz": frequency_hz,
+            "amplitude_v": amplitude_v, "fundamental_v": 1.0, "gain_db": 0.0,
+            "thd_dbc": null, "single_ended_fundamental_v": 0.5,
+            "single_ended_hd2_dbc": null, "single_ended_hd3_dbc": null, "samples": 256,
+            "forward_active": true, "max_base_collector_v": -1.0, "min_current_fraction": 0.1,
+        }))
+        .unwrap()
+    }
+
+    /// A long sweep is thinned to evenly spaced rows with both ends and the budget's
+    /// amplitude; a short list of amplitudes is shown whole; each frequency separately.
+    #[test]
+    fn long_sweeps_are_thinned_short_lists_kept() {
+        let mut points: Vec<PointRecord> = (0..1000).map(|i| point(i as f64 * 1e-3, 1e3)).collect();
+        points.extend((0..5).map(|i| point(i as f64 * 1e-3, 1e6)));
+        let refs: Vec<&PointRecord> = points.iter().collect();
+        let shown = shown_points(&refs, &[0.4567]);
+        let at_1k: Vec<f64> = shown
+            .iter()
+            .filter(|p| p.frequency_hz == 1e3)
+            .map(|p| p.amplitude_v)
+            .collect();
+        assert_eq!(at_1k.len(), ROWS_PER_SWEEP + 1);
+        assert_eq!(at_1k[0], 0.0);
+        assert_eq!(*at_1k.last().unwrap(), 0.999);
+        assert!(at_1k.contains(&0.457), "{at_1k:?}");
+        assert!(at_1k.windows(2).all(|w| w[0] < w[1]));
+        assert_eq!(shown.iter().filter(|p| p.frequency_hz == 1e6).count(), 5);
+    }
+}

@@ -1,0 +1,249 @@
+//! One table model for every table the reports show — `summary.md`, `report.md` and
+//! `report.html` — rendered to Markdown or HTML with the cell text escaped once, here, so a
+//! stage named `a|b*<c>` or with a backtick is one cell in every document.
+
+use std::fmt::Write;
+
+/// A column: its title and whether it holds numbers (right-aligned).
+#[derive(Debug, Clone, PartialEq)]
+pub struct Column {
+    /// Title shown in the header row.
+    pub title: String,
+    /// Whether the column holds numbers.
+    pub numeric: bool,
+}
+
+/// How a cell is set apart.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum Mark {
+    /// Plain text.
+    #[default]
+    Plain,
+    /// A passing verdict.
+    Pass,
+    /// A failing verdict or a point to look at (bold in Markdown, red in HTML).
+    Fail,
+}
+
+/// One cell: plain text (never markup) and how it is set apart.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Cell {
+    /// The text as read, unescaped.
+    pub text: String,
+    /// How it is set apart.
+    pub mark: Mark,
+}
+
+impl Cell {
+    /// A passing verdict.
+    pub fn pass(text: impl Into<String>) -> Cell {
+        Cell {
+            text: text.into(),
+            mark: Mark::Pass,
+        }
+    }
+
+    /// A failing verdict.
+    pub fn fail(text: impl Into<String>) -> Cell {
+        Cell {
+            text: text.into(),
+            mark: Mark::Fail,
+        }
+    }
+
+    /// `pass_text` marked as passing when `pass`, otherwise `fail_text` marked as failing.
+    pub fn verdict(pass: bool, pass_text: &str, fail_text: &str) -> Cell {
+        if pass {
+            Cell::pass(pass_text)
+        } else {
+            Cell::fail(fail_text)
+        }
+    }
+}
+
+impl From<String> for Cell {
+    fn from(text: String) -> Cell {
+        Cell {
+            text,
+            mark: Mark::Plain,
+        }
+    }
+}
+
+impl From<&str> for Cell {
+    fn from(text: &str) -> Cell {
+        Cell::from(text.to_owned())
+    }
+}
+
+/// A table with a header row.
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct Table {
+    /// The columns.
+    pub columns: Vec<Column>,
+    /// Body rows, one cell per column.
+    pub rows: Vec<Vec<Cell>>,
+}
+
+impl Table {
+    /// An empty table with `(title, numeric)` columns.
+    pub fn new<'a>(columns: impl IntoIterator<Item = (&'a str, bool)>) -> Table {
+        Table {
+            columns: columns
+                .into_iter()
+                .map(|(title, numeric)| Column {
+                    title: title.to_owned(),
+                    numeric,
+                })
+                .collect(),
+            rows: Vec::new(),
+        }
+    }
+
+    /// Appends a row.
+    pub fn push(&mut self, row: Vec<Cell>) {
+        self.rows.push(row);
+    }
+
+    /// Whether the table has no rows.
+    pub fn is_empty(&self) -> bool {
+        self.rows.is_empty()
+    }
+
+    /// The table as a GitHub-flavoured Markdown table.
+    pub fn to_markdown(&self) -> String {
+        let mut out = String::new();
+        let header: Vec<String> = self
+            .columns
+            .iter()
+            .map(|c| markdown_text(&c.title))
+            .collect();
+        let _ = writeln!(out, "| {} |", header.join(" | "));
+        let rule: Vec<&str> = self
+            .columns
+            .iter()
+            .map(|c| if c.numeric { "---:" } else { "---" })
+            .collect();
+        let _ = writeln!(out, "|{}|", rule.join("|"));
+        for row in &self.rows {
+            let cells: Vec<String> = row
+                .iter()
+                .map(|cell| match cell.mark {
+                    Mark::Fail if !cell.text.is_empty() => {
+                        format!("**{}**", markdown_text(&cell.text))
+                    }
+                    _ => markdown_text(&cell.text),
+                })
+                .collect();
+            let _ = writeln!(out, "| {} |", cells.join(" | "));
+        }
+        out
+    }
+
+    /// The table as an HTML `<table>`.
+    pub fn to_html(&self) -> String {
+        let mut out = String::from("<table>\n<thead><tr>");
+        for column in &self.columns {
+            let _ = write!(
+                out,
+                "<th{}>{}</th>",
+                if column.numeric { " class=\"num\"" } else { "" },
+                html_text(&column.title)
+            );
+        }
+        out.push_str("</tr></thead>\n<tbody>\n");
+        for row in &self.rows {
+            out.push_str("<tr>");
+            for (cell, column) in row.iter().zip(&self.columns) {
+                let class = match (cell.mark, column.numeric) {
+                    (Mark::Fail, _) => " class=\"fail\"",
+                    (Mark::Pass, _) => " class=\"pass\"",
+                    (Mark::Plain, true) => " class=\"num\"",
+                    (Mark::Plain, false) => "",
+                };
+                let _ = write!(out, "<td{class}>{}</td>", html_text(&cell.text));
+            }
+            out.push_str("</tr>\n");
+        }
+        out.push_str("</tbody>\n</table>\n");
+        out
+    }
+}
+
+/// Text that Markdown shows as written: the characters that would start emphasis, code,
+/// links, HTML or a table cell are escaped. An underscore inside a word (`R_E`) cannot start
+/// emphasis in GitHub-flavoured Markdown and is left as it is.
+pub fn markdown_text(text: &str) -> String {
+    let chars: Vec<char> = text.chars().collect();
+    let mut out = String::with_capacity(text.len());
+    for (i, &c) in chars.iter().enumerate() {
+        let inside_word = |j: Option<usize>| {
+            j.and_then(|j| chars.get(j))
+                .is_some_and(|n| n.is_alphanumeric())
+        };
+        match c {
+            '_' if inside_word(i.checked_sub(1)) && inside_word(Some(i + 1)) => out.push(c),
+            '\\' | '`' | '*' | '_' | '[' | ']' | '|' | '#' => {
+                out.push('\\');
+                out.push(c);
+            }
+            '<' => out.push_str("&lt;"),
+            '>' => out.push_str("&gt;"),
+            '&' => out.push_str("&amp;"),
+            '\n' | '\r' => out.push(' '),
+            _ => out.push(c),
+        }
+    }
+    out
+}
+
+/// Text that HTML shows as written.
+pub fn html_text(text: &str) -> String {
+    text.replace('&', "&amp;")
+        .replace('<', "&lt;")
+        .replace('>', "&gt;")
+        .replace('"', "&quot;")
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    const AWKWARD: &str = "a|b*c<d>`e`_f";
+
+    fn table() -> Table {
+        let mut table = Table::new([("stage", false), ("gain (dB)", true), ("verdict", false)]);
+        table.push(vec![AWKWARD.into(), "12.5".into(), Cell::fail("FAIL")]);
+        table
+    }
+
+    /// GitHub-flavoured Markdown splits a row at every unescaped `|`; an escaped one stays in
+    /// its cell (the GFM table extension's rule, common practice).
+    #[test]
+    fn an_awkward_name_is_one_markdown_cell() {
+        let markdown = table().to_markdown();
+        let row = markdown.lines().nth(2).unwrap();
+        let mut cells = 0;
+        let mut escaped = false;
+        for c in row.chars() {
+            match (c, escaped) {
+                ('\\', false) => escaped = true,
+                ('|', false) => cells += 1,
+                _ => escaped = false,
+            }
+        }
+        assert_eq!(cells - 1, 3, "{row}");
+        assert!(row.contains(r"a\|b\*c&lt;d&gt;\`e\`\_f"), "{row}");
+        assert!(row.ends_with("| **FAIL** |"), "{row}");
+        assert!(markdown.lines().nth(1).unwrap() == "|---|---:|---|");
+    }
+
+    #[test]
+    fn an_awkward_name_is_one_html_cell() {
+        let html = table().to_html();
+        assert!(html.contains("<td>a|b*c&lt;d&gt;`e`_f</td>"), "{html}");
+        assert!(html.contains("<td class=\"num\">12.5</td>"));
+        assert!(html.contains("<td class=\"fail\">FAIL</td>"));
+        assert_eq!(html.matches("<td").count(), 3);
+    }
+}

@@ -1,0 +1,112 @@
+//! The shell: the commands as library calls. `run` reads a plan, evaluates it with
+//! [`crate::Plan::evaluate_with`] — the call a library user makes — and writes its folder;
+//! `check` validates only. The binary parses arguments and maps the outcome to an exit
+//! status.
+
+mod files;
+mod folder;
+
+use crate::error::Error;
+use crate::model::plan::Plan;
+use crate::plan::PlanSource;
+use crate::report::Report;
+use crate::study::evaluate::Progress;
+use crate::study::workload::{self, Workload};
+use std::path::{Path, PathBuf};
+
+pub use files::write_files;
+pub use folder::{check_output_dir, write_report_folder, Staging};
+pub use workload::DEFAULT_MAX_WORK;
+
+/// Options of `linbudget run`.
+#[derive(Debug, Clone)]
+pub struct RunOptions {
+    /// The plan file.
+    pub plan: PathBuf,
+    /// Output folder (the report goes to `out/<plan name>/`).
+    pub out: PathBuf,
+    /// Print the JSON report on standard output.
+    pub json: bool,
+    /// No progress lines on standard error.
+    pub quiet: bool,
+    /// Largest estimated work accepted, sample solves.
+    pub max_work: f64,
+    /// Draw the figures (SVG and PNG); false writes the tables and reports only.
+    pub figures: bool,
+}
+
+/// What a run produced.
+#[derive(Debug)]
+pub struct RunOutcome {
+    /// The report.
+    pub report: Report,
+    /// Where it was written.
+    pub folder: PathBuf,
+}
+
+/// A progress event in words, for a status line.
+pub fn describe(progress: Progress) -> String {
+    match progress {
+        Progress::DrivePoints {
+            stages,
+            temperatures,
+            corners,
+            frequencies,
+            amplitudes,
+        } => format!(
+            "evaluating {stages} stage(s) × {temperatures} temperature(s) × {corners} corner(s) × {frequencies} frequency(ies) × {amplitudes} amplitude(s)"
+        ),
+        Progress::MonteCarlo { runs } => {
+            format!("Monte Carlo: {runs} run(s) per stage and temperature")
+        }
+        Progress::Sizing => "sizing emitter degeneration".into(),
+    }
+}
+
+/// Validates a plan file, including its estimated work against the default limit.
+pub fn check(plan: &Path) -> Result<Plan, Error> {
+    check_within(plan, DEFAULT_MAX_WORK)
+}
+
+/// Validates a plan file and refuses it when its estimated work exceeds `max_work`.
+pub fn check_within(plan: &Path, max_work: f64) -> Result<Plan, Error> {
+    let source = PlanSource::read(plan)?;
+    let validated = source.plan()?;
+    within_work_limit(&source, &validated, max_work)?;
+    Ok(validated)
+}
+
+/// Refuses a plan whose estimated work exceeds `max_work` sample solves, pointing at the key
+/// of its largest factor and saying how to raise the limit deliberately.
+fn within_work_limit(source: &PlanSource, plan: &Plan, max_work: f64) -> Result<Workload, Error> {
+    let work = workload::estimate(plan);
+    if work.sample_solves <= max_work {
+        return Ok(work);
+    }
+    Err(source
+        .error_at_key(
+            work.dominant_key,
+            format!(
+                "the plan asks for about {:.2e} sample solves ({}), above the work limit of {:.2e}",
+                work.sample_solves, work.breakdown, max_work
+            ),
+            format!(
+                "a plan within the limit (fewer points or runs), or raise the limit deliberately \
+                 with `--max-work {:.0e}`",
+                work.sample_solves.max(max_work) * 1.01
+            ),
+        )
+        .into())
+}
+
+/// Evaluates a plan and writes its report folder; nothing is written when anything fails.
+pub fn run(options: &RunOptions, progress: &(dyn Fn(&str) + Sync)) -> Result<RunOutcome, Error> {
+    let plan = check_within(&options.plan, options.max_work)?;
+    check_output_dir(&options.out)?;
+    let report = plan.evaluate_with(&|event| progress(&describe(event)))?;
+    progress("drawing figures and writing the report");
+    let folder = write_report_folder(&options.out, &plan.name, |staging| {
+        write_files(&report, options.figures, staging)
+    })?;
+    Ok(RunOutcome { report, folder })
+}

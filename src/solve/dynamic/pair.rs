@@ -1,0 +1,345 @@
+//! The emitter-coupled pair with its charges, in the charge-based form of
+//! [`super::trapezoid`].
+//!
+//! Unknowns (node voltages): intrinsic bases `B_P, B_M`, emitters `E_P, E_M`, the tail node
+//! `T`, collectors `C_P, C_M`. Resistors are written as `V_a − V_b − R·I = 0`, so a zero
+//! resistance simply ties the nodes together without any infinite conductance.
+//!
+//! Per side, with `J = I_S·exp(V_BE/φT)`, `I_C = J·(1 + V_CE/V_A)`, `I_B = J/β`:
+//!
+//! ```text
+//! base path:   V_in − V_B − (R_S + r_b)·(I_B + i_BE + i_BC) = 0
+//! emitter:     V_E − V_T − R_E·(I_C + I_B + i_BE)          = 0
+//! collector:   V_CC − V_C + R_L·(i_L − I_C + i_BC)          = 0
+//! tail (KCL):  Σ (I_C + I_B + i_BE) − I_tail − V_T/R_tail − i_T = 0
+//! ```
+//!
+//! Charges: `Q_BE = τ_F·I_C + Q_j(V_BE; C_je, V_je, m_e)` (diffusion charge on the collector
+//! current including the Early factor, as the plan's `transit_time` is defined),
+//! `Q_BC = Q_j(V_BC; C_jc, V_jc, m_c)`, `Q_L = C_L·(V_CC − V_C)` across each load and
+//! `Q_T = C_T·V_T`. The depletion charge follows the junction law
+//! `C(V) = C_j0·(1 − V/V_j)^(−m)` below `F_C·V_j` (`F_C` = 0.5) and its tangent line above, so
+//! it stays finite under forward bias; the charge is the exact integral of that capacitance.
+
+use super::trapezoid::ChargeSystem;
+use crate::model::circuit::{Side, StageCircuit};
+use std::f64::consts::TAU;
+
+/// Forward-bias coefficient where the depletion capacitance law is continued linearly.
+pub const FORWARD_BIAS_COEFFICIENT: f64 = 0.5;
+
+/// Unknown indices.
+const B_P: usize = 0;
+const B_M: usize = 1;
+const E_P: usize = 2;
+const E_M: usize = 3;
+const TAIL: usize = 4;
+const C_P: usize = 5;
+const C_M: usize = 6;
+/// Number of unknowns.
+pub const UNKNOWNS: usize = 7;
+/// Charge indices.
+const Q_BE_P: usize = 0;
+const Q_BE_M: usize = 1;
+const Q_BC_P: usize = 2;
+const Q_BC_M: usize = 3;
+const Q_L_P: usize = 4;
+const Q_L_M: usize = 5;
+const Q_T: usize = 6;
+/// Number of charges.
+pub const CHARGES: usize = 7;
+
+/// Depletion charge and capacitance of a junction at voltage `v` (see the module docs).
+pub fn depletion_charge(v: f64, zero_bias_f: f64, potential_v: f64, grading: f64) -> (f64, f64) {
+    if zero_bias_f == 0.0 {
+        return (0.0, 0.0);
+    }
+    let fc = FORWARD_BIAS_COEFFICIENT;
+    let knee = fc * potential_v;
+    let below = |v: f64| -> (f64, f64) {
+        let ratio = 1.0 - v / potential_v;
+        let charge =
+            zero_bias_f * potential_v / (1.0 - grading) * (1.0 - ratio.powf(1.0 - grading));
+        (charge, zero_bias_f * ratio.powf(-grading))
+    };
+    if v < knee {
+        below(v)
+    } else {
+        let (charge_knee, _) = below(knee);
+        let scale = zero_bias_f / (1.0 - fc).powf(1.0 + grading);
+        let constant = 1.0 - fc * (1.0 + grading);
+        let slope = grading / potential_v;
+        let charge =
+            charge_knee + scale * (constant * (v - knee) + 0.5 * slope * (v * v - knee * knee));
+        (charge, scale * (constant + slope * v))
+    }
+}
+
+/// The differential drive: one tone or two equal tones, peak volts and angular frequencies.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Drive {
+    /// `v_d = A·cos(ω t)`.
+    Tone {
+        /// Peak amplitude, V.
+        amplitude_v: f64,
+        /// Frequency, Hz.
+        frequency_hz: f64,
+    },
+    /// `v_d = A·(cos ω₁t + cos ω₂t)`.
+    TwoTone {
+        /// Peak amplitude per tone, V.
+        amplitude_v: f64,
+        /// Lower tone, Hz.
+        first_hz: f64,
+        /// Upper tone, Hz.
+        second_hz: f64,
+    },
+}
+
+impl Drive {
+    /// Differential input at `time_s`, V.
+    pub fn differential_v(&self, time_s: f64) -> f64 {
+        match *self {
+            Drive::Tone {
+                amplitude_v,
+                frequency_hz,
+            } => amplitude_v * phase_cos(frequency_hz, time_s),
+            Drive::TwoTone {
+                amplitude_v,
+                first_hz,
+                second_hz,
+            } => amplitude_v * (phase_cos(first_hz, time_s) + phase_cos(second_hz, time_s)),
+        }
+    }
+}
+
+/// `cos(2π f t)` with the phase reduced to one cycle first (exact periodicity over long spans).
+fn phase_cos(frequency_hz: f64, time_s: f64) -> f64 {
+    let cycles = frequency_hz * time_s;
+    (TAU * (cycles - cycles.round())).cos()
+}
+
+/// The stage under a drive, as a [`ChargeSystem`].
+#[derive(Debug, Clone)]
+pub struct PairSystem<'a> {
+    circuit: &'a StageCircuit,
+    drive: Drive,
+    coupling: [f64; UNKNOWNS * CHARGES],
+    tail_scale: f64,
+}
+
+/// Per-side currents and their partial derivatives with respect to `V_B, V_E, V_C`.
+struct SideCurrents {
+    collector: f64,
+    base: f64,
+    d_collector: [f64; 3],
+    d_base: [f64; 3],
+}
+
+fn side_currents(side: &Side, phi: f64, vb: f64, ve: f64, vc: f64) -> SideCurrents {
+    let j = side.saturation_current * ((vb - ve) / phi).exp();
+    let early = 1.0 + (vc - ve) * side.early_inv;
+    let collector = j * early;
+    let dj = j / phi;
+    SideCurrents {
+        collector,
+        base: j * side.beta_inv,
+        d_collector: [
+            dj * early,
+            -dj * early - j * side.early_inv,
+            j * side.early_inv,
+        ],
+        d_base: [dj * side.beta_inv, -dj * side.beta_inv, 0.0],
+    }
+}
+
+impl<'a> PairSystem<'a> {
+    /// The stage `circuit` driven by `drive`.
+    pub fn new(circuit: &'a StageCircuit, drive: Drive) -> Self {
+        let mut coupling = [0.0; UNKNOWNS * CHARGES];
+        let tail_scale = 0.5 * (circuit.p.load_resistance + circuit.m.load_resistance);
+        let mut set =
+            |row: usize, charge: usize, value: f64| coupling[row * CHARGES + charge] = value;
+        for (side, b, e, c, qbe, qbc, ql) in [
+            (&circuit.p, B_P, E_P, C_P, Q_BE_P, Q_BC_P, Q_L_P),
+            (&circuit.m, B_M, E_M, C_M, Q_BE_M, Q_BC_M, Q_L_M),
+        ] {
+            set(b, qbe, -side.base_path_resistance);
+            set(b, qbc, -side.base_path_resistance);
+            set(e, qbe, -side.emitter_resistance);
+            set(c, ql, side.load_resistance);
+            set(c, qbc, side.load_resistance);
+            set(TAIL, qbe, tail_scale);
+        }
+        set(TAIL, Q_T, -tail_scale);
+        PairSystem {
+            circuit,
+            drive,
+            coupling,
+            tail_scale,
+        }
+    }
+
+    /// Differential output `V_C,M − V_C,P` of a state, V.
+    pub fn output_v(x: &[f64]) -> f64 {
+        x[C_M] - x[C_P]
+    }
+
+    /// P-side collector voltage of a state, V.
+    pub fn p_collector_v(x: &[f64]) -> f64 {
+        x[C_P]
+    }
+
+    /// Largest base-collector voltage of the two sides (positive = forward-biased), V.
+    pub fn max_base_collector_v(x: &[f64]) -> f64 {
+        (x[B_P] - x[C_P]).max(x[B_M] - x[C_M])
+    }
+
+    /// Smaller collector current of the two sides, A.
+    pub fn min_collector_current(&self, x: &[f64]) -> f64 {
+        let phi = self.circuit.thermal_voltage;
+        let p = side_currents(&self.circuit.p, phi, x[B_P], x[E_P], x[C_P]);
+        let m = side_currents(&self.circuit.m, phi, x[B_M], x[E_M], x[C_M]);
+        p.collector.min(m.collector)
+    }
+
+    /// The node voltages of a memoryless operating point (a start for shooting).
+    pub fn state_from(point: &crate::solve::transfer::OperatingPoint) -> Vec<f64> {
+        let mut x = vec![0.0; UNKNOWNS];
+        x[B_P] = point.p.base_voltage;
+        x[B_M] = point.m.base_voltage;
+        x[E_P] = point.p.base_voltage - point.p.base_emitter_voltage;
+        x[E_M] = point.m.base_voltage - point.m.base_emitter_voltage;
+        x[TAIL] = point.tail_voltage;
+        x[C_P] = point.p.collector_voltage;
+        x[C_M] = point.m.collector_voltage;
+        x
+    }
+}
+
+impl ChargeSystem for PairSystem<'_> {
+    fn unknowns(&self) -> usize {
+        UNKNOWNS
+    }
+
+    fn charges(&self) -> usize {
+        CHARGES
+    }
+
+    fn resistive(&self, x: &[f64], time_s: f64, f: &mut [f64], jacobian: &mut [f64]) {
+        let c = self.circuit;
+        let phi = c.thermal_voltage;
+        let v_d = self.drive.differential_v(time_s);
+        jacobian.fill(0.0);
+        let n = UNKNOWNS;
+        let st = self.tail_scale;
+        f[TAIL] = -st * (c.tail_current + c.tail_conductance * x[TAIL]);
+        jacobian[TAIL * n + TAIL] = -st * c.tail_conductance;
+        for (side, sign, b, e, col) in [(&c.p, 0.5, B_P, E_P, C_P), (&c.m, -0.5, B_M, E_M, C_M)] {
+            let v_in = c.input_common_mode + sign * v_d;
+            let s = side_currents(side, phi, x[b], x[e], x[col]);
+            let nodes = [b, e, col];
+            f[b] = v_in - x[b] - side.base_path_resistance * s.base;
+            jacobian[b * n + b] -= 1.0;
+            f[e] = x[e] - x[TAIL] - side.emitter_resistance * (s.collector + s.base);
+            jacobian[e * n + e] += 1.0;
+            jacobian[e * n + TAIL] -= 1.0;
+            f[col] = c.supply - x[col] - side.load_resistance * s.collector;
+            jacobian[col * n + col] -= 1.0;
+            f[TAIL] += st * (s.collector + s.base);
+            for (k, &node) in nodes.iter().enumerate() {
+                jacobian[b * n + node] -= side.base_path_resistance * s.d_base[k];
+                jacobian[e * n + node] -=
+                    side.emitter_resistance * (s.d_collector[k] + s.d_base[k]);
+                jacobian[col * n + node] -= side.load_resistance * s.d_collector[k];
+                jacobian[TAIL * n + node] += st * (s.d_collector[k] + s.d_base[k]);
+            }
+        }
+    }
+
+    fn charge(&self, x: &[f64], q: &mut [f64], jacobian: &mut [f64]) {
+        let c = self.circuit;
+        let ch = &c.charge;
+        let phi = c.thermal_voltage;
+        let n = UNKNOWNS;
+        jacobian.fill(0.0);
+        for (side, b, e, col, qbe, qbc, ql) in [
+            (&c.p, B_P, E_P, C_P, Q_BE_P, Q_BC_P, Q_L_P),
+            (&c.m, B_M, E_M, C_M, Q_BE_M, Q_BC_M, Q_L_M),
+        ] {
+            let s = side_currents(side, phi, x[b], x[e], x[col]);
+            let (junction, capacitance) = depletion_charge(
+                x[b] - x[e],
+                ch.emitter_junction_capacitance,
+                ch.emitter_junction_potential,
+                ch.emitter_grading,
+            );
+            q[qbe] = ch.transit_time * s.collector + junction;
+            for (k, &node) in [b, e, col].iter().enumerate() {
+                jacobian[qbe * n + node] += ch.transit_time * s.d_collector[k];
+            }
+            jacobian[qbe * n + b] += capacitance;
+            jacobian[qbe * n + e] -= capacitance;
+            let (junction, capacitance) = depletion_charge(
+                x[b] - x[col],
+                ch.collector_junction_capacitance,
+                ch.collector_junction_potential,
+                ch.collector_grading,
+            );
+            q[qbc] = junction;
+            jacobian[qbc * n + b] += capacitance;
+            jacobian[qbc * n + col] -= capacitance;
+            q[ql] = c.load_capacitance * (c.supply - x[col]);
+            jacobian[ql * n + col] = -c.load_capacitance;
+        }
+        q[Q_T] = c.tail_capacitance * x[TAIL];
+        jacobian[Q_T * n + TAIL] = c.tail_capacitance;
+    }
+
+    fn coupling(&self) -> &[f64] {
+        &self.coupling
+    }
+
+    fn step_fraction(&self, _x: &[f64], dx: &[f64]) -> f64 {
+        // Junction limiting: no base-emitter voltage moves by more than 8·φT per iteration
+        // (keeps the exponentials finite far from the solution), no node by more than 1 V.
+        let limit = 8.0 * self.circuit.thermal_voltage;
+        let junction = (dx[B_P] - dx[E_P]).abs().max((dx[B_M] - dx[E_M]).abs());
+        let node = dx.iter().fold(0.0f64, |a, v| a.max(v.abs()));
+        let mut fraction: f64 = 1.0;
+        if junction > limit {
+            fraction = fraction.min(limit / junction);
+        }
+        if node > 1.0 {
+            fraction = fraction.min(1.0 / node);
+        }
+        fraction
+    }
+
+    fn current_scale(&self) -> f64 {
+        self.tail_scale
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn depletion_charge_is_the_integral_of_its_capacitance() {
+        // The charge must be the integral of C(V) on both sides of the knee (charge
+        // conservation); checked by a fine midpoint sum.
+        let (cj, vj, m) = (1e-12, 0.75, 0.33);
+        let mut sum = 0.0;
+        let steps = 200_000;
+        let top = 0.7;
+        for k in 0..steps {
+            let v = (k as f64 + 0.5) * top / steps as f64;
+            sum += depletion_charge(v, cj, vj, m).1 * top / steps as f64;
+        }
+        let (charge, _) = depletion_charge(top, cj, vj, m);
+        assert!((charge - sum).abs() < 1e-9 * charge, "{charge} vs {sum}");
+        // Zero bias: C = C_j0 (the junction law, from memory).
+        assert!((depletion_charge(0.0, cj, vj, m).1 - cj).abs() < 1e-24);
+    }
+}

@@ -1,0 +1,210 @@
+//! Scalar root finding: Newton's method safeguarded by bisection on a sign-change bracket.
+//!
+//! Every call states its tolerance and either converges or returns [`RootFailure`] with the
+//! bracket it reached; it never returns a silent NaN or a clipped guess.
+
+/// Why a root search gave up.
+#[derive(Debug, Clone, PartialEq)]
+pub struct RootFailure {
+    /// What went wrong, in words.
+    pub reason: String,
+}
+
+impl std::fmt::Display for RootFailure {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(&self.reason)
+    }
+}
+
+impl std::error::Error for RootFailure {}
+
+/// Convergence settings for [`safe_newton`].
+#[derive(Debug, Clone, Copy)]
+pub struct Tolerance {
+    /// Converged when a step is at most `relative·max(|x|, scale) `.
+    pub relative: f64,
+    /// Typical magnitude of the unknown, so that roots near zero converge too.
+    pub scale: f64,
+    /// Iteration cap.
+    pub max_iterations: usize,
+}
+
+impl Tolerance {
+    /// Steps down to a few ulps of the unknown: the solution is as exact as double precision.
+    pub const MACHINE: Tolerance = Tolerance {
+        relative: 4.0 * f64::EPSILON,
+        scale: 1.0,
+        max_iterations: 200,
+    };
+}
+
+/// Finds x in `[low, high]` with `f(x) = 0`, where `f` returns `(value, derivative)` and
+/// `f(low)` and `f(high)` have opposite signs (or one is zero).
+///
+/// Newton steps from `guess` are taken while they stay inside the shrinking bracket and
+/// shrink it fast enough; otherwise the step is a bisection. Converges when the step is below
+/// the tolerance or the bracket collapses to adjacent floating-point numbers.
+pub fn safe_newton(
+    mut f: impl FnMut(f64) -> (f64, f64),
+    mut low: f64,
+    mut high: f64,
+    guess: f64,
+    tolerance: Tolerance,
+) -> Result<f64, RootFailure> {
+    let (f_low, _) = f(low);
+    let (f_high, _) = f(high);
+    if !f_low.is_finite() || !f_high.is_finite() {
+        return Err(RootFailure {
+            reason: format!("the function is not finite at the bracket [{low:e}, {high:e}]"),
+        });
+    }
+    if f_low == 0.0 {
+        return Ok(low);
+    }
+    if f_high == 0.0 {
+        return Ok(high);
+    }
+    if f_low.signum() == f_high.signum() {
+        return Err(RootFailure {
+            reason: format!("no sign change in [{low:e}, {high:e}] (values {f_low:e}, {f_high:e})"),
+        });
+    }
+    // Orient so that f(low) < 0 < f(high).
+    if f_low > 0.0 {
+        std::mem::swap(&mut low, &mut high);
+    }
+    let mut x = if guess > low.min(high) && guess < low.max(high) {
+        guess
+    } else {
+        0.5 * (low + high)
+    };
+    let mut previous_step = (high - low).abs();
+    for _ in 0..tolerance.max_iterations {
+        let (value, slope) = f(x);
+        if !value.is_finite() {
+            return Err(RootFailure {
+                reason: format!("the function is not finite at x = {x:e}"),
+            });
+        }
+        if value == 0.0 {
+            return Ok(x);
+        }
+        if value < 0.0 {
+            low = x;
+        } else {
+            high = x;
+        }
+        let newton = x - value / slope;
+        let inside =
+            slope.is_finite() && slope != 0.0 && newton > low.min(high) && newton < low.max(high);
+        let step;
+        if inside && (newton - x).abs() <= 0.5 * previous_step {
+            step = newton - x;
+            x = newton;
+        } else {
+            let mid = 0.5 * (low + high);
+            step = mid - x;
+            x = mid;
+        }
+        previous_step = step.abs();
+        let limit = tolerance.relative * x.abs().max(tolerance.scale);
+        if step.abs() <= limit || (high - low).abs() <= limit {
+            return Ok(x);
+        }
+    }
+    Err(RootFailure {
+        reason: format!(
+            "no convergence in {} iterations; bracket [{low:e}, {high:e}]",
+            tolerance.max_iterations
+        ),
+    })
+}
+
+/// Widens `[low, high]` geometrically around a guess until `f` changes sign.
+///
+/// `f` must be increasing for the direction logic to apply; at most `max_doublings` widenings.
+pub fn bracket_increasing(
+    mut f: impl FnMut(f64) -> f64,
+    guess: f64,
+    initial_step: f64,
+    max_doublings: usize,
+) -> Result<(f64, f64), RootFailure> {
+    let mut step = initial_step;
+    let mut low = guess - step;
+    let mut high = guess + step;
+    let mut f_low = f(low);
+    let mut f_high = f(high);
+    for _ in 0..max_doublings {
+        if f_low <= 0.0 && f_high >= 0.0 {
+            return Ok((low, high));
+        }
+        step *= 2.0;
+        if f_low > 0.0 {
+            high = low;
+            low -= step;
+            f_low = f(low);
+        } else {
+            low = high;
+            high += step;
+            f_high = f(high);
+        }
+        if f_low.is_nan() || f_high.is_nan() {
+            break;
+        }
+    }
+    Err(RootFailure {
+        reason: format!(
+            "could not bracket a root near {guess:e} (last interval [{low:e}, {high:e}])"
+        ),
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn finds_cube_root_of_two() {
+        let root = safe_newton(
+            |x| (x * x * x - 2.0, 3.0 * x * x),
+            0.0,
+            2.0,
+            1.0,
+            Tolerance::MACHINE,
+        )
+        .unwrap();
+        assert!((root - 2f64.cbrt()).abs() < 1e-15);
+    }
+
+    #[test]
+    fn survives_a_bad_derivative() {
+        // atan has vanishing slope far out; plain Newton from x = 10 diverges.
+        let root = safe_newton(
+            |x| (x.atan(), 1.0 / (1.0 + x * x)),
+            -20.0,
+            30.0,
+            10.0,
+            Tolerance::MACHINE,
+        )
+        .unwrap();
+        assert!(root.abs() < 1e-15);
+    }
+
+    #[test]
+    fn reports_a_missing_sign_change() {
+        let err = safe_newton(
+            |x| (x * x + 1.0, 2.0 * x),
+            -1.0,
+            1.0,
+            0.0,
+            Tolerance::MACHINE,
+        );
+        assert!(err.unwrap_err().reason.contains("no sign change"));
+    }
+
+    #[test]
+    fn brackets_far_roots() {
+        let (low, high) = bracket_increasing(|x| x - 1000.0, 0.0, 1.0, 40).unwrap();
+        assert!(low <= 1000.0 && high >= 1000.0);
+    }
+}

@@ -1,0 +1,369 @@
+//! One stage at one temperature in one process corner, evaluated over the whole drive: every
+//! drive point, the stage-wide figures, the operating point and the budget lines.
+
+use crate::error::{Error, SolveFailure};
+use crate::measure::budget::judge;
+use crate::measure::large_signal::Intercept;
+use crate::measure::noise::{
+    dynamic_range_db, sfdr_dbc, snr_db, third_order_sfdr_db, NoiseFigures,
+};
+use crate::measure::small_signal::{offset_voltage, transfer_curve, TransferSample};
+use crate::measure::stage::{DriveSettings, StageMeasurements};
+use crate::model::plan::Plan;
+use crate::model::stage::Stage;
+use crate::solve::response::{RegionCheck, ResponseEngine};
+use crate::solve::spectrum::{FftCache, ANALYSIS_FLOOR_DBC};
+use crate::solve::transfer::OperatingPoint;
+use rayon::prelude::*;
+use std::sync::Arc;
+
+/// Transfer-curve samples per stage and temperature.
+pub const TRANSFER_POINTS: usize = 241;
+
+/// One stage at one temperature in one process corner, over the whole drive.
+#[derive(Debug, Clone)]
+pub struct CaseEvaluation {
+    /// Index of the stage in the plan.
+    pub stage_index: usize,
+    /// The stage as built in this corner.
+    pub stage: Stage,
+    /// Temperature, °C.
+    pub temperature_c: f64,
+    /// Process corner name.
+    pub corner: String,
+    /// Drive points in frequency-major order.
+    pub points: Vec<DrivePoint>,
+    /// Figures per drive frequency, in plan order.
+    pub frequencies: Vec<FrequencyFigures>,
+    /// Operating point and stage-wide figures.
+    pub operating: OperatingFigures,
+    /// Budget lines in plan order.
+    pub budget: Vec<LineResult>,
+}
+
+/// The measured figures of one drive point.
+#[derive(Debug, Clone)]
+pub struct DrivePoint {
+    /// Frequency, Hz.
+    pub frequency_hz: f64,
+    /// Peak differential input per tone, V.
+    pub amplitude_v: f64,
+    /// Peak differential output fundamental, V.
+    pub fundamental_v: f64,
+    /// 20·log10(fundamental/amplitude), dB.
+    pub gain_db: f64,
+    /// HD2 upward (index 0 is HD2), dBc, `None` below the floor.
+    pub harmonics_dbc: Vec<Option<f64>>,
+    /// THD, dBc.
+    pub thd_dbc: Option<f64>,
+    /// Two-tone figures, when the plan asks for them.
+    pub two_tone: Option<TwoToneFigures>,
+    /// Fundamental of the P-side collector voltage, V.
+    pub single_ended_fundamental_v: f64,
+    /// HD2 of the P-side collector voltage, dBc.
+    pub single_ended_hd2_dbc: Option<f64>,
+    /// HD3 of the P-side collector voltage, dBc.
+    pub single_ended_hd3_dbc: Option<f64>,
+    /// Samples (or time steps) per period.
+    pub samples: usize,
+    /// Operating-region check over the period.
+    pub region: RegionCheck,
+    /// Signal over band noise, dB (plans with a noise band).
+    pub snr_db: Option<f64>,
+    /// Fundamental over the largest spur, dBc.
+    pub sfdr_dbc: Option<f64>,
+    /// Signal over the larger of band noise and the largest spur, dB.
+    pub dynamic_range_db: Option<f64>,
+}
+
+/// Two-tone figures of one drive point.
+#[derive(Debug, Clone, Copy)]
+pub struct TwoToneFigures {
+    /// IM3, dBc (`None` below the floor).
+    pub im3_dbc: Option<f64>,
+    /// IM2, dBc (`None` below the floor).
+    pub im2_dbc: Option<f64>,
+    /// A·10^(−IM3/40), V.
+    pub iip3_effective_v: Option<f64>,
+    /// One tone's output fundamental, V.
+    pub fundamental_v: f64,
+}
+
+/// Intercepts, compression and gain at one frequency.
+#[derive(Debug, Clone, Copy)]
+pub struct FrequencyFigures {
+    /// Frequency, Hz.
+    pub frequency_hz: f64,
+    /// Third-order intercept found in the small-signal region.
+    pub intercept: Option<Intercept>,
+    /// Input 1 dB compression point, V.
+    pub p1db_v: Option<f64>,
+    /// Small-signal gain at this frequency, V/V (magnitude).
+    pub gain: f64,
+    /// Third-order spurious-free dynamic range against the band noise, dB.
+    pub sfdr_db: Option<f64>,
+}
+
+/// The operating point and stage-wide figures of a case.
+#[derive(Debug, Clone)]
+pub struct OperatingFigures {
+    /// Thermal voltage, V.
+    pub thermal_voltage_v: f64,
+    /// Small-signal gain at zero frequency, V/V.
+    pub small_signal_gain: f64,
+    /// Small-signal transconductance, S.
+    pub transconductance_s: f64,
+    /// Input offset, V.
+    pub input_offset_v: f64,
+    /// Inputs at the 5 % and 95 % steering points, V.
+    pub steering_v: (f64, f64),
+    /// 3φT + 0.9·I_tail·R_E, V.
+    pub steering_rule_of_thumb_v: f64,
+    /// Tail current at this temperature and corner, A.
+    pub tail_current_a: f64,
+    /// The circuit at zero input.
+    pub zero_input: OperatingPoint,
+    /// Transfer curve.
+    pub transfer: Vec<TransferSample>,
+    /// White input noise density, V/√Hz.
+    pub noise_v_rthz: f64,
+    /// White and flicker noise.
+    pub noise: NoiseFigures,
+    /// Input noise integrated over the plan's band, V rms.
+    pub band_noise_v: Option<f64>,
+}
+
+/// One budget line checked on a case.
+#[derive(Debug, Clone, Copy)]
+pub struct LineResult {
+    /// Index of the line in the plan's budget.
+    pub line: usize,
+    /// Frequency the line applies at, Hz.
+    pub frequency_hz: f64,
+    /// Amplitude the line applies at, V (amplitude-dependent metrics).
+    pub amplitude_v: Option<f64>,
+    /// The measured value (`None`: below the floor, or unbounded).
+    pub value: Option<f64>,
+    /// Margin, dB.
+    pub margin: Option<f64>,
+    /// Whether the line passes.
+    pub pass: bool,
+}
+
+/// Measurements of a stage at a temperature, for the studies.
+pub fn measurements(
+    stage: &Stage,
+    temperature_c: f64,
+    plan: &Plan,
+    cache: &Arc<FftCache>,
+) -> StageMeasurements {
+    StageMeasurements::of_stage(
+        stage,
+        temperature_c,
+        cache.clone(),
+        DriveSettings::of(&plan.drive),
+    )
+}
+
+/// Evaluates one stage (as built in its corner) at one temperature over the whole drive.
+pub fn evaluate_case(
+    plan: &Plan,
+    stage_index: usize,
+    stage: Stage,
+    temperature_c: f64,
+    corner: &str,
+    cache: &Arc<FftCache>,
+) -> Result<CaseEvaluation, Error> {
+    let measured = measurements(&stage, temperature_c, plan, cache);
+    let fail = |failure: SolveFailure| Error::solve(&stage.name, temperature_c, failure);
+
+    let drive_points: Vec<(f64, f64)> = plan
+        .drive
+        .frequencies
+        .iter()
+        .flat_map(|f| plan.drive.amplitudes.iter().map(move |a| (*f, *a)))
+        .collect();
+    let engine = measured.engine();
+    // The stage-wide figures (gain, steering, noise, intercepts, compression) do not depend
+    // on the drive points: work them out alongside, so no core waits for the other.
+    let (points, figures) = rayon::join(
+        || {
+            drive_points
+                .par_iter()
+                .map(|(frequency, amplitude)| {
+                    drive_point(plan, engine, *frequency, *amplitude)
+                        .map_err(|failure| at_drive_point(failure, *amplitude, *frequency))
+                })
+                .collect::<Result<Vec<_>, SolveFailure>>()
+        },
+        || {
+            measured.gain()?;
+            measured.steering()?;
+            measured.noise()?;
+            for &frequency in &plan.drive.frequencies {
+                measured.intercept(frequency)?;
+                measured.p1db(frequency)?;
+                measured.gain_at(frequency)?;
+            }
+            Ok::<_, SolveFailure>(())
+        },
+    );
+    let mut points = points.map_err(fail)?;
+    figures.map_err(fail)?;
+
+    let gain = measured.gain().map_err(fail)?;
+    let steering = measured.steering().map_err(fail)?;
+    let noise_v_rthz = measured.noise().map_err(fail)?;
+    let solver = engine.static_solver();
+    let circuit = solver.circuit();
+    let noise = NoiseFigures::measure(solver, &stage.transistor).map_err(fail)?;
+    let band_noise_v = plan.noise_band.map(|band| noise.integrated_v(&band));
+    for point in &mut points {
+        let two = point.two_tone.as_ref();
+        let spurs = point
+            .harmonics_dbc
+            .iter()
+            .copied()
+            .chain([two.and_then(|t| t.im3_dbc), two.and_then(|t| t.im2_dbc)]);
+        point.sfdr_dbc = sfdr_dbc(spurs);
+        if let Some(noise_rms) = band_noise_v {
+            let snr = snr_db(point.amplitude_v, noise_rms);
+            point.snr_db = Some(snr);
+            point.dynamic_range_db = Some(dynamic_range_db(snr, point.sfdr_dbc));
+        }
+    }
+
+    let mut frequencies = Vec::with_capacity(plan.drive.frequencies.len());
+    for &frequency_hz in &plan.drive.frequencies {
+        let intercept = measured.intercept(frequency_hz).map_err(fail)?;
+        let iip3 = intercept.map(|i| i.iip3_v);
+        frequencies.push(FrequencyFigures {
+            frequency_hz,
+            intercept,
+            p1db_v: measured.p1db(frequency_hz).map_err(fail)?,
+            gain: measured.gain_at(frequency_hz).map_err(fail)?.abs(),
+            sfdr_db: match (iip3, band_noise_v) {
+                (Some(v), Some(n)) => Some(third_order_sfdr_db(v, n)),
+                _ => None,
+            },
+        });
+    }
+
+    let zero_input = solver.solve_cold(0.0).map_err(fail)?;
+    let input_offset_v = offset_voltage(solver).map_err(fail)?;
+    let (steer_low, steer_high) = steering;
+    let span = (2.0 * steer_high.abs().max(steer_low.abs())).max(4.0 * circuit.thermal_voltage);
+    let transfer = transfer_curve(solver, span, TRANSFER_POINTS).map_err(fail)?;
+    let operating = OperatingFigures {
+        thermal_voltage_v: circuit.thermal_voltage,
+        small_signal_gain: gain,
+        transconductance_s: gain / (0.5 * (circuit.p.load_resistance + circuit.m.load_resistance)),
+        input_offset_v,
+        steering_v: steering,
+        steering_rule_of_thumb_v: 3.0 * circuit.thermal_voltage
+            + 0.9 * circuit.tail_current * stage.emitter_resistance,
+        tail_current_a: circuit.tail_current,
+        zero_input,
+        transfer,
+        noise_v_rthz,
+        noise,
+        band_noise_v,
+    };
+
+    let mut budget = Vec::with_capacity(plan.budget.len());
+    for (index, line) in plan.budget.iter().enumerate() {
+        let value = measured.measure(line).map_err(fail)?;
+        let (margin, pass) = judge(line, value, ANALYSIS_FLOOR_DBC);
+        budget.push(LineResult {
+            line: index,
+            frequency_hz: measured.line_frequency(line),
+            amplitude_v: line
+                .metric
+                .needs_amplitude()
+                .then(|| measured.line_amplitude(line)),
+            value,
+            margin,
+            pass,
+        });
+    }
+
+    Ok(CaseEvaluation {
+        stage_index,
+        stage,
+        temperature_c,
+        corner: corner.to_owned(),
+        points,
+        frequencies,
+        operating,
+        budget,
+    })
+}
+
+/// Names the drive point (amplitude and frequency) in a solver failure inside it.
+pub fn at_drive_point(failure: SolveFailure, amplitude_v: f64, frequency_hz: f64) -> SolveFailure {
+    SolveFailure {
+        point: format!(
+            "drive {amplitude_v:e} V at {frequency_hz} Hz ({})",
+            failure.point
+        ),
+        reason: failure.reason,
+    }
+}
+
+/// Evaluates one single-tone drive point (and its two-tone companion when asked for).
+pub fn drive_point(
+    plan: &Plan,
+    engine: &dyn ResponseEngine,
+    frequency_hz: f64,
+    amplitude_v: f64,
+) -> Result<DrivePoint, SolveFailure> {
+    let settings = DriveSettings::of(&plan.drive);
+    let tone = engine.tone(amplitude_v, frequency_hz, settings.tone_harmonics())?;
+    let floor = tone.floor_dbc;
+    let highest_named = plan
+        .budget
+        .iter()
+        .filter_map(|line| match line.metric {
+            crate::model::budget::Metric::Harmonic(order) => Some(order),
+            _ => None,
+        })
+        .fold(crate::measure::stage::NAMED_HARMONICS, usize::max);
+    let harmonics_dbc = (2..=highest_named)
+        .map(|k| tone.differential.harmonic_dbc(k, floor))
+        .collect();
+    let thd = tone.differential.raw_thd_dbc(plan.drive.thd_harmonics);
+    let two_tone = match plan.drive.two_tone_spacing {
+        Some(spacing) => {
+            let two = engine.two_tone(amplitude_v, frequency_hz, spacing)?;
+            let im3 = two.im3_dbc();
+            let im3_dbc = (im3 >= floor).then_some(im3);
+            let im2 = two.im2_dbc();
+            let im2_dbc = (im2 >= floor).then_some(im2);
+            Some(TwoToneFigures {
+                im3_dbc,
+                im2_dbc,
+                iip3_effective_v: im3_dbc.map(|d| amplitude_v * 10f64.powf(-d / 40.0)),
+                fundamental_v: two.fundamental_v,
+            })
+        }
+        None => None,
+    };
+    let fundamental_v = tone.differential.fundamental();
+    Ok(DrivePoint {
+        frequency_hz,
+        amplitude_v,
+        fundamental_v,
+        gain_db: 20.0 * (fundamental_v / amplitude_v).log10(),
+        harmonics_dbc,
+        thd_dbc: (thd >= floor).then_some(thd),
+        two_tone,
+        single_ended_fundamental_v: tone.single_ended.fundamental(),
+        single_ended_hd2_dbc: tone.single_ended.harmonic_dbc(2, floor),
+        single_ended_hd3_dbc: tone.single_ended.harmonic_dbc(3, floor),
+        samples: tone.samples,
+        region: tone.region,
+        snr_db: None,
+        sfdr_dbc: None,
+        dynamic_range_db: None,
+    })
+}
