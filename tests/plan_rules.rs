@@ -1,0 +1,227 @@
+//! The plan's cross-field rules, one test each: a plan that breaks the rule is refused with the
+//! key path, the line and column of the offending value, what is wrong and what is accepted.
+//! (The rules are the contract's and specs/README.md's; the messages are the project's own.)
+
+use linbudget::{Plan, PlanError};
+
+const STAGE: &str = "  - {name: a, tail_current: 1 mA, load_resistance: 2k}\n";
+
+fn plan(rest: &str) -> String {
+    format!("name: rules\nstages:\n{STAGE}{rest}")
+}
+
+fn refused(text: &str) -> PlanError {
+    match Plan::from_yaml(text, "rules.yaml") {
+        Ok(_) => panic!("accepted a plan that breaks a rule:\n{text}"),
+        Err(err) => err,
+    }
+}
+
+/// Asserts the error's key path, line, and that its problem and accepted texts say `problem`
+/// and `accepted`.
+fn assert_refusal(err: &PlanError, key_path: &str, line: u64, problem: &str, accepted: &str) {
+    assert_eq!(err.key_path, key_path, "{err}");
+    assert_eq!(err.line, line, "{err}");
+    assert!(err.problem.contains(problem), "problem: {err}");
+    assert!(err.accepted.contains(accepted), "accepted: {err}");
+    assert_eq!(err.file, "rules.yaml");
+    let shown = err.to_string();
+    assert!(
+        shown.starts_with(&format!("rules.yaml:{line}:")),
+        "the message starts with file:line:column: {shown}"
+    );
+}
+
+#[test]
+fn an_im3_line_needs_two_tone_drive() {
+    let err = refused(&plan(
+        "drive: {amplitudes: [10 mV]}\nbudget:\n  - {metric: im3, at: 10 mV, max: -60}\n",
+    ));
+    assert_refusal(
+        &err,
+        "budget[0].metric",
+        6,
+        "an im3 line needs two-tone drive",
+        "drive.two_tone_spacing",
+    );
+}
+
+#[test]
+fn at_applies_only_to_amplitude_metrics() {
+    let err = refused(&plan(
+        "drive: {amplitudes: [10 mV]}\nbudget:\n  - {metric: iip3, at: 10 mV, min: 300 mV}\n",
+    ));
+    assert_refusal(
+        &err,
+        "budget[0].at",
+        6,
+        "`at` does not apply to iip3",
+        "`at` only on hdN, thd and im3 lines",
+    );
+}
+
+#[test]
+fn a_budget_line_has_exactly_one_of_max_and_min() {
+    for line in [
+        "{metric: hd3, at: 10 mV}",
+        "{metric: hd3, at: 10 mV, max: -60, min: -80}",
+    ] {
+        let err = refused(&plan(&format!(
+            "drive: {{amplitudes: [10 mV]}}\nbudget:\n  - {line}\n"
+        )));
+        assert_refusal(
+            &err,
+            "budget[0]",
+            6,
+            "exactly one of `max` or `min`",
+            "{metric: hd3, at: 100 mV, max: -60}",
+        );
+    }
+}
+
+#[test]
+fn sizing_needs_budget_lines() {
+    let err = refused(&plan(
+        "drive: {amplitudes: [10 mV]}\nsizing:\n  emitter_resistance: {from: 0, to: 1k}\n",
+    ));
+    assert_refusal(
+        &err,
+        "sizing",
+        6,
+        "sizing needs budget lines to meet",
+        "a `budget` list alongside `sizing`",
+    );
+}
+
+#[test]
+fn flicker_noise_is_not_integrated_from_zero_hertz() {
+    let text = "name: rules\nstages:\n  - {name: a, tail_current: 1 mA, load_resistance: 2k, transistor: {beta: 100, flicker_coefficient: 1e-15}}\ndrive: {amplitudes: [10 mV]}\nnoise_band: {from: 0, to: 1 kHz}\n";
+    let err = refused(text);
+    assert_refusal(
+        &err,
+        "noise_band",
+        5,
+        "flicker noise integrated from 0 Hz is infinite",
+        "noise_band.from above 0 Hz",
+    );
+    // Without flicker noise the same band is fine: white noise integrates from 0 Hz.
+    let white = text.replace(", flicker_coefficient: 1e-15", "");
+    assert!(Plan::from_yaml(&white, "rules.yaml").is_ok());
+}
+
+#[test]
+fn a_noise_band_runs_upwards() {
+    let err = refused(&plan(
+        "drive: {amplitudes: [10 mV]}\nnoise_band: {from: 10 kHz, to: 1 kHz}\n",
+    ));
+    assert_refusal(
+        &err,
+        "noise_band",
+        5,
+        "`to` must exceed `from`",
+        "a band with from < to",
+    );
+}
+
+#[test]
+fn a_sizing_range_runs_upwards() {
+    let err = refused(&plan(
+        "drive: {amplitudes: [10 mV]}\nbudget:\n  - {metric: gain, min: 6}\nsizing:\n  emitter_resistance: {from: 2k, to: 1k}\n",
+    ));
+    assert_refusal(
+        &err,
+        "sizing.emitter_resistance",
+        8,
+        "`to` must exceed `from`",
+        "a range with from < to",
+    );
+}
+
+#[test]
+fn a_sweep_runs_upwards() {
+    let err = refused(&plan(
+        "drive:\n  amplitudes: {from: 100 mV, to: 1 mV, points: 5}\n",
+    ));
+    assert_refusal(
+        &err,
+        "drive.amplitudes",
+        5,
+        "`to` must exceed `from`",
+        "a sweep of amplitudes with from < to",
+    );
+}
+
+#[test]
+fn stage_names_are_unique() {
+    let text = format!(
+        "name: rules\nstages:\n{STAGE}  - {{name: a, tail_current: 2 mA, load_resistance: 1k}}\ndrive: {{amplitudes: [10 mV]}}\n"
+    );
+    let err = refused(&text);
+    assert_refusal(
+        &err,
+        "stages[1]",
+        4,
+        "stage name `a` is used twice",
+        "a unique name for each stage",
+    );
+}
+
+#[test]
+fn corner_names_are_unique() {
+    let err = refused(&plan(
+        "drive: {amplitudes: [10 mV]}\ncorners:\n  - {name: slow, beta: -30%}\n  - {name: slow, beta: +30%}\n",
+    ));
+    assert_refusal(
+        &err,
+        "corners[1].name",
+        7,
+        "corner name `slow` is used twice",
+        "a unique name for each corner",
+    );
+}
+
+#[test]
+fn a_harmonic_line_stays_within_the_analysed_orders() {
+    let err = refused(&plan(
+        "drive: {amplitudes: [10 mV], thd_harmonics: 12}\nbudget:\n  - {metric: hd15, at: 10 mV, max: -90}\n",
+    ));
+    assert_refusal(
+        &err,
+        "budget[0].metric",
+        6,
+        "hd15 is above the analysed orders",
+        "hd2 to hd12 (raise drive.thd_harmonics for more)",
+    );
+    // Raising thd_harmonics admits it.
+    let raised = plan(
+        "drive: {amplitudes: [10 mV], thd_harmonics: 15}\nbudget:\n  - {metric: hd15, at: 10 mV, max: -90}\n",
+    );
+    assert!(Plan::from_yaml(&raised, "rules.yaml").is_ok());
+}
+
+#[test]
+fn a_tail_law_keeps_the_current_positive_at_every_plan_temperature() {
+    let text = "name: rules\ntemperatures_c: [27, 300]\nstages:\n  - name: a\n    tail_current: 1 mA\n    load_resistance: 2k\n    tail_current_law: {temperature_coefficient: -0.005}\ndrive: {amplitudes: [10 mV]}\n";
+    let err = refused(text);
+    assert_refusal(
+        &err,
+        "stages[0].tail_current_law",
+        7,
+        "the tail current would be",
+        "keeps the tail current positive at every plan temperature",
+    );
+    assert!(err.problem.contains("at 300 °C"), "{err}");
+}
+
+#[test]
+fn a_budget_limit_is_in_the_metric_s_unit() {
+    // dB lines take plain numbers; a volt line refuses a dB figure and the reverse.
+    let err = refused(&plan(
+        "drive: {amplitudes: [10 mV]}\nbudget:\n  - {metric: iip3, min: 20 dB}\n",
+    ));
+    assert_eq!(err.key_path, "budget[0].min");
+    let err = refused(&plan(
+        "drive: {amplitudes: [10 mV]}\nbudget:\n  - {metric: hd3, at: 10 mV, max: 10 mV}\n",
+    ));
+    assert_eq!(err.key_path, "budget[0].max");
+}
