@@ -2,7 +2,8 @@
 //!
 //! Margin convention (dB, positive = pass): `limit − value` for a `max` line in dB,
 //! `value − limit` for a `min` line in dB, `20·log10(value/limit)` for a `min` line in volts,
-//! `20·log10(limit/value)` for a `max` line in volts.
+//! `20·log10(limit/value)` for a `max` line in volts; for the collector-base margin, whose value
+//! is negative in saturation, `value − limit` in volts.
 
 use crate::model::budget::{BudgetLine, Limit};
 
@@ -12,6 +13,13 @@ use crate::model::budget::{BudgetLine, Limit};
 /// measured from the floor, so the margin shown is a lower bound; an unbounded intercept or
 /// compression point (`None`) passes a `min` line with no finite margin.
 pub fn judge(line: &BudgetLine, value: Option<f64>, floor_dbc: f64) -> (Option<f64>, bool) {
+    if line.metric.margin_in_volts() {
+        let margin = value.map(|v| match line.limit {
+            Limit::Min(limit) => v - limit,
+            Limit::Max(limit) => limit - v,
+        });
+        return (margin, margin.is_some_and(|m| m >= 0.0));
+    }
     let margin = match (line.limit, value, line.metric.is_decibel()) {
         (Limit::Max(limit), Some(v), true) => Some(limit - v),
         (Limit::Min(limit), Some(v), true) => Some(v - limit),

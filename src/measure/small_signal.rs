@@ -112,6 +112,9 @@ pub struct TransferSample {
     pub transconductance_s: f64,
     /// Differential output voltage, V.
     pub output_v: f64,
+    /// Intrinsic base-collector voltage of the P and M sides, V (positive: that side
+    /// saturates).
+    pub base_collector_v: [f64; 2],
 }
 
 /// The transfer curve over `±span_v` with `points` samples.
@@ -141,6 +144,10 @@ pub fn transfer_curve(
                     / c.tail_current,
                 transconductance_s: (up - down) / (2.0 * step),
                 output_v: point.output_voltage,
+                base_collector_v: [
+                    point.p.base_collector_voltage(),
+                    point.m.base_collector_voltage(),
+                ],
             })
         })
         .collect()

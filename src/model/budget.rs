@@ -21,11 +21,14 @@ pub enum Metric {
     SteeringRange,
     /// White input-referred differential noise density, V/√Hz.
     InputNoise,
+    /// The least collector-base reverse bias over the period at an amplitude, V (negative
+    /// when a junction is forward-biased: saturation).
+    CollectorBaseMargin,
 }
 
 /// Every metric name a plan accepts, for messages.
 pub const METRIC_NAMES: &str =
-    "hd2, hd3, hd5 (any hdN, N ≥ 2), thd, im3, iip3, oip3, p1db, gain, steering_range, input_noise";
+    "hd2, hd3, hd5 (any hdN, N ≥ 2), thd, im3, iip3, oip3, p1db, gain, steering_range, input_noise, collector_base_margin";
 
 impl Metric {
     /// The name used in plans and reports (`hd3`, `iip3`, …).
@@ -40,6 +43,7 @@ impl Metric {
             Metric::Gain => "gain".into(),
             Metric::SteeringRange => "steering_range".into(),
             Metric::InputNoise => "input_noise".into(),
+            Metric::CollectorBaseMargin => "collector_base_margin".into(),
         }
     }
 
@@ -61,6 +65,7 @@ impl Metric {
             "gain" => Metric::Gain,
             "steering_range" => Metric::SteeringRange,
             "input_noise" => Metric::InputNoise,
+            "collector_base_margin" => Metric::CollectorBaseMargin,
             other => {
                 let order: usize = other.strip_prefix("hd")?.parse().ok()?;
                 if order < 2 {
@@ -81,7 +86,16 @@ impl Metric {
 
     /// Whether the metric depends on the drive amplitude (`at`).
     pub fn needs_amplitude(self) -> bool {
-        matches!(self, Metric::Harmonic(_) | Metric::Thd | Metric::Im3)
+        matches!(
+            self,
+            Metric::Harmonic(_) | Metric::Thd | Metric::Im3 | Metric::CollectorBaseMargin
+        )
+    }
+
+    /// Whether a line's margin is a difference in the metric's own unit (volts) rather than
+    /// dB: the collector-base margin, which is negative in saturation.
+    pub fn margin_in_volts(self) -> bool {
+        self == Metric::CollectorBaseMargin
     }
 
     /// Unit label of the limit and value.

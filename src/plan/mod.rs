@@ -69,6 +69,12 @@ const TRANSISTOR_KEYS: &[&str] = &[
     "saturation_current_exponent",
     "flicker_coefficient",
     "flicker_exponent",
+    "reverse_beta",
+    "forward_knee_current",
+    "reverse_knee_current",
+    "collector_resistance",
+    "reverse_transit_time",
+    "reverse_early_voltage",
 ];
 const MISMATCH_KEYS: &[&str] = &[
     "saturation_current",
@@ -509,6 +515,42 @@ fn read_transistor(at: &At) -> Result<Transistor, PlanError> {
             Range::Between(0.5, 3.0),
             d.flicker_exponent,
         )?,
+        reverse_beta: map.quantity_or(
+            "reverse_beta",
+            Unit::Number,
+            Range::PositiveOrInfinite,
+            d.reverse_beta,
+        )?,
+        forward_knee_current: map.quantity_or(
+            "forward_knee_current",
+            Unit::Ampere,
+            Range::PositiveOrInfinite,
+            d.forward_knee_current,
+        )?,
+        reverse_knee_current: map.quantity_or(
+            "reverse_knee_current",
+            Unit::Ampere,
+            Range::PositiveOrInfinite,
+            d.reverse_knee_current,
+        )?,
+        collector_resistance: map.quantity_or(
+            "collector_resistance",
+            Unit::Ohm,
+            Range::NonNegative,
+            d.collector_resistance,
+        )?,
+        reverse_transit_time: map.quantity_or(
+            "reverse_transit_time",
+            Unit::Second,
+            Range::NonNegative,
+            d.reverse_transit_time,
+        )?,
+        reverse_early_voltage: map.quantity_or(
+            "reverse_early_voltage",
+            Unit::Volt,
+            Range::PositiveOrInfinite,
+            d.reverse_early_voltage,
+        )?,
     })
 }
 
@@ -671,7 +713,7 @@ fn read_budget_line(at: &At, drive: &Drive) -> Result<BudgetLine, PlanError> {
         if let Some(a) = map.get("at") {
             return Err(a.error(
                 format!("`at` does not apply to {}", metric.name()),
-                "`at` only on hdN, thd and im3 lines",
+                "`at` only on hdN, thd, im3 and collector_base_margin lines",
             ));
         }
     }
@@ -685,12 +727,23 @@ fn read_budget_line(at: &At, drive: &Drive) -> Result<BudgetLine, PlanError> {
         };
         let value = if metric.is_decibel() {
             limit_at.quantity_where(Unit::Decibel, Range::Finite)?
+        } else if metric == Metric::CollectorBaseMargin {
+            // A least reverse bias: zero forbids forward bias, a negative value allows some.
+            limit_at.quantity_where(Unit::Volt, Range::Finite)?
         } else {
             // Intercepts, compression, steering range and noise density are all in volts.
             limit_at.quantity_where(Unit::Volt, Range::Positive)?
         };
         Ok(Some(value))
     };
+    if metric == Metric::CollectorBaseMargin {
+        if let Some(max_at) = map.get("max") {
+            return Err(max_at.error(
+                "a collector_base_margin line sets the least reverse bias, with `min`",
+                "{metric: collector_base_margin, at: 150 mV, min: 300 mV}",
+            ));
+        }
+    }
     let limit = match (read_limit("max")?, read_limit("min")?) {
         (Some(max), None) => Limit::Max(max),
         (None, Some(min)) => Limit::Min(min),

@@ -34,7 +34,8 @@ pub fn write_points_csv<W: std::io::Write>(report: &Report, sink: W) -> Result<(
             "single_ended_hd2_dbc",
             "single_ended_hd3_dbc",
             "samples",
-            "forward_active",
+            "region",
+            "collector_base_margin_v",
         ]
         .map(String::from),
     );
@@ -69,7 +70,8 @@ pub fn write_points_csv<W: std::io::Write>(report: &Report, sink: W) -> Result<(
             number(&mut writer, value)?;
         }
         writer.write_field(p.samples.to_string())?;
-        writer.write_field(if p.forward_active { "true" } else { "false" })?;
+        writer.write_field(p.region.name())?;
+        number(&mut writer, Some(p.collector_base_margin_v))?;
         writer.write_record(None::<&[u8]>)?;
     }
     writer.flush()?;

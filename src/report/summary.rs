@@ -79,7 +79,7 @@ pub fn summary(report: &Report) -> String {
             ("HD5", true),
             ("THD", true),
             ("IM3", true),
-            ("in forward-active", false),
+            ("region (collector-base margin)", false),
         ]);
         let of_stage: Vec<&PointRecord> =
             report.points.iter().filter(|p| p.stage == name).collect();
@@ -102,7 +102,14 @@ pub fn summary(report: &Report) -> String {
                 db(p.harmonic(5)).into(),
                 db(p.thd_dbc).into(),
                 db(p.im3_dbc.flatten()).into(),
-                Cell::verdict(p.forward_active, "yes", "no"),
+                {
+                    let text = format!(
+                        "{} ({})",
+                        p.region.name(),
+                        format_si(p.collector_base_margin_v, "V")
+                    );
+                    Cell::verdict(p.region.is_forward_active(), &text, &text)
+                },
             ]);
         }
         let _ = write!(out, "{}", table.to_markdown());
@@ -388,7 +395,7 @@ mod tests {
             "amplitude_v": amplitude_v, "fundamental_v": 1.0, "gain_db": 0.0,
             "thd_dbc": null, "single_ended_fundamental_v": 0.5,
             "single_ended_hd2_dbc": null, "single_ended_hd3_dbc": null, "samples": 256,
-            "forward_active": true, "max_base_collector_v": -1.0, "min_current_fraction": 0.1,
+            "region": "forward-active", "collector_base_margin_v": 1.0, "min_current_fraction": 0.1,
         }))
         .unwrap()
     }

@@ -17,25 +17,43 @@ use std::sync::Arc;
 
 /// Analyses one single-tone drive `v_d = A·cos θ` of a memoryless stage, from a quarter
 /// period when the pair is matched (see [`super::symmetric`]), otherwise sample by sample.
+/// A drive that forward-biases a collector-base junction anywhere is solved with the whole
+/// model at every sample (see [`StaticSolver::solve_whole_model`]).
 pub fn single_tone(
     solver: &StaticSolver,
     cache: &FftCache,
     amplitude_v: f64,
     harmonics: usize,
 ) -> Result<ToneResult, SolveFailure> {
-    if crate::solve::symmetric::applies(solver.circuit()) {
-        crate::solve::symmetric::single_tone(solver, cache, amplitude_v, harmonics)
+    let whole = solver.saturates_within(amplitude_v)?;
+    let circuit = solver.circuit();
+    if crate::solve::symmetric::applies(circuit)
+        || (whole && crate::solve::symmetric::is_matched(circuit))
+    {
+        crate::solve::symmetric::single_tone(solver, cache, amplitude_v, harmonics, whole)
     } else {
-        single_tone_general(solver, cache, amplitude_v, harmonics)
+        general_tone(solver, cache, amplitude_v, harmonics, whole)
     }
 }
 
-/// The general single-tone analysis: every sample of the period solved in turn.
+/// The general single-tone analysis: every sample of the period solved in turn (with the
+/// whole model throughout when the drive saturates anywhere).
 pub fn single_tone_general(
     solver: &StaticSolver,
     cache: &FftCache,
     amplitude_v: f64,
     harmonics: usize,
+) -> Result<ToneResult, SolveFailure> {
+    let whole = solver.saturates_within(amplitude_v)?;
+    general_tone(solver, cache, amplitude_v, harmonics, whole)
+}
+
+fn general_tone(
+    solver: &StaticSolver,
+    cache: &FftCache,
+    amplitude_v: f64,
+    harmonics: usize,
+    whole: bool,
 ) -> Result<ToneResult, SolveFailure> {
     let tail = solver.circuit().tail_current;
     let mut warm = WarmStart::default();
@@ -47,7 +65,12 @@ pub fn single_tone_general(
         harmonics,
         floor,
         |theta, out: &mut [f64]| {
-            let point = solver.solve(amplitude_v * theta.cos(), &mut warm)?;
+            let v_d = amplitude_v * theta.cos();
+            let point = if whole {
+                solver.solve_whole_model(v_d, &mut warm)?
+            } else {
+                solver.solve(v_d, &mut warm)?
+            };
             region.update(&point, tail);
             out[0] = point.output_voltage;
             out[1] = point.p.collector_voltage;
@@ -126,11 +149,19 @@ pub fn two_tone_grid(
     let plan = cache.plan(n);
     let mut grid = vec![Complex::new(0.0, 0.0); n * n];
     let mut warm = WarmStart::default();
+    let mut region = RegionCheck::new();
+    let tail = solver.circuit().tail_current;
+    let whole = solver.saturates_within(2.0 * amplitude_v)?;
     for row in 0..n {
         let first = amplitude_v * (TAU * row as f64 / n as f64).cos();
         for col in 0..n {
             let second = amplitude_v * (TAU * col as f64 / n as f64).cos();
-            let point = solver.solve(first + second, &mut warm)?;
+            let point = if whole {
+                solver.solve_whole_model(first + second, &mut warm)?
+            } else {
+                solver.solve(first + second, &mut warm)?
+            };
+            region.update(&point, tail);
             grid[row * n + col] = Complex::new(point.output_voltage, 0.0);
         }
     }
@@ -161,6 +192,7 @@ pub fn two_tone_grid(
         im3_v,
         im2_v,
         samples: n,
+        region,
     })
 }
 
@@ -235,7 +267,7 @@ mod tests {
             let solver = solver(stage);
             assert!(applies(solver.circuit()));
             for amplitude in [1e-3, 0.01, 0.05, 0.2, 1.0] {
-                let fast = symmetric::single_tone(&solver, &cache, amplitude, 40).unwrap();
+                let fast = symmetric::single_tone(&solver, &cache, amplitude, 40, false).unwrap();
                 let slow = single_tone_general(&solver, &cache, amplitude, 40).unwrap();
                 assert_eq!(fast.samples, slow.samples, "{name} at {amplitude} V");
                 let f1 = slow.differential.fundamental();

@@ -66,7 +66,7 @@ pub struct DrivePoint {
     pub single_ended_hd3_dbc: Option<f64>,
     /// Samples (or time steps) per period.
     pub samples: usize,
-    /// Operating-region check over the period.
+    /// Operating region over the single-tone period.
     pub region: RegionCheck,
     /// Signal over band noise, dB (plans with a noise band).
     pub snr_db: Option<f64>,
@@ -87,6 +87,8 @@ pub struct TwoToneFigures {
     pub iip3_effective_v: Option<f64>,
     /// One tone's output fundamental, V.
     pub fundamental_v: f64,
+    /// Operating region over the two-tone drive (its peak is twice one tone's).
+    pub region: RegionCheck,
 }
 
 /// Intercepts, compression and gain at one frequency.
@@ -98,6 +100,9 @@ pub struct FrequencyFigures {
     pub intercept: Option<Intercept>,
     /// Input 1 dB compression point, V.
     pub p1db_v: Option<f64>,
+    /// Operating region of a single tone at the compression point (at the largest amplitude
+    /// tried when it is unbounded).
+    pub p1db_region: RegionCheck,
     /// Small-signal gain at this frequency, V/V (magnitude).
     pub gain: f64,
     /// Third-order spurious-free dynamic range against the band noise, dB.
@@ -117,6 +122,8 @@ pub struct OperatingFigures {
     pub input_offset_v: f64,
     /// Inputs at the 5 % and 95 % steering points, V.
     pub steering_v: (f64, f64),
+    /// Operating region at the steering points (static).
+    pub steering_region: RegionCheck,
     /// 3φT + 0.9·I_tail·R_E, V.
     pub steering_rule_of_thumb_v: f64,
     /// Tail current at this temperature and corner, A.
@@ -148,6 +155,8 @@ pub struct LineResult {
     pub margin: Option<f64>,
     /// Whether the line passes.
     pub pass: bool,
+    /// Operating region of the drive the value was measured at.
+    pub region: RegionCheck,
 }
 
 /// Measurements of a stage at a temperature, for the studies.
@@ -202,7 +211,7 @@ pub fn evaluate_case(
             measured.noise()?;
             for &frequency in &plan.drive.frequencies {
                 measured.intercept(frequency)?;
-                measured.p1db(frequency)?;
+                measured.compression(frequency)?;
                 measured.gain_at(frequency)?;
             }
             Ok::<_, SolveFailure>(())
@@ -237,10 +246,12 @@ pub fn evaluate_case(
     for &frequency_hz in &plan.drive.frequencies {
         let intercept = measured.intercept(frequency_hz).map_err(fail)?;
         let iip3 = intercept.map(|i| i.iip3_v);
+        let compression = measured.compression(frequency_hz).map_err(fail)?;
         frequencies.push(FrequencyFigures {
             frequency_hz,
             intercept,
-            p1db_v: measured.p1db(frequency_hz).map_err(fail)?,
+            p1db_v: compression.input_v,
+            p1db_region: compression.region,
             gain: measured.gain_at(frequency_hz).map_err(fail)?.abs(),
             sfdr_db: match (iip3, band_noise_v) {
                 (Some(v), Some(n)) => Some(third_order_sfdr_db(v, n)),
@@ -260,6 +271,7 @@ pub fn evaluate_case(
         transconductance_s: gain / (0.5 * (circuit.p.load_resistance + circuit.m.load_resistance)),
         input_offset_v,
         steering_v: steering,
+        steering_region: measured.steering_region().map_err(fail)?,
         steering_rule_of_thumb_v: 3.0 * circuit.thermal_voltage
             + 0.9 * circuit.tail_current * stage.emitter_resistance,
         tail_current_a: circuit.tail_current,
@@ -272,7 +284,8 @@ pub fn evaluate_case(
 
     let mut budget = Vec::with_capacity(plan.budget.len());
     for (index, line) in plan.budget.iter().enumerate() {
-        let value = measured.measure(line).map_err(fail)?;
+        let measured_line = measured.measure_checked(line).map_err(fail)?;
+        let value = measured_line.value;
         let (margin, pass) = judge(line, value, ANALYSIS_FLOOR_DBC);
         budget.push(LineResult {
             line: index,
@@ -284,6 +297,7 @@ pub fn evaluate_case(
             value,
             margin,
             pass,
+            region: measured_line.region,
         });
     }
 
@@ -344,6 +358,7 @@ pub fn drive_point(
                 im2_dbc,
                 iip3_effective_v: im3_dbc.map(|d| amplitude_v * 10f64.powf(-d / 40.0)),
                 fundamental_v: two.fundamental_v,
+                region: two.region,
             })
         }
         None => None,

@@ -31,6 +31,7 @@ use crate::model::circuit::StageCircuit;
 use crate::model::plan::{MonteCarloSettings, Plan};
 use crate::model::stage::{Mismatch, Stage};
 use crate::solve::memoryless::{single_tone, two_tone, two_tone_grid, MemorylessEngine};
+use crate::solve::response::RegionCheck;
 use crate::solve::spectrum::{FftCache, ANALYSIS_FLOOR_DBC};
 use crate::solve::transfer::{StaticSolver, WarmStart};
 use rand::SeedableRng;
@@ -130,10 +131,14 @@ pub enum PopulationFigure {
     Iip2,
     /// Input offset, V (one per frequency, amplitude 0).
     Offset,
+    /// The least collector-base reverse bias over the single-tone period, V (negative:
+    /// saturation).
+    CollectorBaseMargin,
 }
 
-/// The figures tracked per drive point, in report order; the last three need two tones.
-pub const POINT_FIGURES: [PopulationFigure; 7] = [
+/// The figures tracked per drive point, in report order; `Im2`, `Im3` and `Iip2` need two
+/// tones.
+pub const POINT_FIGURES: [PopulationFigure; 8] = [
     PopulationFigure::Hd2,
     PopulationFigure::Hd3,
     PopulationFigure::Thd,
@@ -141,7 +146,18 @@ pub const POINT_FIGURES: [PopulationFigure; 7] = [
     PopulationFigure::Im2,
     PopulationFigure::Im3,
     PopulationFigure::Iip2,
+    PopulationFigure::CollectorBaseMargin,
 ];
+
+impl PopulationFigure {
+    /// Whether the figure needs two-tone drive.
+    pub fn needs_two_tones(self) -> bool {
+        matches!(
+            self,
+            PopulationFigure::Im2 | PopulationFigure::Im3 | PopulationFigure::Iip2
+        )
+    }
+}
 
 /// The distribution of one figure at one drive point over the runs.
 #[derive(Debug, Clone, PartialEq)]
@@ -197,6 +213,11 @@ pub struct StagePopulation {
     pub distributions: Vec<FigureDistribution>,
     /// Yield against the budget.
     pub yield_estimate: YieldEstimate,
+    /// Least collector-base margin over every run and every drive a run evaluated (drive
+    /// amplitudes, budget amplitudes, two tones), V.
+    pub least_collector_base_margin_v: f64,
+    /// Runs in which some evaluated drive forward-biased a collector-base junction.
+    pub saturating_runs: u64,
 }
 
 /// The Monte Carlo population of a plan.
@@ -218,10 +239,12 @@ struct Resolution {
 
 /// What one run measured.
 struct RunResult {
-    /// Per resolution (amplitude), the POINT_METRICS values (±∞ for null).
-    points: Vec<[f64; 7]>,
+    /// Per resolution (amplitude), the POINT_FIGURES values (±∞ for null).
+    points: Vec<[f64; 8]>,
     offset_v: f64,
     pass: bool,
+    /// Least collector-base margin over every drive the run evaluated, V.
+    least_margin_v: f64,
 }
 
 fn level_dbc(level: f64, fundamental: f64) -> f64 {
@@ -238,14 +261,25 @@ fn measure_amplitude(
     cache: &FftCache,
     resolution: &Resolution,
     harmonics: usize,
-) -> Result<([f64; 7], Vec<f64>), SolveFailure> {
+) -> Result<([f64; 8], Vec<f64>, RegionCheck), SolveFailure> {
     let n = resolution.tone_samples;
     let a = resolution.amplitude_v;
     let mut warm = WarmStart::default();
     let mut samples = Vec::with_capacity(n);
+    let mut region = RegionCheck::new();
+    let tail = solver.circuit().tail_current;
+    // A run that saturates is solved with the whole model at every sample (no switch of form
+    // within the period; see StaticSolver::solve_whole_model).
+    let whole = solver.saturates_within(a)?;
     for i in 0..n {
         let theta = std::f64::consts::TAU * i as f64 / n as f64;
-        samples.push(solver.solve(a * theta.cos(), &mut warm)?.output_voltage);
+        let point = if whole {
+            solver.solve_whole_model(a * theta.cos(), &mut warm)?
+        } else {
+            solver.solve(a * theta.cos(), &mut warm)?
+        };
+        region.update(&point, tail);
+        samples.push(point.output_voltage);
     }
     let amplitudes = cache.harmonic_amplitudes(&samples, harmonics);
     let fundamental = amplitudes[1];
@@ -259,7 +293,9 @@ fn measure_amplitude(
         f64::NEG_INFINITY,
         f64::NEG_INFINITY,
         f64::INFINITY,
+        region.collector_base_margin_v(),
     ];
+    let mut evaluated = region;
     if let Some(grid) = resolution.grid_samples {
         let two = two_tone_grid(solver, cache, a, grid)?;
         values[4] = level_dbc(two.im2_v, two.fundamental_v);
@@ -267,8 +303,9 @@ fn measure_amplitude(
         if values[4].is_finite() {
             values[6] = a * 10f64.powf(-values[4] / 20.0);
         }
+        evaluated.merge(&two.region);
     }
-    Ok((values, amplitudes))
+    Ok((values, amplitudes, evaluated))
 }
 
 /// Runs the Monte Carlo analysis of every stage and temperature. Stages with no
@@ -361,9 +398,11 @@ fn evaluate_one(
             let solver = StaticSolver::new(circuit.clone());
             let mut points = Vec::with_capacity(resolutions.len());
             let mut spectra = Vec::with_capacity(resolutions.len());
+            let mut least_margin_v = f64::INFINITY;
             for resolution in &resolutions {
-                let (values, amplitudes) =
+                let (values, amplitudes, region) =
                     measure_amplitude(&solver, cache, resolution, harmonics)?;
+                least_margin_v = least_margin_v.min(region.collector_base_margin_v());
                 points.push(values);
                 spectra.push(amplitudes);
             }
@@ -390,10 +429,16 @@ fn evaluate_one(
                     }
                     Metric::Thd => finite(points[at][2]),
                     Metric::Im3 => finite(points[at][5]),
+                    Metric::CollectorBaseMargin => Some(points[at][7]),
                     Metric::Gain => Some(20.0 * small_signal_gain(&solver)?.abs().log10()),
                     Metric::InputNoise => Some(input_noise_density(&solver)?),
                     _ => match &measured {
-                        Some(m) => m.measure(line)?,
+                        Some(m) => {
+                            let checked = m.measure_checked(line)?;
+                            least_margin_v =
+                                least_margin_v.min(checked.region.collector_base_margin_v());
+                            checked.value
+                        }
                         None => None,
                     },
                 };
@@ -403,6 +448,7 @@ fn evaluate_one(
                 points,
                 offset_v,
                 pass,
+                least_margin_v,
             })
         })
         .collect::<Result<Vec<_>, SolveFailure>>()
@@ -431,7 +477,7 @@ fn evaluate_one(
     for &frequency_hz in &plan.drive.frequencies {
         for (index, &amplitude_v) in plan.drive.amplitudes.iter().enumerate() {
             for (k, figure) in POINT_FIGURES.iter().enumerate() {
-                if k >= 4 && !two_tone_plan {
+                if figure.needs_two_tones() && !two_tone_plan {
                     continue;
                 }
                 let values = runs.iter().map(|r| r.points[index][k]).collect();
@@ -448,6 +494,11 @@ fn evaluate_one(
     }
     let passes = runs.iter().filter(|r| r.pass).count() as u64;
     let (low, high) = wilson_interval(passes, settings.runs, Z_95);
+    let least_collector_base_margin_v = runs
+        .iter()
+        .map(|r| r.least_margin_v)
+        .fold(f64::INFINITY, f64::min);
+    let saturating_runs = runs.iter().filter(|r| r.least_margin_v < 0.0).count() as u64;
     Ok(StagePopulation {
         stage: stage.name.clone(),
         temperature_c,
@@ -460,5 +511,7 @@ fn evaluate_one(
             low,
             high,
         },
+        least_collector_base_margin_v,
+        saturating_runs,
     })
 }

@@ -4,8 +4,14 @@
 //! them): the range is scanned on a uniform grid, the first passing grid value after a failing
 //! one is taken as the crossing, and the crossing is refined by bisection until the bracket is
 //! within 0.1 % of R_E. With `hold_gain`, the load is rescaled at each R_E so the small-signal
-//! gain stays that of the stage as planned, and collector-base headroom at the largest budget
-//! amplitude becomes a further constraint.
+//! gain stays that of the stage as planned, and, unless the plan has a `collector_base_margin`
+//! line of its own, the collector-base margin at the largest budget amplitude must stay at or
+//! above zero (no saturation there): an implicit `{metric: collector_base_margin, min: 0 V}`.
+//!
+//! Every trial records the least collector-base margin over every drive it evaluated (each
+//! line's amplitude in each corner), so no trial is judged on a point whose operating region
+//! was not looked at. Margins of `collector_base_margin` lines are in volts and do not compete
+//! with the dB margins for the binding line unless they fail or nearly bind.
 //!
 //! With process corners every trial is evaluated in every corner and each line keeps its
 //! worst margin, so the chosen R_E meets the budget in all corners. When noise lines and
@@ -16,7 +22,7 @@ use crate::error::{Error, SolveFailure};
 use crate::measure::budget::judge;
 use crate::measure::small_signal::small_signal_gain;
 use crate::measure::stage::StageMeasurements;
-use crate::model::budget::Metric;
+use crate::model::budget::{BudgetLine, Limit, Metric};
 use crate::model::corner::TYPICAL;
 use crate::model::plan::{Plan, SizingSettings};
 use crate::model::stage::Stage;
@@ -47,8 +53,12 @@ pub struct Trial {
     pub gain_db: f64,
     /// Steering range in the typical corner, V.
     pub steering_range_v: f64,
-    /// Worst collector-base headroom across corners, V (`hold_gain` only).
+    /// Worst collector-base margin across corners at the largest budget amplitude, V
+    /// (`hold_gain` without a `collector_base_margin` line of the plan's own).
     pub headroom_v: Option<f64>,
+    /// Least collector-base margin over every drive the trial evaluated, V (negative: a
+    /// junction was forward-biased).
+    pub collector_base_margin_v: f64,
 }
 
 /// What decided a sizing result.
@@ -56,7 +66,8 @@ pub struct Trial {
 pub enum Binding {
     /// The budget line with this index (in the plan) has the least margin.
     Line(usize),
-    /// Collector-base headroom, not distortion (`hold_gain` only).
+    /// The implicit collector-base margin of `hold_gain` (no saturation at the largest budget
+    /// amplitude), not distortion.
     Headroom,
     /// No budget line bounds the result.
     Nothing,
@@ -98,17 +109,21 @@ impl Trial {
         self.passes.iter().all(|p| *p) && self.headroom_v.is_none_or(|h| h >= 0.0)
     }
 
-    /// Worst budget-line margin (dB), its line, and the corner where it occurs. Headroom is
-    /// in volts and is judged separately.
-    fn worst_with_corner(&self) -> ((f64, Binding), String) {
+    /// Worst budget-line margin (dB), its line, and the corner where it occurs. Margins in
+    /// volts (collector-base margin lines, the hold-gain headroom) are judged separately; a
+    /// failing one ranks below every dB margin.
+    fn worst_with_corner(&self, plan: &Plan) -> ((f64, Binding), String) {
         let mut worst = (f64::INFINITY, Binding::Nothing);
         let mut corner = TYPICAL.to_owned();
         for (index, (margin, pass)) in self.margins.iter().zip(&self.passes).enumerate() {
-            let m = margin.unwrap_or(if *pass {
-                f64::INFINITY
-            } else {
-                f64::NEG_INFINITY
-            });
+            let volts = plan.budget[index].metric.margin_in_volts();
+            let m = match (volts, margin, *pass) {
+                (true, _, true) => f64::INFINITY,
+                (true, _, false) => f64::NEG_INFINITY,
+                (false, Some(m), _) => *m,
+                (false, None, true) => f64::INFINITY,
+                (false, None, false) => f64::NEG_INFINITY,
+            };
             if m < worst.0 {
                 worst = (m, Binding::Line(index));
                 corner = self.corners[index].clone();
@@ -165,11 +180,14 @@ fn trial(
     let mut corners = vec![TYPICAL.to_owned(); plan.budget.len()];
     let mut keys = vec![f64::INFINITY; plan.budget.len()];
     let mut headroom_worst: Option<f64> = None;
+    let mut least_margin = f64::INFINITY;
     for (corner_index, corner) in plan.corners.iter().enumerate() {
         let in_corner = corner.apply(&trial_stage);
         let measured = measurements(&in_corner, temperature_c, plan, cache);
         for (index, line) in plan.budget.iter().enumerate() {
-            let value = measured.measure(line).map_err(fail)?;
+            let checked = measured.measure_checked(line).map_err(fail)?;
+            least_margin = least_margin.min(checked.region.collector_base_margin_v());
+            let value = checked.value;
             let (margin, pass) = judge(line, value, ANALYSIS_FLOOR_DBC);
             let k = key(margin, pass);
             if corner_index == 0 || k < keys[index] {
@@ -180,6 +198,7 @@ fn trial(
             passes[index] &= pass;
         }
         if let Some(h) = corner_headroom(&measured, plan, target_gain.is_some()).map_err(fail)? {
+            least_margin = least_margin.min(h);
             headroom_worst = Some(headroom_worst.map_or(h, |w: f64| w.min(h)));
         }
     }
@@ -196,17 +215,19 @@ fn trial(
         gain_db: 20.0 * gain.abs().log10(),
         steering_range_v: steering,
         headroom_v: headroom_worst,
+        collector_base_margin_v: least_margin,
     })
 }
 
-/// Collector-base headroom at the largest budget amplitude (hold_gain only), V.
-fn corner_headroom(
-    measured: &StageMeasurements,
-    plan: &Plan,
-    hold_gain: bool,
-) -> Result<Option<f64>, SolveFailure> {
-    if !hold_gain {
-        return Ok(None);
+/// The implicit line of `hold_gain`: no saturation at the largest budget amplitude, unless the
+/// plan has a `collector_base_margin` line of its own.
+pub fn implicit_headroom_line(plan: &Plan, measured: &StageMeasurements) -> Option<BudgetLine> {
+    if plan
+        .budget
+        .iter()
+        .any(|l| l.metric == Metric::CollectorBaseMargin)
+    {
+        return None;
     }
     let amplitude = plan
         .budget
@@ -224,8 +245,26 @@ fn corner_headroom(
         .first()
         .map(|l| measured.line_frequency(l))
         .unwrap_or(plan.drive.frequencies[0]);
-    let tone = measured.engine().tone(amplitude, frequency, 3)?;
-    Ok(Some(-tone.region.max_base_collector_v))
+    Some(
+        BudgetLine::new(Metric::CollectorBaseMargin, Limit::Min(0.0))
+            .at(amplitude)
+            .frequency(frequency),
+    )
+}
+
+/// Collector-base margin on the implicit line of `hold_gain`, V.
+fn corner_headroom(
+    measured: &StageMeasurements,
+    plan: &Plan,
+    hold_gain: bool,
+) -> Result<Option<f64>, SolveFailure> {
+    if !hold_gain {
+        return Ok(None);
+    }
+    match implicit_headroom_line(plan, measured) {
+        Some(line) => Ok(measured.measure_checked(&line)?.value),
+        None => Ok(None),
+    }
 }
 
 /// Finds the least emitter resistance for one stage at one temperature.
@@ -293,17 +332,19 @@ pub fn size_stage(
         _ => None,
     };
     let met = chosen.is_some();
+    let volts_line = |index: usize| plan.budget[index].metric.margin_in_volts();
     let (chosen, headroom_binds) = match chosen {
         Some(t) => {
-            let headroom_binds = t.headroom_v.is_some_and(|h| {
-                let distortion_worst = t
-                    .margins
-                    .iter()
-                    .flatten()
-                    .copied()
-                    .fold(f64::INFINITY, f64::min);
-                h < 0.05 && distortion_worst > 0.5
-            });
+            let distortion_worst = t
+                .margins
+                .iter()
+                .enumerate()
+                .filter(|(index, _)| !volts_line(*index))
+                .filter_map(|(_, m)| *m)
+                .fold(f64::INFINITY, f64::min);
+            let headroom_binds = t
+                .headroom_v
+                .is_some_and(|h| h < 0.05 && distortion_worst > 0.5);
             (t, headroom_binds)
         }
         None => {
@@ -327,10 +368,10 @@ pub fn size_stage(
             } else {
                 scan.iter()
                     .max_by(|a, b| {
-                        a.worst_with_corner()
+                        a.worst_with_corner(plan)
                             .0
                              .0
-                            .total_cmp(&b.worst_with_corner().0 .0)
+                            .total_cmp(&b.worst_with_corner(plan).0 .0)
                     })
                     .cloned()
                     .unwrap_or_else(|| scan[0].clone())
@@ -338,7 +379,23 @@ pub fn size_stage(
             (best, headroom_binds)
         }
     };
-    let ((worst_margin, worst_line), binding_corner) = chosen.worst_with_corner();
+    let ((worst_margin, mut worst_line), binding_corner) = chosen.worst_with_corner(plan);
+    // A collector-base margin line that nearly binds while every dB line has room is what
+    // decides the result.
+    if let Binding::Line(_) | Binding::Nothing = worst_line {
+        let nearly = chosen
+            .margins
+            .iter()
+            .enumerate()
+            .filter(|(index, _)| volts_line(*index))
+            .filter_map(|(index, m)| m.map(|m| (index, m)))
+            .min_by(|a, b| a.1.total_cmp(&b.1));
+        if let Some((index, margin)) = nearly {
+            if margin < 0.05 && (worst_margin > 0.5 || worst_line == Binding::Nothing) {
+                worst_line = Binding::Line(index);
+            }
+        }
+    }
     Ok(SizingOutcome {
         stage: stage.name.clone(),
         temperature_c,

@@ -61,8 +61,9 @@ use crate::solve::spectrum::{FftCache, Spectrum};
 use crate::solve::transfer::StaticSolver;
 use dense::Lu;
 use num_complex::Complex;
-use pair::{Drive, PairSystem, UNKNOWNS};
+use pair::{Drive, PairSystem};
 use std::sync::Arc;
+use trapezoid::ChargeSystem;
 use trapezoid::{periodic_steady_state, State, SteadyTolerance, StepTolerance};
 
 /// Newton tolerance inside each time step, V (error after the last step is of order its square).
@@ -103,7 +104,7 @@ struct Refined {
     single_ended: Vec<Complex<f64>>,
     /// Steps per period of the finest level.
     steps: usize,
-    /// Forward-active check over the finest verified period.
+    /// Operating region over the finest verified period.
     region: RegionCheck,
 }
 
@@ -148,7 +149,7 @@ impl DynamicEngine {
         };
         let start = self.solver.solve_cold(drive.differential_v(0.0))?;
         let mut guess = State {
-            x: PairSystem::state_from(&start),
+            x: system.state_from(&start),
             i: vec![0.0; pair::CHARGES],
         };
         let mut monodromy: Option<Lu> = None;
@@ -172,7 +173,7 @@ impl DynamicEngine {
                     e.time_s, e.reason
                 ))
             })?;
-            let rows = solution.trajectory.chunks_exact(UNKNOWNS);
+            let rows = solution.trajectory.chunks_exact(system.unknowns());
             let differential: Vec<f64> = rows.clone().map(PairSystem::output_v).collect();
             let single: Vec<f64> = rows.map(PairSystem::p_collector_v).collect();
             let raw_differential = self.cache.harmonic_phasors(&differential, bins);
@@ -197,17 +198,9 @@ impl DynamicEngine {
                         .map(|(a, b)| if a == b { 0.0 } else { (a - b).abs() })
                         .fold(0.0, f64::max);
                     if last_change <= REFINEMENT_TOLERANCE_DB {
-                        let mut region = RegionCheck {
-                            max_base_collector_v: f64::NEG_INFINITY,
-                            min_current_fraction: f64::INFINITY,
-                        };
-                        for x in solution.trajectory.chunks_exact(UNKNOWNS) {
-                            region.max_base_collector_v = region
-                                .max_base_collector_v
-                                .max(PairSystem::max_base_collector_v(x));
-                            region.min_current_fraction = region
-                                .min_current_fraction
-                                .min(system.min_collector_current(x) / circuit.tail_current);
+                        let mut region = RegionCheck::new();
+                        for x in solution.trajectory.chunks_exact(system.unknowns()) {
+                            system.include_region(x, &mut region);
                         }
                         return Ok(Refined {
                             differential: extrapolated,
@@ -379,6 +372,7 @@ impl ResponseEngine for DynamicEngine {
             im3_v: clean(im3_v),
             im2_v: clean(im2_v),
             samples: refined.steps,
+            region: refined.region,
         })
     }
 
