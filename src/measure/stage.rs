@@ -216,14 +216,18 @@ impl StageMeasurements {
         Ok(value)
     }
 
-    /// Where the intercept search starts: an eighth of the steering range, halved until the
-    /// two tones' static peak (twice the amplitude) forward-biases neither collector-base
-    /// junction (the search only looks for the small-signal region; two tones driven into
-    /// saturation there would cost time and tell nothing), V.
+    /// Where the intercept search starts: an eighth of the steering range, halved (at most
+    /// ten times) until the two tones' static peak (twice the amplitude) forward-biases
+    /// neither collector-base junction — the search only looks for the small-signal region,
+    /// and two tones driven into saturation there would cost time and tell nothing. A stage
+    /// saturated at zero input keeps the eighth, V.
     fn intercept_start(&self) -> Result<f64, SolveFailure> {
         let solver = self.engine.static_solver();
         let mut start = self.steering_range()? / 8.0;
-        for _ in 0..30 {
+        if !junctions_reverse_biased(&solver.solve_cold(0.0)?) {
+            return Ok(start);
+        }
+        for _ in 0..10 {
             let peak_up = solver.solve_cold(2.0 * start)?;
             let peak_down = solver.solve_cold(-2.0 * start)?;
             if junctions_reverse_biased(&peak_up) && junctions_reverse_biased(&peak_down) {

@@ -734,7 +734,7 @@ fn solve_loop(
         let log_is = side.saturation_current.ln();
         let log_form = |v: f64| -> (f64, f64) {
             let gap = upper - v;
-            if !(gap > 0.0) {
+            if gap.is_nan() || gap <= 0.0 {
                 return (f64::INFINITY, f64::INFINITY);
             }
             let weight = reverse_injection_weight(side, phi, vbe, v, r_b, r_c);

@@ -27,6 +27,7 @@ use crate::model::corner::TYPICAL;
 use crate::model::plan::{Plan, SizingSettings};
 use crate::model::stage::Stage;
 use crate::solve::spectrum::{FftCache, ANALYSIS_FLOOR_DBC};
+use crate::solve::transfer::junctions_reverse_biased;
 use crate::study::case::measurements;
 use rayon::prelude::*;
 use std::sync::Arc;
@@ -156,11 +157,19 @@ fn trial(
     let fail = |failure: SolveFailure| Error::solve(&base.name, temperature_c, failure);
     if let Some(target) = target_gain {
         // Gain is proportional to the load without Early effect; a few fixed-point steps
-        // settle it to 1e-12 otherwise.
+        // settle it to 1e-12 otherwise. A load that saturates the stage at zero input holds
+        // no gain: scaling stops there, and the collector-base margin check fails the trial.
         for _ in 0..8 {
             let measured = measurements(&trial_stage, temperature_c, plan, cache);
-            let gain = small_signal_gain(measured.engine().static_solver()).map_err(fail)?;
+            let solver = measured.engine().static_solver();
+            if !junctions_reverse_biased(&solver.solve_cold(0.0).map_err(fail)?) {
+                break;
+            }
+            let gain = small_signal_gain(solver).map_err(fail)?;
             let ratio = target / gain;
+            if !(ratio.is_finite() && ratio > 0.0) {
+                break;
+            }
             trial_stage.load_resistance *= ratio;
             if (ratio - 1.0).abs() < 1e-12 {
                 break;
