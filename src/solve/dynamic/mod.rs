@@ -142,7 +142,13 @@ impl DynamicEngine {
         label: &str,
     ) -> Result<Refined, SolveFailure> {
         let circuit = self.solver.circuit();
-        let system = PairSystem::new(circuit, drive);
+        // A drive whose static peak saturates is solved with the whole core throughout.
+        let peak_v = match drive {
+            Drive::Tone { amplitude_v, .. } => amplitude_v,
+            Drive::TwoTone { amplitude_v, .. } => 2.0 * amplitude_v,
+        };
+        let whole = self.solver.saturates_within(peak_v)?;
+        let system = PairSystem::new(circuit, drive, whole);
         let fail = |reason: String| SolveFailure {
             point: label.to_owned(),
             reason,

@@ -142,6 +142,9 @@ pub struct PairSystem<'a> {
     internal_collector: [usize; 2],
     coupling: Vec<f64>,
     tail_scale: f64,
+    /// Whether every evaluation uses the whole Gummel–Poon core (a drive that saturates
+    /// somewhere), rather than the forward-active form where it holds.
+    whole: bool,
 }
 
 /// A side's currents at the node voltages of a state, with their derivatives with respect to
@@ -163,9 +166,10 @@ struct SideCurrents {
 /// A side's currents: the forward-active form `I_C = J·(1 + V_CE/V_AF)`, `I_B = J/β_F` where
 /// the intrinsic collector-base junction is at or below zero bias and the side has no knee
 /// currents or reverse Early voltage (the terms it leaves out are of order I_S, see
-/// [`crate::solve::transfer`]), the whole Gummel–Poon core otherwise.
-fn side_currents(side: &Side, phi: f64, vb: f64, ve: f64, vci: f64) -> SideCurrents {
-    if vb - vci <= 0.0 && side.forward_law() {
+/// [`crate::solve::transfer`]), the whole Gummel–Poon core otherwise, and always when
+/// `whole` (a drive that saturates somewhere keeps one form over its period).
+fn side_currents(side: &Side, phi: f64, vb: f64, ve: f64, vci: f64, whole: bool) -> SideCurrents {
+    if !whole && vb - vci <= 0.0 && side.forward_law() {
         let j = side.saturation_current * ((vb - ve) / phi).exp();
         let early = 1.0 + (vci - ve) * side.early_inv;
         let collector = j * early;
@@ -207,8 +211,9 @@ fn by_node(d: [f64; 2]) -> [f64; 3] {
 }
 
 impl<'a> PairSystem<'a> {
-    /// The stage `circuit` driven by `drive`.
-    pub fn new(circuit: &'a StageCircuit, drive: Drive) -> Self {
+    /// The stage `circuit` driven by `drive`; `whole` evaluates the whole core everywhere (for
+    /// drives that saturate somewhere).
+    pub fn new(circuit: &'a StageCircuit, drive: Drive, whole: bool) -> Self {
         let with_rc = circuit.p.collector_resistance > 0.0 || circuit.m.collector_resistance > 0.0;
         let (unknowns, internal_collector) = if with_rc {
             (UNKNOWNS_WITH_COLLECTOR_RESISTANCE, [CI_P, CI_M])
@@ -259,6 +264,7 @@ impl<'a> PairSystem<'a> {
             internal_collector,
             coupling,
             tail_scale,
+            whole,
         }
     }
 
@@ -280,7 +286,7 @@ impl<'a> PairSystem<'a> {
             (&c.p, B_P, E_P, self.internal_collector[0]),
             (&c.m, B_M, E_M, self.internal_collector[1]),
         ] {
-            let d = side_currents(side, c.thermal_voltage, x[b], x[e], x[ci]);
+            let d = side_currents(side, c.thermal_voltage, x[b], x[e], x[ci], self.whole);
             region.include(x[b] - x[ci], d.collector / c.tail_current, d.injection);
         }
     }
@@ -324,7 +330,7 @@ impl ChargeSystem for PairSystem<'_> {
             (&c.m, -0.5, B_M, E_M, C_M, self.internal_collector[1]),
         ] {
             let v_in = c.input_common_mode + sign * v_d;
-            let s = side_currents(side, phi, x[b], x[e], x[ci]);
+            let s = side_currents(side, phi, x[b], x[e], x[ci], self.whole);
             let (d_collector, d_base) = (s.d_collector, s.d_base);
             let nodes = [b, e, ci];
             f[b] = v_in - x[b] - side.base_path_resistance * s.base;
@@ -380,7 +386,7 @@ impl ChargeSystem for PairSystem<'_> {
                 Q_L_M,
             ),
         ] {
-            let s = side_currents(side, phi, x[b], x[e], x[ci]);
+            let s = side_currents(side, phi, x[b], x[e], x[ci], self.whole);
             let (junction, capacitance) = depletion_charge(
                 x[b] - x[e],
                 ch.emitter_junction_capacitance,
