@@ -4,7 +4,7 @@
 
 use super::style::*;
 use super::{DrawResult, Drawing, PlotKind};
-use crate::report::{BudgetRecord, PointRecord, Report};
+use crate::report::{BudgetRecord, PointRecord, Region, Report};
 use plotters::coord::Shift;
 use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, Pos, VPos};
@@ -80,6 +80,8 @@ pub struct HarmonicsPlot {
 struct Row {
     temperature_c: f64,
     amplitude_v: f64,
+    /// Operating region over the single-tone period.
+    region: Region,
     /// The value of each series, in series order.
     values: Vec<Option<f64>>,
 }
@@ -112,6 +114,7 @@ impl HarmonicsPlot {
             .map(|p| Row {
                 temperature_c: p.temperature_c,
                 amplitude_v: p.amplitude_v,
+                region: p.region,
                 values: series.iter().map(|s| s.value(p)).collect(),
             })
             .collect();
@@ -147,7 +150,7 @@ impl Drawing for HarmonicsPlot {
     }
     fn caption(&self) -> String {
         format!(
-            "HDn and THD of the differential output of “{}” in dBc versus peak differential input at {}; shaded boxes are the budget's forbidden regions (a line applies up to its amplitude), round green markers pass, red crosses fail.",
+            "HDn and THD of the differential output of “{}” in dBc versus peak differential input at {}; shaded boxes are the budget's forbidden regions (a line applies up to its amplitude), round green markers pass, red crosses fail; a grey band (dashed edge per temperature) marks drives that forward-bias a collector-base junction (saturation), an amber band drives in high-level injection — the figures there include it.",
             self.stage,
             si(self.frequency_hz, "Hz")
         )
@@ -268,6 +271,46 @@ impl Drawing for HarmonicsPlot {
                 colour,
                 line.kind == "max",
             ));
+        }
+
+        // Operating-region bands: from the least amplitude outside forward-active operation
+        // to the right edge, with a dashed onset per temperature.
+        for (region, colour, label, lift) in [
+            (Region::HighInjection, SERIES[3], "high injection", 0.06),
+            (Region::Saturating, MUTED, "saturating", 0.0),
+        ] {
+            let onsets: Vec<(usize, f64)> = self
+                .temps
+                .iter()
+                .enumerate()
+                .filter_map(|(ti, t)| {
+                    self.points
+                        .iter()
+                        .filter(|p| p.temperature_c == *t && p.region == region)
+                        .map(|p| p.amplitude_v)
+                        .reduce(f64::min)
+                        .map(|a| (ti, a))
+                })
+                .collect();
+            let Some(first) = onsets.iter().map(|o| o.1).reduce(f64::min) else {
+                continue;
+            };
+            chart.draw_series(std::iter::once(Rectangle::new(
+                [(first, y_low), (x_high, y_high)],
+                colour.mix(0.10).filled(),
+            )))?;
+            for (ti, onset) in &onsets {
+                chart.draw_series(std::iter::once(dashed(
+                    vec![(*onset, y_low), (*onset, y_high)],
+                    pattern(*ti),
+                    colour.mix(0.8).stroke_width(2),
+                )))?;
+            }
+            chart.draw_series(std::iter::once(Text::new(
+                format!("{label} from {} →", si(first, "V")),
+                (first * 1.04, y_low + lift * (y_high - y_low)),
+                text(LEGEND_PX, colour).pos(Pos::new(HPos::Left, VPos::Bottom)),
+            )))?;
         }
 
         for (ti, t) in self.temps.iter().enumerate() {

@@ -46,7 +46,7 @@ impl Drawing for TransferPlot {
     }
     fn caption(&self) -> String {
         format!(
-            "Normalised differential output current (left axis) and incremental transconductance (right axis) of “{}” versus differential input; the shaded band is the steering range, where each side carries between {:.0} % and {:.0} % of the tail current.",
+            "Normalised differential output current (left axis) and incremental transconductance (right axis) of “{}” versus differential input; the shaded band is the steering range, where each side carries between {:.0} % and {:.0} % of the tail current; grey hatching at either end marks inputs where that side saturates (its collector-base junction forward-biased) at the typical temperature.",
             self.stage,
             100.0 * (1.0 - self.steering_fraction),
             100.0 * self.steering_fraction
@@ -125,6 +125,42 @@ impl Drawing for TransferPlot {
                     MUTED.mix(0.8).stroke_width(1),
                 )))?;
             }
+        }
+        // Where each side saturates (typical temperature): inputs with V_BC > 0 on that side,
+        // from the first such sample out to the edge.
+        for (side, name) in [(0usize, "P"), (1usize, "M")] {
+            let saturated: Vec<f64> = reference
+                .transfer
+                .iter()
+                .filter(|t| t.base_collector_v[side] > 0.0)
+                .map(|t| t.input_v * 1e3)
+                .collect();
+            let (Some(lo), Some(hi)) = (
+                saturated.iter().copied().reduce(f64::min),
+                saturated.iter().copied().reduce(f64::max),
+            ) else {
+                continue;
+            };
+            let edge = if side == 0 { lo } else { hi };
+            let outer = if side == 0 { x_max_mv } else { -x_max_mv };
+            chart.draw_series(std::iter::once(Rectangle::new(
+                [(edge, y_range.0), (outer, y_range.1)],
+                MUTED.mix(0.13).filled(),
+            )))?;
+            chart.draw_series(std::iter::once(PathElement::new(
+                vec![(edge, y_range.0), (edge, y_range.1)],
+                MUTED.stroke_width(2),
+            )))?;
+            let (anchor, x) = if side == 0 {
+                (HPos::Left, edge + 0.01 * x_max_mv)
+            } else {
+                (HPos::Right, edge - 0.01 * x_max_mv)
+            };
+            chart.draw_series(std::iter::once(Text::new(
+                format!("{name} side saturates"),
+                (x, -1.06),
+                text(LEGEND_PX, MUTED).pos(Pos::new(anchor, VPos::Bottom)),
+            )))?;
         }
         let level = 2.0 * self.steering_fraction - 1.0;
         for y in [-level, level] {

@@ -9,7 +9,7 @@
 use super::queries::{frequencies, stage_names, temperatures, typical_temperature};
 use super::table::{html_text, markdown_text, Cell, Table};
 use super::text::celsius;
-use super::{Report, CAUTION};
+use super::{Region, Report, CAUTION};
 use crate::model::corner::TYPICAL;
 use std::fmt::Write;
 
@@ -224,6 +224,14 @@ pub fn datasheet_table(report: &Report, stage: &str) -> Table {
     for a in amplitudes {
         let at = points.iter().filter(|p| p.amplitude_v == a);
         let conditions = format!("v_d = {} peak, {f_text}", crate::units::format_si(a, "V"));
+        // Figures of drives outside forward-active operation say so beside them: saturation
+        // is distortion the figure includes, and a reader must see it.
+        let single = region_note(at.clone().map(|p| (p.temperature_c, p.region)).collect());
+        let two = region_note(
+            at.clone()
+                .filter_map(|p| p.two_tone_region.map(|r| (p.temperature_c, r)))
+                .collect(),
+        );
         for (name, symbol, get) in [
             (
                 "second harmonic",
@@ -237,10 +245,11 @@ pub fn datasheet_table(report: &Report, stage: &str) -> Table {
                 p.im3_dbc.flatten()
             }),
         ] {
+            let note = if symbol == "IM3" { &two } else { &single };
             row(
                 name,
                 symbol,
-                conditions.clone(),
+                format!("{conditions}{note}"),
                 at.clone().map(|p| (p.temperature_c, get(p))).collect(),
                 2,
                 "dBc",
@@ -248,6 +257,28 @@ pub fn datasheet_table(report: &Report, stage: &str) -> Table {
         }
     }
     table
+}
+
+/// "; saturating at 27 °C, 85 °C" when some of the temperatures' drives left forward-active
+/// operation (the worst region named), empty otherwise.
+fn region_note(regions: Vec<(f64, Region)>) -> String {
+    let Some(worst) = regions.iter().map(|(_, r)| *r).max() else {
+        return String::new();
+    };
+    if worst.is_forward_active() {
+        return String::new();
+    }
+    let at: Vec<String> = regions
+        .iter()
+        .filter(|(_, r)| *r == worst)
+        .map(|(t, _)| format!("{t} °C"))
+        .collect();
+    let when = if at.len() == regions.len() {
+        "at every temperature".to_owned()
+    } else {
+        format!("at {}", at.join(", "))
+    };
+    format!("; {} {when}", worst.name())
 }
 
 /// The budget verdict table.
@@ -268,9 +299,15 @@ pub fn budget_table(report: &Report) -> Table {
         ("value", true),
         ("margin (dB)", true),
         ("verdict", false),
+        ("operating region", false),
     ]);
     let mut table = Table::new(columns);
     for b in &report.budget {
+        let region = format!(
+            "{} (collector-base margin {})",
+            b.region.name(),
+            crate::units::format_si(b.collector_base_margin_v, "V")
+        );
         let value_text = |v: f64| b.quantity_text(v);
         let mut row: Vec<Cell> = vec![
             b.stage.as_str().into(),
@@ -290,8 +327,16 @@ pub fn budget_table(report: &Report) -> Table {
                 .map(value_text)
                 .unwrap_or_else(|| "below floor".into())
                 .into(),
-            fixed(b.margin, 2).into(),
+            if b.margin_unit == "V" {
+                b.margin
+                    .map(|m| format!("{m:.3} V"))
+                    .unwrap_or_else(|| "—".into())
+                    .into()
+            } else {
+                fixed(b.margin, 2).into()
+            },
             Cell::verdict(b.pass, "pass", "FAIL"),
+            Cell::verdict(b.region.is_forward_active(), &region, &region),
         ]);
         table.push(row);
     }
@@ -477,12 +522,12 @@ pub fn blocks(report: &Report, figures: &[EmbeddedFigure]) -> Vec<Block> {
 
     out.push(Block::Heading(2, "Model assumptions and limits".into()));
     out.push(Block::Bullets(vec![
-        "Each stage is a bipolar emitter-coupled pair solved exactly at every instant: exponential collector current with the Early effect and finite β where given, series base, emitter and source resistances, and a finite tail resistance where given. High-level injection, quasi-saturation, self-heating and package parasitics are not modelled.".into(),
+        "Each stage is a bipolar emitter-coupled pair solved exactly at every instant with the Gummel–Poon core over the whole drive range: both junctions' transport currents, forward and reverse β, forward and reverse Early voltages, high-level injection above the knee currents, and series base, emitter, collector and source resistances, with a finite tail resistance where given. Saturation (a collector-base junction forward-biased, including quasi-saturation behind the collector resistance) is part of the figures, not outside them. Emitter-base breakdown, self-heating and package parasitics are not modelled.".into(),
         "Temperature enters through the thermal voltage kT/q and the saturation current's temperature law; resistors are taken as temperature-independent.".into(),
         "Without capacitance or transit time the stage is memoryless and the frequency only labels the points; with them, figures are the circuit's periodic steady state.".into(),
         "Harmonics come from an FFT of the exact periodic output; THD sums the harmonics listed under Conditions. IIP3 is extrapolated from the small-signal region where the IM3 slope is 3:1, not from the largest drive.".into(),
         "Min and max in the datasheet tables span the plan's temperatures and named process corners only; they are not a statistical spread (see Monte Carlo where the plan asks for it).".into(),
-        "Points where a transistor leaves forward-active operation are flagged under Warnings; the model's validity ends there.".into(),
+        "Every figure names the operating region of the drive it rests on (forward-active, high-injection or saturating) and the least collector-base reverse bias there; a collector_base_margin budget line forbids saturation with a margin.".into(),
     ]));
     if !report.warnings.is_empty() {
         out.push(Block::Heading(2, "Warnings".into()));
