@@ -273,8 +273,14 @@ impl Drawing for HarmonicsPlot {
             ));
         }
 
-        // Operating-region bands: from the least amplitude outside forward-active operation
-        // to the right edge, with a dashed onset per temperature.
+        // Operating-region bands: from the least amplitude in the region to the right edge
+        // (high injection stops where saturation starts), with a dashed onset per temperature.
+        let saturation_onset = self
+            .points
+            .iter()
+            .filter(|p| p.region == Region::Saturating)
+            .map(|p| p.amplitude_v)
+            .reduce(f64::min);
         for (region, colour, label, lift) in [
             (Region::HighInjection, SERIES[3], "high injection", 0.06),
             (Region::Saturating, MUTED, "saturating", 0.0),
@@ -295,8 +301,12 @@ impl Drawing for HarmonicsPlot {
             let Some(first) = onsets.iter().map(|o| o.1).reduce(f64::min) else {
                 continue;
             };
+            let end = match (region, saturation_onset) {
+                (Region::HighInjection, Some(onset)) => onset,
+                _ => x_high,
+            };
             chart.draw_series(std::iter::once(Rectangle::new(
-                [(first, y_low), (x_high, y_high)],
+                [(first, y_low), (end, y_high)],
                 colour.mix(0.10).filled(),
             )))?;
             for (ti, onset) in &onsets {

@@ -170,10 +170,25 @@ pub fn datasheet_table(report: &Report, stage: &str) -> Table {
         3,
         "nV/√Hz",
     );
+    // The drive an intercept or compression figure rests on, when it left forward-active
+    // operation.
+    let fit_note = region_note(
+        intercepts
+            .iter()
+            .filter_map(|i| i.iip3_fit_region.map(|r| (i.temperature_c, r)))
+            .collect(),
+    );
+    let p1db_note = region_note(
+        intercepts
+            .iter()
+            .filter(|i| i.p1db_v.is_some())
+            .map(|i| (i.temperature_c, i.p1db_region))
+            .collect(),
+    );
     row(
         "input third-order intercept",
         "IIP3",
-        format!("per tone, peak, {f_text}"),
+        format!("per tone, peak, {f_text}{fit_note}"),
         by_t(&|i| i.iip3_dbv),
         2,
         "dBV",
@@ -181,7 +196,7 @@ pub fn datasheet_table(report: &Report, stage: &str) -> Table {
     row(
         "input third-order intercept",
         "IIP3",
-        format!("per tone, peak, {f_text}"),
+        format!("per tone, peak, {f_text}{fit_note}"),
         by_t(&|i| i.iip3_v.map(|v| v * 1e3)),
         1,
         "mV",
@@ -189,7 +204,7 @@ pub fn datasheet_table(report: &Report, stage: &str) -> Table {
     row(
         "output third-order intercept",
         "OIP3",
-        format!("per tone, peak, {f_text}"),
+        format!("per tone, peak, {f_text}{fit_note}"),
         by_t(&|i| i.oip3_v),
         3,
         "V",
@@ -197,7 +212,7 @@ pub fn datasheet_table(report: &Report, stage: &str) -> Table {
     row(
         "input 1 dB compression",
         "P1dB",
-        format!("peak, {f_text}"),
+        format!("peak, {f_text}{p1db_note}"),
         by_t(&|i| i.p1db_v.map(|v| v * 1e3)),
         1,
         "mV",
