@@ -5,6 +5,7 @@
 //!    numeric ever runs on an unvalidated plan. Every error names the file, line, column, key
 //!    path, what is wrong and what is accepted.
 
+pub(crate) mod bench;
 pub(crate) mod reader;
 pub(crate) mod tree;
 
@@ -35,6 +36,8 @@ const TOP_KEYS: &[&str] = &[
     "noise_band",
     "reference_impedance",
     "corners",
+    "measurements",
+    "fit",
 ];
 const STAGE_KEYS: &[&str] = &[
     "name",
@@ -177,7 +180,8 @@ impl Plan {
         Ok(PlanSource::read(path.as_ref())?.plan()?)
     }
 
-    /// Parses and validates plan text; `file` names it in errors.
+    /// Parses and validates plan text; `file` names it in errors, and bench files named in
+    /// `measurements` are read relative to its folder.
     pub fn from_yaml(text: &str, file: &str) -> Result<Plan, PlanError> {
         let root = tree::parse_tree(text).map_err(|(message, line, column)| {
             PlanError::at(
@@ -189,10 +193,11 @@ impl Plan {
             )
             .in_file(file, text)
         })?;
-        Plan::from_tree(&root).map_err(|err| err.in_file(file, text))
+        let plan_dir = Path::new(file).parent().unwrap_or(Path::new(""));
+        Plan::from_tree(&root, plan_dir).map_err(|err| err.in_file(file, text))
     }
 
-    fn from_tree(root: &tree::Node) -> Result<Plan, PlanError> {
+    fn from_tree(root: &tree::Node, plan_dir: &Path) -> Result<Plan, PlanError> {
         let top = At::root(root).map(TOP_KEYS)?;
         let name_at = top.required("name", "letters, digits, '-' and '_'")?;
         let name = name_at.text("letters, digits, '-' and '_'")?.to_owned();
@@ -293,7 +298,18 @@ impl Plan {
             }
         }
 
+        let measurements = match top.get("measurements") {
+            Some(at) => bench::read_measurements(&at, plan_dir, &stages, &corners)?,
+            None => Vec::new(),
+        };
+        let fit = top
+            .get("fit")
+            .map(|at| bench::read_fit(&at, &measurements, &stages))
+            .transpose()?;
+
         Ok(Plan {
+            measurements,
+            fit,
             corners,
             name,
             temperatures_c,

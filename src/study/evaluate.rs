@@ -7,6 +7,7 @@ use crate::model::plan::Plan;
 use crate::solve::spectrum::FftCache;
 use crate::study::case::{evaluate_case, CaseEvaluation};
 use crate::study::corners::{spread, CornerSpread};
+use crate::study::fit::{self, BenchComparison, FitOutcome, FitProgress};
 use crate::study::montecarlo::{self, Population};
 use crate::study::sizing::{self, SizingOutcome};
 use rayon::prelude::*;
@@ -35,6 +36,8 @@ pub enum Progress {
     },
     /// Sizing the emitter degeneration.
     Sizing,
+    /// Fitting a stage to its bench data.
+    Fitting(FitProgress),
 }
 
 /// Everything a plan's evaluation found.
@@ -48,6 +51,11 @@ pub struct PlanEvaluation {
     pub population: Option<Population>,
     /// Sizing per stage and temperature, when the plan asks for it.
     pub sizing: Vec<SizingOutcome>,
+    /// Every measured stage fitted to its bench data, when the plan asks for a fit (the
+    /// fitted stages are evaluated among the cases, each right after its nominal stage).
+    pub fits: Vec<FitOutcome>,
+    /// Every bench file compared with the nominal model and, when fitted, the fitted one.
+    pub comparisons: Vec<BenchComparison>,
 }
 
 impl PlanEvaluation {
@@ -65,11 +73,28 @@ impl PlanEvaluation {
 }
 
 /// Evaluates the plan. `progress` hears what is being done.
+///
+/// Stages with bench data are fitted first (when the plan asks for a fit); each fitted stage
+/// is then evaluated like any other, named `<stage>@fitted` and placed right after its
+/// nominal stage.
 pub fn evaluate(
     plan: &Plan,
     progress: &(dyn Fn(Progress) + Sync),
 ) -> Result<PlanEvaluation, Error> {
     let cache = Arc::new(FftCache::default());
+    let fits = fit::fit_all(plan, &cache, &|event| progress(Progress::Fitting(event)))?;
+    let mut comparisons = Vec::new();
+    for measurements in &plan.measurements {
+        let Some(nominal) = plan.stages.iter().find(|s| s.name == measurements.stage) else {
+            continue;
+        };
+        comparisons.push(fit::compare(plan, nominal, measurements, &cache)?);
+        if let Some(outcome) = fits.iter().find(|f| f.stage == measurements.stage) {
+            comparisons.push(fit::compare(plan, &outcome.fitted, measurements, &cache)?);
+        }
+    }
+    let augmented = fit::with_fitted_stages(plan, &fits);
+    let plan = &augmented;
     // Every stage × temperature × process corner, in report order.
     let cases: Vec<(usize, f64, usize)> = plan
         .stages
@@ -140,5 +165,7 @@ pub fn evaluate(
         spread: corner_spread,
         population,
         sizing,
+        fits,
+        comparisons,
     })
 }
