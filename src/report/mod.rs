@@ -8,6 +8,7 @@
 //! plan-and-report contract (see README). Extra fields are additions, never renames.
 
 pub mod build;
+pub mod correlation;
 pub mod csv;
 pub mod datasheet;
 pub mod json;
