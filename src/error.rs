@@ -66,8 +66,10 @@ impl fmt::Display for PlanError {
         } else {
             &self.file
         };
-        if self.line > 0 {
+        if self.line > 0 && self.column > 0 {
             write!(f, "{file}:{}:{}: ", self.line, self.column)?;
+        } else if self.line > 0 {
+            write!(f, "{file}:{}: ", self.line)?;
         } else {
             write!(f, "{file}: ")?;
         }
