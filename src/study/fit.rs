@@ -10,7 +10,8 @@
 //! 10⁻³ for stages with charge storage, whose figures are refined to 0.002 dB).
 //!
 //! The optimiser starts from the best point of a coarse search: [`SCAN_POINTS`] values of
-//! each parameter across its bounds, one parameter after the other, from the plan's values.
+//! each parameter across its bounds, one parameter after the other, from the plan's values,
+//! judged on at most [`COARSE_POINTS`] of the bench points.
 //!
 //! At the solution the Jacobian is taken again by central differences, in the parameters
 //! themselves, and the covariance is the Gauss–Newton one, `s²·(JᵀJ)⁻¹` with
@@ -54,6 +55,8 @@ pub const PATIENCE: usize = 40;
 /// the optimiser starts from the best (a coarse search that keeps a local optimiser away from
 /// a poor start, such as a mismatch of exactly zero whose even harmonics vanish).
 pub const SCAN_POINTS: usize = 8;
+/// Most bench points the coarse search evaluates (every k-th point of a longer file).
+pub const COARSE_POINTS: usize = 48;
 /// An eigenvalue of the column-scaled JᵀJ below this fraction of the largest marks a
 /// direction the data do not determine (the parameters moving along it are not separately
 /// identifiable).
@@ -595,6 +598,24 @@ impl LeastSquaresProblem<f64, Dyn, Dyn> for Problem<'_, '_> {
     }
 }
 
+/// The fitted values of `points`, in point order and the settings' metric order.
+fn slots_of(points: &[&BenchPoint], settings: &FitSettings) -> Vec<Slot> {
+    let mut slots = Vec::new();
+    for (index, point) in points.iter().enumerate() {
+        for figure in &settings.metrics {
+            if let Some(bench) = point.value(*figure) {
+                slots.push(Slot {
+                    point: index,
+                    figure: *figure,
+                    bench,
+                    sqrt_weight: settings.weight(*figure).sqrt(),
+                });
+            }
+        }
+    }
+    slots
+}
+
 /// Fits stage `stage_index` of `plan` to every bench file of it.
 pub fn fit_stage(
     plan: &Plan,
@@ -614,19 +635,7 @@ pub fn fit_stage(
         .filter(|m| m.stage == nominal.name)
         .flat_map(|m| &m.points)
         .collect();
-    let mut slots = Vec::new();
-    for (index, point) in points.iter().enumerate() {
-        for figure in &settings.metrics {
-            if let Some(bench) = point.value(*figure) {
-                slots.push(Slot {
-                    point: index,
-                    figure: *figure,
-                    bench,
-                    sqrt_weight: settings.weight(*figure).sqrt(),
-                });
-            }
-        }
-    }
+    let slots = slots_of(&points, settings);
     let parameters: Vec<&'static StageParameter> = settings
         .parameters
         .iter()
@@ -651,6 +660,19 @@ pub fn fit_stage(
     }
     let memoryless = StageCircuit::new(nominal, 27.0).is_memoryless()
         && StageCircuit::new(&at_upper, 27.0).is_memoryless();
+    // The coarse search runs on at most COARSE_POINTS of the points, evenly spread.
+    let stride = points.len().div_ceil(COARSE_POINTS).max(1);
+    let coarse_points: Vec<&BenchPoint> = points.iter().step_by(stride).copied().collect();
+    let coarse = FitContext {
+        plan,
+        nominal,
+        settings,
+        slots: slots_of(&coarse_points, settings),
+        layout: Layout::new(plan, coarse_points),
+        cache: cache.clone(),
+        step_fraction: 0.0,
+        parameters: parameters.clone(),
+    };
     let context = FitContext {
         plan,
         nominal,
@@ -679,28 +701,29 @@ pub fn fit_stage(
     let rms_before = before.norm() / (before.len() as f64).sqrt();
     let mut evaluations = 1;
 
-    // Coarse search: each parameter across its bounds in turn, keeping the best point.
+    // Coarse search on the thinned points: each parameter across its bounds in turn,
+    // keeping the best point.
     let mut best_x = start.clone();
-    let mut best = context.residuals(&best_x)?;
-    evaluations += 1;
+    let mut lowest = coarse.residuals(&best_x)?.norm_squared();
     for j in 0..p {
         let (from, to) = context.span(j);
         for k in 0..SCAN_POINTS {
             let mut trial = best_x.clone();
             trial[j] = from + (to - from) * (k as f64 + 0.5) / SCAN_POINTS as f64;
-            let residuals = context.residuals(&trial)?;
-            evaluations += 1;
-            if residuals.norm_squared() < best.norm_squared() {
-                best = residuals;
+            let objective = coarse.residuals(&trial)?.norm_squared();
+            if objective < lowest {
+                lowest = objective;
                 best_x = trial;
             }
         }
         progress(FitProgress {
             stage_index,
             evaluations,
-            rms: best.norm() / (best.len() as f64).sqrt(),
+            rms: (lowest / coarse.slots.len() as f64).sqrt(),
         });
     }
+    let best = context.residuals(&best_x)?;
+    evaluations += 1;
     let u0 = DVector::from_iterator(
         p,
         best_x.iter().enumerate().map(|(j, x)| {
