@@ -40,7 +40,10 @@ fn bench_points(
                         BenchFigure::Harmonic(n) => tone.hd_dbc(n).unwrap(),
                         other => panic!("not generated: {other:?}"),
                     };
-                    (figure, exact + Normal::new(0.0, sigma).unwrap().sample(&mut rng))
+                    (
+                        figure,
+                        exact + Normal::new(0.0, sigma).unwrap().sample(&mut rng),
+                    )
                 })
                 .collect();
             points.push(BenchPoint {

@@ -78,7 +78,11 @@ fn a_missing_required_column_is_named() {
     refused(
         PLAN,
         csv,
-        &["bench.csv:1:", "row 1 (header)", "required column amplitude_v is missing"],
+        &[
+            "bench.csv:1:",
+            "row 1 (header)",
+            "required column amplitude_v is missing",
+        ],
     );
 }
 
@@ -88,7 +92,11 @@ fn an_unknown_column_is_refused_with_the_nearest_name() {
     refused(
         PLAN,
         &csv,
-        &["column hd3_db", "did you mean `hd3_dbc`?", "columns: temperature_c"],
+        &[
+            "column hd3_db",
+            "did you mean `hd3_dbc`?",
+            "columns: temperature_c",
+        ],
     );
 }
 
@@ -102,12 +110,18 @@ fn a_short_row_an_empty_required_cell_and_a_foreign_corner_are_located() {
     refused(
         PLAN,
         "temperature_c,frequency_hz,amplitude_v,gain_db\n27,,0.01,22\n",
-        &["row 2 (data row 1), column frequency_hz", "the cell is empty"],
+        &[
+            "row 2 (data row 1), column frequency_hz",
+            "the cell is empty",
+        ],
     );
     refused(
         PLAN,
         "temperature_c,frequency_hz,amplitude_v,gain_db,corner\n27,1000,0.01,22,slow\n",
-        &["column corner", "`slow` is not a process corner of the plan"],
+        &[
+            "column corner",
+            "`slow` is not a process corner of the plan",
+        ],
     );
     refused(
         PLAN,
@@ -121,7 +135,11 @@ fn a_missing_file_or_an_unknown_stage_is_a_plan_error_at_its_key() {
     refused(
         &PLAN.replace("bench.csv", "nowhere.csv"),
         GOOD_CSV,
-        &["plan.yaml:6:", "measurements[0].file", "cannot read bench file"],
+        &[
+            "plan.yaml:6:",
+            "measurements[0].file",
+            "cannot read bench file",
+        ],
     );
     refused(
         &PLAN.replace("{stage: pair", "{stage: pear"),
@@ -133,9 +151,15 @@ fn a_missing_file_or_an_unknown_stage_is_a_plan_error_at_its_key() {
 #[test]
 fn fit_settings_are_checked_against_the_stage_keys_and_the_bench_columns() {
     refused(
-        &format!("{PLAN}{}", FIT.replace("emitter_resistance:", "emiter_resistance:")),
+        &format!(
+            "{PLAN}{}",
+            FIT.replace("emitter_resistance:", "emiter_resistance:")
+        ),
         GOOD_CSV,
-        &["fit.parameters.emiter_resistance", "did you mean `emitter_resistance`?"],
+        &[
+            "fit.parameters.emiter_resistance",
+            "did you mean `emitter_resistance`?",
+        ],
     );
     refused(
         &format!("{PLAN}{}", FIT.replace("to: 1k", "to: 1 mA")),
@@ -145,10 +169,16 @@ fn fit_settings_are_checked_against_the_stage_keys_and_the_bench_columns() {
     refused(
         &format!("{PLAN}{}", FIT.replace("[hd3, gain]", "[hd2]")),
         GOOD_CSV,
-        &["fit.metrics", "0 measured value(s) of these metrics for 1 parameter(s)"],
+        &[
+            "fit.metrics",
+            "0 measured value(s) of these metrics for 1 parameter(s)",
+        ],
     );
     refused(
-        &format!("{}{FIT}", PLAN.replace("measurements:\n  - {stage: pair, file: bench.csv}\n", "")),
+        &format!(
+            "{}{FIT}",
+            PLAN.replace("measurements:\n  - {stage: pair, file: bench.csv}\n", "")
+        ),
         GOOD_CSV,
         &["fit", "a fit needs bench data"],
     );
