@@ -17,6 +17,8 @@ fn run_plan(plan: &Path, out: &Path) -> (Report, PathBuf) {
         quiet: true,
         max_work: linbudget::run::DEFAULT_MAX_WORK,
         figures: true,
+        as_planned: false,
+        overrides: Vec::new(),
     };
     let outcome = run(&options, &|_| {}).expect("the plan runs");
     (outcome.report, outcome.folder)
@@ -138,8 +140,16 @@ sizing:
         assert!(svgs.contains(stem), "missing {stem} in {svgs:?}");
         check_png(&folder.join(format!("{stem}.png")));
     }
-    // One stage: no comparison; no two-tone spacing: no intercept figure.
-    assert!(!svgs.contains("stage-comparison") && !svgs.contains("two-tone-pair"));
+    // The recommended design is a derived stage with figures of its own, compared side by
+    // side with the stage as planned; no two-tone spacing: no intercept figure.
+    for stem in [
+        "harmonics-pair-sized",
+        "transfer-pair-sized",
+        "stage-comparison",
+    ] {
+        assert!(svgs.contains(stem), "missing {stem} in {svgs:?}");
+    }
+    assert!(!svgs.contains("two-tone-pair") && !svgs.contains("sizing-pair-sized"));
     let markdown = fs::read_to_string(folder.join("report.md")).unwrap();
     let sizing = &report.sizing[0];
     let chosen = format!("{:.1}", sizing.emitter_resistance_ohm.unwrap());
