@@ -342,6 +342,7 @@ fn basis_name(basis: Basis) -> &'static str {
         Basis::CommonWindow => "least_in_common_window",
         Basis::ReachableLines => "least_meeting_reachable_lines",
         Basis::BestWorstMargin => "best_worst_margin",
+        Basis::YieldInWindow => "least_in_common_window_meeting_yield",
     }
 }
 
@@ -359,6 +360,17 @@ fn recommended_stage_record(
         hints.push(format!(
             "{}: every R_E whose distortion passes leaves the collector-base junction without reverse bias (hold_gain scales the load up): raise the supply, lower the input common mode or relax the gain to hold",
             celsius(outcome.temperature_c)
+        ));
+    }
+    if r.yield_short {
+        hints.push(
+            "no value tried in the usable windows brings the Monte Carlo yield up to the yield line: the yield is limited by matching, not by degeneration (tighten mismatch_sigma or relax the line)".into(),
+        );
+    }
+    if r.basis == Basis::YieldInWindow {
+        hints.push(format!(
+            "the least value holding every other line falls short of the yield line; {} is the least value in the usable windows whose Monte Carlo population meets it",
+            format_si(r.emitter_resistance, "Ω")
         ));
     }
     if outcomes.iter().all(|o| o.met) && !r.met {

@@ -389,7 +389,7 @@ pub fn blocks(report: &Report, figures: &[EmbeddedFigure]) -> Vec<Block> {
             recommended
                 .stages
                 .iter()
-                .map(|s| format!("`{}` = `{}` with R_E = {}{}", s.evaluated_as, s.stage,
+                .map(|s| format!("{} = {} with R_E = {}{}", s.evaluated_as, s.stage,
                     crate::units::format_si(s.emitter_resistance_ohm, "Ω"),
                     if (s.load_resistance_ohm / s.planned_load_resistance_ohm - 1.0).abs() > 1e-9 {
                         format!(" and R_L = {}", crate::units::format_si(s.load_resistance_ohm, "Ω"))
@@ -466,7 +466,7 @@ pub fn blocks(report: &Report, figures: &[EmbeddedFigure]) -> Vec<Block> {
         ));
         if let Some(d) = derived {
             out.push(Block::Paragraph(format!(
-                "Derived stage: `{}` as planned, with R_E = {} per side (planned {}) and R_L = {} per side (planned {}), the values sizing recommends. Every figure below is the model's prediction for that design.",
+                "Derived stage: {} as planned, with R_E = {} per side (planned {}) and R_L = {} per side (planned {}), the values sizing recommends. Every figure below is the model's prediction for that design.",
                 d.stage,
                 crate::units::format_si(d.emitter_resistance_ohm, "Ω"),
                 crate::units::format_si(d.planned_emitter_resistance_ohm, "Ω"),
@@ -486,7 +486,7 @@ pub fn blocks(report: &Report, figures: &[EmbeddedFigure]) -> Vec<Block> {
         out.push(Block::Heading(2, "Budget verdict".into()));
         let failed = report.budget.iter().filter(|b| !b.pass).count();
         out.push(Block::Paragraph(format!(
-            "{} of {} checks pass (stages as planned and, where sizing ran, the derived `@sized` stages of the recommended design). Margin is in dB and positive when the line passes (percentage points for a yield); “≥” marks a lower bound where the value is below the analysis floor.",
+            "{} of {} checks pass (stages as planned and, where sizing ran, the derived @sized stages of the recommended design). Margin is in dB and positive when the line passes (percentage points for a yield); “≥” marks a lower bound where the value is below the analysis floor.",
             report.budget.len() - failed,
             report.budget.len()
         )));
@@ -520,9 +520,15 @@ pub fn blocks(report: &Report, figures: &[EmbeddedFigure]) -> Vec<Block> {
                     .collect();
                 advice.push(if s.found {
                     format!(
-                        "{}: build R_E = {} (the least value holding every line at every temperature; usable at every temperature: {}).",
+                        "{}: {} R_E = {} ({}; usable at every temperature: {}).",
                         s.stage,
+                        if recommended.met { "build" } else { "evaluated at" },
                         crate::units::format_si(s.emitter_resistance_ohm, "Ω"),
+                        if s.basis == "least_in_common_window_meeting_yield" {
+                            "the least value in the usable windows whose Monte Carlo population meets the yield line too"
+                        } else {
+                            "the least value holding every line at every temperature"
+                        },
                         windows.join(", ")
                     )
                 } else {

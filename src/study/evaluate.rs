@@ -3,9 +3,11 @@
 //! deterministic order, into typed results the report layer records and words.
 
 use crate::error::Error;
-use crate::model::plan::Plan;
+use crate::measure::budget::judge;
+use crate::model::plan::{MonteCarloSettings, Plan, SizingSettings};
 use crate::model::stage::Stage;
 use crate::solve::spectrum::FftCache;
+use crate::solve::spectrum::ANALYSIS_FLOOR_DBC;
 use crate::study::case::{evaluate_case, CaseEvaluation};
 use crate::study::corners::{spread, CornerSpread};
 use crate::study::montecarlo::{self, Population};
@@ -137,6 +139,111 @@ fn corner_spread(plan: &Plan, cases: &[CaseEvaluation]) -> Vec<CornerSpread> {
     }
 }
 
+/// The recommended stage rebuilt at `emitter_resistance` (with the load `hold_gain` asks for).
+fn rebuilt(
+    plan: &Plan,
+    settings: &SizingSettings,
+    design: &RecommendedStage,
+    emitter_resistance: f64,
+    cache: &Arc<FftCache>,
+) -> Result<Stage, Error> {
+    let planned = &plan.stages[design.recommendation.stage_index];
+    let mut stage = design.stage.clone();
+    stage.emitter_resistance = emitter_resistance;
+    if settings.hold_gain {
+        stage.load_resistance = sizing::held_load(
+            plan,
+            planned,
+            sizing::typical_temperature(&plan.temperatures_c),
+            emitter_resistance,
+            cache,
+        )?;
+    }
+    Ok(stage)
+}
+
+/// Sizing's trials do not draw a population, so the least value holding the other lines may
+/// miss a yield line. When it does, the common windows are searched upward (their scan grid
+/// values and upper edges, then bisection to [`sizing::REFINE_RELATIVE`] inside the window where
+/// the yield is first reached) for the least value whose population meets every yield line at
+/// every temperature. The draws are the same dies at every value (common random numbers), so the
+/// search compares like with like. When no value in the windows reaches the yield, the least
+/// value is kept and the recommendation says so.
+fn raise_for_yield(
+    plan: &Plan,
+    settings: &SizingSettings,
+    monte_carlo: &MonteCarloSettings,
+    design: &mut RecommendedStage,
+    outcomes: &[&SizingOutcome],
+    cache: &Arc<FftCache>,
+) -> Result<(), Error> {
+    let yield_lines: Vec<_> = plan
+        .budget
+        .iter()
+        .filter(|l| l.metric.is_population())
+        .collect();
+    if yield_lines.is_empty() || !design.recommendation.met {
+        return Ok(());
+    }
+    let index = design.recommendation.stage_index;
+    let holds = |emitter_resistance: f64| -> Result<Option<bool>, Error> {
+        let stage = rebuilt(plan, settings, design, emitter_resistance, cache)?;
+        let population = montecarlo::evaluate_stages(plan, monte_carlo, &[(index, &stage)], cache)?;
+        if population.stages.is_empty() {
+            return Ok(None);
+        }
+        Ok(Some(population.stages.iter().all(|drawn| {
+            let fraction = Some(drawn.yield_estimate.pass_fraction());
+            yield_lines
+                .iter()
+                .all(|line| judge(line, fraction, ANALYSIS_FLOOR_DBC).pass)
+        })))
+    };
+    let least = design.recommendation.emitter_resistance;
+    if holds(least)? != Some(false) {
+        return Ok(());
+    }
+    let windows = design.recommendation.windows.clone();
+    let window_of = |r: f64| {
+        windows
+            .iter()
+            .position(|&(low, high)| r >= low && r <= high)
+    };
+    let mut candidates: Vec<f64> = outcomes
+        .first()
+        .map(|o| o.scan.iter().map(|t| t.emitter_resistance).collect())
+        .unwrap_or_default();
+    candidates.extend(windows.iter().map(|&(_, high)| high));
+    candidates.retain(|&r| r > least && window_of(r).is_some());
+    candidates.sort_by(f64::total_cmp);
+    candidates.dedup();
+    let mut failing = least;
+    for candidate in candidates {
+        if holds(candidate)? != Some(true) {
+            failing = candidate;
+            continue;
+        }
+        let mut passing = candidate;
+        if window_of(failing) == window_of(passing) {
+            while passing - failing > sizing::REFINE_RELATIVE * passing {
+                let mid = 0.5 * (failing + passing);
+                if holds(mid)? == Some(true) {
+                    passing = mid;
+                } else {
+                    failing = mid;
+                }
+            }
+        }
+        design.stage = rebuilt(plan, settings, design, passing, cache)?;
+        design.recommendation.emitter_resistance = passing;
+        design.recommendation.load_resistance = design.stage.load_resistance;
+        design.recommendation.basis = sizing::Basis::YieldInWindow;
+        return Ok(());
+    }
+    design.recommendation.yield_short = true;
+    Ok(())
+}
+
 /// Judges every yield line of `cases` on the population drawn for its stage and temperature;
 /// a stage the population left out keeps its yield lines failing (not estimated).
 fn judge_yield(plan: &Plan, cases: &mut [CaseEvaluation], population: Option<&Population>) {
@@ -218,6 +325,15 @@ pub fn evaluate(
                 cases: Vec::new(),
                 spread: Vec::new(),
             });
+        }
+        if let Some(monte_carlo) = &plan.monte_carlo {
+            for design in &mut recommended {
+                let outcomes: Vec<&SizingOutcome> = sizing
+                    .iter()
+                    .filter(|o| o.stage == plan.stages[design.recommendation.stage_index].name)
+                    .collect();
+                raise_for_yield(plan, settings, monte_carlo, design, &outcomes, &cache)?;
+            }
         }
         progress(Progress::Recommended {
             stages: recommended.len(),

@@ -760,6 +760,9 @@ pub enum Basis {
     ReachableLines,
     /// Not even that: the scanned value with the best worst-line margin across temperatures.
     BestWorstMargin,
+    /// The least value in the common windows whose Monte Carlo population also meets every
+    /// yield line (the least value holding the other lines did not).
+    YieldInWindow,
 }
 
 /// The design sizing recommends for one stage: one emitter resistance (and, with `hold_gain`,
@@ -779,6 +782,9 @@ pub struct Recommendation {
     pub windows: Vec<(f64, f64)>,
     /// How the value was found.
     pub basis: Basis,
+    /// The yield lines fail at the least value holding the other lines, and at every value of
+    /// the common windows tried above it.
+    pub yield_short: bool,
 }
 
 /// Intersection of two lists of increasing, disjoint intervals.
@@ -846,6 +852,7 @@ pub fn recommend(
         met: every_met && basis == Basis::CommonWindow,
         windows,
         basis,
+        yield_short: false,
     })
 }
 
