@@ -24,10 +24,15 @@ fn run_plan(plan: &Path, out: &Path) -> (Report, PathBuf) {
     (outcome.report, outcome.folder)
 }
 
-fn demo() -> (tempfile::TempDir, Report, PathBuf) {
-    let dir = tempfile::tempdir().unwrap();
-    let (report, folder) = run_plan(Path::new("specs/sensor-front-end.yaml"), dir.path());
-    (dir, report, folder)
+/// The demo plan's report, run once and shared by the tests that read it (each reads, none
+/// writes), in the test target's scratch folder.
+fn demo() -> ((), Report, PathBuf) {
+    static DEMO: std::sync::OnceLock<(Report, PathBuf)> = std::sync::OnceLock::new();
+    let (report, folder) = DEMO.get_or_init(|| {
+        let out = Path::new(env!("CARGO_TARGET_TMPDIR")).join("report-outputs-demo");
+        run_plan(Path::new("specs/sensor-front-end.yaml"), &out)
+    });
+    ((), report.clone(), folder.clone())
 }
 
 fn stems_with(folder: &Path, extension: &str) -> BTreeSet<String> {

@@ -141,6 +141,13 @@ pub fn cautions(
                     "an Early voltage so low the output conductance dominates",
                 ),
                 (
+                    "nominal_temperature_c",
+                    device.nominal_temperature_c,
+                    "°C",
+                    USUAL_TEMPERATURE_C,
+                    "outside the range bipolar processes are characterised over",
+                ),
+                (
                     "base_resistance",
                     device.base_resistance,
                     "Ω",
