@@ -11,4 +11,5 @@ pub mod evaluate;
 pub mod fit;
 pub mod montecarlo;
 pub mod sizing;
+pub mod verdict;
 pub mod workload;
