@@ -291,7 +291,8 @@ impl StageMeasurements {
         line.at.unwrap_or(self.settings.default_amplitude_v)
     }
 
-    /// The value a line constrains (`None`: below the floor or unbounded).
+    /// The value a line constrains (`None`: below the floor or unbounded; always `None` for a
+    /// yield line, which the Monte Carlo study judges).
     pub fn measure(&self, line: &BudgetLine) -> Result<Option<f64>, SolveFailure> {
         Ok(self.measure_checked(line)?.value)
     }
@@ -355,6 +356,9 @@ impl StageMeasurements {
             ),
             Metric::SteeringRange => (Some(self.steering_range()?), self.steering_region()?),
             Metric::InputNoise => (Some(self.noise()?), self.zero_input_region()?),
+            // A property of the population, not of one stage: the study counts it (judged at
+            // the bias point here).
+            Metric::Yield => (None, self.zero_input_region()?),
         };
         Ok(Measured { value, region })
     }

@@ -24,11 +24,13 @@ pub enum Metric {
     /// The least collector-base reverse bias over the period at an amplitude, V (negative
     /// when a junction is forward-biased: saturation).
     CollectorBaseMargin,
+    /// Fraction of the Monte Carlo runs meeting every other budget line (needs `monte_carlo`).
+    Yield,
 }
 
 /// Every metric name a plan accepts, for messages.
 pub const METRIC_NAMES: &str =
-    "hd2, hd3, hd5 (any hdN, N ≥ 2), thd, im3, iip3, oip3, p1db, gain, steering_range, input_noise, collector_base_margin";
+    "hd2, hd3, hd5 (any hdN, N ≥ 2), thd, im3, iip3, oip3, p1db, gain, steering_range, input_noise, collector_base_margin, yield";
 
 impl Metric {
     /// The name used in plans and reports (`hd3`, `iip3`, …).
@@ -44,6 +46,7 @@ impl Metric {
             Metric::SteeringRange => "steering_range".into(),
             Metric::InputNoise => "input_noise".into(),
             Metric::CollectorBaseMargin => "collector_base_margin".into(),
+            Metric::Yield => "yield".into(),
         }
     }
 
@@ -66,6 +69,7 @@ impl Metric {
             "steering_range" => Metric::SteeringRange,
             "input_noise" => Metric::InputNoise,
             "collector_base_margin" => Metric::CollectorBaseMargin,
+            "yield" => Metric::Yield,
             other => {
                 let order: usize = other.strip_prefix("hd")?.parse().ok()?;
                 if order < 2 {
@@ -82,6 +86,17 @@ impl Metric {
             self,
             Metric::Harmonic(_) | Metric::Thd | Metric::Im3 | Metric::Gain
         )
+    }
+
+    /// Whether the metric is a level relative to the fundamental (dBc): a distortion product,
+    /// which a budget can only bound from above.
+    pub fn is_dbc(self) -> bool {
+        matches!(self, Metric::Harmonic(_) | Metric::Thd | Metric::Im3)
+    }
+
+    /// Whether the metric is judged on the Monte Carlo population rather than on one stage.
+    pub fn is_population(self) -> bool {
+        self == Metric::Yield
     }
 
     /// Whether the metric depends on the drive amplitude (`at`).
@@ -104,6 +119,7 @@ impl Metric {
             Metric::Harmonic(_) | Metric::Thd | Metric::Im3 => "dBc",
             Metric::Gain => "dB",
             Metric::InputNoise => "V/√Hz",
+            Metric::Yield => "fraction",
             _ => "V",
         }
     }

@@ -183,8 +183,8 @@ impl<'a> At<'a> {
 fn accepted_phrase(unit: Unit, range: Range) -> String {
     let description = unit.describe();
     match description.split_once(", e.g.") {
-        Some((kind, examples)) => format!("{kind} {}, e.g.{examples}", range.phrase()),
-        None => format!("{description} {}", range.phrase()),
+        Some((kind, examples)) => format!("{kind} {}, e.g.{examples}", range.phrase(unit)),
+        None => format!("{description} {}", range.phrase(unit)),
     }
 }
 
@@ -209,9 +209,17 @@ pub enum Range {
     Finite,
     /// Finite, strictly between the bounds.
     Between(f64, f64),
+    /// Finite, from the first bound to the second, both included (bounds shown with SI
+    /// prefixes in the unit of the key).
+    Within(f64, f64),
 }
 
 impl Range {
+    /// Whether `value` is in the range.
+    pub(crate) fn accepts(self, value: f64) -> bool {
+        self.check(value).is_ok()
+    }
+
     fn check(self, value: f64) -> Result<(), &'static str> {
         let ok = match self {
             Range::Positive => value.is_finite() && value > 0.0,
@@ -219,6 +227,7 @@ impl Range {
             Range::NonNegative => value.is_finite() && value >= 0.0,
             Range::Finite => value.is_finite(),
             Range::Between(low, high) => value.is_finite() && value > low && value < high,
+            Range::Within(low, high) => value.is_finite() && value >= low && value <= high,
         };
         if ok {
             Ok(())
@@ -229,8 +238,13 @@ impl Range {
         }
     }
 
-    fn phrase(self) -> String {
+    pub(crate) fn phrase(self, unit: Unit) -> String {
         match self {
+            Range::Within(low, high) => format!(
+                "from {} to {}",
+                crate::units::format_si(low, unit.symbol()),
+                crate::units::format_si(high, unit.symbol())
+            ),
             Range::Positive => "greater than zero and finite".into(),
             Range::PositiveOrInfinite => "greater than zero (.inf means ideal)".into(),
             Range::NonNegative => "zero or more, finite".into(),
@@ -307,7 +321,7 @@ fn join(path: &str, key: &str) -> String {
 }
 
 /// The accepted name closest to a misspelt one (edit distance at most 3).
-fn closest<'b>(name: &str, allowed: &[&'b str]) -> Option<&'b str> {
+pub(crate) fn closest<'b>(name: &str, allowed: &[&'b str]) -> Option<&'b str> {
     allowed
         .iter()
         .map(|candidate| (edit_distance(name, candidate), *candidate))

@@ -151,12 +151,37 @@ pub struct LineResult {
     pub amplitude_v: Option<f64>,
     /// The measured value (`None`: below the floor, or unbounded).
     pub value: Option<f64>,
-    /// Margin, dB.
+    /// Margin, dB (a fraction for a yield line).
     pub margin: Option<f64>,
     /// Whether the line passes.
     pub pass: bool,
-    /// Operating region of the drive the value was measured at.
+    /// The value is below the analysis floor and `margin` is only a lower bound.
+    pub margin_at_least: bool,
+    /// Whether the line is judged on this case: a yield line is judged on the Monte Carlo
+    /// population, which is drawn in the typical corner only.
+    pub judged: bool,
+    /// For a yield line: the 95 % Wilson score interval of the pass fraction.
+    pub interval: Option<(f64, f64)>,
+    /// Operating region of the drive the value was measured at (for a yield line: the worst
+    /// over the case's other lines, which every run must meet).
     pub region: RegionCheck,
+}
+
+impl LineResult {
+    /// A yield line judged on a population's pass fraction (`None`: not estimated).
+    pub fn judge_yield(
+        &mut self,
+        line: &crate::model::budget::BudgetLine,
+        pass_fraction: Option<f64>,
+        interval: Option<(f64, f64)>,
+    ) {
+        let judged = judge(line, pass_fraction, ANALYSIS_FLOOR_DBC);
+        self.value = pass_fraction;
+        self.margin = judged.margin;
+        self.pass = judged.pass;
+        self.margin_at_least = false;
+        self.interval = interval;
+    }
 }
 
 /// Measurements of a stage at a temperature, for the studies.
@@ -261,6 +286,7 @@ pub fn evaluate_case(
     }
 
     let zero_input = solver.solve_cold(0.0).map_err(fail)?;
+    let operating_region = RegionCheck::of_point(&zero_input, circuit.tail_current);
     let input_offset_v = offset_voltage(solver).map_err(fail)?;
     let (steer_low, steer_high) = steering;
     let span = (2.0 * steer_high.abs().max(steer_low.abs())).max(4.0 * circuit.thermal_voltage);
@@ -283,10 +309,28 @@ pub fn evaluate_case(
     };
 
     let mut budget = Vec::with_capacity(plan.budget.len());
+    let typical = plan.corners.first().is_none_or(|c| c.name == corner);
     for (index, line) in plan.budget.iter().enumerate() {
+        if line.metric.is_population() {
+            // Filled in from the Monte Carlo population; until then it fails (a verdict never
+            // rests on a figure that was not computed).
+            budget.push(LineResult {
+                line: index,
+                frequency_hz: measured.line_frequency(line),
+                amplitude_v: None,
+                value: None,
+                margin: None,
+                pass: false,
+                margin_at_least: false,
+                judged: typical,
+                interval: None,
+                region: RegionCheck::new(),
+            });
+            continue;
+        }
         let measured_line = measured.measure_checked(line).map_err(fail)?;
         let value = measured_line.value;
-        let (margin, pass) = judge(line, value, ANALYSIS_FLOOR_DBC);
+        let judged = judge(line, value, ANALYSIS_FLOOR_DBC);
         budget.push(LineResult {
             line: index,
             frequency_hz: measured.line_frequency(line),
@@ -295,10 +339,29 @@ pub fn evaluate_case(
                 .needs_amplitude()
                 .then(|| measured.line_amplitude(line)),
             value,
-            margin,
-            pass,
+            margin: judged.margin,
+            pass: judged.pass,
+            margin_at_least: judged.margin_at_least,
+            judged: true,
+            interval: None,
             region: measured_line.region,
         });
+    }
+    // A yield line rests on every other line of every run: it carries their worst region.
+    let mut others = RegionCheck::new();
+    for (result, line) in budget.iter().zip(&plan.budget) {
+        if !line.metric.is_population() {
+            others.merge(&result.region);
+        }
+    }
+    for (result, line) in budget.iter_mut().zip(&plan.budget) {
+        if line.metric.is_population() {
+            result.region = if others.max_base_collector_v.is_finite() {
+                others
+            } else {
+                operating_region
+            };
+        }
     }
 
     Ok(CaseEvaluation {
