@@ -57,6 +57,7 @@ pub use model::drive::Drive;
 pub use model::plan::{MonteCarloSettings, NoiseBand, Plan, SizingSettings};
 pub use model::stage::{Mismatch, Stage};
 pub use model::tail::TailCurrentLaw;
+pub use model::topology::{MultiTanh, MultiTanhForm, TanhPair, Topology};
 pub use model::transistor::Transistor;
 pub use report::Report;
 pub use study::evaluate::Progress;

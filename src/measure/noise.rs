@@ -9,28 +9,185 @@
 //! `f1…f2` it integrates exactly to `e_w²·(f2 − f1) + F·ln(f2/f1)`.
 
 use crate::error::SolveFailure;
+use crate::model::circuit::StageCircuit;
 use crate::model::plan::NoiseBand;
 use crate::model::transistor::Transistor;
 use crate::solve::transfer::StaticSolver;
 use crate::units::{BOLTZMANN, ELEMENTARY_CHARGE, ZERO_CELSIUS_K};
 
-/// White input-referred differential noise density, V/√Hz, at the zero-input operating point:
-/// per side `4kT·(R_S + r_b + R_E) + 2kT/g_m + 2q·I_B·(R_S + r_b)² + 4kT/(G²·R_L)`
-/// with `g_m = I_C/φT` and `G = g_m/(1 + g_m·R_E)`, summed over both sides.
+/// White input-referred differential noise density, V/√Hz, at the zero-input operating point
+/// (the square root of [`NoiseBreakdown::total_v2`]).
 pub fn input_noise_density(solver: &StaticSolver) -> Result<f64, SolveFailure> {
-    let c = solver.circuit();
-    let point = solver.solve_cold(0.0)?;
-    let kt = BOLTZMANN * (c.temperature_c + ZERO_CELSIUS_K);
-    let mut total = 0.0;
-    for (side, state) in [(&c.p, &point.p), (&c.m, &point.m)] {
-        let gm = state.collector_current / c.thermal_voltage;
-        let g = gm / (1.0 + gm * side.emitter_resistance);
-        total += 4.0 * kt * (side.base_path_resistance + side.emitter_resistance)
-            + 2.0 * kt / gm
-            + 2.0 * ELEMENTARY_CHARGE * state.base_current * side.base_path_resistance.powi(2)
-            + 4.0 * kt / (g * g * side.load_resistance);
+    Ok(NoiseBreakdown::measure(solver)?.total_v2().sqrt())
+}
+
+/// The white input-referred noise power density of a stage at zero input, V²/Hz, by source.
+///
+/// Small-signal analysis at the exact zero-input operating point: each noise source is a
+/// voltage or current at its own place in the circuit, its transfer to the differential output
+/// is the derivative of the exact static solve (a central difference of
+/// [`StaticSolver::solve_cold`] with the circuit changed at that place), and it is referred to
+/// the input by the small-signal gain `A` found the same way:
+///
+/// - each transistor `k`: `4kT·(r_b + R_E) + 2kT/g_m + 2q·I_B·r_b²` as a voltage in its
+///   emitter lead (`g_m = I_C/φT`; `R_E` only where the transistor has its own emitter
+///   resistor), transfer `T_k`; the base shot noise also flows in the shared source
+///   resistance, so its term is `2q·I_B·(T_k·r_b + T_s·R_S)²/A²` with `T_s` the transfer of
+///   that side's input node;
+/// - each source resistance: `4kT·R_S·(T_s/A)²`;
+/// - the split tail's resistor `2R_E` between the emitters: `4kT·2R_E` as a voltage in series
+///   with it, the same as currents `∓e/(2R_E)` in the two sources;
+/// - each tail source: `i_n²·f` (a fraction `f` of the current) times `(∂V/∂I_source / A)²`:
+///   zero for one source feeding a matched pair (common mode), `i_n²·R_E²/2` per source of
+///   a matched split tail, and the pairs' offset currents in a multi-tanh cell;
+/// - each load: `4kT·R_L/A²`.
+///
+/// For a matched emitter-resistor pair with an ideal tail this is the usual
+/// `2·[4kT(R_S + r_b + R_E) + 2kT/g_m + 2q·I_B·(R_S + r_b)² + 4kT/(G²·R_L)]`,
+/// `G = g_m/(1 + g_m·R_E)` (standard bipolar noise analysis, from memory).
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct NoiseBreakdown {
+    /// Shot noise of the transistors and thermal noise of their base resistances, V²/Hz.
+    pub transistors_v2: f64,
+    /// Source and degeneration resistors (emitter resistors or the split tail's resistor),
+    /// V²/Hz.
+    pub resistors_v2: f64,
+    /// Tail sources, V²/Hz.
+    pub tail_sources_v2: f64,
+    /// Loads, V²/Hz.
+    pub loads_v2: f64,
+}
+
+/// Relative probe for the central differences: a thousandth of φT (or of the tail current);
+/// the output is smooth, so the difference is exact to about 1e-7 relative.
+const PROBE: f64 = 1e-3;
+
+impl NoiseBreakdown {
+    /// Total input-referred white noise power density, V²/Hz.
+    pub fn total_v2(&self) -> f64 {
+        self.transistors_v2 + self.resistors_v2 + self.tail_sources_v2 + self.loads_v2
     }
-    Ok(total.sqrt())
+
+    /// Measures every source of the stage at its zero-input operating point.
+    pub fn measure(solver: &StaticSolver) -> Result<Self, SolveFailure> {
+        let c = solver.circuit();
+        let phi = c.thermal_voltage;
+        let kt = BOLTZMANN * (c.temperature_c + ZERO_CELSIUS_K);
+        let q = ELEMENTARY_CHARGE;
+        let h_v = PROBE * phi;
+        let output = |circuit: StageCircuit, v_d: f64| -> Result<f64, SolveFailure> {
+            Ok(StaticSolver::new(circuit).solve_cold(v_d)?.output_voltage)
+        };
+        // Transfer of a change made by `change(circuit, ±h)` to the output, per unit.
+        let transfer =
+            |change: &dyn Fn(&mut StageCircuit, f64), h: f64| -> Result<f64, SolveFailure> {
+                let mut up = c.clone();
+                change(&mut up, h);
+                up.apply_split_tail();
+                let mut down = c.clone();
+                change(&mut down, -h);
+                down.apply_split_tail();
+                Ok((output(up, 0.0)? - output(down, 0.0)?) / (2.0 * h))
+            };
+        let gain = (solver.solve_cold(h_v)?.output_voltage
+            - solver.solve_cold(-h_v)?.output_voltage)
+            / (2.0 * h_v);
+        if !(gain.is_finite() && gain != 0.0) {
+            return Err(SolveFailure {
+                point: "v_d = 0 V".into(),
+                reason: format!(
+                    "the small-signal gain is {gain:e}: no input noise can be referred"
+                ),
+            });
+        }
+        let refer = |t: f64| (t / gain).powi(2);
+        // Input nodes: v_P = v_cm + v_d/2, v_M = v_cm − v_d/2.
+        let node = |sign: f64| -> Result<f64, SolveFailure> {
+            let at = |h: f64| {
+                let mut moved = c.clone();
+                moved.input_common_mode += 0.5 * h;
+                output(moved, sign * h)
+            };
+            Ok((at(h_v)? - at(-h_v)?) / (2.0 * h_v))
+        };
+        let node_transfer = [node(1.0)?, node(-1.0)?];
+        let r_s = c.source_resistance;
+        let mut figures = NoiseBreakdown::default();
+        for t_s in node_transfer {
+            figures.resistors_v2 += 4.0 * kt * r_s * refer(t_s);
+        }
+        // Transistors, each with its own emitter-lead probe.
+        let split = c.split_tail.is_some();
+        let pairs = solver.solve_pairs(0.0)?;
+        for (j, point) in pairs.iter().enumerate() {
+            let pair = if c.cell.is_empty() {
+                c
+            } else {
+                &c.cell[j].circuit
+            };
+            for (k, (side, state)) in [(&pair.p, &point.p), (&pair.m, &point.m)]
+                .into_iter()
+                .enumerate()
+            {
+                let probe = |circuit: &mut StageCircuit, h: f64| {
+                    let target = if circuit.cell.is_empty() {
+                        circuit
+                    } else {
+                        &mut circuit.cell[j].circuit
+                    };
+                    let side = if k == 0 { &mut target.p } else { &mut target.m };
+                    side.emitter_source_v += h;
+                };
+                let t_k = transfer(&probe, h_v)?;
+                let gm = state.collector_current / phi;
+                let r_b = side.base_path_resistance - r_s;
+                let r_e = if split { 0.0 } else { side.emitter_resistance };
+                figures.transistors_v2 += (4.0 * kt * r_b + 2.0 * kt / gm) * refer(t_k)
+                    + 2.0
+                        * q
+                        * state.base_current.max(0.0)
+                        * ((t_k * r_b + node_transfer[k] * r_s) / gain).powi(2);
+                figures.resistors_v2 += 4.0 * kt * r_e * refer(t_k);
+            }
+        }
+        // Tail sources.
+        let h_i = PROBE * c.tail_current;
+        let i_n2 = c.tail_noise_current * c.tail_noise_current;
+        if let Some(elements) = c.split_tail {
+            let mut per_source = [0.0; 2];
+            for (k, slot) in per_source.iter_mut().enumerate() {
+                let probe = move |circuit: &mut StageCircuit, h: f64| {
+                    if let Some(split) = circuit.split_tail.as_mut() {
+                        split.source_currents[k] += h;
+                    }
+                };
+                *slot = transfer(&probe, h_i)?;
+            }
+            figures.tail_sources_v2 += 0.5 * i_n2 * (refer(per_source[0]) + refer(per_source[1]));
+            let r_bridge = 2.0 * elements.half_resistance;
+            if r_bridge > 0.0 {
+                // A voltage e in series with the bridge is the current e/R_bridge moved from
+                // one source to the other.
+                figures.resistors_v2 +=
+                    4.0 * kt * r_bridge * refer((per_source[1] - per_source[0]) / r_bridge);
+            }
+        } else if c.cell.is_empty() {
+            if i_n2 > 0.0 {
+                let probe = |circuit: &mut StageCircuit, h: f64| circuit.tail_current += h;
+                figures.tail_sources_v2 += i_n2 * refer(transfer(&probe, h_i)?);
+            }
+        } else if i_n2 > 0.0 {
+            for (j, pair) in c.cell.iter().enumerate() {
+                let probe = move |circuit: &mut StageCircuit, h: f64| {
+                    circuit.cell[j].circuit.tail_current += h
+                };
+                figures.tail_sources_v2 +=
+                    i_n2 * pair.tail_fraction * refer(transfer(&probe, h_i)?);
+            }
+        }
+        figures.loads_v2 = 4.0 * kt * (c.p.load_resistance + c.m.load_resistance) / (gain * gain);
+        Ok(figures)
+    }
 }
 
 /// Input-referred noise of one stage at one temperature.
@@ -120,7 +277,6 @@ pub fn third_order_sfdr_db(iip3_v: f64, noise_rms_v: f64) -> f64 {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::model::circuit::StageCircuit;
     use crate::model::stage::Stage;
     use crate::units::thermal_voltage;
 

@@ -10,4 +10,5 @@ pub mod measurement;
 pub mod plan;
 pub mod stage;
 pub mod tail;
+pub mod topology;
 pub mod transistor;

@@ -2,6 +2,7 @@
 //! capacitances, transistor, mismatch and tail-current law, at nominal values.
 
 use super::tail::TailCurrentLaw;
+use super::topology::{MultiTanh, Topology};
 use super::transistor::Transistor;
 
 /// Supply used when a stage gives none, V.
@@ -55,6 +56,14 @@ pub struct Stage {
     pub mismatch_sigma: Mismatch,
     /// How the tail current moves with temperature.
     pub tail_current_law: TailCurrentLaw,
+    /// The circuit form: emitter resistors, split tail or multi-tanh.
+    pub topology: Topology,
+    /// The multi-tanh cell (used with [`Topology::MultiTanh`]).
+    pub multi_tanh: MultiTanh,
+    /// White noise current density of a tail source carrying the whole tail current, A/√Hz;
+    /// a source carrying a fraction `f` of it has `√f` of this density (noise power in
+    /// proportion to the current, as for shot noise and for a degenerated mirror).
+    pub tail_noise_current: f64,
 }
 
 impl Stage {
@@ -77,6 +86,9 @@ impl Stage {
             mismatch: Mismatch::default(),
             mismatch_sigma: Mismatch::default(),
             tail_current_law: TailCurrentLaw::default(),
+            topology: Topology::default(),
+            multi_tanh: MultiTanh::default(),
+            tail_noise_current: 0.0,
         }
     }
 
@@ -137,6 +149,21 @@ impl Stage {
         self
     }
 
+    /// Sets the circuit form.
+    #[must_use]
+    pub fn topology(mut self, topology: Topology) -> Self {
+        self.topology = topology;
+        self
+    }
+
+    /// Makes the stage a multi-tanh cell with the given pairs.
+    #[must_use]
+    pub fn multi_tanh(mut self, cell: MultiTanh) -> Self {
+        self.topology = Topology::MultiTanh;
+        self.multi_tanh = cell;
+        self
+    }
+
     /// Sets the tail current's temperature law.
     #[must_use]
     pub fn tail_current_law(mut self, law: TailCurrentLaw) -> Self {
@@ -176,6 +203,8 @@ quantity_builders!(Stage;
     load_capacitance,
     /// Sets the tail-node capacitance to ground, F.
     tail_capacitance,
+    /// Sets the tail source's white noise current density at the whole tail current, A/√Hz.
+    tail_noise_current,
 );
 
 impl Default for Stage {
@@ -207,6 +236,8 @@ pub struct Mismatch {
     pub base_resistance: f64,
     /// Current gain β.
     pub beta: f64,
+    /// Tail current of the P-side source over the M-side source (split tail only).
+    pub tail_current: f64,
 }
 
 quantity_builders!(Mismatch;
@@ -220,4 +251,6 @@ quantity_builders!(Mismatch;
     base_resistance,
     /// Sets the β fraction.
     beta,
+    /// Sets the split tail's source-current fraction.
+    tail_current,
 );

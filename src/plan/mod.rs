@@ -19,6 +19,7 @@ use crate::model::budget::{BudgetLine, Limit, Metric, METRIC_NAMES};
 use crate::model::drive::{Drive, DEFAULT_THD_HARMONICS};
 use crate::model::plan::{MonteCarloSettings, NoiseBand, Plan, SizingSettings};
 use crate::model::stage::{Mismatch, Stage};
+use crate::model::topology::{MultiTanh, MultiTanhForm, TanhPair, Topology};
 use crate::model::transistor::Transistor;
 use crate::units::Unit;
 use overrides::{override_location, parse_override, Override};
@@ -57,7 +58,12 @@ const STAGE_KEYS: &[&str] = &[
     "mismatch",
     "mismatch_sigma",
     "tail_current_law",
+    "topology",
+    "multi_tanh",
+    "tail_noise_current",
 ];
+const MULTI_TANH_KEYS: &[&str] = &["form", "area_ratio", "centre_fraction", "pairs"];
+const TANH_PAIR_KEYS: &[&str] = &["area_p", "area_m", "tail_fraction", "emitter_resistance"];
 const TRANSISTOR_KEYS: &[&str] = &[
     "saturation_current",
     "beta",
@@ -88,6 +94,7 @@ const MISMATCH_KEYS: &[&str] = &[
     "load_resistance",
     "base_resistance",
     "beta",
+    "tail_current",
 ];
 const DRIVE_KEYS: &[&str] = &[
     "amplitudes",
@@ -539,7 +546,17 @@ fn read_stage(at: &At) -> Result<Stage, PlanError> {
             .map(|law| tail::read_tail_law(&law))
             .transpose()?
             .unwrap_or_default(),
+        topology: Topology::default(),
+        multi_tanh: MultiTanh::default(),
+        tail_noise_current: map.quantity_or(
+            "tail_noise_current",
+            Unit::Ampere,
+            Range::NonNegative,
+            0.0,
+        )?,
     };
+    let mut stage = stage;
+    read_topology(&map, &mut stage)?;
     Ok(stage)
 }
 
@@ -688,6 +705,142 @@ fn read_mismatch(stage: &MapAt, key: &str, range: Range) -> Result<Mismatch, Pla
         load_resistance: map.quantity_or("load_resistance", Unit::Ratio, range, 0.0)?,
         base_resistance: map.quantity_or("base_resistance", Unit::Ratio, range, 0.0)?,
         beta: map.quantity_or("beta", Unit::Ratio, range, 0.0)?,
+        tail_current: map.quantity_or("tail_current", Unit::Ratio, range, 0.0)?,
+    })
+}
+
+/// Emitter-area ratios a multi-tanh pair may have: refused outside (beyond 1000:1 the offset
+/// exceeds 7φT and the pair no longer overlaps its neighbours).
+pub const AREA_RATIO_RANGE: (f64, f64) = (1.0, 1000.0);
+
+/// Reads `topology` and `multi_tanh`, and refuses the combinations the engines do not solve.
+fn read_topology(map: &MapAt, stage: &mut Stage) -> Result<(), PlanError> {
+    if let Some(at) = map.get("topology") {
+        let accepted = Topology::NAMES.join(", ");
+        let name = at.text(&accepted)?;
+        stage.topology = Topology::from_name(name).ok_or_else(|| {
+            let hint = crate::plan::reader::closest(name, &Topology::NAMES)
+                .map(|c| format!(" (did you mean `{c}`?)"))
+                .unwrap_or_default();
+            at.error(format!("unknown topology `{name}`{hint}"), accepted)
+        })?;
+    }
+    let cell_at = map.get("multi_tanh");
+    match (stage.topology, &cell_at) {
+        (Topology::MultiTanh, None) => {
+            return Err(map
+                .required("multi_tanh", "a cell: {form: doublet, area_ratio: 3.73}")
+                .unwrap_err())
+        }
+        (Topology::MultiTanh, Some(at)) => stage.multi_tanh = read_multi_tanh(at)?,
+        (_, Some(at)) => {
+            return Err(at.error(
+                format!(
+                    "multi_tanh is given but the topology is {}",
+                    stage.topology.name()
+                ),
+                "multi_tanh only with topology: multi_tanh",
+            ))
+        }
+        (_, None) => {}
+    }
+    let stores_charge = !crate::model::transistor::ChargeModel::of(&stage.transistor)
+        .is_memoryless()
+        || stage.load_capacitance > 0.0;
+    match stage.topology {
+        Topology::SplitTail if stage.tail_capacitance > 0.0 => {
+            let at = map.get("tail_capacitance").expect("read above");
+            Err(at.error(
+                "a split tail's source capacitances are not modelled yet (the dynamic engine has one tail node)",
+                "tail_capacitance 0 with topology: split_tail",
+            ))
+        }
+        Topology::MultiTanh if stores_charge || stage.tail_capacitance > 0.0 => {
+            Err(cell_at.expect("read above").error(
+                "a multi-tanh cell with charge storage is not solved yet: only the memoryless engine couples its pairs",
+                "multi_tanh stages without capacitances and transit times",
+            ))
+        }
+        _ => Ok(()),
+    }
+}
+
+fn read_multi_tanh(at: &At) -> Result<MultiTanh, PlanError> {
+    let map = at.map(MULTI_TANH_KEYS)?;
+    if let Some(pairs_at) = map.get("pairs") {
+        for key in ["form", "area_ratio", "centre_fraction"] {
+            if let Some(other) = map.get(key) {
+                return Err(other.error(
+                    format!("`{key}` and `pairs` both describe the cell"),
+                    "either form (with area_ratio, centre_fraction) or pairs",
+                ));
+            }
+        }
+        let items = pairs_at.seq("pairs")?;
+        if items.is_empty() || items.len() > 16 {
+            return Err(pairs_at.error(
+                format!("{} pairs were listed", items.len()),
+                "1 to 16 pairs",
+            ));
+        }
+        let mut list = Vec::with_capacity(items.len());
+        for item in &items {
+            let pair = item.map(TANH_PAIR_KEYS)?;
+            let area = Range::Within(1e-3, 1e3);
+            list.push(TanhPair {
+                area_p: pair.quantity_or("area_p", Unit::Number, area, 1.0)?,
+                area_m: pair.quantity_or("area_m", Unit::Number, area, 1.0)?,
+                tail_fraction: pair.quantity(
+                    "tail_fraction",
+                    Unit::Ratio,
+                    Range::Within(1e-3, 1.0),
+                )?,
+                emitter_resistance: pair
+                    .get("emitter_resistance")
+                    .map(|r| r.quantity_where(Unit::Ohm, Range::NonNegative))
+                    .transpose()?,
+            });
+        }
+        let sum: f64 = list.iter().map(|p| p.tail_fraction).sum();
+        if (sum - 1.0).abs() > 1e-6 {
+            return Err(pairs_at.error(
+                format!("the tail fractions add up to {sum}"),
+                "tail fractions adding up to 1 (the stage's tail_current is the whole cell's)",
+            ));
+        }
+        return Ok(MultiTanh::pairs_of(list));
+    }
+    let form_at = map.required("form", "doublet or triplet (or a `pairs` list)")?;
+    let form = match form_at.text("doublet or triplet")? {
+        "doublet" => MultiTanhForm::Doublet,
+        "triplet" => MultiTanhForm::Triplet,
+        other => {
+            return Err(form_at.error(
+                format!("unknown multi-tanh form `{other}`"),
+                "doublet or triplet (or a `pairs` list)",
+            ))
+        }
+    };
+    let area_ratio = map.quantity(
+        "area_ratio",
+        Unit::Number,
+        Range::Within(AREA_RATIO_RANGE.0, AREA_RATIO_RANGE.1),
+    )?;
+    let centre_fraction = match (form, map.get("centre_fraction")) {
+        (MultiTanhForm::Doublet, Some(c)) => {
+            return Err(c.error(
+                "a doublet has no centre pair",
+                "centre_fraction only with form: triplet",
+            ))
+        }
+        (_, Some(c)) => c.quantity_where(Unit::Ratio, Range::Between(0.0, 1.0))?,
+        (_, None) => 1.0 / 3.0,
+    };
+    Ok(MultiTanh {
+        form,
+        area_ratio,
+        centre_fraction,
+        list: Vec::new(),
     })
 }
 

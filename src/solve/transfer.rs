@@ -132,7 +132,20 @@ pub struct StaticSolver {
     forward_law: bool,
     /// Per side (P, M): the largest `V_BC` at which the reverse injection is negligible, V.
     negligible_below_v: [f64; 2],
+    /// The pairs of a multi-tanh cell, each solved on its own and coupled by
+    /// [`StaticSolver::solve_cell`] (empty otherwise).
+    cell: Vec<StaticSolver>,
+    /// Whether the cell's pairs can affect one another: through the shared source resistance
+    /// (with base current) or through the shared loads (with an Early effect, or in saturation).
+    cell_coupled: bool,
 }
+
+/// The cell's coupling iteration stops when no coupling voltage moves by more than this, V
+/// (plus 16 ulps of the voltage; the pairs' own solves jitter by a few ulps): below it the
+/// output moves by far less than the analysis floor.
+pub const CELL_COUPLING_TOLERANCE_V: f64 = 1e-13;
+/// The cell's coupling iteration gives up after this many passes, naming the point.
+pub const CELL_COUPLING_PASSES: usize = 200;
 
 /// The largest base-collector voltage at which a side's reverse injection
 /// `I_S·exp(V_BC/φT)·(2 + 1/β_R)` stays below [`NEGLIGIBLE_REVERSE_INJECTION`] of the tail
@@ -157,11 +170,25 @@ impl StaticSolver {
             negligible_injection_limit(&circuit, &circuit.p),
             negligible_injection_limit(&circuit, &circuit.m),
         ];
+        let cell: Vec<StaticSolver> = circuit
+            .cell
+            .iter()
+            .map(|pair| StaticSolver::new(pair.circuit.clone()))
+            .collect();
+        let cell_coupled = circuit.cell.iter().any(|pair| {
+            [&pair.circuit.p, &pair.circuit.m].iter().any(|s| {
+                s.early_inv != 0.0
+                    || s.reverse_early_inv != 0.0
+                    || (circuit.source_resistance > 0.0 && s.beta_inv != 0.0)
+            })
+        });
         StaticSolver {
             circuit,
             reducible,
             forward_law,
             negligible_below_v,
+            cell,
+            cell_coupled,
         }
     }
 
@@ -174,6 +201,9 @@ impl StaticSolver {
     pub fn solve(&self, v_d: f64, warm: &mut WarmStart) -> Result<OperatingPoint, SolveFailure> {
         if !v_d.is_finite() {
             return Err(failure(v_d, "the input is not finite"));
+        }
+        if !self.cell.is_empty() {
+            return self.solve_cell(v_d, false);
         }
         let reduced = self.solve_reduced(v_d, warm.log_ratio)?;
         warm.log_ratio = Some(reduced.0);
@@ -217,6 +247,9 @@ impl StaticSolver {
         if !v_d.is_finite() {
             return Err(failure(v_d, "the input is not finite"));
         }
+        if !self.cell.is_empty() {
+            return self.solve_cell(v_d, true);
+        }
         let start = match warm.whole {
             Some(_) => OperatingPoint::default(),
             None => self.solve(v_d, &mut WarmStart::default())?,
@@ -236,6 +269,154 @@ impl StaticSolver {
             }
         }
         Ok(false)
+    }
+
+    /// Solves a multi-tanh cell at `v_d`: each pair at its own tail, with the other pairs'
+    /// base currents in the shared source resistance (a shift of that side's input) and their
+    /// collector currents in the shared loads (a drop at the top of that side's load),
+    /// iterated pair by pair (Gauss–Seidel) until no coupling voltage moves by more than
+    /// [`CELL_COUPLING_TOLERANCE_V`]. Pairs that cannot affect one another (no Early effect,
+    /// no base current in a source resistance, no junction forward-biased at the true
+    /// collector voltage) are exact after the first pass. `whole` solves every pair with the
+    /// whole model.
+    pub fn solve_cell(&self, v_d: f64, whole: bool) -> Result<OperatingPoint, SolveFailure> {
+        self.solve_cell_pairs(v_d, whole)
+            .map(|points| self.combine_cell(&points))
+    }
+
+    /// Each pair's own point of a multi-tanh cell at `v_d`, coupled as in
+    /// [`StaticSolver::solve_cell`] (collector and internal collector voltages as the pair was
+    /// solved, with the other pairs' current in the shared loads once coupled). A stage that is
+    /// not a cell gives its one point.
+    pub fn solve_pairs(&self, v_d: f64) -> Result<Vec<OperatingPoint>, SolveFailure> {
+        if self.cell.is_empty() {
+            Ok(vec![self.solve_cold(v_d)?])
+        } else {
+            self.solve_cell_pairs(v_d, false)
+        }
+    }
+
+    fn solve_cell_pairs(&self, v_d: f64, whole: bool) -> Result<Vec<OperatingPoint>, SolveFailure> {
+        let c = &self.circuit;
+        let n = self.cell.len();
+        let r_s = c.source_resistance;
+        let mut points = vec![OperatingPoint::default(); n];
+        let mut warms = vec![WarmStart::default(); n];
+        // Coupling voltages of each pair: [P load drop, M load drop, P input drop, M input drop].
+        let mut coupling = vec![[0.0f64; 4]; n];
+        let others = |points: &[OperatingPoint], k: usize| -> [f64; 4] {
+            let mut sums = [0.0; 4];
+            for (j, point) in points.iter().enumerate() {
+                if j != k {
+                    sums[0] += point.p.collector_current;
+                    sums[1] += point.m.collector_current;
+                    sums[2] += point.p.base_current;
+                    sums[3] += point.m.base_current;
+                }
+            }
+            [
+                c.p.load_resistance * sums[0],
+                c.m.load_resistance * sums[1],
+                r_s * sums[2],
+                r_s * sums[3],
+            ]
+        };
+        let solve_pair = |k: usize, drops: [f64; 4], warm: &mut WarmStart| {
+            let mut part = self.cell[k].clone();
+            part.circuit.p.extra_load_current = drops[0] / c.p.load_resistance;
+            part.circuit.m.extra_load_current = drops[1] / c.m.load_resistance;
+            part.circuit.input_common_mode = c.input_common_mode - 0.5 * (drops[2] + drops[3]);
+            let v_pair = v_d - (drops[2] - drops[3]);
+            if whole {
+                part.solve_whole_model(v_pair, warm)
+            } else {
+                part.solve(v_pair, warm)
+            }
+        };
+        for pass in 0..CELL_COUPLING_PASSES {
+            let mut moved = 0.0f64;
+            for k in 0..n {
+                let drops = if pass == 0 && !self.cell_coupled {
+                    [0.0; 4]
+                } else {
+                    others(&points, k)
+                };
+                for (old, new) in coupling[k].iter().zip(drops) {
+                    let excess = (new - old).abs()
+                        - CELL_COUPLING_TOLERANCE_V
+                        - 16.0 * f64::EPSILON * new.abs();
+                    moved = moved.max(excess);
+                }
+                coupling[k] = drops;
+                points[k] = solve_pair(k, drops, &mut warms[k])?;
+            }
+            let settled = if pass == 0 && !self.cell_coupled {
+                // Uncoupled pairs: exact when every junction stays reverse-biased at the true
+                // collector voltages (the forward-active currents do not depend on them).
+                (0..n).all(|k| {
+                    let drops = others(&points, k);
+                    let point = &points[k];
+                    point.p.base_collector_voltage() + drops[0] <= 0.0
+                        && point.m.base_collector_voltage() + drops[1] <= 0.0
+                })
+            } else {
+                pass > 0 && moved <= 0.0
+            };
+            if settled {
+                return Ok(points);
+            }
+        }
+        Err(failure(
+            v_d,
+            &format!(
+                "the multi-tanh pairs' coupling through the shared loads and source resistance did not settle in {CELL_COUPLING_PASSES} passes"
+            ),
+        ))
+    }
+
+    /// The cell's point from its pairs': currents summed per side, voltages of the transistor
+    /// nearest saturation on each side at the true (shared) collector voltage, the lowest
+    /// tail voltage, and the output from the summed currents.
+    fn combine_cell(&self, points: &[OperatingPoint]) -> OperatingPoint {
+        let c = &self.circuit;
+        let total = |pick: fn(&OperatingPoint) -> &SidePoint, load: f64| -> SidePoint {
+            let collector: f64 = points.iter().map(|p| pick(p).collector_current).sum();
+            let drop_of = |p: &OperatingPoint| load * (collector - pick(p).collector_current);
+            let worst = points
+                .iter()
+                .max_by(|a, b| {
+                    let va = pick(a).base_collector_voltage() + drop_of(a);
+                    let vb = pick(b).base_collector_voltage() + drop_of(b);
+                    va.total_cmp(&vb)
+                })
+                .expect("a cell has pairs");
+            let own = pick(worst);
+            SidePoint {
+                collector_current: collector,
+                base_current: points.iter().map(|p| pick(p).base_current).sum(),
+                emitter_current: points.iter().map(|p| pick(p).emitter_current).sum(),
+                base_emitter_voltage: own.base_emitter_voltage,
+                collector_voltage: c.supply - load * collector,
+                base_voltage: own.base_voltage,
+                internal_collector_voltage: own.internal_collector_voltage
+                    - (own.collector_voltage - (c.supply - load * collector)),
+                injection: points.iter().map(|p| pick(p).injection).fold(0.0, f64::max),
+            }
+        };
+        OperatingPoint {
+            p: total(|p| &p.p, c.p.load_resistance),
+            m: total(|p| &p.m, c.m.load_resistance),
+            tail_voltage: points
+                .iter()
+                .map(|p| p.tail_voltage)
+                .fold(f64::INFINITY, f64::min),
+            output_voltage: points.iter().map(|p| p.output_voltage).sum(),
+        }
+    }
+
+    /// The solvers of a multi-tanh cell's pairs (empty for other stages).
+    pub fn cell(&self) -> &[StaticSolver] {
+        &self.cell
     }
 
     fn remember_whole(&self, point: &OperatingPoint, warm: &mut WarmStart) {
@@ -270,6 +451,8 @@ impl StaticSolver {
         let r_p = p.base_path_resistance * p.beta_inv + p.emitter_resistance * k_p;
         let r_m = m.base_path_resistance * m.beta_inv + m.emitter_resistance * k_m;
         let offset = (p.saturation_current / m.saturation_current).ln();
+        // Emitter-lead sources act as a differential input.
+        let v_drive = v_d + p.emitter_source_v - m.emitter_source_v;
         // Transport currents with k_P·J_P + k_M·J_M = I_tail, written without overflow.
         let currents = |y: f64| -> (f64, f64) {
             if y >= 0.0 {
@@ -282,14 +465,14 @@ impl StaticSolver {
         };
         let residual = |y: f64| -> (f64, f64) {
             let (j_p, j_m) = currents(y);
-            let value = phi * (y - offset) + r_p * j_p - r_m * j_m - v_d;
+            let value = phi * (y - offset) + r_p * j_p - r_m * j_m - v_drive;
             let slope = phi + j_p * j_m / tail * (r_p * k_m + r_m * k_p);
             (value, slope)
         };
         let bound = tail * (r_p / k_p + r_m / k_m);
-        let low = (v_d - bound) / phi + offset - 1.0;
-        let high = (v_d + bound) / phi + offset + 1.0;
-        let start = guess.unwrap_or((v_d / (phi + 0.25 * tail * (r_p + r_m))) + offset);
+        let low = (v_drive - bound) / phi + offset - 1.0;
+        let high = (v_drive + bound) / phi + offset + 1.0;
+        let start = guess.unwrap_or((v_drive / (phi + 0.25 * tail * (r_p + r_m))) + offset);
         let tolerance = Tolerance {
             relative: 4.0 * f64::EPSILON,
             scale: 1.0,
@@ -312,9 +495,9 @@ impl StaticSolver {
                 base_current,
                 emitter_current,
                 base_emitter_voltage: phi * (j / side.saturation_current).ln(),
-                collector_voltage: c.supply - side.load_resistance * j,
+                collector_voltage: side.load_top_v(c.supply) - side.load_resistance * j,
                 base_voltage: v_in - side.base_path_resistance * base_current,
-                internal_collector_voltage: c.supply
+                internal_collector_voltage: side.load_top_v(c.supply)
                     - (side.load_resistance + side.collector_resistance) * j,
                 injection: 0.0,
             }
@@ -325,7 +508,8 @@ impl StaticSolver {
         let m_point = side(m, j_m, v_in_m);
         let tail_voltage = p_point.base_voltage
             - p_point.base_emitter_voltage
-            - p.emitter_resistance * p_point.emitter_current;
+            - p.emitter_resistance * p_point.emitter_current
+            + p.emitter_source_v;
         Ok((
             y,
             OperatingPoint {
@@ -538,9 +722,10 @@ impl ForwardSide {
             emitter_current: self.emitter_current,
             base_emitter_voltage: c.thermal_voltage
                 * (self.log_transport - side.saturation_current.ln()),
-            collector_voltage: c.supply - side.load_resistance * self.collector_current,
+            collector_voltage: side.load_top_v(c.supply)
+                - side.load_resistance * self.collector_current,
             base_voltage: v_in - side.base_path_resistance * self.base_current,
-            internal_collector_voltage: c.supply
+            internal_collector_voltage: side.load_top_v(c.supply)
                 - (side.load_resistance + side.collector_resistance) * self.collector_current,
             injection: 0.0,
         }
@@ -555,12 +740,14 @@ fn side_currents(c: &StageCircuit, side: &Side, u: f64, v_tail: f64) -> (f64, f6
     let j = u.exp();
     let q = side.early_inv;
     let r_e = side.emitter_resistance;
-    // I_C·(1 + q·J·(R_L + r_c + R_E)) = J + q·J·(V_CC − V_tail − R_E·J/β)
-    let numerator = j + q * j * (c.supply - v_tail - r_e * j * side.beta_inv);
+    // I_C·(1 + q·J·(R_L + r_c + R_E)) = J + q·J·(V_top + e − V_tail − R_E·J/β), with V_top the
+    // top of the load and e the emitter-lead source.
+    let top = side.load_top_v(c.supply) + side.emitter_source_v;
+    let numerator = j + q * j * (top - v_tail - r_e * j * side.beta_inv);
     let r_l = side.load_resistance + side.collector_resistance;
     let denominator = 1.0 + q * j * (r_l + r_e);
     let collector = numerator / denominator;
-    let d_num_dj = 1.0 + q * (c.supply - v_tail) - 2.0 * q * r_e * j * side.beta_inv;
+    let d_num_dj = 1.0 + q * (top - v_tail) - 2.0 * q * r_e * j * side.beta_inv;
     let d_den_dj = q * (r_l + r_e);
     let d_collector_dj =
         (d_num_dj * denominator - numerator * d_den_dj) / (denominator * denominator);
@@ -586,6 +773,7 @@ fn solve_forward_side(
             + phi * (u - log_is)
             + side.emitter_resistance * emitter
             + v_tail
+            - side.emitter_source_v
             - v_in;
         let slope = side.base_path_resistance * base + phi + side.emitter_resistance * d_emitter_du;
         (value, slope)
@@ -625,9 +813,9 @@ impl SideSolution {
             base_current: self.currents.base,
             emitter_current: self.currents.emitter(),
             base_emitter_voltage: self.base_emitter_v,
-            collector_voltage: c.supply - side.load_resistance * collector,
+            collector_voltage: side.load_top_v(c.supply) - side.load_resistance * collector,
             base_voltage: v_in - side.base_path_resistance * self.currents.base,
-            internal_collector_voltage: c.supply
+            internal_collector_voltage: side.load_top_v(c.supply)
                 - (side.load_resistance + side.collector_resistance) * collector,
             injection: self.currents.injection,
         }
@@ -676,7 +864,7 @@ fn solve_loop(
         .exp();
     let r_b = side.base_path_resistance;
     let r_c = side.load_resistance + side.collector_resistance;
-    let drive = v_in - c.supply;
+    let drive = v_in - side.load_top_v(c.supply);
     // Without reverse injection I_B does not depend on V_BC and I_C is linear in it through
     // the Early factor, wherever that factor is above its floor (it is linear in V_BC, so
     // above the floor at both ends means above it in between).
@@ -804,6 +992,7 @@ fn solve_side(
                     + phi * (u - log_is)
                     + side.emitter_resistance * solved.currents.emitter()
                     + v_tail
+                    - side.emitter_source_v
                     - v_in;
                 let slope = phi
                     * (side.base_path_resistance * d_base

@@ -72,6 +72,7 @@ pub fn draw_mismatch(rng: &mut ChaCha8Rng, mean: &Mismatch, sigma: &Mismatch) ->
         load_resistance: one(mean.load_resistance, sigma.load_resistance),
         base_resistance: one(mean.base_resistance, sigma.base_resistance),
         beta: one(mean.beta, sigma.beta),
+        tail_current: one(mean.tail_current, sigma.tail_current),
     }
 }
 

@@ -335,10 +335,13 @@ impl ChargeSystem for PairSystem<'_> {
             let nodes = [b, e, ci];
             f[b] = v_in - x[b] - side.base_path_resistance * s.base;
             jacobian[b * n + b] -= 1.0;
-            f[e] = x[e] - x[TAIL] - side.emitter_resistance * (s.collector + s.base);
+            // An emitter-lead source e (the split tail's source difference) lowers the
+            // transistor's emitter below the resistor's drop.
+            f[e] = x[e] - x[TAIL] - side.emitter_resistance * (s.collector + s.base)
+                + side.emitter_source_v;
             jacobian[e * n + e] += 1.0;
             jacobian[e * n + TAIL] -= 1.0;
-            f[col] = c.supply - x[col] - side.load_resistance * s.collector;
+            f[col] = side.load_top_v(c.supply) - x[col] - side.load_resistance * s.collector;
             jacobian[col * n + col] -= 1.0;
             if ci != col {
                 f[ci] = x[col] - x[ci] - side.collector_resistance * s.collector;
