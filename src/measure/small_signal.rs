@@ -22,6 +22,48 @@ pub fn small_signal_gain(solver: &StaticSolver) -> Result<f64, SolveFailure> {
     Ok((4.0 * fine - coarse) / 3.0)
 }
 
+/// The voltages the degeneration scheme leaves at zero input.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct BiasNodes {
+    /// Voltage across the tail source (the lowest, where there are several), V: the tail node
+    /// of the emitter-resistor form, the emitters of a split tail, each pair's tail of a
+    /// multi-tanh cell.
+    pub tail_source_v: f64,
+    /// Lowest transistor emitter voltage, V.
+    pub emitter_v: f64,
+}
+
+impl BiasNodes {
+    /// The headroom the degeneration takes at zero input: how far the tail source sits below
+    /// the lowest emitter, V (`I·R_E/2` for emitter resistors, none for a split tail).
+    pub fn degeneration_drop_v(&self) -> f64 {
+        self.emitter_v - self.tail_source_v
+    }
+}
+
+/// The bias nodes at zero input (see [`BiasNodes`]).
+pub fn bias_nodes(solver: &StaticSolver) -> Result<BiasNodes, SolveFailure> {
+    let c = solver.circuit();
+    let pairs = solver.solve_pairs(0.0)?;
+    let emitter_v = pairs
+        .iter()
+        .flat_map(|p| [&p.p, &p.m])
+        .map(|s| s.base_voltage - s.base_emitter_voltage)
+        .fold(f64::INFINITY, f64::min);
+    let tail_source_v = if c.split_tail.is_some() {
+        emitter_v
+    } else {
+        pairs
+            .iter()
+            .map(|p| p.tail_voltage)
+            .fold(f64::INFINITY, f64::min)
+    };
+    Ok(BiasNodes {
+        tail_source_v,
+        emitter_v,
+    })
+}
+
 /// Inputs at which the P side carries 95 % and 5 % of the total emitter current, V.
 pub fn steering_points(solver: &StaticSolver) -> Result<(f64, f64), SolveFailure> {
     let c = solver.circuit();

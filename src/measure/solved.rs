@@ -301,6 +301,18 @@ impl SolvedStage {
         self.input_noise_v_rthz
     }
 
+    /// The white input noise by source (transistors, resistors, tail sources, loads), V²/Hz.
+    pub fn noise_breakdown(&self) -> Result<crate::measure::noise::NoiseBreakdown, Error> {
+        crate::measure::noise::NoiseBreakdown::measure(self.measurements.engine().static_solver())
+            .map_err(self.attribute())
+    }
+
+    /// The tail-source and emitter voltages at zero input (the headroom the scheme takes).
+    pub fn bias_nodes(&self) -> Result<crate::measure::small_signal::BiasNodes, Error> {
+        crate::measure::small_signal::bias_nodes(self.measurements.engine().static_solver())
+            .map_err(self.attribute())
+    }
+
     /// Small-signal differential voltage gain at zero frequency, dB.
     pub fn gain_db(&self) -> f64 {
         self.gain_db
