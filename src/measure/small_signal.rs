@@ -206,7 +206,7 @@ pub fn transfer_curve(
         .map(|i| {
             let v = -span_v + 2.0 * span_v * i as f64 / (points - 1).max(1) as f64;
             let point = solver.solve(v, &mut warm)?;
-            let mut probe = warm;
+            let mut probe = warm.clone();
             let up = current(v + step, &mut probe)?;
             let down = current(v - step, &mut probe)?;
             Ok(TransferSample {

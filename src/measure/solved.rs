@@ -130,7 +130,59 @@ impl Stage {
         if !self.input_common_mode_v().is_finite() {
             return Err(self.invalid("input_common_mode", self.input_common_mode_v(), "finite"));
         }
-        Ok(())
+        if !(self.tail_noise_current.is_finite() && self.tail_noise_current >= 0.0) {
+            return Err(self.invalid(
+                "tail_noise_current",
+                self.tail_noise_current,
+                "zero or more, finite",
+            ));
+        }
+        self.check_topology()
+    }
+
+    /// Refuses cells and topologies the engines do not solve (the plan reader says where).
+    fn check_topology(&self) -> Result<(), Error> {
+        use crate::model::topology::Topology;
+        let stores_charge = !crate::model::transistor::ChargeModel::of(&self.transistor)
+            .is_memoryless()
+            || self.load_capacitance > 0.0
+            || self.tail_capacitance > 0.0;
+        match self.topology {
+            Topology::EmitterResistors => Ok(()),
+            Topology::SplitTail if self.tail_capacitance > 0.0 => Err(self.invalid(
+                "tail_capacitance",
+                self.tail_capacitance,
+                "0 with a split tail (its source capacitances are not modelled yet)",
+            )),
+            Topology::SplitTail => Ok(()),
+            Topology::MultiTanh if stores_charge => Err(Error::Argument {
+                name: format!("stage `{}`: multi_tanh", self.name),
+                problem: "a multi-tanh cell with charge storage is not solved yet".into(),
+                accepted: "multi_tanh stages without capacitances and transit times".into(),
+            }),
+            Topology::MultiTanh => {
+                let pairs = self.multi_tanh.pairs();
+                let total: f64 = pairs.iter().map(|p| p.tail_fraction).sum();
+                let bad_pair = pairs.iter().any(|p| {
+                    !(p.area_p.is_finite() && p.area_p > 0.0)
+                        || !(p.area_m.is_finite() && p.area_m > 0.0)
+                        || !(p.tail_fraction.is_finite() && p.tail_fraction > 0.0)
+                        || p.emitter_resistance
+                            .is_some_and(|r| !(r.is_finite() && r >= 0.0))
+                });
+                if pairs.is_empty() || bad_pair || (total - 1.0).abs() > 1e-6 {
+                    return Err(Error::Argument {
+                        name: format!("stage `{}`: multi_tanh", self.name),
+                        problem: format!(
+                            "{} pairs with tail fractions adding up to {total}, or a pair with a non-positive area or fraction",
+                            pairs.len()
+                        ),
+                        accepted: "one or more pairs with positive areas and fractions adding up to 1 (area_ratio ≥ 1, centre_fraction in (0, 1))".into(),
+                    });
+                }
+                Ok(())
+            }
+        }
     }
 
     fn invalid(&self, name: &str, value: f64, accepted: &str) -> Error {

@@ -48,6 +48,38 @@ pub struct Plan {
     /// Values the plan reader accepted but found unusual for a bipolar stage (worded as
     /// warnings by the report layer).
     pub cautions: Vec<PlanCaution>,
+    /// The stages compared at equal tail current or equal input noise, if asked for.
+    pub comparison: Option<ComparisonSettings>,
+}
+
+/// What the stages are made equal in for the comparison of schemes.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum ComparisonBasis {
+    /// Every stage at the same tail current (resistors as planned).
+    TailCurrent,
+    /// Every stage impedance-scaled (tail current × k, its resistors ÷ k) to the same white
+    /// input noise; the current each then needs is the answer.
+    InputNoise,
+}
+
+impl ComparisonBasis {
+    /// The name in plans and reports.
+    pub fn name(self) -> &'static str {
+        match self {
+            ComparisonBasis::TailCurrent => "tail_current",
+            ComparisonBasis::InputNoise => "input_noise",
+        }
+    }
+}
+
+/// The comparison of the plan's stages at equal terms.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct ComparisonSettings {
+    /// What is held equal.
+    pub basis: ComparisonBasis,
+    /// The common value (A or V/√Hz); `None`: the largest planned tail current, or the lowest
+    /// planned input noise at the first temperature.
+    pub value: Option<f64>,
 }
 
 impl Plan {
@@ -67,6 +99,7 @@ impl Plan {
             measurements: Vec::new(),
             fit: None,
             cautions: Vec::new(),
+            comparison: None,
         }
     }
 

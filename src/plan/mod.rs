@@ -17,6 +17,7 @@ mod tail;
 use crate::error::{Error, PlanError};
 use crate::model::budget::{BudgetLine, Limit, Metric, METRIC_NAMES};
 use crate::model::drive::{Drive, DEFAULT_THD_HARMONICS};
+use crate::model::plan::{ComparisonBasis, ComparisonSettings};
 use crate::model::plan::{MonteCarloSettings, NoiseBand, Plan, SizingSettings};
 use crate::model::stage::{Mismatch, Stage};
 use crate::model::topology::{MultiTanh, MultiTanhForm, TanhPair, Topology};
@@ -30,6 +31,7 @@ use std::path::Path;
 pub const MAX_PLAN_BYTES: u64 = 4 * 1024 * 1024;
 
 const TOP_KEYS: &[&str] = &[
+    "comparison",
     "name",
     "temperatures_c",
     "stages",
@@ -418,7 +420,12 @@ impl Plan {
             .map(|at| bench::read_fit(&at, &measurements, &stages))
             .transpose()?;
 
+        let comparison = top
+            .get("comparison")
+            .map(|at| read_comparison(&at))
+            .transpose()?;
         Ok(Plan {
+            comparison,
             measurements,
             fit,
             cautions,
@@ -763,6 +770,35 @@ fn read_topology(map: &MapAt, stage: &mut Stage) -> Result<(), PlanError> {
         }
         _ => Ok(()),
     }
+}
+
+const COMPARISON_KEYS: &[&str] = &["equal", "value"];
+
+fn read_comparison(at: &At) -> Result<ComparisonSettings, PlanError> {
+    let map = at.map(COMPARISON_KEYS)?;
+    let equal = map.required("equal", "tail_current or input_noise")?;
+    let basis = match equal.text("tail_current or input_noise")? {
+        "tail_current" => ComparisonBasis::TailCurrent,
+        "input_noise" => ComparisonBasis::InputNoise,
+        other => {
+            return Err(equal.error(
+                format!("cannot compare at equal `{other}`"),
+                "tail_current or input_noise",
+            ))
+        }
+    };
+    let value = match (basis, map.get("value")) {
+        (_, None) => None,
+        (ComparisonBasis::TailCurrent, Some(v)) => Some(v.quantity_where(
+            Unit::Ampere,
+            Range::Within(TAIL_CURRENT_RANGE_A.0, TAIL_CURRENT_RANGE_A.1),
+        )?),
+        // A noise density in V/√Hz: written as volts ("2 nV").
+        (ComparisonBasis::InputNoise, Some(v)) => {
+            Some(v.quantity_where(Unit::Volt, Range::Within(1e-12, 1e-6))?)
+        }
+    };
+    Ok(ComparisonSettings { basis, value })
 }
 
 fn read_multi_tanh(at: &At) -> Result<MultiTanh, PlanError> {

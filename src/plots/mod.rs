@@ -14,6 +14,7 @@ mod compare;
 mod frequency;
 mod harmonics;
 mod monte_carlo;
+mod schemes;
 mod sizing;
 mod spectrum;
 pub(crate) mod style;
@@ -51,6 +52,8 @@ pub enum PlotKind {
     StageComparison,
     /// HDn, THD and IIP3 versus frequency.
     Frequency,
+    /// The stages at equal tail current or equal input noise.
+    Schemes,
     /// Monte Carlo spread of each metric.
     MonteCarlo,
 }
@@ -66,6 +69,7 @@ impl PlotKind {
             PlotKind::Spectrum => "spectrum",
             PlotKind::StageComparison => "stage-comparison",
             PlotKind::Frequency => "frequency",
+            PlotKind::Schemes => "schemes",
             PlotKind::MonteCarlo => "monte-carlo",
         }
     }
@@ -232,7 +236,10 @@ impl Sketch {
         match self.kind {
             PlotKind::Harmonics | PlotKind::TwoTone => 8,
             PlotKind::Transfer => 6,
-            PlotKind::StageComparison | PlotKind::Frequency | PlotKind::Sizing => 5,
+            PlotKind::StageComparison
+            | PlotKind::Frequency
+            | PlotKind::Sizing
+            | PlotKind::Schemes => 5,
             PlotKind::MonteCarlo => 4,
             PlotKind::Spectrum => 3,
         }
@@ -327,6 +334,7 @@ pub fn sketches(report: &Report) -> Vec<Sketch> {
         per_stage!(monte_carlo::MonteCarloPlot::new);
     }
     makers.push(maker(move || compare::ComparisonPlot::new(report)));
+    makers.push(maker(move || schemes::SchemesPlot::new(report)));
     makers
         .par_iter()
         .map(|make| make())

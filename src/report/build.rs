@@ -75,6 +75,7 @@ pub fn build_judged(plan: &Plan, evaluation: PlanEvaluation, judged: Judged) -> 
         recommended,
         fits,
         comparisons,
+        schemes,
     } = evaluation;
     let verdict = verdict_record(plan, &verdict, &recommended, &sizing, judged);
     let met = verdict.met;
@@ -103,6 +104,7 @@ pub fn build_judged(plan: &Plan, evaluation: PlanEvaluation, judged: Judged) -> 
         met,
         verdict,
         caution: CAUTION.to_owned(),
+        scheme_comparison: schemes.as_ref().map(scheme_record),
     };
     let derived = recommended.iter().flat_map(|design| {
         let from = plan.stages[design.recommendation.stage_index].name.clone();
@@ -699,6 +701,16 @@ fn case_records(plan: &Plan, case: CaseEvaluation, derived_from: Option<String>)
         emitter_resistance_ohm: stage.emitter_resistance,
         load_resistance_ohm: stage.load_resistance,
         derived_from,
+        topology: stage.topology.name().into(),
+        cell: cell_words(&stage),
+        tail_source_voltage_v: operating.bias.tail_source_v,
+        degeneration_drop_v: operating.bias.degeneration_drop_v(),
+        noise_sources: crate::report::NoiseSourcesRecord {
+            transistors_v_rthz: operating.noise_breakdown.transistors_v2.sqrt(),
+            resistors_v_rthz: operating.noise_breakdown.resistors_v2.sqrt(),
+            tail_sources_v_rthz: operating.noise_breakdown.tail_sources_v2.sqrt(),
+            loads_v_rthz: operating.noise_breakdown.loads_v2.sqrt(),
+        },
     };
     let budget = budget
         .iter()
@@ -1282,5 +1294,69 @@ mod tests {
         assert!(default_bias_saturation_warnings(&biased, 27.0, &points).is_empty());
         let none: Vec<PointRecord> = [0.1, 0.2].iter().map(|&a| point(a, false)).collect();
         assert!(default_bias_saturation_warnings(&stage, 27.0, &none).is_empty());
+    }
+}
+
+/// A multi-tanh cell in words: `doublet, A = 3.73`, `triplet, A = 10, centre 30 %`, or the
+/// listed pairs as `P:M areas × current share`.
+pub fn cell_words(stage: &Stage) -> Option<String> {
+    use crate::model::topology::{MultiTanhForm, Topology};
+    if stage.topology != Topology::MultiTanh {
+        return None;
+    }
+    let cell = &stage.multi_tanh;
+    Some(match cell.form {
+        MultiTanhForm::Doublet => format!("doublet, A = {:.4}", cell.area_ratio),
+        MultiTanhForm::Triplet => format!(
+            "triplet, A = {:.4}, centre {:.0} %",
+            cell.area_ratio,
+            100.0 * cell.centre_fraction
+        ),
+        MultiTanhForm::Pairs => cell
+            .list
+            .iter()
+            .map(|p| {
+                format!(
+                    "{}:{} × {:.0} %",
+                    p.area_p,
+                    p.area_m,
+                    100.0 * p.tail_fraction
+                )
+            })
+            .collect::<Vec<_>>()
+            .join(", "),
+    })
+}
+
+/// The comparison of schemes as a record.
+fn scheme_record(
+    c: &crate::study::schemes::SchemeComparison,
+) -> crate::report::SchemeComparisonRecord {
+    crate::report::SchemeComparisonRecord {
+        equal: c.basis.name().into(),
+        value: c.value,
+        temperature_c: c.temperature_c,
+        frequency_hz: c.frequency_hz,
+        amplitudes_v: c.amplitudes_v.clone(),
+        rows: c
+            .rows
+            .iter()
+            .map(|r| crate::report::SchemeRowRecord {
+                stage: r.stage.clone(),
+                topology: r.topology.name().into(),
+                cell: cell_words(&r.compared),
+                impedance_scale: r.scale,
+                tail_current_a: r.tail_current_a,
+                load_resistance_ohm: r.compared.load_resistance,
+                emitter_resistance_ohm: r.compared.emitter_resistance,
+                gain_db: r.gain_db,
+                iip3_v: r.iip3_v,
+                input_noise_v_rthz: r.input_noise_v_rthz,
+                tail_source_voltage_v: r.bias.tail_source_v,
+                degeneration_drop_v: r.bias.degeneration_drop_v(),
+                hd3_dbc: r.hd3_dbc.clone(),
+                im3_dbc: r.im3_dbc.clone(),
+            })
+            .collect(),
     }
 }

@@ -535,6 +535,27 @@ pub fn blocks(report: &Report, figures: &[EmbeddedFigure]) -> Vec<Block> {
         out.push(Block::Table(datasheet_table(report, stage)));
     }
 
+    out.push(Block::Heading(2, "Circuit forms".into()));
+    out.push(Block::Paragraph(
+        "How each stage linearises its pair, the voltage its tail source is left with at zero input, the headroom the degeneration takes there (the lowest emitter less the tail source), and its white input noise by source (they add in power); first temperature, typical corner.".into(),
+    ));
+    out.push(Block::Table(forms_table(report)));
+    if let Some(c) = &report.scheme_comparison {
+        out.push(Block::Heading(2, "Schemes at equal terms".into()));
+        out.push(Block::Paragraph(format!(
+            "Every planned stage {} at {} and {}: {}. IIP3 is “—” where the IM3 slope is never 3:1 (a multi-tanh cell at its cubic null).",
+            if c.equal == "tail_current" { "set to the same tail current" } else { "impedance-scaled (current × k, its resistors ÷ k) to the same white input noise" },
+            celsius_words(c.temperature_c),
+            crate::units::format_si(c.frequency_hz, "Hz"),
+            if c.equal == "tail_current" {
+                format!("{} each, resistors as planned", crate::units::format_si(c.value, "A"))
+            } else {
+                format!("{}/√Hz each; the tail current column is what each scheme needs", crate::units::format_si(c.value, "V"))
+            }
+        )));
+        out.push(Block::Table(schemes_table(c)));
+    }
+
     if !report.budget.is_empty() {
         out.push(Block::Heading(2, "Budget verdict".into()));
         let failed = report.budget.iter().filter(|b| !b.pass).count();
@@ -852,4 +873,119 @@ pub fn html(report: &Report, blocks: &[Block], figures: &[EmbeddedFigure]) -> St
     }
     let _ = writeln!(out, "</body>\n</html>");
     out
+}
+
+fn celsius_words(t: f64) -> String {
+    format!("{t} °C")
+}
+
+/// Each stage's circuit form, bias headroom and noise by source.
+pub fn forms_table(report: &Report) -> Table {
+    let mut table = Table::new([
+        ("stage", false),
+        ("topology", false),
+        ("cell", false),
+        ("tail source (V)", true),
+        ("degeneration drop (V)", true),
+        ("transistors (nV/√Hz)", true),
+        ("resistors (nV/√Hz)", true),
+        ("tail sources (nV/√Hz)", true),
+        ("loads (nV/√Hz)", true),
+    ]);
+    let first = report
+        .stages
+        .first()
+        .map(|s| (s.temperature_c, s.corner.clone()));
+    for s in report.stages.iter().filter(|s| {
+        first
+            .as_ref()
+            .is_some_and(|(t, c)| s.temperature_c == *t && &s.corner == c)
+    }) {
+        let n = &s.noise_sources;
+        table.push(vec![
+            s.stage.as_str().into(),
+            s.topology.as_str().into(),
+            s.cell.clone().unwrap_or_else(|| "—".into()).into(),
+            format!("{:.3}", s.tail_source_voltage_v).into(),
+            format!("{:.3}", s.degeneration_drop_v.max(0.0)).into(),
+            format!("{:.3}", n.transistors_v_rthz * 1e9).into(),
+            format!("{:.3}", n.resistors_v_rthz * 1e9).into(),
+            format!("{:.3}", n.tail_sources_v_rthz * 1e9).into(),
+            format!("{:.3}", n.loads_v_rthz * 1e9).into(),
+        ]);
+    }
+    table
+}
+
+/// The stages at equal terms: one row per stage, HD3 and IM3 at the plan's amplitudes.
+pub fn schemes_table(c: &crate::report::SchemeComparisonRecord) -> Table {
+    let mut columns: Vec<(String, bool)> = vec![
+        ("stage".into(), false),
+        ("topology".into(), false),
+        ("tail current".into(), true),
+        ("R_L, R_E".into(), true),
+        ("gain (dB)".into(), true),
+        ("IIP3".into(), true),
+        ("noise (nV/√Hz)".into(), true),
+        ("tail source (V)".into(), true),
+        ("drop (V)".into(), true),
+    ];
+    // At most four amplitudes in the table (first, last and two between); the JSON has all.
+    let picks = amplitude_picks(c.amplitudes_v.len());
+    for &i in &picks {
+        columns.push((
+            format!("HD3 @ {}", crate::units::format_si(c.amplitudes_v[i], "V")),
+            true,
+        ));
+    }
+    let two_tone = c.rows.iter().any(|r| r.im3_dbc.iter().any(Option::is_some));
+    if two_tone {
+        for &i in &picks {
+            columns.push((
+                format!("IM3 @ {}", crate::units::format_si(c.amplitudes_v[i], "V")),
+                true,
+            ));
+        }
+    }
+    let mut table = Table::new(columns.iter().map(|(n, r)| (n.as_str(), *r)));
+    for r in &c.rows {
+        let mut row: Vec<Cell> = vec![
+            r.stage.as_str().into(),
+            r.topology.as_str().into(),
+            crate::units::format_si(r.tail_current_a, "A").into(),
+            format!(
+                "{}, {}",
+                crate::units::format_si(r.load_resistance_ohm, "Ω"),
+                crate::units::format_si(r.emitter_resistance_ohm, "Ω")
+            )
+            .into(),
+            format!("{:.2}", r.gain_db).into(),
+            r.iip3_v
+                .map(|v| crate::units::format_si(v, "V"))
+                .unwrap_or_else(|| "—".into())
+                .into(),
+            format!("{:.3}", r.input_noise_v_rthz * 1e9).into(),
+            format!("{:.3}", r.tail_source_voltage_v).into(),
+            format!("{:.3}", r.degeneration_drop_v.max(0.0)).into(),
+        ];
+        for &i in &picks {
+            row.push(fixed(r.hd3_dbc[i], 1).into());
+        }
+        if two_tone {
+            for &i in &picks {
+                row.push(fixed(r.im3_dbc[i], 1).into());
+            }
+        }
+        table.push(row);
+    }
+    table
+}
+
+fn amplitude_picks(n: usize) -> Vec<usize> {
+    if n <= 4 {
+        return (0..n).collect();
+    }
+    let mut picks: Vec<usize> = (0..4).map(|k| k * (n - 1) / 3).collect();
+    picks.dedup();
+    picks
 }

@@ -127,6 +127,61 @@ pub struct Report {
     pub verdict: VerdictRecord,
     /// Caution to confirm against silicon.
     pub caution: String,
+    /// The planned stages compared at equal tail current or equal input noise (plans with
+    /// `comparison`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub scheme_comparison: Option<SchemeComparisonRecord>,
+}
+
+/// The planned stages compared at equal terms.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct SchemeComparisonRecord {
+    /// What is held equal: `tail_current` or `input_noise`.
+    pub equal: String,
+    /// The common value: A, or V/√Hz.
+    pub value: f64,
+    /// Temperature, °C.
+    pub temperature_c: f64,
+    /// Frequency, Hz.
+    pub frequency_hz: f64,
+    /// Amplitudes of the HD3 and IM3 lists, peak differential V.
+    pub amplitudes_v: Vec<f64>,
+    /// One row per planned stage.
+    pub rows: Vec<SchemeRowRecord>,
+}
+
+/// One stage of the comparison, as compared.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct SchemeRowRecord {
+    /// The planned stage.
+    pub stage: String,
+    /// Its circuit form.
+    pub topology: String,
+    /// Its multi-tanh cell in words.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub cell: Option<String>,
+    /// Impedance scale k applied (1 at equal current).
+    pub impedance_scale: f64,
+    /// Tail current as compared, A.
+    pub tail_current_a: f64,
+    /// Load per side as compared, Ω.
+    pub load_resistance_ohm: f64,
+    /// Emitter resistance per side (half the split tail's resistor) as compared, Ω.
+    pub emitter_resistance_ohm: f64,
+    /// Small-signal gain, dB.
+    pub gain_db: f64,
+    /// IIP3, peak V per tone (null where the IM3 slope is never 3:1).
+    pub iip3_v: Option<f64>,
+    /// White input noise, V/√Hz.
+    pub input_noise_v_rthz: f64,
+    /// Voltage across the tail source at zero input, V.
+    pub tail_source_voltage_v: f64,
+    /// Headroom the degeneration takes at zero input, V.
+    pub degeneration_drop_v: f64,
+    /// HD3 at each amplitude, dBc (null below the floor).
+    pub hd3_dbc: Vec<Option<f64>>,
+    /// IM3 at each amplitude, dBc (null below the floor or without two tones).
+    pub im3_dbc: Vec<Option<f64>>,
 }
 
 impl Report {
@@ -595,6 +650,35 @@ pub struct StageRecord {
     /// For a derived stage (the recommended design), the planned stage it was derived from.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub derived_from: Option<String>,
+    /// The circuit form: `emitter_resistors`, `split_tail` or `multi_tanh`.
+    #[serde(default)]
+    pub topology: String,
+    /// The multi-tanh cell in words (`doublet, A = 3.73`), for `multi_tanh` stages.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub cell: Option<String>,
+    /// Voltage across the tail source at zero input (the lowest, where there are several), V.
+    #[serde(default)]
+    pub tail_source_voltage_v: f64,
+    /// Headroom the degeneration takes at zero input: the lowest emitter less the tail-source
+    /// voltage, V (`I·R_E/2` for emitter resistors, 0 for a split tail).
+    #[serde(default)]
+    pub degeneration_drop_v: f64,
+    /// White input noise by source, V/√Hz each (they add in power).
+    #[serde(default)]
+    pub noise_sources: NoiseSourcesRecord,
+}
+
+/// White input-referred noise by source, V/√Hz each; the squares add up to the total.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Serialize, Deserialize)]
+pub struct NoiseSourcesRecord {
+    /// Shot noise of the transistors and thermal noise of their base resistances.
+    pub transistors_v_rthz: f64,
+    /// Source resistances and the degeneration resistors.
+    pub resistors_v_rthz: f64,
+    /// Tail sources (`tail_noise_current`).
+    pub tail_sources_v_rthz: f64,
+    /// Loads.
+    pub loads_v_rthz: f64,
 }
 
 /// One sample of the transfer curve.

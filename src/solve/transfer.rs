@@ -101,8 +101,12 @@ impl OperatingPoint {
 }
 
 /// Warm-start memory between neighbouring solves (successive samples of a waveform).
-#[derive(Debug, Clone, Copy, Default)]
+#[derive(Debug, Clone, Default)]
 pub struct WarmStart {
+    /// Each pair's own memory, for a multi-tanh cell.
+    pairs: Vec<WarmStart>,
+    /// Each pair's last point, for a multi-tanh cell: the coupling starts from it.
+    pair_points: Vec<OperatingPoint>,
     /// Last reduced unknown `y`.
     log_ratio: Option<f64>,
     /// Last forward-active general solution: tail voltage and `ln J` per side.
@@ -203,7 +207,9 @@ impl StaticSolver {
             return Err(failure(v_d, "the input is not finite"));
         }
         if !self.cell.is_empty() {
-            return self.solve_cell(v_d, false);
+            return self
+                .solve_cell_pairs(v_d, false, warm)
+                .map(|points| self.combine_cell(&points));
         }
         let reduced = self.solve_reduced(v_d, warm.log_ratio)?;
         warm.log_ratio = Some(reduced.0);
@@ -248,7 +254,9 @@ impl StaticSolver {
             return Err(failure(v_d, "the input is not finite"));
         }
         if !self.cell.is_empty() {
-            return self.solve_cell(v_d, true);
+            return self
+                .solve_cell_pairs(v_d, true, warm)
+                .map(|points| self.combine_cell(&points));
         }
         let start = match warm.whole {
             Some(_) => OperatingPoint::default(),
@@ -280,7 +288,7 @@ impl StaticSolver {
     /// collector voltage) are exact after the first pass. `whole` solves every pair with the
     /// whole model.
     pub fn solve_cell(&self, v_d: f64, whole: bool) -> Result<OperatingPoint, SolveFailure> {
-        self.solve_cell_pairs(v_d, whole)
+        self.solve_cell_pairs(v_d, whole, &mut WarmStart::default())
             .map(|points| self.combine_cell(&points))
     }
 
@@ -292,16 +300,29 @@ impl StaticSolver {
         if self.cell.is_empty() {
             Ok(vec![self.solve_cold(v_d)?])
         } else {
-            self.solve_cell_pairs(v_d, false)
+            self.solve_cell_pairs(v_d, false, &mut WarmStart::default())
         }
     }
 
-    fn solve_cell_pairs(&self, v_d: f64, whole: bool) -> Result<Vec<OperatingPoint>, SolveFailure> {
+    fn solve_cell_pairs(
+        &self,
+        v_d: f64,
+        whole: bool,
+        warm: &mut WarmStart,
+    ) -> Result<Vec<OperatingPoint>, SolveFailure> {
         let c = &self.circuit;
         let n = self.cell.len();
         let r_s = c.source_resistance;
-        let mut points = vec![OperatingPoint::default(); n];
-        let mut warms = vec![WarmStart::default(); n];
+        // Coupled pairs start from the last sample's points (the coupling moves little from
+        // one sample to the next); uncoupled ones need none.
+        let remembered = self.cell_coupled && warm.pair_points.len() == n;
+        let mut points = if remembered {
+            std::mem::take(&mut warm.pair_points)
+        } else {
+            vec![OperatingPoint::default(); n]
+        };
+        let mut warms = std::mem::take(&mut warm.pairs);
+        warms.resize_with(n, WarmStart::default);
         // Coupling voltages of each pair: [P load drop, M load drop, P input drop, M input drop].
         let mut coupling = vec![[0.0f64; 4]; n];
         let others = |points: &[OperatingPoint], k: usize| -> [f64; 4] {
@@ -363,6 +384,8 @@ impl StaticSolver {
                 pass > 0 && moved <= 0.0
             };
             if settled {
+                warm.pairs = warms;
+                warm.pair_points.clone_from(&points);
                 return Ok(points);
             }
         }

@@ -4,9 +4,11 @@
 use crate::error::{Error, SolveFailure};
 use crate::measure::budget::judge;
 use crate::measure::large_signal::Intercept;
+use crate::measure::noise::NoiseBreakdown;
 use crate::measure::noise::{
     dynamic_range_db, sfdr_dbc, snr_db, third_order_sfdr_db, NoiseFigures,
 };
+use crate::measure::small_signal::{bias_nodes, BiasNodes};
 use crate::measure::small_signal::{offset_voltage, transfer_curve, TransferSample};
 use crate::measure::stage::{DriveSettings, StageMeasurements};
 use crate::model::plan::Plan;
@@ -138,6 +140,10 @@ pub struct OperatingFigures {
     pub noise: NoiseFigures,
     /// Input noise integrated over the plan's band, V rms.
     pub band_noise_v: Option<f64>,
+    /// White input noise by source.
+    pub noise_breakdown: NoiseBreakdown,
+    /// Tail-source and emitter voltages at zero input.
+    pub bias: BiasNodes,
 }
 
 /// One budget line checked on a case.
@@ -306,6 +312,8 @@ pub fn evaluate_case(
         noise_v_rthz,
         noise,
         band_noise_v,
+        noise_breakdown: NoiseBreakdown::measure(solver).map_err(fail)?,
+        bias: bias_nodes(solver).map_err(fail)?,
     };
 
     let mut budget = Vec::with_capacity(plan.budget.len());

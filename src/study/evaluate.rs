@@ -67,6 +67,9 @@ pub struct PlanEvaluation {
     pub fits: Vec<FitOutcome>,
     /// Every bench file compared with the nominal model and, when fitted, the fitted one.
     pub comparisons: Vec<BenchComparison>,
+    /// The planned stages compared at equal tail current or equal input noise, when the plan
+    /// asks for it.
+    pub schemes: Option<crate::study::schemes::SchemeComparison>,
 }
 
 /// A planned stage rebuilt with the values sizing recommends, evaluated in full.
@@ -398,8 +401,14 @@ pub fn evaluate(
         design.spread = corner_spread(plan, &design.cases);
     }
     let spread = corner_spread(plan, &evaluated);
+    let schemes = plan
+        .comparison
+        .as_ref()
+        .map(|settings| crate::study::schemes::compare_schemes(plan, settings))
+        .transpose()?;
 
     Ok(PlanEvaluation {
+        schemes,
         cases: evaluated,
         spread,
         population,
