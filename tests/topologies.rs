@@ -358,3 +358,82 @@ fn doublet_noise_matches_the_hand_analysis_of_its_two_unbalanced_pairs() {
     assert!((breakdown.tail_sources_v2 / tails - 1.0).abs() < 0.01);
     assert_eq!(breakdown.resistors_v2, 0.0, "no resistor in this cell");
 }
+
+/// x = (I_P − I_M)/I of a degenerated pair at input v: v = 2φT·atanh(x) + I·R_E·x (KVL with
+/// the exponential law, ideal tail and β → ∞), by bisection in the test.
+fn degenerated_fraction(v: f64, tail: f64, r_e: f64) -> f64 {
+    let phi = thermal_voltage(T);
+    let (mut low, mut high) = (-1.0f64, 1.0f64);
+    for _ in 0..200 {
+        let mid = 0.5 * (low + high);
+        if 2.0 * phi * mid.atanh() + tail * r_e * mid > v {
+            high = mid;
+        } else {
+            low = mid;
+        }
+    }
+    0.5 * (low + high)
+}
+
+#[test]
+fn equal_current_ordering_matches_an_independent_solve() {
+    // The comparison at equal tail current ranks the four schemes by HD3 the way the test's own
+    // solves do: the implicit degenerated transfer (bare: R_E = 0; emitter resistors and, with
+    // ideal sources, the split tail: R_E) and the doublet's sum of tanh (Gilbert 1998, from
+    // memory). The planned currents differ; the comparison sets them all to 2 mA. Values
+    // within 0.05 dB, and the same order at every amplitude.
+    use linbudget::model::plan::{ComparisonBasis, ComparisonSettings};
+    use linbudget::{Drive, Plan};
+    let (tail, load, r_e, a) = (2e-3, 1e3, 60.0, 2.0 + 3f64.sqrt());
+    let stages = vec![
+        base("bare", 0.5e-3, load),
+        base("resistors", 1e-3, load).emitter_resistance(r_e),
+        base("split", 3e-3, load)
+            .emitter_resistance(r_e)
+            .topology(Topology::SplitTail),
+        base("doublet", 1e-3, load).multi_tanh(MultiTanh::doublet(a)),
+    ];
+    let amplitudes = vec![5e-3, 20e-3, 60e-3];
+    let mut plan = Plan::new("schemes", stages, Drive::new(amplitudes.clone()));
+    plan.comparison = Some(ComparisonSettings {
+        basis: ComparisonBasis::TailCurrent,
+        value: Some(tail),
+    });
+    let report = plan.evaluate().unwrap();
+    let comparison = report.scheme_comparison.expect("asked for");
+    let phi = thermal_voltage(T);
+    let v_o = phi * a.ln();
+    let pairs = [(0.5, v_o), (0.5, -v_o)];
+    let doublet = sum_of_tanh(&pairs, tail, load);
+    let bare = |v: f64| degenerated_fraction(v, tail, 0.0);
+    let resistors = |v: f64| degenerated_fraction(v, tail, r_e);
+    for (i, &amplitude) in amplitudes.iter().enumerate() {
+        let expected = [
+            reference_hd(&bare, amplitude, 3),
+            reference_hd(&resistors, amplitude, 3),
+            reference_hd(&resistors, amplitude, 3),
+            reference_hd(&doublet, amplitude, 3),
+        ];
+        let tool: Vec<f64> = comparison
+            .rows
+            .iter()
+            .map(|r| r.hd3_dbc[i].expect("above the floor"))
+            .collect();
+        for (row, (t, e)) in comparison.rows.iter().zip(tool.iter().zip(expected)) {
+            assert!(
+                (t - e).abs() < 0.05,
+                "{} at {amplitude} V: {t} vs {e}",
+                row.stage
+            );
+            assert_eq!(row.tail_current_a, tail);
+        }
+        let order = |values: &[f64]| {
+            let mut index: Vec<usize> = (0..values.len()).collect();
+            index.sort_by(|&x, &y| values[x].total_cmp(&values[y]));
+            // The split tail and the resistors are equal: rank them as one.
+            index.retain(|&k| k != 2);
+            index
+        };
+        assert_eq!(order(&tool), order(&expected), "order at {amplitude} V");
+    }
+}

@@ -163,13 +163,15 @@ impl Stage {
             Topology::MultiTanh => {
                 let pairs = self.multi_tanh.pairs();
                 let total: f64 = pairs.iter().map(|p| p.tail_fraction).sum();
-                let bad_pair = pairs.iter().any(|p| {
-                    !(p.area_p.is_finite() && p.area_p > 0.0)
-                        || !(p.area_m.is_finite() && p.area_m > 0.0)
-                        || !(p.tail_fraction.is_finite() && p.tail_fraction > 0.0)
-                        || p.emitter_resistance
-                            .is_some_and(|r| !(r.is_finite() && r >= 0.0))
-                });
+                let positive = |v: f64| v.is_finite() && v > 0.0;
+                let usable = |p: &crate::model::topology::TanhPair| {
+                    positive(p.area_p)
+                        && positive(p.area_m)
+                        && positive(p.tail_fraction)
+                        && p.emitter_resistance
+                            .is_none_or(|r| r.is_finite() && r >= 0.0)
+                };
+                let bad_pair = !pairs.iter().all(usable);
                 if pairs.is_empty() || bad_pair || (total - 1.0).abs() > 1e-6 {
                     return Err(Error::Argument {
                         name: format!("stage `{}`: multi_tanh", self.name),

@@ -1257,46 +1257,6 @@ fn default_bias_saturation_warnings(
     warnings
 }
 
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    fn point(amplitude_v: f64, saturating: bool) -> PointRecord {
-        serde_json::from_value(serde_json::json!({
-            "stage": "s", "temperature_c": 27.0, "frequency_hz": 1000.0,
-            "amplitude_v": amplitude_v, "fundamental_v": 1.0, "gain_db": 0.0,
-            "thd_dbc": null, "single_ended_fundamental_v": 0.5,
-            "single_ended_hd2_dbc": null, "single_ended_hd3_dbc": null, "samples": 256,
-            "region": if saturating { "saturating" } else { "forward-active" },
-            "collector_base_margin_v": if saturating { -amplitude_v } else { 0.5 },
-            "min_current_fraction": 0.1,
-        }))
-        .unwrap()
-    }
-
-    /// Saturating points of a stage on the default bias are summed up per frequency as
-    /// amplitude ranges in increasing amplitude, whatever order the plan lists them in; a
-    /// stage with its own bias gets no such warning.
-    #[test]
-    fn default_bias_saturation_warnings_name_ranges_not_points() {
-        let stage = Stage::new("s", 1e-3, 2e3);
-        let points: Vec<PointRecord> = [0.5, 0.1, 0.6, 0.2, 0.7, 0.3, 0.01]
-            .iter()
-            .map(|&a| point(a, !(a < 0.15 || (0.25..0.55).contains(&a))))
-            .collect();
-        let warnings = default_bias_saturation_warnings(&stage, 27.0, &points);
-        assert_eq!(warnings.len(), 1, "{warnings:?}");
-        let w = &warnings[0];
-        assert!(w.contains("at 200 mV, 600 mV to 700 mV"), "{w}");
-        assert!(w.contains("3 of 7 amplitudes"), "{w}");
-        assert!(w.contains("forward-biased by up to 0.700 V"), "{w}");
-        let biased = stage.clone().supply(5.0).input_common_mode(2.5);
-        assert!(default_bias_saturation_warnings(&biased, 27.0, &points).is_empty());
-        let none: Vec<PointRecord> = [0.1, 0.2].iter().map(|&a| point(a, false)).collect();
-        assert!(default_bias_saturation_warnings(&stage, 27.0, &none).is_empty());
-    }
-}
-
 /// A multi-tanh cell in words: `doublet, A = 3.73`, `triplet, A = 10, centre 30 %`, or the
 /// listed pairs as `P:M areas × current share`.
 pub fn cell_words(stage: &Stage) -> Option<String> {
@@ -1358,5 +1318,45 @@ fn scheme_record(
                 im3_dbc: r.im3_dbc.clone(),
             })
             .collect(),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn point(amplitude_v: f64, saturating: bool) -> PointRecord {
+        serde_json::from_value(serde_json::json!({
+            "stage": "s", "temperature_c": 27.0, "frequency_hz": 1000.0,
+            "amplitude_v": amplitude_v, "fundamental_v": 1.0, "gain_db": 0.0,
+            "thd_dbc": null, "single_ended_fundamental_v": 0.5,
+            "single_ended_hd2_dbc": null, "single_ended_hd3_dbc": null, "samples": 256,
+            "region": if saturating { "saturating" } else { "forward-active" },
+            "collector_base_margin_v": if saturating { -amplitude_v } else { 0.5 },
+            "min_current_fraction": 0.1,
+        }))
+        .unwrap()
+    }
+
+    /// Saturating points of a stage on the default bias are summed up per frequency as
+    /// amplitude ranges in increasing amplitude, whatever order the plan lists them in; a
+    /// stage with its own bias gets no such warning.
+    #[test]
+    fn default_bias_saturation_warnings_name_ranges_not_points() {
+        let stage = Stage::new("s", 1e-3, 2e3);
+        let points: Vec<PointRecord> = [0.5, 0.1, 0.6, 0.2, 0.7, 0.3, 0.01]
+            .iter()
+            .map(|&a| point(a, !(a < 0.15 || (0.25..0.55).contains(&a))))
+            .collect();
+        let warnings = default_bias_saturation_warnings(&stage, 27.0, &points);
+        assert_eq!(warnings.len(), 1, "{warnings:?}");
+        let w = &warnings[0];
+        assert!(w.contains("at 200 mV, 600 mV to 700 mV"), "{w}");
+        assert!(w.contains("3 of 7 amplitudes"), "{w}");
+        assert!(w.contains("forward-biased by up to 0.700 V"), "{w}");
+        let biased = stage.clone().supply(5.0).input_common_mode(2.5);
+        assert!(default_bias_saturation_warnings(&biased, 27.0, &points).is_empty());
+        let none: Vec<PointRecord> = [0.1, 0.2].iter().map(|&a| point(a, false)).collect();
+        assert!(default_bias_saturation_warnings(&stage, 27.0, &none).is_empty());
     }
 }

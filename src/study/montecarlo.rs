@@ -413,8 +413,17 @@ fn evaluate_one(
         .into_par_iter()
         .map(|run| {
             let mut rng = run_rng(settings.seed, stage_index, temperature_index, run);
-            let mismatch = draw_mismatch(&mut rng, &stage.mismatch, &stage.mismatch_sigma);
-            let circuit = StageCircuit::with_mismatch(stage, temperature_c, &mismatch);
+            // One draw per pair of transistors: a multi-tanh cell's pairs are drawn on their
+            // own, in pair order after the first (which keeps every other stage's draws).
+            let pairs = if stage.topology == crate::model::topology::Topology::MultiTanh {
+                stage.multi_tanh.pairs().len().max(1)
+            } else {
+                1
+            };
+            let mismatches: Vec<Mismatch> = (0..pairs)
+                .map(|_| draw_mismatch(&mut rng, &stage.mismatch, &stage.mismatch_sigma))
+                .collect();
+            let circuit = StageCircuit::with_mismatches(stage, temperature_c, &mismatches);
             let solver = StaticSolver::new(circuit.clone());
             let mut points = Vec::with_capacity(resolutions.len());
             let mut spectra = Vec::with_capacity(resolutions.len());
