@@ -370,3 +370,111 @@ fn a_guard_band_is_a_non_negative_number_of_decibels() {
     .unwrap();
     assert_eq!(plan.sizing.unwrap().guard_band_db, 1.5);
 }
+
+fn one_stage(stage: &str) -> String {
+    format!("name: rules\nstages:\n{stage}drive: {{amplitudes: [10 mV]}}\n")
+}
+
+#[test]
+fn a_multi_tanh_stage_needs_its_cell() {
+    let err = refused(&one_stage(
+        "  - {name: a, tail_current: 1 mA, load_resistance: 2k, topology: multi_tanh}\n",
+    ));
+    assert_refusal(
+        &err,
+        "stages[0].multi_tanh",
+        3,
+        "required key `multi_tanh`",
+        "doublet",
+    );
+}
+
+#[test]
+fn an_unknown_topology_is_named_with_the_closest_one() {
+    let err = refused(&one_stage(
+        "  - {name: a, tail_current: 1 mA, load_resistance: 2k, topology: split_tale}\n",
+    ));
+    assert_refusal(
+        &err,
+        "stages[0].topology",
+        3,
+        "did you mean `split_tail`",
+        "multi_tanh",
+    );
+}
+
+#[test]
+fn a_cell_is_only_for_a_multi_tanh_stage() {
+    let err = refused(&one_stage(
+        "  - {name: a, tail_current: 1 mA, load_resistance: 2k, multi_tanh: {form: doublet, area_ratio: 3}}\n",
+    ));
+    assert_refusal(
+        &err,
+        "stages[0].multi_tanh",
+        3,
+        "topology is emitter_resistors",
+        "topology: multi_tanh",
+    );
+}
+
+#[test]
+fn a_doublet_has_no_centre_pair_and_listed_fractions_add_up_to_one() {
+    let err = refused(&one_stage(
+        "  - {name: a, tail_current: 1 mA, load_resistance: 2k, topology: multi_tanh,\n     multi_tanh: {form: doublet, area_ratio: 3, centre_fraction: 20%}}\n",
+    ));
+    assert_refusal(
+        &err,
+        "stages[0].multi_tanh.centre_fraction",
+        4,
+        "no centre pair",
+        "form: triplet",
+    );
+    let err = refused(&one_stage(
+        "  - {name: a, tail_current: 1 mA, load_resistance: 2k, topology: multi_tanh,\n     multi_tanh: {pairs: [{area_p: 3, tail_fraction: 0.5}, {area_m: 3, tail_fraction: 0.4}]}}\n",
+    ));
+    assert_refusal(
+        &err,
+        "stages[0].multi_tanh.pairs",
+        4,
+        "add up to 0.9",
+        "adding up to 1",
+    );
+}
+
+#[test]
+fn split_tail_and_cells_refuse_what_the_engines_do_not_solve() {
+    let err = refused(&one_stage(
+        "  - {name: a, tail_current: 1 mA, load_resistance: 2k, topology: split_tail, tail_capacitance: 1p}\n",
+    ));
+    assert_refusal(
+        &err,
+        "stages[0].tail_capacitance",
+        3,
+        "split tail",
+        "tail_capacitance 0",
+    );
+    let err = refused(&one_stage(
+        "  - {name: a, tail_current: 1 mA, load_resistance: 2k, topology: multi_tanh, load_capacitance: 1p,\n     multi_tanh: {form: doublet, area_ratio: 3.7}}\n",
+    ));
+    assert_refusal(
+        &err,
+        "stages[0].multi_tanh",
+        4,
+        "charge storage",
+        "without capacitances",
+    );
+}
+
+#[test]
+fn a_comparison_names_what_is_equal() {
+    let err = refused(&plan(
+        "drive: {amplitudes: [10 mV]}\ncomparison: {equal: power}\n",
+    ));
+    assert_refusal(
+        &err,
+        "comparison.equal",
+        5,
+        "cannot compare at equal `power`",
+        "input_noise",
+    );
+}
