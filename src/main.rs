@@ -2,7 +2,7 @@
 //! (0 met, 1 not met, 2 bad input or a failed solve).
 
 use clap::{Parser, Subcommand};
-use linbudget::run::{check_within, run, RunOptions, DEFAULT_MAX_WORK};
+use linbudget::run::{check_within, parse_duration, run, RunOptions, DEFAULT_MAX_WORK};
 use std::io::IsTerminal;
 use std::path::PathBuf;
 use std::process::ExitCode;
@@ -44,9 +44,10 @@ enum Command {
         /// No progress lines on standard error.
         #[arg(long, short)]
         quiet: bool,
-        /// Largest estimated work accepted, in sample solves (default 5e9); raise it
-        /// deliberately for a plan that is refused as too large.
-        #[arg(long, value_name = "SOLVES", default_value_t = DEFAULT_MAX_WORK, value_parser = parse_work)]
+        /// Largest estimated run time accepted (default 10min): a duration such as 90s,
+        /// 10min, 1.5h or 2d, or plain seconds; raise it deliberately for a plan refused as
+        /// too long.
+        #[arg(long, value_name = "DURATION", default_value_t = DEFAULT_MAX_WORK, value_parser = parse_duration)]
         max_work: f64,
         /// Write the tables and reports without drawing figures (fast scripted sweeps).
         #[arg(long)]
@@ -57,20 +58,10 @@ enum Command {
     Check {
         /// The plan (YAML).
         plan: PathBuf,
-        /// Largest estimated work accepted, in sample solves (default 5e9).
-        #[arg(long, value_name = "SOLVES", default_value_t = DEFAULT_MAX_WORK, value_parser = parse_work)]
+        /// Largest estimated run time accepted (default 10min), e.g. 90s, 10min, 1.5h.
+        #[arg(long, value_name = "DURATION", default_value_t = DEFAULT_MAX_WORK, value_parser = parse_duration)]
         max_work: f64,
     },
-}
-
-/// A positive, finite work limit such as `1e12`.
-fn parse_work(text: &str) -> Result<f64, String> {
-    match text.parse::<f64>() {
-        Ok(value) if value.is_finite() && value > 0.0 => Ok(value),
-        _ => Err(format!(
-            "`{text}` is not a positive finite number of sample solves, e.g. 1e12"
-        )),
-    }
 }
 
 fn main() -> ExitCode {
@@ -88,11 +79,14 @@ fn main() -> ExitCode {
     match cli.command {
         Command::Check { plan, max_work } => match check_within(&plan, max_work) {
             Ok(p) => {
+                let work = linbudget::study::workload::estimate(&p);
                 eprintln!(
-                    "{}: valid plan `{}` ({} stage(s))",
+                    "{}: valid plan `{}` ({} stage(s)); estimated run time {} ({} of one core)",
                     plan.display(),
                     p.name,
-                    p.stages.len()
+                    p.stages.len(),
+                    linbudget::study::workload::format_duration(work.wall_seconds),
+                    linbudget::study::workload::format_duration(work.cpu_seconds),
                 );
                 ExitCode::SUCCESS
             }

@@ -11,7 +11,7 @@ use crate::model::drive::{Drive, DEFAULT_THD_HARMONICS};
 use crate::model::stage::Stage;
 use crate::solve::engine::engine_for;
 use crate::solve::response::ResponseEngine;
-use crate::solve::spectrum::{FftCache, ANALYSIS_FLOOR_DBC};
+use crate::solve::spectrum::FftCache;
 use std::collections::HashMap;
 use std::sync::{Arc, Mutex, OnceLock};
 
@@ -251,8 +251,7 @@ impl StageMeasurements {
                     frequency,
                     self.settings.spacing_at(frequency),
                 )?;
-                let im3 = result.im3_dbc();
-                (im3 >= ANALYSIS_FLOOR_DBC).then_some(im3)
+                result.im3_resolved_dbc()
             }
             Metric::Iip3 => self.intercept(frequency)?.map(|i| i.iip3_v),
             Metric::Oip3 => {

@@ -125,9 +125,16 @@ impl Drawing for SizingPlot {
             .filter(|m| m.is_finite());
         let (m_low, m_high) = margins.fold((0.0f64, 0.0f64), |(lo, hi), m| (lo.min(m), hi.max(m)));
         let (y_low, y_high) = db_span(m_low.max(-80.0) - 5.0, m_high.min(80.0) + 5.0, 10.0);
-        let (g_low, g_high) = scans.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), s| {
-            (lo.min(s.gain_db), hi.max(s.gain_db))
-        });
+        let (g_low, g_high) = scans
+            .flat_map(|s| s.gain_db)
+            .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), g| {
+                (lo.min(g), hi.max(g))
+            });
+        let (g_low, g_high) = if g_low <= g_high {
+            (g_low, g_high)
+        } else {
+            (0.0, 1.0)
+        };
         let g_pad = nice_ceiling(((g_high - g_low) * 0.1).max(1.0));
         let (g_low, g_high) = db_span(g_low - g_pad, g_high + g_pad, g_pad);
 
@@ -195,7 +202,7 @@ impl Drawing for SizingPlot {
             let gain: Vec<(f64, f64)> = record
                 .scan
                 .iter()
-                .map(|s| (s.emitter_resistance_ohm, s.gain_db))
+                .filter_map(|s| s.gain_db.map(|g| (s.emitter_resistance_ohm, g)))
                 .collect();
             chart.draw_secondary_series(std::iter::once(dashed(
                 gain,

@@ -3,12 +3,16 @@
 //! deterministic order, into typed results the report layer records and words.
 
 use crate::error::Error;
+use crate::model::bias::{bias_problem, temperature_supported, MODEL_TEMPERATURE_RANGE_C};
+use crate::model::circuit::StageCircuit;
 use crate::model::plan::Plan;
+use crate::model::products::{refused_collision, separating_spacing, PeriodTooLong};
 use crate::solve::spectrum::FftCache;
 use crate::study::case::{evaluate_case, CaseEvaluation};
 use crate::study::corners::{spread, CornerSpread};
 use crate::study::montecarlo::{self, Population};
 use crate::study::sizing::{self, SizingOutcome};
+use crate::units::short_number;
 use rayon::prelude::*;
 use std::sync::Arc;
 
@@ -64,11 +68,88 @@ impl PlanEvaluation {
     }
 }
 
+/// Refuses what the plan alone decides cannot be answered (the plan reader refuses the same
+/// with positions; this covers plans built in code): a temperature outside the device
+/// model's range, a stage that cannot bias, a two-tone spacing whose products collide for a
+/// stage with charge storage.
+fn check_physics(plan: &Plan) -> Result<(), Error> {
+    for &temperature in &plan.temperatures_c {
+        if !temperature_supported(temperature) {
+            let (low, high) = MODEL_TEMPERATURE_RANGE_C;
+            return Err(Error::Argument {
+                name: "temperatures_c".into(),
+                problem: format!(
+                    "{} °C is outside the temperatures the device model supports",
+                    short_number(temperature)
+                ),
+                accepted: format!("temperatures from {low} to {high} °C"),
+            });
+        }
+    }
+    for stage in &plan.stages {
+        for corner in &plan.corners {
+            for &temperature in &plan.temperatures_c {
+                if let Some(problem) = bias_problem(&corner.apply(stage), temperature) {
+                    return Err(Error::Argument {
+                        name: format!(
+                            "stage `{}` ({} corner): {}",
+                            stage.name,
+                            corner.name,
+                            problem.key()
+                        ),
+                        problem: format!("the stage cannot bias: {problem}"),
+                        accepted: problem.remedy(),
+                    });
+                }
+            }
+        }
+    }
+    if let Some(spacing) = plan.drive.two_tone_spacing {
+        let stores_charge = plan.stages.iter().any(|stage| {
+            plan.temperatures_c
+                .iter()
+                .any(|&t| !StageCircuit::new(stage, t).is_memoryless())
+        });
+        if stores_charge {
+            for &frequency in &plan.drive.frequencies {
+                let problem = match refused_collision(frequency, spacing) {
+                    Err(PeriodTooLong) => format!(
+                        "the common period of {} Hz and {} Hz is too long to solve",
+                        short_number(frequency),
+                        short_number(frequency + spacing)
+                    ),
+                    Ok(Some(collision)) => format!(
+                        "at {} Hz the product {} falls on {} (order {})",
+                        short_number(frequency),
+                        collision.reported,
+                        collision.other,
+                        collision.other.order()
+                    ),
+                    Ok(None) => continue,
+                };
+                return Err(Error::Argument {
+                    name: "drive.two_tone_spacing".into(),
+                    problem,
+                    accepted: match separating_spacing(frequency, spacing) {
+                        Some(s) => format!(
+                            "a spacing that separates the products, e.g. {} Hz",
+                            short_number(s)
+                        ),
+                        None => "a spacing that divides the frequency".into(),
+                    },
+                });
+            }
+        }
+    }
+    Ok(())
+}
+
 /// Evaluates the plan. `progress` hears what is being done.
 pub fn evaluate(
     plan: &Plan,
     progress: &(dyn Fn(Progress) + Sync),
 ) -> Result<PlanEvaluation, Error> {
+    check_physics(plan)?;
     let cache = Arc::new(FftCache::default());
     // Every stage × temperature × process corner, in report order.
     let cases: Vec<(usize, f64, usize)> = plan

@@ -16,6 +16,7 @@ use crate::error::{Error, SolveFailure};
 use crate::measure::budget::judge;
 use crate::measure::small_signal::small_signal_gain;
 use crate::measure::stage::StageMeasurements;
+use crate::model::bias::{bias_problem, rest_collector_headroom_v, rest_point};
 use crate::model::budget::Metric;
 use crate::model::corner::TYPICAL;
 use crate::model::plan::{Plan, SizingSettings};
@@ -49,6 +50,13 @@ pub struct Trial {
     pub steering_range_v: f64,
     /// Worst collector-base headroom across corners, V (`hold_gain` only).
     pub headroom_v: Option<f64>,
+    /// Worst height of the tail node above the tail source's compliance at rest across
+    /// corners, V (negative: the stage cannot bias at this value and was not solved).
+    pub tail_headroom_v: f64,
+    /// Whether the trial stage can bias in every corner (rest point within the model and
+    /// the tail source's compliance, collectors above the bases); a trial that cannot is
+    /// not solved and fails every line.
+    pub biases: bool,
 }
 
 /// What decided a sizing result.
@@ -58,6 +66,8 @@ pub enum Binding {
     Line(usize),
     /// Collector-base headroom, not distortion (`hold_gain` only).
     Headroom,
+    /// The tail source's compliance: larger values cannot bias.
+    TailCompliance,
     /// No budget line bounds the result.
     Nothing,
 }
@@ -95,7 +105,10 @@ pub struct SizingOutcome {
 
 impl Trial {
     fn all_pass(&self) -> bool {
-        self.passes.iter().all(|p| *p) && self.headroom_v.is_none_or(|h| h >= 0.0)
+        self.biases
+            && self.passes.iter().all(|p| *p)
+            && self.headroom_v.is_none_or(|h| h >= 0.0)
+            && self.tail_headroom_v >= 0.0
     }
 
     /// Worst budget-line margin (dB), its line, and the corner where it occurs. Headroom is
@@ -125,7 +138,25 @@ impl Trial {
             .filter(|(line, _)| (line.metric == Metric::InputNoise) == noise)
             .all(|(_, pass)| *pass)
             && (noise || self.headroom_v.is_none_or(|h| h >= 0.0))
+            && self.biases
     }
+}
+
+/// Whether `stage` can bias in every corner at `temperature_c`: the worst tail headroom
+/// above the compliance, the worst collector-base headroom at rest, and whether every rest
+/// point is one the model can solve.
+fn rest_feasibility(plan: &Plan, stage: &Stage, temperature_c: f64) -> (f64, f64, bool) {
+    let mut tail = f64::INFINITY;
+    let mut collector = f64::INFINITY;
+    let mut biases = true;
+    for corner in &plan.corners {
+        let built = corner.apply(stage);
+        let rest = rest_point(&built, temperature_c);
+        tail = tail.min(rest.tail_node_v - rest.compliance_v);
+        collector = collector.min(rest_collector_headroom_v(&built, temperature_c));
+        biases &= bias_problem(&built, temperature_c).is_none();
+    }
+    (tail, collector, biases && collector >= 0.0)
 }
 
 fn trial(
@@ -139,10 +170,29 @@ fn trial(
     let mut trial_stage = base.clone();
     trial_stage.emitter_resistance = emitter_resistance;
     let fail = |failure: SolveFailure| Error::solve(&base.name, temperature_c, failure);
+    let infeasible = |stage: &Stage, tail_headroom_v: f64, collector_v: f64| Trial {
+        emitter_resistance,
+        load_resistance: stage.load_resistance,
+        margins: vec![None; plan.budget.len()],
+        passes: vec![false; plan.budget.len()],
+        corners: vec![TYPICAL.to_owned(); plan.budget.len()],
+        // Held by construction with hold_gain; otherwise not solved.
+        gain_db: target_gain.map_or(f64::NAN, |g| 20.0 * g.abs().log10()),
+        steering_range_v: f64::NAN,
+        headroom_v: target_gain.map(|_| collector_v),
+        tail_headroom_v,
+        biases: false,
+    };
     if let Some(target) = target_gain {
         // Gain is proportional to the load without Early effect; a few fixed-point steps
-        // settle it to 1e-12 otherwise.
+        // settle it to 1e-12 otherwise. A load that would pull the collectors below the bases
+        // at rest (or a tail node below its compliance) ends the search: such a stage is not
+        // solved.
         for _ in 0..8 {
+            let (tail, collector, biases) = rest_feasibility(plan, &trial_stage, temperature_c);
+            if !biases {
+                return Ok(infeasible(&trial_stage, tail, collector));
+            }
             let measured = measurements(&trial_stage, temperature_c, plan, cache);
             let gain = small_signal_gain(measured.engine().static_solver()).map_err(fail)?;
             let ratio = target / gain;
@@ -151,6 +201,11 @@ fn trial(
                 break;
             }
         }
+    }
+    let (tail_headroom_v, collector_v, biases) =
+        rest_feasibility(plan, &trial_stage, temperature_c);
+    if !biases {
+        return Ok(infeasible(&trial_stage, tail_headroom_v, collector_v));
     }
     // Worst case over the process corners, line by line.
     let key = |margin: Option<f64>, pass: bool| {
@@ -196,6 +251,8 @@ fn trial(
         gain_db: 20.0 * gain.abs().log10(),
         steering_range_v: steering,
         headroom_v: headroom_worst,
+        tail_headroom_v,
+        biases,
     })
 }
 
@@ -293,6 +350,20 @@ pub fn size_stage(
         _ => None,
     };
     let met = chosen.is_some();
+    // When no value meets the budget and part of the range cannot bias, the bias limit is
+    // what binds: the values that would meet distortion are out of reach.
+    let bias_limit = (!met && !scan.iter().any(|t| t.passes.iter().all(|p| *p)))
+        .then(|| {
+            // The limit met first, at the least R_E that cannot bias.
+            scan.iter().find(|t| !t.biases).map(|first| {
+                if first.tail_headroom_v < 0.0 {
+                    Binding::TailCompliance
+                } else {
+                    Binding::Headroom
+                }
+            })
+        })
+        .flatten();
     let (chosen, headroom_binds) = match chosen {
         Some(t) => {
             let headroom_binds = t.headroom_v.is_some_and(|h| {
@@ -326,6 +397,7 @@ pub fn size_stage(
                     .unwrap_or_else(|| scan[0].clone())
             } else {
                 scan.iter()
+                    .filter(|t| t.biases || bias_limit.is_none())
                     .max_by(|a, b| {
                         a.worst_with_corner()
                             .0
@@ -335,7 +407,10 @@ pub fn size_stage(
                     .cloned()
                     .unwrap_or_else(|| scan[0].clone())
             };
-            (best, headroom_binds)
+            (
+                best,
+                headroom_binds || bias_limit == Some(Binding::Headroom),
+            )
         }
     };
     let ((worst_margin, worst_line), binding_corner) = chosen.worst_with_corner();
@@ -343,10 +418,10 @@ pub fn size_stage(
         stage: stage.name.clone(),
         temperature_c,
         met,
-        binding: if headroom_binds {
-            Binding::Headroom
-        } else {
-            worst_line
+        binding: match (headroom_binds, bias_limit) {
+            (true, _) => Binding::Headroom,
+            (false, Some(limit)) => limit,
+            (false, None) => worst_line,
         },
         worst_margin,
         binding_corner,
