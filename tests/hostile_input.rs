@@ -218,3 +218,48 @@ fn a_good_plan_still_runs_after_all_the_guards() {
     run_plan(dir.path(), GOOD).code(predicate::in_iter([0, 1]));
     assert!(dir.path().join("out/good/report.json").exists());
 }
+
+/// A run killed while writing leaves its staging folder `.NAME.partial-PID`; the next run of
+/// the same report removes it once that process is gone (reaped or not).
+#[cfg(unix)]
+#[test]
+fn the_staging_folder_of_a_killed_run_is_gone_after_the_next_run() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("out");
+    fs::create_dir(&out).unwrap();
+    let mut leftovers = Vec::new();
+    for reap in [true, false] {
+        let mut child = std::process::Command::new("sleep")
+            .arg("100")
+            .spawn()
+            .unwrap();
+        child.kill().unwrap();
+        if reap {
+            child.wait().unwrap();
+        }
+        let staging = out.join(format!(".good.partial-{}", child.id()));
+        fs::create_dir(&staging).unwrap();
+        fs::write(staging.join("report.json"), "{\"half\": ").unwrap();
+        leftovers.push((staging, child));
+    }
+    let plan = dir.path().join("plan.yaml");
+    fs::write(&plan, GOOD).unwrap();
+    Command::cargo_bin("linbudget")
+        .unwrap()
+        .arg("run")
+        .arg(&plan)
+        .arg("--out")
+        .arg(&out)
+        .timeout(HANG_GUARD)
+        .assert()
+        .code(predicate::in_iter([0, 1]));
+    for (staging, mut child) in leftovers {
+        assert!(!staging.exists(), "{} was left", staging.display());
+        let _ = child.wait();
+    }
+    let names: Vec<_> = fs::read_dir(&out)
+        .unwrap()
+        .map(|e| e.unwrap().file_name())
+        .collect();
+    assert_eq!(names, vec![std::ffi::OsString::from("good")]);
+}

@@ -132,7 +132,12 @@ impl<'a> At<'a> {
 
     /// A finite quantity satisfying `check`, which names the accepted range.
     pub fn quantity_where(&self, unit: Unit, range: Range) -> Result<f64, PlanError> {
-        let value = self.quantity(unit)?;
+        // Whatever is wrong (not a number, NaN, out of range), the examples offered are ones
+        // the key accepts.
+        let value = self.quantity(unit).map_err(|mut err| {
+            err.accepted = accepted_phrase(unit, range);
+            err
+        })?;
         range.check(value).map_err(|why| {
             self.error(
                 format!("{} {}", describe_value(value, unit), why),
@@ -357,7 +362,7 @@ impl<'a> MapAt<'a> {
 
     /// A required quantity.
     pub fn quantity(&self, key: &str, unit: Unit, range: Range) -> Result<f64, PlanError> {
-        self.required(key, unit.describe())?
+        self.required(key, &accepted_phrase(unit, range))?
             .quantity_where(unit, range)
     }
 }

@@ -102,7 +102,16 @@ fn may_be_running(pid: u32) -> bool {
     }
     #[cfg(target_os = "linux")]
     {
-        Path::new("/proc").join(pid.to_string()).exists()
+        // A killed run not yet reaped by its parent stays in /proc as a zombie ('Z') or
+        // dying ('X') process: it is not running.
+        match fs::read_to_string(Path::new("/proc").join(pid.to_string()).join("stat")) {
+            Ok(stat) => !matches!(
+                stat.rsplit_once(')')
+                    .and_then(|(_, rest)| rest.trim_start().chars().next()),
+                Some('Z' | 'X')
+            ),
+            Err(_) => false,
+        }
     }
     #[cfg(not(target_os = "linux"))]
     {

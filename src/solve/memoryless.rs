@@ -43,11 +43,11 @@ pub fn general_precision_v(circuit: &StageCircuit) -> f64 {
     4.0 * f64::EPSILON * log_transport * load * circuit.tail_current
 }
 
-/// The least amplitude answered directly by the general path, V: small enough that the
-/// power series through it and half of it leaves a gain error below 1e-12 relative (10⁻⁴·φT,
-/// where compression is below 10⁻⁹), and large enough that [`general_precision_v`] is below
-/// 10⁻¹⁰ of the fundamental at half of it (so the gain is exact to about 1e-9 dB), never above
-/// 10⁻²·φT.
+/// The least amplitude answered directly by the general path, V: large enough that at half
+/// of it [`general_precision_v`] times the noise margin is 10⁻⁹ of the fundamental (the
+/// analysis floor there is −180 dBc and the gain exact to about 1e-10 dB), at least 10⁻⁴·φT,
+/// and never above 3·10⁻²·φT, where the power series through it and half of it still leaves
+/// a gain error near 1e-8 relative (the fourth-order term, (A/2φT)⁴ ≈ 6e-8 at most).
 pub fn general_direct_floor_v(circuit: &StageCircuit) -> f64 {
     let phi = circuit.thermal_voltage;
     let side = &circuit.p;
@@ -57,8 +57,10 @@ pub fn general_direct_floor_v(circuit: &StageCircuit) -> f64 {
         / (1.0
             + transconductance
                 * (side.emitter_resistance + side.base_path_resistance * side.beta_inv));
-    let for_precision = 2.0 * 1e10 * general_precision_v(circuit) / gain.max(f64::MIN_POSITIVE);
-    (1e-4 * phi).max(for_precision).min(1e-2 * phi)
+    let for_precision =
+        2.0 * crate::solve::spectrum::NOISE_MARGIN * 1e9 * general_precision_v(circuit)
+            / gain.max(f64::MIN_POSITIVE);
+    (1e-4 * phi).max(for_precision).min(3e-2 * phi)
 }
 
 /// The general single-tone analysis: every sample of the period solved in turn.
