@@ -206,14 +206,14 @@ impl SolvedStage {
         if !(amplitude_v.is_finite() && amplitude_v > 0.0) {
             return Err(Error::Argument {
                 name: "amplitude_v".into(),
-                problem: format!("{amplitude_v:e} V is not a drive amplitude"),
+                problem: format!("{} V is not a drive amplitude", short_number(amplitude_v)),
                 accepted: "a peak differential amplitude greater than zero and finite, V".into(),
             });
         }
         if !(frequency_hz.is_finite() && frequency_hz > 0.0) {
             return Err(Error::Argument {
                 name: "frequency_hz".into(),
-                problem: format!("{frequency_hz:e} Hz is not a frequency"),
+                problem: format!("{} Hz is not a frequency", short_number(frequency_hz)),
                 accepted: "a frequency greater than zero and finite, Hz".into(),
             });
         }

@@ -18,7 +18,7 @@
 //! | stage-wide static figures per case (steering, offset, transfer curve, noise) | [`STATIC_CASE_S`] |
 //! | Monte Carlo, per run | the drive points at their nominal resolution, [`MONTE_CARLO_RUN_S`] fixed, and the stage-wide figures when a budget line needs them |
 //! | sizing | [`SIZING_TRIALS`] trials × corners × the measurements the budget lines need |
-//! | the report (tables and figures) | [`REPORT_S`] + [`REPORT_POINT_S`] per point |
+//! | the report (tables and figures) | [`REPORT_S`] + [`REPORT_POINT_S`] per point, and [`PROCESS_S`] of wall time |
 //!
 //! The constants were fitted to measured runs of the demo and benchmark plans and of plans
 //! built to stress each engine (table in `benches/README.md`): the ratio of estimate to
@@ -72,6 +72,9 @@ pub const SIZING_TRIALS: f64 = SCAN_POINTS as f64 + 12.0;
 pub const REPORT_S: f64 = 0.03;
 /// Writing the report, per drive point, s.
 pub const REPORT_POINT_S: f64 = 4e-6;
+/// Wall time of starting the process and putting the report folder on disk (files and folder
+/// synced before the swap), s; waiting on the disk costs no CPU.
+pub const PROCESS_S: f64 = 0.05;
 /// Default limit on the estimated wall time, s (ten minutes).
 pub const DEFAULT_MAX_WORK: f64 = 600.0;
 
@@ -263,7 +266,8 @@ pub fn estimate(plan: &Plan) -> Workload {
     let wall_seconds = sweep / spread(cases * (points / cases.max(1.0) + 1.0))
         + monte_carlo / spread(plan.monte_carlo.as_ref().map_or(1.0, |m| m.runs as f64))
         + sizing / spread(SIZING_TRIALS * plan.stages.len() as f64 * temperatures)
-        + report / spread(4.0);
+        + report / spread(4.0)
+        + PROCESS_S;
 
     let mut breakdown = format!(
         "{} stage(s) × {} temperature(s) × {} process corner(s) × {} frequency(ies) × {} amplitude(s)",

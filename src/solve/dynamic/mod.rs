@@ -304,7 +304,11 @@ impl ResponseEngine for DynamicEngine {
         frequency_hz: f64,
         harmonics: usize,
     ) -> Result<ToneResult, SolveFailure> {
-        let label = format!("amplitude {amplitude_v:e} V at {frequency_hz:e} Hz");
+        let label = format!(
+            "amplitude {} V at {} Hz",
+            crate::units::short_number(amplitude_v),
+            crate::units::short_number(frequency_hz)
+        );
         if !(frequency_hz.is_finite() && frequency_hz > 0.0) {
             return Err(SolveFailure {
                 point: label,
