@@ -76,7 +76,11 @@ fn a_tail_node_below_ground_is_refused_naming_the_stage() {
 /// 1 A, cannot be a forward-active junction.
 #[test]
 fn junctions_outside_the_exponential_law_are_refused() {
-    let starved = "name: bias\nstages:\n  - {name: pair, tail_current: 1e-30, load_resistance: 2k}\ndrive: {amplitudes: [10 mV]}\n";
+    // 1e-30 A is outside any tail current a plan may name; 5 pA against a saturation
+    // current of 1e-12 A needs a negative V_BE.
+    let absurd = "name: bias\nstages:\n  - {name: pair, tail_current: 1e-30, load_resistance: 2k}\ndrive: {amplitudes: [10 mV]}\n";
+    assert_eq!(refused(absurd).key_path, "stages[0].tail_current");
+    let starved = "name: bias\nstages:\n  - {name: pair, tail_current: 5 pA, load_resistance: 2k, transistor: {saturation_current: 1e-12}}\ndrive: {amplitudes: [10 mV]}\n";
     let err = refused(starved);
     assert_eq!(err.key_path, "stages[0].tail_current");
     assert!(err.problem.contains("V_BE"), "{err}");

@@ -218,7 +218,7 @@ pub fn accepted_phrase(unit: Unit, range: Range) -> String {
     } else {
         fitting.join(", ")
     };
-    format!("{kind} {}, e.g. {examples}", range.phrase())
+    format!("{kind} {}, e.g. {examples}", range.phrase(unit))
 }
 
 fn describe_value(value: f64, unit: Unit) -> String {
@@ -244,9 +244,17 @@ pub enum Range {
     Between(f64, f64),
     /// Finite, at least the first bound and below the second.
     FromUpTo(f64, f64),
+    /// Finite, from the first bound to the second, both included (bounds shown with SI
+    /// prefixes in the unit of the key).
+    Within(f64, f64),
 }
 
 impl Range {
+    /// Whether `value` is in the range.
+    pub(crate) fn accepts(self, value: f64) -> bool {
+        self.check(value).is_ok()
+    }
+
     /// Whether `value` is inside, or why not.
     pub fn check(self, value: f64) -> Result<(), &'static str> {
         let ok = match self {
@@ -256,6 +264,7 @@ impl Range {
             Range::Finite => value.is_finite(),
             Range::Between(low, high) => value.is_finite() && value > low && value < high,
             Range::FromUpTo(low, high) => value.is_finite() && value >= low && value < high,
+            Range::Within(low, high) => value.is_finite() && value >= low && value <= high,
         };
         if ok {
             Ok(())
@@ -267,8 +276,13 @@ impl Range {
     }
 
     /// The range in words, numbers with at most six significant digits.
-    pub fn phrase(self) -> String {
+    pub fn phrase(self, unit: Unit) -> String {
         match self {
+            Range::Within(low, high) => format!(
+                "from {} to {}",
+                crate::units::format_si(low, unit.symbol()),
+                crate::units::format_si(high, unit.symbol())
+            ),
             Range::Positive => "greater than zero and finite".into(),
             Range::PositiveOrInfinite => "greater than zero (.inf means ideal)".into(),
             Range::NonNegative => "zero or more, finite".into(),
@@ -293,7 +307,7 @@ impl Range {
             Range::Positive | Range::PositiveOrInfinite => 1.0,
             Range::NonNegative | Range::Finite => 0.0,
             Range::FromUpTo(low, _) => low,
-            Range::Between(low, high) => {
+            Range::Between(low, high) | Range::Within(low, high) => {
                 let middle = 0.5 * (low + high);
                 // The middle rounded to one, then two, … significant digits, while inside.
                 (0..6)
@@ -385,7 +399,7 @@ fn join(path: &str, key: &str) -> String {
 }
 
 /// The accepted name closest to a misspelt one (edit distance at most 3).
-fn closest<'b>(name: &str, allowed: &[&'b str]) -> Option<&'b str> {
+pub(crate) fn closest<'b>(name: &str, allowed: &[&'b str]) -> Option<&'b str> {
     allowed
         .iter()
         .map(|candidate| (edit_distance(name, candidate), *candidate))

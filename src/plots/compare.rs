@@ -1,6 +1,7 @@
 //! Stage comparison: the stages of the plan overlaid at the typical temperature, transfer
 //! curves on the left, HD3 and THD versus amplitude on the right.
 
+use super::bench::{bench_entries, bench_marks, draw_bench, same, BenchMark};
 use super::style::*;
 use super::{DrawResult, Drawing, PlotKind};
 use crate::report::{PointRecord, Report, StageRecord};
@@ -13,6 +14,8 @@ pub struct ComparisonPlot {
     stages: Vec<String>,
     transfers: Vec<StageRecord>,
     points: Vec<PointRecord>,
+    /// Bench HD3 and THD of the measured stages at this temperature and frequency.
+    bench: Vec<BenchMark>,
 }
 
 impl ComparisonPlot {
@@ -36,7 +39,16 @@ impl ComparisonPlot {
             .filter(|p| p.temperature_c == temperature_c && Some(p.frequency_hz) == frequency_hz)
             .cloned()
             .collect();
+        let bench = bench_marks(report, None)
+            .into_iter()
+            .filter(|b| {
+                b.temperature_c == temperature_c
+                    && frequency_hz.is_some_and(|f| same(f, b.frequency_hz))
+                    && (b.metric == "hd3" || b.metric == "thd")
+            })
+            .collect();
         (transfers.len() >= 2 || !points.is_empty()).then_some(ComparisonPlot {
+            bench,
             temperature_c,
             stages,
             transfers,
@@ -121,7 +133,8 @@ impl Drawing for ComparisonPlot {
             .points
             .iter()
             .flat_map(|p| [p.harmonic(3), p.thd_dbc])
-            .flatten();
+            .flatten()
+            .chain(self.bench.iter().map(|b| b.bench));
         let (low, high) = values.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), v| {
             (lo.min(v), hi.max(v))
         });
@@ -186,6 +199,24 @@ impl Drawing for ComparisonPlot {
                 colour.stroke_width(3),
                 Some(Marker::Square),
             )?;
+        }
+        for (shape, metric) in ["hd3", "thd"].iter().enumerate() {
+            let measured: Vec<(f64, f64)> = self
+                .bench
+                .iter()
+                .filter(|b| b.metric == *metric)
+                .map(|b| (b.amplitude_v, b.bench))
+                .collect();
+            if !measured.is_empty() {
+                draw_bench(&mut chart, &measured, (y_low, y_high), shape, INK)?;
+                bench_entries(
+                    &mut chart,
+                    &[(
+                        format!("bench {} (lines: model)", metric.to_uppercase()),
+                        shape,
+                    )],
+                )?;
+            }
         }
         legend(&mut chart, SeriesLabelPosition::LowerRight)?;
         Ok(())

@@ -1,6 +1,7 @@
 //! Versus frequency: HD2, HD3 and THD at one amplitude, and IIP3 on a second axis, against
 //! signal frequency (plans with several frequencies).
 
+use super::bench::{bench_legend, bench_marks, draw_bench, same, BenchMark};
 use super::style::*;
 use super::two_tone::dbv;
 use super::{DrawResult, Drawing, PlotKind};
@@ -16,6 +17,8 @@ pub struct FrequencyPlot {
     temps: Vec<f64>,
     points: Vec<PointRecord>,
     intercepts: Vec<InterceptRecord>,
+    /// Bench HD2, HD3 and THD at the figure's amplitude.
+    bench: Vec<BenchMark>,
 }
 
 impl FrequencyPlot {
@@ -53,11 +56,20 @@ impl FrequencyPlot {
             .cloned()
             .collect();
         intercepts.sort_by(|a, b| a.frequency_hz.total_cmp(&b.frequency_hz));
-        let temps = temperatures(report)
+        let temps: Vec<f64> = temperatures(report)
             .into_iter()
             .filter(|t| points.iter().any(|p| p.temperature_c == *t))
             .collect();
+        let bench = bench_marks(report, Some(stage))
+            .into_iter()
+            .filter(|b| {
+                same(b.amplitude_v, amplitude_v)
+                    && temps.contains(&b.temperature_c)
+                    && ["hd2", "hd3", "thd"].contains(&b.metric.as_str())
+            })
+            .collect();
         Some(FrequencyPlot {
+            bench,
             stage: stage.to_owned(),
             slug: slug.to_owned(),
             amplitude_v,
@@ -102,7 +114,8 @@ impl Drawing for FrequencyPlot {
             .points
             .iter()
             .flat_map(|p| metrics.map(|m| value(p, m)))
-            .flatten();
+            .flatten()
+            .chain(self.bench.iter().map(|b| b.bench));
         let (low, high) = values.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), v| {
             (lo.min(v), hi.max(v))
         });
@@ -185,6 +198,19 @@ impl Drawing for FrequencyPlot {
                 )))?;
             }
         }
+        for (ti, t) in self.temps.iter().enumerate() {
+            for m in metrics {
+                let measured: Vec<(f64, f64)> = self
+                    .bench
+                    .iter()
+                    .filter(|b| b.temperature_c == *t && b.metric == m)
+                    .map(|b| (b.frequency_hz, b.bench))
+                    .collect();
+                if !measured.is_empty() {
+                    draw_bench(&mut chart, &measured, (y_low, y_high), ti, metric_colour(m))?;
+                }
+            }
+        }
         for (k, m) in metrics.iter().enumerate() {
             legend_entry(
                 &mut chart,
@@ -202,6 +228,9 @@ impl Drawing for FrequencyPlot {
             None,
         )?;
         temperature_key(&mut chart, &self.temps)?;
+        if !self.bench.is_empty() {
+            bench_legend(&mut chart, &self.temps)?;
+        }
         legend(&mut chart, SeriesLabelPosition::UpperLeft)?;
         Ok(())
     }

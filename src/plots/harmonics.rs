@@ -2,6 +2,7 @@
 //! log axis, every distortion budget line drawn as a limit mask, and the budget verdicts as
 //! pass/fail markers.
 
+use super::bench::{bench_legend, bench_marks, draw_bench, same, BenchMark};
 use super::style::*;
 use super::{DrawResult, Drawing, PlotKind};
 use crate::report::{BudgetRecord, PointRecord, Report};
@@ -73,6 +74,8 @@ pub struct HarmonicsPlot {
     budget: Vec<BudgetRecord>,
     series: Vec<Series>,
     floor_dbc: f64,
+    /// Bench values of the series' metrics at this frequency and the figure's temperatures.
+    bench: Vec<BenchMark>,
 }
 
 /// What the figure reads of one drive point (a dense sweep has thousands: copying whole
@@ -122,7 +125,16 @@ impl HarmonicsPlot {
         let enough = temps
             .iter()
             .any(|t| points.iter().filter(|p| p.temperature_c == *t).count() >= 2);
+        let bench = bench_marks(report, Some(stage))
+            .into_iter()
+            .filter(|b| {
+                same(b.frequency_hz, frequency_hz)
+                    && temps.contains(&b.temperature_c)
+                    && series.iter().any(|s| s.metric == b.metric)
+            })
+            .collect();
         enough.then(|| HarmonicsPlot {
+            bench,
             stage: stage.to_owned(),
             slug: slug.to_owned(),
             frequency_hz,
@@ -147,9 +159,14 @@ impl Drawing for HarmonicsPlot {
     }
     fn caption(&self) -> String {
         format!(
-            "HDn and THD of the differential output of “{}” in dBc versus peak differential input at {}; shaded boxes are the budget's forbidden regions (a line applies up to its amplitude), round green markers pass, red crosses fail.",
+            "HDn and THD of the differential output of “{}” in dBc versus peak differential input at {}; shaded boxes are the budget's forbidden regions (a line applies up to its amplitude), round green markers pass, red crosses fail.{}",
             self.stage,
-            si(self.frequency_hz, "Hz")
+            si(self.frequency_hz, "Hz"),
+            if self.bench.is_empty() {
+                ""
+            } else {
+                " Open markers are bench measurements, drawn over the model's lines in the metric's colour."
+            }
         )
     }
 
@@ -190,7 +207,8 @@ impl Drawing for HarmonicsPlot {
                     .iter()
                     .flat_map(|b| [Some(b.limit), b.value])
                     .flatten(),
-            );
+            )
+            .chain(self.bench.iter().map(|b| b.bench));
         let (low, high) = values.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), v| {
             (lo.min(v), hi.max(v))
         });
@@ -206,7 +224,8 @@ impl Drawing for HarmonicsPlot {
             .points
             .iter()
             .map(|p| p.amplitude_v)
-            .chain(self.budget.iter().filter_map(|b| b.at_v));
+            .chain(self.budget.iter().filter_map(|b| b.at_v))
+            .chain(self.bench.iter().map(|b| b.amplitude_v));
         let (a_low, a_high) = amplitudes.fold((f64::INFINITY, 0.0f64), |(lo, hi), a| {
             (lo.min(a), hi.max(a))
         });
@@ -293,6 +312,26 @@ impl Drawing for HarmonicsPlot {
                 };
                 draw_runs(&mut chart, &data, (y_low, y_high), true, pattern(ti), style)?;
                 draw_markers(&mut chart, &data, (y_low, y_high), Marker::nth(si_), colour)?;
+            }
+        }
+
+        for (ti, t) in self.temps.iter().enumerate() {
+            for series in &self.series {
+                let measured: Vec<(f64, f64)> = self
+                    .bench
+                    .iter()
+                    .filter(|b| b.temperature_c == *t && b.metric == series.metric)
+                    .map(|b| (b.amplitude_v, b.bench))
+                    .collect();
+                if !measured.is_empty() {
+                    draw_bench(
+                        &mut chart,
+                        &measured,
+                        (y_low, y_high),
+                        ti,
+                        metric_colour(&series.metric),
+                    )?;
+                }
             }
         }
 
@@ -386,6 +425,9 @@ impl Drawing for HarmonicsPlot {
             }
         }
         temperature_key(&mut chart, &self.temps)?;
+        if !self.bench.is_empty() {
+            bench_legend(&mut chart, &self.temps)?;
+        }
         legend(&mut chart, SeriesLabelPosition::LowerRight)?;
         chart.draw_series(std::iter::once(Text::new(
             "shaded: forbidden by the budget".to_owned(),

@@ -9,6 +9,7 @@
 //! compared), the line pattern names the temperature (solid for the first one in the plan),
 //! green round markers pass a budget line and red crosses fail it.
 
+mod bench;
 mod compare;
 mod frequency;
 mod harmonics;

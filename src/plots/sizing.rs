@@ -15,6 +15,8 @@ pub struct SizingPlot {
     records: Vec<SizingRecord>,
     /// Budget lines in plan order (from the first temperature): labels of the margins.
     lines: Vec<BudgetRecord>,
+    /// Ranges of R_E usable at every temperature, Ω (shaded).
+    windows: Vec<[f64; 2]>,
 }
 
 impl SizingPlot {
@@ -33,11 +35,20 @@ impl SizingPlot {
             .filter(|b| b.stage == stage && b.temperature_c == first.temperature_c)
             .cloned()
             .collect();
+        let windows = report
+            .verdict
+            .recommended
+            .iter()
+            .flat_map(|r| &r.stages)
+            .filter(|s| s.stage == stage)
+            .flat_map(|s| s.window_ohm.iter().copied())
+            .collect();
         Some(SizingPlot {
             stage: stage.to_owned(),
             slug: slug.to_owned(),
             records,
             lines,
+            windows,
         })
     }
 
@@ -81,7 +92,7 @@ impl Drawing for SizingPlot {
     }
     fn caption(&self) -> String {
         format!(
-            "Margin of each budget line of “{}” (left axis, dB, positive passes) and small-signal gain (right axis) versus emitter resistance per side; the vertical line marks the chosen value.",
+            "Margin of each budget line of “{}” (left axis, dB, positive passes) and small-signal gain (right axis) versus emitter resistance per side; the vertical lines mark each temperature's least value, and the green band the values usable at every temperature.",
             self.stage
         )
     }
@@ -165,6 +176,9 @@ impl Drawing for SizingPlot {
             vec![(r_low, 0.0), (r_high, 0.0)],
             INK.stroke_width(2),
         )))?;
+        chart.draw_series(self.windows.iter().map(|[low, high]| {
+            Rectangle::new([(*low, y_low), (*high, y_high)], PASS.mix(0.08).filled())
+        }))?;
 
         let line_count = self
             .records
@@ -233,6 +247,10 @@ impl Drawing for SizingPlot {
             }
         }
         for k in 0..line_count {
+            // A yield line has no margin per trial value: nothing drawn, nothing to label.
+            if self.lines.get(k).is_some_and(|l| l.metric == "yield") {
+                continue;
+            }
             let colour = self
                 .lines
                 .get(k)

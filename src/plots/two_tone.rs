@@ -1,6 +1,7 @@
 //! Two-tone: output fundamental (per tone) and IM3 versus input level in dBV, with the fitted
 //! 1:1 and 3:1 lines meeting at the third-order intercept and the fit region shaded.
 
+use super::bench::{bench_entries, bench_marks, draw_bench, same};
 use super::style::*;
 use super::{DrawResult, Drawing, PlotKind};
 use crate::report::{BudgetRecord, InterceptRecord, PointRecord, Report};
@@ -21,6 +22,9 @@ pub struct TwoTonePlot {
     intercept: InterceptRecord,
     others: Vec<InterceptRecord>,
     budget: Vec<BudgetRecord>,
+    /// Bench IM3 products as (input dBV, output dBV): the measured IM3 on the measured
+    /// output fundamental (`fundamental_v`, or the measured gain) of the same row.
+    bench_im3: Vec<(f64, f64)>,
 }
 
 impl TwoTonePlot {
@@ -69,7 +73,29 @@ impl TwoTonePlot {
             .filter(|b| b.stage == stage && b.temperature_c == typical && b.metric == "iip3")
             .cloned()
             .collect();
+        let marks = bench_marks(report, Some(stage));
+        let bench_im3 = marks
+            .iter()
+            .filter(|b| {
+                b.metric == "im3"
+                    && b.temperature_c == typical
+                    && same(b.frequency_hz, frequency_hz)
+            })
+            .filter_map(|b| {
+                let companion = |metric: &str| {
+                    marks
+                        .iter()
+                        .find(|c| c.row == b.row && c.metric == metric)
+                        .map(|c| c.bench)
+                };
+                let output = companion("fundamental")
+                    .map(dbv)
+                    .or_else(|| companion("gain").map(|g| dbv(b.amplitude_v) + g))?;
+                Some((dbv(b.amplitude_v), output + b.bench))
+            })
+            .collect();
         Some(TwoTonePlot {
+            bench_im3,
             stage: stage.to_owned(),
             slug: slug.to_owned(),
             temperature_c: typical,
@@ -154,7 +180,8 @@ impl Drawing for TwoTonePlot {
             .iter()
             .flat_map(|m| [Some(m.1), m.2])
             .flatten()
-            .chain([y_ip]);
+            .chain([y_ip])
+            .chain(self.bench_im3.iter().map(|b| b.1));
         let (y_min, y_max) = ys.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), y| {
             (lo.min(y), hi.max(y))
         });
@@ -281,16 +308,19 @@ impl Drawing for TwoTonePlot {
             true,
         )?;
 
+        if !self.bench_im3.is_empty() {
+            draw_bench(&mut chart, &self.bench_im3, (y_low, y_high), 0, im3_colour)?;
+        }
         legend_entry(
             &mut chart,
-            "output fundamental (measured)",
+            "output fundamental (model)",
             pattern(0),
             fundamental_colour.stroke_width(3),
             Some(Marker::Circle),
         )?;
         legend_entry(
             &mut chart,
-            "IM3 product (measured)",
+            "IM3 product (model)",
             pattern(0),
             im3_colour.stroke_width(3),
             Some(Marker::Triangle),
@@ -309,6 +339,9 @@ impl Drawing for TwoTonePlot {
             im3_colour.stroke_width(2),
             None,
         )?;
+        if !self.bench_im3.is_empty() {
+            bench_entries(&mut chart, &[("IM3 product (bench)".to_owned(), 0)])?;
+        }
         legend(&mut chart, SeriesLabelPosition::LowerRight)?;
         Ok(())
     }

@@ -1,7 +1,7 @@
 //! `summary.md`: the human tables — per stage the drive points, the intercepts, the budget
 //! verdict and the sizing result.
 
-use super::queries::value_to_build;
+use super::queries::{recommended_stage, value_to_build};
 use super::table::{markdown_text, Cell, Table};
 use super::{PointRecord, Report, CAUTION};
 use crate::model::corner::TYPICAL;
@@ -144,11 +144,23 @@ pub fn summary(report: &Report) -> String {
             let with_corner = lines
                 .iter()
                 .any(|b| !b.corner.is_empty() && b.corner != TYPICAL);
-            if !report.sizing.is_empty() {
-                let _ = writeln!(
-                    out,
-                    "Budget lines checked on the stage as planned (before sizing):\n"
-                );
+            match recommended_stage(report, name) {
+                Some(d) => {
+                    let _ = writeln!(
+                        out,
+                        "Budget lines checked on the recommended design (derived: `{}` with R_E = {}, R_L = {}):\n",
+                        markdown_text(&d.stage),
+                        format_si(d.emitter_resistance_ohm, "Ω"),
+                        format_si(d.load_resistance_ohm, "Ω")
+                    );
+                }
+                None if !report.sizing.is_empty() => {
+                    let _ = writeln!(
+                        out,
+                        "Budget lines checked on the stage as planned (before sizing):\n"
+                    );
+                }
+                None => {}
             }
             let mut columns = vec![("T (°C)", true)];
             if with_corner {
@@ -173,8 +185,16 @@ pub fn summary(report: &Report) -> String {
                     b.metric.as_str().into(),
                     volts(b.at_v).into(),
                     format!("{} {}", b.kind, quantity(b.limit)).into(),
-                    b.value.map(quantity).unwrap_or_else(|| "—".into()).into(),
-                    db(b.margin).into(),
+                    match (b.value, b.interval) {
+                        (Some(v), Some([low, high])) => {
+                            format!("{} ({}–{})", quantity(v), quantity(low), quantity(high))
+                        }
+                        (Some(v), None) => quantity(v),
+                        (None, _) if b.margin_at_least => "below floor".into(),
+                        (None, _) => "—".into(),
+                    }
+                    .into(),
+                    b.margin_text().into(),
                     Cell::verdict(b.pass, "pass", "FAIL"),
                 ]);
                 table.push(row);
@@ -197,16 +217,49 @@ pub fn summary(report: &Report) -> String {
                 if s.headroom_binds { "; headroom, not distortion, binds" } else { "" }
             );
         }
+        for s in report.sizing.iter().filter(|s| s.stage == name) {
+            for text in s.unreachable.iter().map(|u| &u.text).chain(&s.hints) {
+                let _ = writeln!(out, "- {}", markdown_text(text));
+            }
+        }
         if let Some(value) = value_to_build(report, name) {
+            let windows = report
+                .verdict
+                .recommended
+                .iter()
+                .flat_map(|r| &r.stages)
+                .filter(|s| s.stage == name)
+                .flat_map(|s| &s.window_ohm)
+                .map(|[low, high]| format!("{} – {}", format_si(*low, "Ω"), format_si(*high, "Ω")))
+                .collect::<Vec<_>>()
+                .join(", ");
             let _ = writeln!(
                 out,
-                "**R_E to build for {}: {}** — the largest of the per-temperature least values; every scanned value from each temperature's least value up to it passed every line.\n",
+                "\n**R_E to build for {}: {}** — the least value holding every line at every temperature (usable at every temperature: {}); the recommended design, evaluated in full, meets every line.\n",
                 markdown_text(name),
-                format_si(value, "Ω")
+                format_si(value, "Ω"),
+                windows
             );
         }
     }
     population_sections(report, &mut out);
+    if !report.fit.is_empty() {
+        let _ = writeln!(out, "## Fit to bench data\n");
+        let _ = writeln!(
+            out,
+            "{}\n{}",
+            super::correlation::fit_table(report).to_markdown(),
+            super::correlation::fit_quality_table(report).to_markdown()
+        );
+    }
+    if !report.residual_summary.is_empty() {
+        let _ = writeln!(out, "## Model against bench (model − bench)\n");
+        let _ = writeln!(
+            out,
+            "{}",
+            super::correlation::residual_table(report).to_markdown()
+        );
+    }
     if !report.warnings.is_empty() {
         let _ = writeln!(out, "## Warnings\n");
         for w in &report.warnings {
@@ -218,7 +271,7 @@ pub fn summary(report: &Report) -> String {
         out,
         "Plan {}: **{}**",
         markdown_text(&report.plan),
-        if report.met { "met" } else { "not met" }
+        markdown_text(&report.verdict.summary)
     );
     out
 }
@@ -347,9 +400,24 @@ fn population_sections(report: &Report, out: &mut String) {
         }
         let _ = writeln!(out, "{}", table.to_markdown());
         for y in &report.yield_ {
+            let failing: Vec<String> = y
+                .lines
+                .iter()
+                .filter(|l| l.failing_runs > 0)
+                .map(|l| {
+                    format!(
+                        "{}{} {:.1} %",
+                        l.metric,
+                        l.at_v
+                            .map(|a| format!(" at {}", format_si(a, "V")))
+                            .unwrap_or_default(),
+                        100.0 * l.failing_fraction
+                    )
+                })
+                .collect();
             let _ = writeln!(
                 out,
-                "Yield of {} at {} °C ({} corner): {:.1} % of {} runs meet every budget line ({}: {:.1} % to {:.1} %).\n",
+                "Yield of {} at {} °C ({} corner): {:.1} % of {} runs meet every budget line ({}: {:.1} % to {:.1} %){}.\n",
                 markdown_text(&y.stage),
                 y.temperature_c,
                 markdown_text(&y.corner),
@@ -357,7 +425,12 @@ fn population_sections(report: &Report, out: &mut String) {
                 y.runs,
                 y.interval,
                 100.0 * y.pass_fraction_low,
-                100.0 * y.pass_fraction_high
+                100.0 * y.pass_fraction_high,
+                if failing.is_empty() {
+                    String::new()
+                } else {
+                    format!("; runs failing each line: {}", markdown_text(&failing.join(", ")))
+                }
             );
         }
     }

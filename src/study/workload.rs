@@ -75,6 +75,9 @@ pub const REPORT_POINT_S: f64 = 4e-6;
 /// Wall time of starting the process and putting the report folder on disk (files and folder
 /// synced before the swap), s; waiting on the disk costs no CPU.
 pub const PROCESS_S: f64 = 0.05;
+/// Model evaluations over every bench point a fit takes (coarse search, optimiser,
+/// Jacobians and the final statistics; 25–50 for three parameters).
+pub const FIT_EVALUATIONS: f64 = 50.0;
 /// Default limit on the estimated wall time, s (ten minutes).
 pub const DEFAULT_MAX_WORK: f64 = 600.0;
 
@@ -178,6 +181,7 @@ pub fn estimate(plan: &Plan) -> Workload {
     let mut sweep = 0.0;
     let mut monte_carlo = 0.0;
     let mut sizing = 0.0;
+    let mut sweep_per_stage: Vec<f64> = Vec::with_capacity(plan.stages.len());
     for stage in &plan.stages {
         let engine = Engine::of(stage, reference_temperature);
         let points: f64 = frequencies
@@ -192,7 +196,9 @@ pub fn estimate(plan: &Plan) -> Workload {
                     + engine.stage_wide_s(f, spacing(f))
             })
             .sum();
-        sweep += temperatures * corners * (points + engine.static_s());
+        let stage_sweep = temperatures * corners * (points + engine.static_s());
+        sweep += stage_sweep;
+        sweep_per_stage.push(stage_sweep);
 
         if let Some(mc) = &plan.monte_carlo {
             let draws = stage.mismatch_sigma != crate::model::stage::Mismatch::default();
@@ -243,7 +249,7 @@ pub fn estimate(plan: &Plan) -> Workload {
                                 0.0
                             }
                         }
-                        Metric::SteeringRange | Metric::InputNoise => 0.0,
+                        Metric::SteeringRange | Metric::InputNoise | Metric::Yield => 0.0,
                     }
                 })
                 .sum();
@@ -253,10 +259,40 @@ pub fn estimate(plan: &Plan) -> Workload {
                 temperatures * SIZING_TRIALS * (corners * (lines + headroom) + engine.static_s());
         }
     }
+    // A fit evaluates every measured point about FIT_EVALUATIONS times as a single tone, and
+    // the fitted stage is then evaluated through the plan like the nominal one.
+    let bench_points: f64 = plan
+        .measurements
+        .iter()
+        .map(|m| m.points.len() as f64)
+        .sum();
+    let fit = match &plan.fit {
+        Some(_) => {
+            let per_stage = sweep_per_stage.iter().copied().sum::<f64>();
+            let fitted: f64 = plan
+                .stages
+                .iter()
+                .zip(&sweep_per_stage)
+                .filter(|(s, _)| plan.measurements.iter().any(|m| m.stage == s.name))
+                .map(|(_, cost)| cost)
+                .sum();
+            let tone = plan
+                .stages
+                .iter()
+                .filter(|s| plan.measurements.iter().any(|m| m.stage == s.name))
+                .map(|s| Engine::of(s, reference_temperature).tone_s(harmonics))
+                .fold(0.0, f64::max);
+            bench_points * tone * FIT_EVALUATIONS
+                + fitted * (1.0 + (monte_carlo + sizing) / per_stage.max(f64::MIN_POSITIVE))
+        }
+        None => 0.0,
+    };
+    // With sizing, the recommended design is evaluated in full as a stage of its own.
+    let recommended = if plan.sizing.is_some() { sweep } else { 0.0 };
     let points =
         plan.stages.len() as f64 * temperatures * corners * frequencies.len() as f64 * amplitudes;
     let report = REPORT_S + REPORT_POINT_S * points;
-    let cpu_seconds = sweep + monte_carlo + sizing + report;
+    let cpu_seconds = sweep + monte_carlo + sizing + fit + recommended + report;
 
     // Independent pieces the evaluation spreads over the threads: the cases and their points,
     // Monte Carlo runs, sizing trials.
@@ -266,6 +302,7 @@ pub fn estimate(plan: &Plan) -> Workload {
     let wall_seconds = sweep / spread(cases * (points / cases.max(1.0) + 1.0))
         + monte_carlo / spread(plan.monte_carlo.as_ref().map_or(1.0, |m| m.runs as f64))
         + sizing / spread(SIZING_TRIALS * plan.stages.len() as f64 * temperatures)
+        + (fit + recommended) / spread(cases)
         + report / spread(4.0)
         + PROCESS_S;
 
@@ -283,14 +320,22 @@ pub fn estimate(plan: &Plan) -> Workload {
     if plan.sizing.is_some() {
         breakdown.push_str(&format!(", sizing ({SIZING_TRIALS} trials)"));
     }
+    if fit > 0.0 {
+        breakdown.push_str(&format!(
+            ", fit ({bench_points} bench points × ~{FIT_EVALUATIONS} evaluations, and the fitted stage(s))"
+        ));
+    }
     breakdown.push_str(&format!(
-        "; drive points {}, Monte Carlo {}, sizing {} of one core",
-        format_duration(sweep),
+        "; drive points {}, Monte Carlo {}, sizing {}, fit {} of one core",
+        format_duration(sweep + recommended),
         format_duration(monte_carlo),
-        format_duration(sizing)
+        format_duration(sizing),
+        format_duration(fit)
     ));
     let (stages, frequency_count) = (plan.stages.len() as f64, frequencies.len() as f64);
-    let dominant_key = if monte_carlo > sweep.max(sizing) {
+    let dominant_key = if fit > sweep.max(sizing).max(monte_carlo) {
+        "measurements"
+    } else if monte_carlo > sweep.max(sizing) {
         "monte_carlo.runs"
     } else if sizing > sweep {
         "sizing"
