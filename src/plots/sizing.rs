@@ -92,7 +92,7 @@ impl Drawing for SizingPlot {
     }
     fn caption(&self) -> String {
         format!(
-            "Margin of each budget line of “{}” (left axis, dB, positive passes) and small-signal gain (right axis) versus emitter resistance per side; the vertical lines mark each temperature's least value, and the green band the values usable at every temperature.",
+            "Margin of each budget line of “{}” (left axis, dB, positive passes) and small-signal gain (right axis) versus emitter resistance per side; the vertical lines mark each temperature's least value, the green band the values usable at every temperature, and a grey band the values at which the stage cannot bias (not solved).",
             self.stage
         )
     }
@@ -179,6 +179,33 @@ impl Drawing for SizingPlot {
         chart.draw_series(self.windows.iter().map(|[low, high]| {
             Rectangle::new([(*low, y_low), (*high, y_high)], PASS.mix(0.08).filled())
         }))?;
+        // Values that cannot bias at some temperature (the tail node below the tail source's
+        // compliance, or collectors below their bases with a held gain) were not solved: shade
+        // them and say why the curves stop.
+        let unbiased_from = self
+            .records
+            .iter()
+            .filter_map(|r| {
+                r.scan
+                    .iter()
+                    .find(|s| s.gain_db.is_none() || s.tail_headroom_v.is_some_and(|t| t < 0.0))
+                    .map(|s| s.emitter_resistance_ohm)
+            })
+            .reduce(f64::min);
+        if let Some(from) = unbiased_from {
+            chart.draw_series(std::iter::once(Rectangle::new(
+                [(from, y_low), (r_high, y_high)],
+                INK.mix(0.07).filled(),
+            )))?;
+            chart.draw_series(std::iter::once(Text::new(
+                "cannot bias: not solved",
+                (
+                    from + 0.01 * (r_high - r_low),
+                    y_high - 0.03 * (y_high - y_low),
+                ),
+                bold(LEGEND_PX).color(&INK.mix(0.7)),
+            )))?;
+        }
 
         let line_count = self
             .records

@@ -17,7 +17,8 @@
 //! | stage-wide figures per frequency (IIP3 search, P1dB bisection) | [`INTERCEPT_TWO_TONES`] two-tone and [`COMPRESSION_TONES`] single-tone analyses |
 //! | stage-wide static figures per case (steering, offset, transfer curve, noise) | [`STATIC_CASE_S`] |
 //! | Monte Carlo, per run | the drive points at their nominal resolution, [`MONTE_CARLO_RUN_S`] fixed, and the stage-wide figures when a budget line needs them |
-//! | sizing | [`SIZING_TRIALS`] trials × corners × the measurements the budget lines need |
+//! | sizing | [`SIZING_TRIALS`] trials × corners × the measurements the budget lines need, then the recommended design evaluated in full (its population too, [`YIELD_SEARCH_POPULATIONS`] more with a yield line) |
+//! | a fit to bench data | [`FIT_EVALUATIONS`] single tones per bench point, then the fitted stage evaluated in full |
 //! | the report (tables and figures) | [`REPORT_S`] + [`REPORT_POINT_S`] per point, and [`PROCESS_S`] of wall time |
 //!
 //! The constants were fitted to measured runs of the demo and benchmark plans and of plans
@@ -66,6 +67,9 @@ pub const MONTE_CARLO_RUN_S: f64 = 1e-5;
 /// A Monte Carlo run analyses each drive point at the nominal's converged sample count only:
 /// this fraction of an adaptive analysis.
 pub const MONTE_CARLO_POINT_FACTOR: f64 = 0.3;
+/// Populations the upward search for a yield line draws, on average (a probe each, most
+/// searches ending within two).
+pub const YIELD_SEARCH_POPULATIONS: f64 = 1.5;
 /// Trial values of the emitter resistance a sizing search evaluates (scan plus refinement).
 pub const SIZING_TRIALS: f64 = SCAN_POINTS as f64 + 12.0;
 /// Writing the report: tables, documents and figures, s.
@@ -287,8 +291,22 @@ pub fn estimate(plan: &Plan) -> Workload {
         }
         None => 0.0,
     };
-    // With sizing, the recommended design is evaluated in full as a stage of its own.
-    let recommended = if plan.sizing.is_some() { sweep } else { 0.0 };
+    // With sizing, the recommended design is evaluated in full as a stage of its own, with its
+    // own population; a yield line sends the recommendation up the window, a population per
+    // probe.
+    let recommended = if plan.sizing.is_some() {
+        let yield_line = plan.budget.iter().any(|l| l.metric == Metric::Yield);
+        sweep
+            + monte_carlo
+                * (1.0
+                    + if yield_line {
+                        YIELD_SEARCH_POPULATIONS
+                    } else {
+                        0.0
+                    })
+    } else {
+        0.0
+    };
     let points =
         plan.stages.len() as f64 * temperatures * corners * frequencies.len() as f64 * amplitudes;
     let report = REPORT_S + REPORT_POINT_S * points;
@@ -302,7 +320,8 @@ pub fn estimate(plan: &Plan) -> Workload {
     let wall_seconds = sweep / spread(cases * (points / cases.max(1.0) + 1.0))
         + monte_carlo / spread(plan.monte_carlo.as_ref().map_or(1.0, |m| m.runs as f64))
         + sizing / spread(SIZING_TRIALS * plan.stages.len() as f64 * temperatures)
-        + (fit + recommended) / spread(cases)
+        + fit / spread(cases)
+        + recommended / spread(cases.max(plan.monte_carlo.as_ref().map_or(1.0, |m| m.runs as f64)))
         + report / spread(4.0)
         + PROCESS_S;
 
