@@ -3,11 +3,12 @@
 
 use crate::error::Error;
 use crate::measure::small_signal::STEERING_FRACTION;
+use crate::model::budget::Metric;
 use crate::model::corner::TYPICAL;
 use crate::model::plan::Plan;
 use crate::model::stage::Stage;
 use crate::report::{
-    AnalysisRecord, BudgetRecord, Harmonics, InterceptRecord, MonteCarloRecord, PointRecord,
+    dbm, AnalysisRecord, BudgetRecord, Harmonics, InterceptRecord, MonteCarloRecord, PointRecord,
     Report, SizingRecord, SizingScanRecord, SpreadRecord, StageRecord, TransferRecord, YieldRecord,
     CAUTION,
 };
@@ -172,7 +173,7 @@ fn case_records(plan: &Plan, case: CaseEvaluation) -> CaseRecords {
             iip3_dbv: iip3.map(|v| 20.0 * v.log10()),
             iip3_dbm: match (iip3, plan.reference_impedance) {
                 // Peak differential volts into R: P = V²/(2R).
-                (Some(v), Some(r)) => Some(10.0 * (v * v / (2.0 * r) / 1e-3).log10()),
+                (Some(v), Some(r)) => Some(dbm(v, r)),
                 _ => None,
             },
             iip3_fit_amplitude_v: intercept.map(|i| i.fit_amplitude_v),
@@ -229,6 +230,8 @@ fn case_records(plan: &Plan, case: CaseEvaluation) -> CaseRecords {
                 pass: result.pass,
                 unit: line.metric.unit_label().into(),
                 corner: corner.clone(),
+                limit_dbm: dbm_of(plan, line.metric, line.limit.value()),
+                value_dbm: result.value.and_then(|v| dbm_of(plan, line.metric, v)),
             }
         })
         .collect();
@@ -243,6 +246,16 @@ fn case_records(plan: &Plan, case: CaseEvaluation) -> CaseRecords {
         stage: stage_record,
         budget,
         warnings,
+    }
+}
+
+/// A volt figure of a power-like metric (IIP3, OIP3, P1dB) in dBm, when the plan gives a
+/// reference impedance.
+fn dbm_of(plan: &Plan, metric: Metric, volts: f64) -> Option<f64> {
+    let power_like = matches!(metric, Metric::Iip3 | Metric::Oip3 | Metric::P1db);
+    match plan.reference_impedance {
+        Some(ohms) if power_like && volts > 0.0 && volts.is_finite() => Some(dbm(volts, ohms)),
+        _ => None,
     }
 }
 

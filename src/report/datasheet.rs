@@ -7,8 +7,9 @@
 //! (figures inline as SVG, styles inline) so it reads offline and prints to PDF.
 
 use super::queries::{frequencies, stage_names, temperatures, typical_temperature};
-use super::table::{html_text, markdown_text, Cell, Table};
-use super::text::celsius;
+use super::summary::{limit_cell, temperature_cell, value_cell};
+use super::table::{html_inline, html_text, markdown_inline, markdown_text, Cell, Table};
+use super::text::{celsius, metric_label, si_exact, si_short};
 use super::{Report, CAUTION};
 use crate::model::corner::TYPICAL;
 use std::fmt::Write;
@@ -51,23 +52,46 @@ fn fixed(value: Option<f64>, decimals: usize) -> String {
     }
 }
 
-/// Typical (at `typical_c`), minimum and maximum of a figure over temperatures.
+/// One value of a figure in one case: (temperature, corner, value).
+type CaseValue<'a> = (f64, &'a str, Option<f64>);
+
+/// Minimum, typical (at `typical_c` in the typical corner) and maximum of a figure over the
+/// cases, with where the minimum and maximum occur.
 fn typ_min_max(
-    values: &[(f64, Option<f64>)],
+    values: &[CaseValue],
     typical_c: f64,
-) -> (Option<f64>, Option<f64>, Option<f64>) {
-    let present: Vec<f64> = values
+) -> (Option<f64>, Option<f64>, Option<f64>, String) {
+    let present: Vec<&CaseValue> = values
         .iter()
-        .filter_map(|(_, v)| *v)
-        .filter(|v| v.is_finite())
+        .filter(|(_, _, v)| v.is_some_and(f64::is_finite))
         .collect();
     let typical = values
         .iter()
-        .find(|(t, _)| *t == typical_c)
-        .and_then(|(_, v)| *v);
-    let min = present.iter().copied().reduce(f64::min);
-    let max = present.iter().copied().reduce(f64::max);
-    (min, typical, max)
+        .find(|(t, c, _)| *t == typical_c && (c.is_empty() || *c == TYPICAL))
+        .and_then(|(_, _, v)| *v);
+    let value = |c: &&&CaseValue| c.2.unwrap_or(f64::NAN);
+    let min = present.iter().min_by(|a, b| value(a).total_cmp(&value(b)));
+    let max = present.iter().max_by(|a, b| value(a).total_cmp(&value(b)));
+    let cases = values
+        .iter()
+        .map(|(t, c, _)| (t.to_bits(), *c))
+        .collect::<std::collections::BTreeSet<_>>()
+        .len();
+    let corners = values
+        .iter()
+        .any(|(_, c, _)| !c.is_empty() && *c != TYPICAL);
+    let place = |case: &&CaseValue| {
+        if corners {
+            format!("{}, {}", celsius(case.0), case.1)
+        } else {
+            celsius(case.0)
+        }
+    };
+    let at = match (min, max) {
+        (Some(lo), Some(hi)) if cases > 1 => format!("{} / {}", place(lo), place(hi)),
+        _ => String::new(),
+    };
+    (min.and_then(|c| c.2), typical, max.and_then(|c| c.2), at)
 }
 
 /// The datasheet table of one stage.
@@ -87,20 +111,21 @@ pub fn datasheet_table(report: &Report, stage: &str) -> Table {
         ("typ", true),
         ("max", true),
         ("unit", false),
+        ("min / max at", false),
     ]);
     let f_text = frequency
-        .map(|f| format!("f = {}", crate::units::format_si(f, "Hz")))
+        .map(|f| format!("f = {}", si_exact(f, "Hz")))
         .unwrap_or_default();
     let mut row = |name: &str,
                    symbol: &str,
                    conditions: String,
-                   values: Vec<(f64, Option<f64>)>,
+                   values: Vec<CaseValue>,
                    decimals: usize,
                    unit: &str| {
-        if values.iter().all(|(_, v)| v.is_none()) {
+        if values.iter().all(|(_, _, v)| v.is_none()) {
             return;
         }
-        let (min, typ, max) = typ_min_max(&values, typical);
+        let (min, typ, max, at) = typ_min_max(&values, typical);
         table.push(vec![
             name.into(),
             symbol.into(),
@@ -109,6 +134,7 @@ pub fn datasheet_table(report: &Report, stage: &str) -> Table {
             fixed(typ, decimals).into(),
             fixed(max, decimals).into(),
             unit.into(),
+            at.into(),
         ]);
     };
     let intercepts: Vec<_> = report
@@ -117,10 +143,12 @@ pub fn datasheet_table(report: &Report, stage: &str) -> Table {
         .filter(|i| i.stage == stage && Some(i.frequency_hz) == frequency)
         .collect();
     let stages: Vec<_> = report.stages.iter().filter(|s| s.stage == stage).collect();
-    let by_t =
-        |f: &dyn Fn(&crate::report::InterceptRecord) -> Option<f64>| -> Vec<(f64, Option<f64>)> {
-            intercepts.iter().map(|i| (i.temperature_c, f(i))).collect()
-        };
+    let by_t = |f: &dyn Fn(&crate::report::InterceptRecord) -> Option<f64>| -> Vec<CaseValue> {
+        intercepts
+            .iter()
+            .map(|i| (i.temperature_c, i.corner.as_str(), f(i)))
+            .collect()
+    };
     row(
         "small-signal differential gain",
         "A_v",
@@ -135,7 +163,13 @@ pub fn datasheet_table(report: &Report, stage: &str) -> Table {
         "v_d = 0".into(),
         stages
             .iter()
-            .map(|s| (s.temperature_c, Some(s.transconductance_s * 1e3)))
+            .map(|s| {
+                (
+                    s.temperature_c,
+                    s.corner.as_str(),
+                    Some(s.transconductance_s * 1e3),
+                )
+            })
             .collect(),
         3,
         "mS",
@@ -146,7 +180,13 @@ pub fn datasheet_table(report: &Report, stage: &str) -> Table {
         "from the plan's mismatch".into(),
         stages
             .iter()
-            .map(|s| (s.temperature_c, Some(s.input_offset_v * 1e6)))
+            .map(|s| {
+                (
+                    s.temperature_c,
+                    s.corner.as_str(),
+                    Some(s.input_offset_v * 1e6),
+                )
+            })
             .collect(),
         2,
         "µV",
@@ -223,7 +263,7 @@ pub fn datasheet_table(report: &Report, stage: &str) -> Table {
     amplitudes.dedup();
     for a in amplitudes {
         let at = points.iter().filter(|p| p.amplitude_v == a);
-        let conditions = format!("v_d = {} peak, {f_text}", crate::units::format_si(a, "V"));
+        let conditions = format!("v_d = {} peak, {f_text}", si_exact(a, "V"));
         for (name, symbol, get) in [
             (
                 "second harmonic",
@@ -241,7 +281,9 @@ pub fn datasheet_table(report: &Report, stage: &str) -> Table {
                 name,
                 symbol,
                 conditions.clone(),
-                at.clone().map(|p| (p.temperature_c, get(p))).collect(),
+                at.clone()
+                    .map(|p| (p.temperature_c, p.corner.as_str(), get(p)))
+                    .collect(),
                 2,
                 "dBc",
             );
@@ -264,6 +306,7 @@ pub fn budget_table(report: &Report) -> Table {
     columns.extend([
         ("metric", false),
         ("at", true),
+        ("f", true),
         ("limit", true),
         ("value", true),
         ("margin (dB)", true),
@@ -271,25 +314,22 @@ pub fn budget_table(report: &Report) -> Table {
     ]);
     let mut table = Table::new(columns);
     for b in &report.budget {
-        let value_text = |v: f64| b.quantity_text(v);
         let mut row: Vec<Cell> = vec![
             b.stage.as_str().into(),
-            format!("{}", b.temperature_c).into(),
+            temperature_cell(b.temperature_c).into(),
         ];
         if with_corner {
             row.push(b.corner.as_str().into());
         }
         row.extend([
-            b.metric.to_uppercase().into(),
+            metric_label(&b.metric).into(),
             b.at_v
-                .map(|a| crate::units::format_si(a, "V"))
+                .map(|a| si_exact(a, "V"))
                 .unwrap_or_else(|| "—".into())
                 .into(),
-            format!("{} {}", b.kind, value_text(b.limit)).into(),
-            b.value
-                .map(value_text)
-                .unwrap_or_else(|| "below floor".into())
-                .into(),
+            si_exact(b.frequency_hz, "Hz").into(),
+            limit_cell(b).into(),
+            value_cell(b).into(),
             fixed(b.margin, 2).into(),
             Cell::verdict(b.pass, "pass", "FAIL"),
         ]);
@@ -300,34 +340,51 @@ pub fn budget_table(report: &Report) -> Table {
 
 /// The sizing table.
 pub fn sizing_table(report: &Report) -> Table {
-    let mut table = Table::new([
+    let corners = report
+        .sizing
+        .iter()
+        .any(|s| !s.binding_corner.is_empty() && s.binding_corner != TYPICAL);
+    let mut columns = vec![
         ("stage", false),
         ("T (°C)", true),
-        ("R_E (Ω)", true),
+        ("R_E", true),
         ("binding line", false),
+    ];
+    if corners {
+        columns.push(("binding corner", false));
+    }
+    columns.extend([
         ("worst margin (dB)", true),
         ("gain (dB)", true),
         ("gain cost (dB)", true),
         ("steering range", true),
-        ("load (Ω)", true),
+        ("load", true),
         ("result", false),
     ]);
+    let mut table = Table::new(columns);
+    let ohms = |v: Option<f64>| v.map(|r| si_short(r, "Ω")).unwrap_or_else(|| "—".into());
     for s in &report.sizing {
-        table.push(vec![
+        let mut row: Vec<Cell> = vec![
             s.stage.as_str().into(),
-            format!("{}", s.temperature_c).into(),
-            fixed(s.emitter_resistance_ohm, 1).into(),
-            s.binding_metric.to_uppercase().into(),
+            temperature_cell(s.temperature_c).into(),
+            ohms(s.emitter_resistance_ohm).into(),
+            metric_label(&s.binding_metric).into(),
+        ];
+        if corners {
+            row.push(s.binding_corner.as_str().into());
+        }
+        row.extend([
             fixed(Some(s.best_margin), 2).into(),
             fixed(s.gain_db, 2).into(),
             fixed(s.gain_cost_db, 2).into(),
             s.steering_range_v
-                .map(|v| crate::units::format_si(v, "V"))
+                .map(|v| si_short(v, "V"))
                 .unwrap_or_else(|| "—".into())
                 .into(),
-            fixed(s.load_resistance_ohm, 1).into(),
+            ohms(s.load_resistance_ohm).into(),
             Cell::verdict(s.met, "met", "not met"),
         ]);
+        table.push(row);
     }
     table
 }
@@ -335,7 +392,7 @@ pub fn sizing_table(report: &Report) -> Table {
 fn list_of(values: &[f64], unit: &str) -> String {
     values
         .iter()
-        .map(|v| crate::units::format_si(*v, unit))
+        .map(|v| si_exact(*v, unit))
         .collect::<Vec<_>>()
         .join(", ")
 }
@@ -397,7 +454,7 @@ pub fn blocks(report: &Report, figures: &[EmbeddedFigure]) -> Vec<Block> {
         format!("Stages: {}", stages.join(", ")),
         format!(
             "Temperatures: {} (typical values are at {})",
-            temps.iter().map(|t| format!("{t} °C")).collect::<Vec<_>>().join(", "),
+            temps.iter().map(|t| celsius(*t)).collect::<Vec<_>>().join(", "),
             celsius(typical)
         ),
         format!("Frequencies: {}", list_of(&frequencies(report), "Hz")),
@@ -439,7 +496,7 @@ pub fn blocks(report: &Report, figures: &[EmbeddedFigure]) -> Vec<Block> {
             .iter()
             .filter_map(|stage| {
                 super::queries::value_to_build(report, stage)
-                    .map(|r| format!("{stage}: {}", crate::units::format_si(r, "Ω")))
+                    .map(|r| format!("{stage}: {}", si_short(r, "Ω")))
             })
             .collect();
         if !to_build.is_empty() {
@@ -453,16 +510,25 @@ pub fn blocks(report: &Report, figures: &[EmbeddedFigure]) -> Vec<Block> {
         out.push(Block::Heading(2, "Monte Carlo yield".into()));
         let mut table = Table::new([
             ("stage", false),
+            ("corner", false),
             ("T (°C)", true),
             ("runs", true),
-            ("pass fraction", true),
+            ("yield", true),
+            ("95 % interval", true),
         ]);
         for y in &report.yield_ {
             table.push(vec![
                 y.stage.as_str().into(),
-                format!("{}", y.temperature_c).into(),
+                y.corner.as_str().into(),
+                temperature_cell(y.temperature_c).into(),
                 y.runs.to_string().into(),
-                format!("{:.4}", y.pass_fraction).into(),
+                format!("{:.1} %", 100.0 * y.pass_fraction).into(),
+                format!(
+                    "{:.1} % to {:.1} %",
+                    100.0 * y.pass_fraction_low,
+                    100.0 * y.pass_fraction_high
+                )
+                .into(),
             ]);
         }
         out.push(Block::Table(table));
@@ -505,14 +571,14 @@ pub fn markdown(blocks: &[Block], figures: &[EmbeddedFigure]) -> String {
                 );
             }
             Block::Paragraph(text) => {
-                let _ = writeln!(out, "{}\n", markdown_text(text));
+                let _ = writeln!(out, "{}\n", markdown_inline(text));
             }
             Block::Caution(text) => {
                 let _ = writeln!(out, "> **Caution.** {}\n", markdown_text(text));
             }
             Block::Bullets(items) => {
                 for item in items {
-                    let _ = writeln!(out, "- {}", markdown_text(item));
+                    let _ = writeln!(out, "- {}", markdown_inline(item));
                 }
                 let _ = writeln!(out);
             }
@@ -560,6 +626,7 @@ td.pass { color: var(--pass); }
 figure { margin: 18px 0 28px; page-break-inside: avoid; break-inside: avoid; }
 figure svg { width: 100%; height: auto; display: block; border: 1px solid var(--rule); }
 figcaption { color: var(--muted); font-size: 13.5px; margin-top: 6px; }
+code { font-family: 'DejaVu Sans Mono', Menlo, Consolas, monospace; font-size: 0.92em; background: #f3f5f8; padding: 0 3px; border-radius: 3px; }
 a { color: var(--accent); }
 @media print {
   body { max-width: none; padding: 0; font-size: 11pt; }
@@ -601,7 +668,7 @@ pub fn html(report: &Report, blocks: &[Block], figures: &[EmbeddedFigure]) -> St
                 } else {
                     ""
                 };
-                let _ = writeln!(out, "<p{class}>{}</p>", html_text(text));
+                let _ = writeln!(out, "<p{class}>{}</p>", html_inline(text));
             }
             Block::Caution(text) => {
                 let _ = writeln!(
@@ -613,7 +680,7 @@ pub fn html(report: &Report, blocks: &[Block], figures: &[EmbeddedFigure]) -> St
             Block::Bullets(items) => {
                 let _ = writeln!(out, "<ul>");
                 for item in items {
-                    let _ = writeln!(out, "<li>{}</li>", html_text(item));
+                    let _ = writeln!(out, "<li>{}</li>", html_inline(item));
                 }
                 let _ = writeln!(out, "</ul>");
             }
