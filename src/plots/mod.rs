@@ -146,6 +146,11 @@ pub(crate) trait Drawing: Send + Sync {
     fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> DrawResult;
 }
 
+/// The font family every figure names (SVG) and embeds (PNG): DejaVu Sans first.
+pub fn style_family() -> &'static str {
+    style::FAMILY
+}
+
 static FONTS: Once = Once::new();
 
 /// Registers the embedded DejaVu Sans faces with plotters (once per process).

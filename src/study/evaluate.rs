@@ -10,6 +10,7 @@ use crate::study::corners::{spread, CornerSpread};
 use crate::study::montecarlo::{self, Population};
 use crate::study::sizing::{self, SizingOutcome};
 use rayon::prelude::*;
+use std::sync::atomic::{AtomicU64, Ordering};
 use std::sync::Arc;
 
 /// What the evaluation is doing, for a progress display.
@@ -35,6 +36,69 @@ pub enum Progress {
     },
     /// Sizing the emitter degeneration.
     Sizing,
+    /// How far a phase has come: `done` of `total` units (cases, runs or sizing trials). A
+    /// sizing's total is an estimate and grows if the bisection takes longer.
+    Step {
+        /// The phase counted.
+        phase: Phase,
+        /// Units finished.
+        done: u64,
+        /// Units in the phase.
+        total: u64,
+    },
+}
+
+/// The phases of an evaluation that report counted progress.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Phase {
+    /// Drive points: one unit per stage × temperature × corner.
+    DrivePoints,
+    /// Monte Carlo: one unit per run.
+    MonteCarlo,
+    /// Sizing: one unit per trial emitter resistance.
+    Sizing,
+}
+
+/// A thread-safe counter that reports each finished unit of a phase.
+struct Counter<'a> {
+    phase: Phase,
+    done: AtomicU64,
+    total: u64,
+    progress: &'a (dyn Fn(Progress) + Sync),
+}
+
+impl<'a> Counter<'a> {
+    fn new(phase: Phase, total: u64, progress: &'a (dyn Fn(Progress) + Sync)) -> Self {
+        progress(Progress::Step {
+            phase,
+            done: 0,
+            total,
+        });
+        Counter {
+            phase,
+            done: AtomicU64::new(0),
+            total,
+            progress,
+        }
+    }
+
+    fn tick(&self) {
+        let done = self.done.fetch_add(1, Ordering::Relaxed) + 1;
+        (self.progress)(Progress::Step {
+            phase: self.phase,
+            done,
+            total: self.total.max(done),
+        });
+    }
+
+    fn finish(&self) {
+        let done = self.done.load(Ordering::Relaxed);
+        (self.progress)(Progress::Step {
+            phase: self.phase,
+            done,
+            total: done,
+        });
+    }
 }
 
 /// Everything a plan's evaluation found.
@@ -89,12 +153,15 @@ pub fn evaluate(
         frequencies: plan.drive.frequencies.len(),
         amplitudes: plan.drive.amplitudes.len(),
     });
+    let counter = Counter::new(Phase::DrivePoints, cases.len() as u64, progress);
     let evaluated: Vec<CaseEvaluation> = cases
         .par_iter()
         .map(|(index, temperature, corner)| {
             let process = &plan.corners[*corner];
             let stage = process.apply(&plan.stages[*index]);
-            evaluate_case(plan, *index, stage, *temperature, &process.name, &cache)
+            let case = evaluate_case(plan, *index, stage, *temperature, &process.name, &cache);
+            counter.tick();
+            case
         })
         .collect::<Result<Vec<_>, Error>>()?;
     let corner_spread = if plan.corners.len() > 1 {
@@ -111,7 +178,15 @@ pub fn evaluate(
             progress(Progress::MonteCarlo {
                 runs: settings.runs,
             });
-            Some(montecarlo::evaluate(plan, settings, &cache)?)
+            let counter = Counter::new(
+                Phase::MonteCarlo,
+                montecarlo::planned_runs(plan, settings),
+                progress,
+            );
+            let population =
+                montecarlo::evaluate_observed(plan, settings, &cache, &|| counter.tick())?;
+            counter.finish();
+            Some(population)
         }
         None => None,
     };
@@ -125,12 +200,26 @@ pub fn evaluate(
                 .enumerate()
                 .flat_map(|(i, _)| plan.temperatures_c.iter().map(move |t| (i, *t)))
                 .collect();
-            stage_temperatures
+            let counter = Counter::new(
+                Phase::Sizing,
+                (stage_temperatures.len() * sizing::EXPECTED_TRIALS) as u64,
+                progress,
+            );
+            let outcomes = stage_temperatures
                 .par_iter()
                 .map(|(index, temperature)| {
-                    sizing::size_stage(plan, &plan.stages[*index], *temperature, settings, &cache)
+                    sizing::size_stage_observed(
+                        plan,
+                        &plan.stages[*index],
+                        *temperature,
+                        settings,
+                        &cache,
+                        &|| counter.tick(),
+                    )
                 })
-                .collect::<Result<Vec<_>, Error>>()?
+                .collect::<Result<Vec<_>, Error>>()?;
+            counter.finish();
+            outcomes
         }
         None => Vec::new(),
     };

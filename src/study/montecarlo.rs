@@ -279,6 +279,31 @@ pub fn evaluate(
     settings: &MonteCarloSettings,
     cache: &Arc<FftCache>,
 ) -> Result<Population, Error> {
+    evaluate_observed(plan, settings, cache, &|| {})
+}
+
+/// The number of runs [`evaluate`] draws in all: `runs` per temperature of every stage it
+/// does not leave out.
+pub fn planned_runs(plan: &Plan, settings: &MonteCarloSettings) -> u64 {
+    let typical = &plan.corners[0];
+    let drawn = plan
+        .stages
+        .iter()
+        .filter(|nominal| nominal.mismatch_sigma != Mismatch::default())
+        .filter(|nominal| {
+            StageCircuit::new(&typical.apply(nominal), plan.temperatures_c[0]).is_memoryless()
+        })
+        .count();
+    drawn as u64 * plan.temperatures_c.len() as u64 * settings.runs
+}
+
+/// [`evaluate`], calling `run_done` after every run (for a progress count).
+pub fn evaluate_observed(
+    plan: &Plan,
+    settings: &MonteCarloSettings,
+    cache: &Arc<FftCache>,
+    run_done: &(dyn Fn() + Sync),
+) -> Result<Population, Error> {
     let typical = &plan.corners[0];
     let mut population = Population::default();
     for (stage_index, nominal) in plan.stages.iter().enumerate() {
@@ -301,6 +326,7 @@ pub fn evaluate(
                 temperature_c,
                 cache,
                 &typical.name,
+                run_done,
             )?);
         }
     }
@@ -315,6 +341,7 @@ fn evaluate_one(
     temperature_c: f64,
     cache: &Arc<FftCache>,
     corner: &str,
+    run_done: &(dyn Fn() + Sync),
 ) -> Result<StagePopulation, Error> {
     let fail = |failure: SolveFailure| Error::solve(&stage.name, temperature_c, failure);
     let nominal_circuit = StageCircuit::new(stage, temperature_c);
@@ -399,6 +426,7 @@ fn evaluate_one(
                 };
                 pass &= judge(line, value, ANALYSIS_FLOOR_DBC).1;
             }
+            run_done();
             Ok(RunResult {
                 points,
                 offset_v,

@@ -228,6 +228,10 @@ fn corner_headroom(
     Ok(Some(-tone.region.max_base_collector_v))
 }
 
+/// Trials a sizing is expected to take: the scan and about ten bisection steps (from a scan
+/// step down to 0.1 % of the value). For a progress display; the real count may differ.
+pub const EXPECTED_TRIALS: usize = SCAN_POINTS + 10;
+
 /// Finds the least emitter resistance for one stage at one temperature.
 pub fn size_stage(
     plan: &Plan,
@@ -236,6 +240,28 @@ pub fn size_stage(
     settings: &SizingSettings,
     cache: &Arc<FftCache>,
 ) -> Result<SizingOutcome, Error> {
+    size_stage_observed(plan, stage, temperature_c, settings, cache, &|| {})
+}
+
+/// [`size_stage`], calling `trial_done` after every trial R_E (for a progress count).
+pub fn size_stage_observed(
+    plan: &Plan,
+    stage: &Stage,
+    temperature_c: f64,
+    settings: &SizingSettings,
+    cache: &Arc<FftCache>,
+    trial_done: &(dyn Fn() + Sync),
+) -> Result<SizingOutcome, Error> {
+    let trial = |plan: &Plan,
+                 stage: &Stage,
+                 temperature_c: f64,
+                 r: f64,
+                 target_gain: Option<f64>,
+                 cache: &Arc<FftCache>| {
+        let outcome = trial(plan, stage, temperature_c, r, target_gain, cache);
+        trial_done();
+        outcome
+    };
     let target_gain = if settings.hold_gain {
         let measured = measurements(stage, temperature_c, plan, cache);
         Some(
