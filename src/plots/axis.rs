@@ -260,11 +260,12 @@ impl<R: Ranged<ValueType = f64>> Ranged for Ticked<R> {
     }
 }
 
-/// Removes the rounding dust of `k·step` (so 0.30000000000000004 prints as 0.3).
+/// Removes the rounding dust of `k·step` (so 0.30000000000000004 prints, and compares, as 0.3):
+/// rounds to the step's own decimals.
 fn snap(value: f64, step: f64) -> f64 {
-    let quantum = step * 1e-9;
-    let snapped = (value / quantum).round() * quantum;
-    if snapped.abs() < quantum {
+    let scale = 10f64.powi(decimals_of(step) as i32);
+    let snapped = (value * scale).round() / scale;
+    if snapped == 0.0 {
         0.0
     } else {
         snapped

@@ -6,7 +6,7 @@
 //! swatches look alike.
 
 use super::style::*;
-use super::{DrawResult, PlotError};
+use crate::plots::canvas::{DrawResult, PlotError};
 use plotters::coord::Shift;
 use plotters::element::DashedPathElement;
 use plotters::prelude::*;

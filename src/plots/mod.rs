@@ -4,7 +4,7 @@
 //! whose data is absent (no budget, no sizing, one frequency, no Monte Carlo) is skipped, not
 //! drawn empty. Text in the PNG is rasterised from the DejaVu Sans font compiled into the
 //! binary, so no system font or fontconfig is needed; the SVG names the same family
-//! ([`style::FAMILY`]), so both forms look alike wherever DejaVu Sans is installed.
+//! ([`canvas::FAMILY`]), so both forms look alike wherever DejaVu Sans is installed.
 //!
 //! Every figure is prepared before it is drawn: its axes ([`axis::Axis`], ticks at both ends)
 //! and its key ([`key::Key`]: legend entries and the compact verdict table, drawn in a panel
@@ -15,6 +15,7 @@
 //! green round markers pass a budget line and red crosses fail it.
 
 pub mod axis;
+pub mod canvas;
 mod compare;
 mod frequency;
 mod harmonics;
@@ -29,6 +30,7 @@ pub mod verdicts;
 
 use crate::error::Error;
 use crate::plots::axis::Axis;
+pub use crate::plots::canvas::{DrawResult, PlotError, HEIGHT_PX, WIDTH_PX};
 use crate::plots::key::Key;
 use crate::report::datasheet::EmbeddedFigure;
 use crate::report::queries::stage_names;
@@ -37,11 +39,6 @@ use plotters::coord::Shift;
 use plotters::prelude::*;
 use rayon::prelude::*;
 use std::sync::Once;
-
-/// Width of every figure, pixels.
-pub const WIDTH_PX: u32 = 1500;
-/// Height of every figure, pixels.
-pub const HEIGHT_PX: u32 = 1000;
 
 /// The families of figures.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord)]
@@ -100,27 +97,6 @@ pub struct Figure {
     pub png: Vec<u8>,
 }
 
-/// A drawing failure, kept as text (the backends' error types differ).
-#[derive(Debug)]
-pub struct PlotError(pub String);
-
-impl std::fmt::Display for PlotError {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.write_str(&self.0)
-    }
-}
-
-impl std::error::Error for PlotError {}
-
-impl<E: std::error::Error + Send + Sync> From<DrawingAreaErrorKind<E>> for PlotError {
-    fn from(error: DrawingAreaErrorKind<E>) -> Self {
-        PlotError(error.to_string())
-    }
-}
-
-/// Result of drawing one figure.
-pub type DrawResult = Result<(), PlotError>;
-
 /// A figure that can draw itself on any plotters backend.
 pub(crate) trait Drawing: Send + Sync {
     /// Family.
@@ -148,7 +124,7 @@ pub(crate) trait Drawing: Send + Sync {
 
 /// The font family every figure names (SVG) and embeds (PNG): DejaVu Sans first.
 pub fn style_family() -> &'static str {
-    style::FAMILY
+    canvas::FAMILY
 }
 
 static FONTS: Once = Once::new();
@@ -160,14 +136,14 @@ pub fn register_fonts() {
         // surfaces later as a `FontUnavailable` drawing error naming the figure. They are
         // registered under the family name the SVG writes, so both forms name one face.
         let _ = plotters::style::register_font(
-            style::FAMILY,
+            canvas::FAMILY,
             FontStyle::Normal,
             dejavu::sans::regular(),
         );
         let _ =
-            plotters::style::register_font(style::FAMILY, FontStyle::Bold, dejavu::sans::bold());
+            plotters::style::register_font(canvas::FAMILY, FontStyle::Bold, dejavu::sans::bold());
         let _ = plotters::style::register_font(
-            style::FAMILY,
+            canvas::FAMILY,
             FontStyle::Oblique,
             dejavu::sans::oblique(),
         );

@@ -1,7 +1,7 @@
 //! The house style: palette, type sizes, the figure frame and the drawing helpers every
 //! figure shares.
 
-use super::{DrawResult, PlotError, HEIGHT_PX};
+use crate::plots::canvas::{DrawResult, PlotError, HEIGHT_PX};
 pub use crate::report::queries::{stage_names, temperatures, typical_temperature};
 pub use crate::report::text::{
     celsius, level, limit_text, metric_label, num, si, si_exact, si_short,
@@ -76,9 +76,7 @@ const HEADER_PX: u32 = 104;
 /// Footer height, px.
 const FOOTER_PX: u32 = 36;
 
-/// The house face: DejaVu Sans, compiled into the binary for the PNG and named in the SVG
-/// (with near relatives after it for a reader without DejaVu), so both forms look alike.
-pub const FAMILY: &str = "DejaVu Sans, Bitstream Vera Sans, Verdana, sans-serif";
+pub use crate::plots::canvas::FAMILY;
 
 /// A font of the house face.
 pub fn font(size: f64) -> FontDesc<'static> {
