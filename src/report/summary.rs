@@ -43,6 +43,9 @@ pub fn value_cell(b: &BudgetRecord) -> String {
             super::text::level(dbm, "dBm"),
             si_short(v, &b.unit)
         ),
+        // Values to two decimals, as the margins: a trimmed "22 dB" for 21.97 dB would hide
+        // how close a line is.
+        (Some(v), None) if b.unit.starts_with("dB") => format!("{} {}", num(v, 2), b.unit),
         (Some(v), None) => super::text::level(v, &b.unit),
         (None, _) if b.unit == "dBc" => "below floor".into(),
         (None, _) => "—".into(),
