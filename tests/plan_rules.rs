@@ -116,10 +116,10 @@ fn a_noise_band_runs_upwards() {
     ));
     assert_refusal(
         &err,
-        "noise_band",
+        "noise_band.to",
         5,
-        "`to` must exceed `from`",
-        "a band with from < to",
+        "the noise band is reversed: `from` is 10.0 kHz (line 5) but `to` is 1.00 kHz (line 5)",
+        "`from` below `to`",
     );
 }
 
@@ -130,10 +130,10 @@ fn a_sizing_range_runs_upwards() {
     ));
     assert_refusal(
         &err,
-        "sizing.emitter_resistance",
+        "sizing.emitter_resistance.to",
         8,
-        "`to` must exceed `from`",
-        "a range with from < to",
+        "the sizing range is reversed: `from` is 2.00 kΩ (line 8) but `to` is 1.00 kΩ (line 8)",
+        "`from` below `to`",
     );
 }
 
@@ -144,10 +144,10 @@ fn a_sweep_runs_upwards() {
     ));
     assert_refusal(
         &err,
-        "drive.amplitudes",
+        "drive.amplitudes.to",
         5,
-        "`to` must exceed `from`",
-        "a sweep of amplitudes with from < to",
+        "the sweep of amplitudes is reversed: `from` is 100 mV (line 5) but `to` is 1.00 mV (line 5)",
+        "`from` below `to`",
     );
 }
 
@@ -161,7 +161,7 @@ fn stage_names_are_unique() {
         &err,
         "stages[1]",
         4,
-        "stage name `a` is used twice",
+        "stage name `a` is used twice: stages[0] (line 3) and stages[1] (line 4)",
         "a unique name for each stage",
     );
 }
@@ -224,4 +224,135 @@ fn a_budget_limit_is_in_the_metric_s_unit() {
         "drive: {amplitudes: [10 mV]}\nbudget:\n  - {metric: hd3, at: 10 mV, max: 10 mV}\n",
     ));
     assert_eq!(err.key_path, "budget[0].max");
+}
+
+#[test]
+fn a_distortion_limit_is_a_negative_dbc_maximum() {
+    // dBc counts down from the fundamental: a positive maximum would allow a product above it.
+    let err = refused(&plan(
+        "drive: {amplitudes: [10 mV]}\nbudget:\n  - {metric: hd3, at: 10 mV, max: 40}\n",
+    ));
+    assert_refusal(
+        &err,
+        "budget[0].max",
+        6,
+        "a limit of 40 dBc would allow hd3 above the fundamental",
+        "a negative dBc figure",
+    );
+    // A minimum on a distortion product is refused too, with the form that is meant.
+    let err = refused(&plan(
+        "drive: {amplitudes: [10 mV]}\nbudget:\n  - {metric: thd, at: 10 mV, min: 60}\n",
+    ));
+    assert_refusal(
+        &err,
+        "budget[0].min",
+        6,
+        "thd is a level relative to the fundamental",
+        "{metric: thd, max: -60}",
+    );
+    // 0 dBc and below are accepted; a gain line keeps positive limits.
+    assert!(Plan::from_yaml(
+        &plan("drive: {amplitudes: [10 mV]}\nbudget:\n  - {metric: hd3, at: 10 mV, max: 0}\n  - {metric: gain, min: 40}\n"),
+        "rules.yaml"
+    )
+    .is_ok());
+}
+
+#[test]
+fn a_yield_line_needs_monte_carlo_and_takes_a_minimum_fraction() {
+    let err = refused(&plan(
+        "drive: {amplitudes: [10 mV]}\nbudget:\n  - {metric: yield, min: 99%}\n",
+    ));
+    assert_refusal(
+        &err,
+        "budget[0].metric",
+        6,
+        "a yield line needs a Monte Carlo population",
+        "monte_carlo",
+    );
+    let with_runs = "drive: {amplitudes: [10 mV]}\nmonte_carlo: {runs: 10}\nbudget:\n";
+    let err = refused(&plan(&format!(
+        "{with_runs}  - {{metric: yield, max: 1%}}\n"
+    )));
+    assert_refusal(
+        &err,
+        "budget[0].max",
+        7,
+        "takes `min`",
+        "{metric: yield, min: 99%}",
+    );
+    let err = refused(&plan(&format!(
+        "{with_runs}  - {{metric: yield, min: 150%}}\n"
+    )));
+    assert_refusal(&err, "budget[0].min", 7, "is not a yield", "at most 1");
+    let plan = Plan::from_yaml(
+        &plan(&format!("{with_runs}  - {{metric: yield, min: 99%}}\n")),
+        "rules.yaml",
+    )
+    .unwrap();
+    assert_eq!(plan.budget[0].limit, linbudget::Limit::Min(0.99));
+}
+
+#[test]
+fn values_no_bipolar_stage_can_have_are_refused_with_the_range() {
+    let stage = |keys: &str| {
+        format!("name: rules\nstages:\n  - {{name: a, {keys}}}\ndrive: {{amplitudes: [10 mV]}}\n")
+    };
+    let err = refused(&stage("tail_current: 1 MA, load_resistance: 2k"));
+    assert_refusal(
+        &err,
+        "stages[0].tail_current",
+        3,
+        "1000000 A is out of range",
+        "from 1.00 pA to 1.00 A",
+    );
+    let err = refused(&stage("tail_current: 1 mA, load_resistance: 1 mohm"));
+    assert_refusal(
+        &err,
+        "stages[0].load_resistance",
+        3,
+        "is out of range",
+        "from 1.00 Ω to 100 MΩ",
+    );
+    let err = refused(&format!(
+        "temperatures_c: [27, 600]\n{}",
+        stage("tail_current: 1 mA, load_resistance: 2k")
+    ));
+    assert_refusal(
+        &err,
+        "temperatures_c[1]",
+        1,
+        "600 °C is out of range",
+        "from -273 °C to 500 °C",
+    );
+}
+
+#[test]
+fn unusual_but_possible_values_are_accepted_with_a_caution() {
+    let text = "name: rules\ntemperatures_c: [27, 200]\nstages:\n  - {name: a, tail_current: 1 mA, load_resistance: 2k, supply: 60 V}\ndrive: {amplitudes: [10 mV]}\n";
+    let plan = Plan::from_yaml(text, "rules.yaml").unwrap();
+    let paths: Vec<&str> = plan.cautions.iter().map(|c| c.key_path.as_str()).collect();
+    assert_eq!(paths, ["temperatures_c[1]", "stages[0].supply"]);
+    let supply = &plan.cautions[1];
+    assert_eq!(supply.location, "rules.yaml:4:64");
+    assert_eq!(supply.usual, (1.5, 40.0));
+}
+
+#[test]
+fn a_guard_band_is_a_non_negative_number_of_decibels() {
+    let sizing = "drive: {amplitudes: [10 mV]}\nbudget:\n  - {metric: gain, min: 6}\nsizing:\n  emitter_resistance: {from: 0, to: 1k}\n";
+    let err = refused(&plan(&format!("{sizing}  guard_band_db: -1\n")));
+    assert_refusal(
+        &err,
+        "sizing.guard_band_db",
+        9,
+        "is out of range",
+        "from 0 dB to 40.0 dB",
+    );
+    let plan = Plan::from_yaml(
+        &plan(&format!("{sizing}  guard_band_db: 1.5 dB\n")),
+        "rules.yaml",
+    )
+    .unwrap();
+    assert_eq!(plan.sizing.unwrap().guard_band_db, 1.5);
 }

@@ -196,3 +196,184 @@ fn a_tail_law_that_turns_the_current_off_is_refused_with_its_position() {
     .unwrap_err();
     assert!(err.accepted.contains("ptat"), "{err}");
 }
+
+/// The Wilson score interval is the set of p with |p̂ − p| ≤ z·√(p(1 − p)/n) (Wilson 1927):
+/// its ends are the roots of (1 + z²/n)·p² − (2p̂ + z²/n)·p + p̂² = 0, solved here by the
+/// quadratic formula, for small and large samples and both extremes.
+#[test]
+fn wilson_interval_is_the_root_pair_of_the_score_inequality() {
+    for (passes, runs) in [
+        (0u64, 10u64),
+        (1, 10),
+        (5, 10),
+        (10, 10),
+        (490, 1000),
+        (1999, 2000),
+    ] {
+        let (n, p_hat, z) = (runs as f64, passes as f64 / runs as f64, Z_95);
+        let a = 1.0 + z * z / n;
+        let b = -(2.0 * p_hat + z * z / n);
+        let c = p_hat * p_hat;
+        let root = (b * b - 4.0 * a * c).max(0.0).sqrt();
+        let (low, high) = ((-b - root) / (2.0 * a), (-b + root) / (2.0 * a));
+        let (got_low, got_high) = wilson_interval(passes, runs, Z_95);
+        assert!(
+            (got_low - low).abs() < 1e-12 && (got_high - high).abs() < 1e-12,
+            "{passes}/{runs}: ({got_low}, {got_high}) vs ({low}, {high})"
+        );
+        // Each end satisfies the defining equality (p̂ − p)² = z²·p(1 − p)/n.
+        for p in [low, high] {
+            let gap = (p_hat - p).powi(2) - z * z * p * (1.0 - p) / n;
+            assert!(gap.abs() < 1e-12, "{passes}/{runs} at {p}: {gap}");
+        }
+    }
+}
+
+/// A yield line is judged on the pass fraction itself: with an HD2 ceiling set where the
+/// independent yield is about one half, `{metric: yield, min: 99%}` fails, its value agrees with
+/// the independent yield, the Wilson interval is reported beside it, and the runs failing the
+/// HD2 line are the complement.
+#[test]
+fn a_yield_line_fails_where_the_independent_yield_is_one_half() {
+    let sigma = 0.01;
+    let amplitude = 0.02;
+    let phi = thermal_voltage(27.0);
+    let bisect = |target: &dyn Fn(f64) -> f64, mut low: f64, mut high: f64| {
+        for _ in 0..200 {
+            let mid = 0.5 * (low + high);
+            if target(mid) < 0.0 {
+                low = mid;
+            } else {
+                high = mid;
+            }
+        }
+        0.5 * (low + high)
+    };
+    // The ceiling is HD2 at the offset that half the dies stay within.
+    let median_log = bisect(&|m| fraction_within(m, sigma) - 0.49, 0.0, 0.1);
+    let ceiling = ideal_pair_hd2_dbc(amplitude, phi * median_log, phi);
+    let expected_yield = fraction_within(median_log, sigma);
+    let text = format!(
+        "name: mc\nstages:\n  - {{name: ideal, tail_current: 1 mA, load_resistance: 1k, mismatch_sigma: {{saturation_current: 1%}}}}\ndrive: {{amplitudes: [20 mV]}}\nmonte_carlo: {{runs: 2000, seed: 5}}\nbudget:\n  - {{metric: hd2, at: 20 mV, max: {ceiling}}}\n  - {{metric: yield, min: 99%}}\n"
+    );
+    let report = Plan::from_yaml(&text, "mc.yaml")
+        .unwrap()
+        .evaluate()
+        .unwrap();
+    let line = report
+        .budget
+        .iter()
+        .find(|b| b.metric == "yield")
+        .expect("a yield record");
+    let value = line.value.unwrap();
+    // Sampling error √(p(1 − p)/n) ≈ 1.1 points; allow 4 points.
+    assert!(
+        (value - expected_yield).abs() < 0.04,
+        "yield {value} vs independent {expected_yield}"
+    );
+    assert!(!line.pass && (line.margin.unwrap() - (value - 0.99)).abs() < 1e-12);
+    let [low, high] = line.interval.unwrap();
+    let passing = (value * 2000.0).round() as u64;
+    assert_eq!((low, high), wilson_interval(passing, 2000, Z_95));
+    assert!(!report.met() && !report.verdict.as_planned.met);
+    assert_eq!(report.verdict.as_planned.failing[0].metric, "yield");
+    // Per line, the runs failing it: every failing run fails the only other line, HD2.
+    let hd2 = &report.yield_[0].lines[0];
+    assert_eq!(hd2.metric, "hd2");
+    assert!((hd2.failing_fraction - (1.0 - value)).abs() < 1e-12);
+    assert_eq!(report.yield_[0].lines.len(), 1);
+}
+
+/// HD2 of the degenerated ideal pair with an I_S mismatch δ, dBc: the exact transfer is
+/// v + φT·ln(1+δ) = 2φT·atanh(x) + I·R_E·x (KVL with the exponential law, from memory), solved
+/// here by bisection and a direct DFT sum.
+fn degenerated_hd2_dbc(amplitude_v: f64, log_mismatch: f64, emitter: f64, phi: f64) -> f64 {
+    let n = 256;
+    let tail = 1e-3;
+    let x_of = |v: f64| {
+        let (mut low, mut high) = (-1.0f64, 1.0f64);
+        for _ in 0..200 {
+            let mid = 0.5 * (low + high);
+            let f = 2.0 * phi * mid.atanh() + tail * emitter * mid - v - phi * log_mismatch;
+            if f.is_nan() || f > 0.0 {
+                high = mid;
+            } else {
+                low = mid;
+            }
+            if high - low < 1e-17 {
+                break;
+            }
+        }
+        0.5 * (low + high)
+    };
+    let xs: Vec<f64> = (0..n)
+        .map(|i| x_of(amplitude_v * (TAU * i as f64 / n as f64).cos()))
+        .collect();
+    let harmonic = |k: usize| {
+        let (mut re, mut im) = (0.0, 0.0);
+        for (i, x) in xs.iter().enumerate() {
+            let t = TAU * (k * i) as f64 / n as f64;
+            re += x * t.cos();
+            im += x * t.sin();
+        }
+        (re * re + im * im).sqrt()
+    };
+    20.0 * (harmonic(2) / harmonic(1)).log10()
+}
+
+/// When the least R_E holding the other lines misses the yield line, the recommended design is
+/// the least value whose population meets it: against the independent R_E at which the share of
+/// dies with HD2 under the ceiling reaches 95 %.
+#[test]
+fn the_recommended_design_raises_degeneration_until_the_yield_line_is_met() {
+    let (sigma, amplitude, phi) = (0.01, 0.02, thermal_voltage(27.0));
+    let bisect = |target: &dyn Fn(f64) -> f64, mut low: f64, mut high: f64| {
+        for _ in 0..100 {
+            let mid = 0.5 * (low + high);
+            if target(mid) < 0.0 {
+                low = mid;
+            } else {
+                high = mid;
+            }
+        }
+        0.5 * (low + high)
+    };
+    // The ceiling: HD2 of the bare pair at the offset half the dies stay within.
+    let median_log = bisect(&|m| fraction_within(m, sigma) - 0.5, 0.0, 0.1);
+    let ceiling = degenerated_hd2_dbc(amplitude, median_log, 0.0, phi);
+    // 95 % of the dies stay within this offset; HD2 falls with R_E, so the least R_E meeting
+    // the yield puts HD2 at that offset on the ceiling.
+    let log_95 = bisect(&|m| fraction_within(m, sigma) - 0.95, 0.0, 0.1);
+    let expected = bisect(
+        &|r| ceiling - degenerated_hd2_dbc(amplitude, log_95, r, phi),
+        0.0,
+        2000.0,
+    );
+    let text = format!(
+        "name: mc\nstages:\n  - {{name: ideal, tail_current: 1 mA, load_resistance: 1k, mismatch_sigma: {{saturation_current: 1%}}}}\ndrive: {{amplitudes: [20 mV]}}\nmonte_carlo: {{runs: 2000, seed: 5}}\nbudget:\n  - {{metric: hd2, at: 20 mV, max: {ceiling}}}\n  - {{metric: yield, min: 95%}}\nsizing:\n  emitter_resistance: {{from: 0, to: 2k}}\n"
+    );
+    let report = Plan::from_yaml(&text, "mc.yaml")
+        .unwrap()
+        .evaluate()
+        .unwrap();
+    let recommended = report.verdict.recommended.as_ref().unwrap();
+    assert!(
+        report.met() && recommended.met,
+        "{}",
+        report.verdict.summary
+    );
+    assert!(!report.verdict.as_planned.met);
+    let stage = &recommended.stages[0];
+    assert_eq!(stage.basis, "least_in_common_window_meeting_yield");
+    let r_e = stage.emitter_resistance_ohm;
+    // The sampled yield has a standard error of √(0.95·0.05/2000) ≈ 0.5 points, which moves
+    // the 95 % offset by about 1.4 % and R_E by a few per cent; allow 10 %.
+    eprintln!("R_E {r_e:.1} Ω, independent {expected:.1} Ω");
+    assert!((r_e / expected - 1.0).abs() < 0.10, "{r_e} vs {expected}");
+    let line = report
+        .budget
+        .iter()
+        .find(|b| b.stage == "ideal@sized" && b.metric == "yield")
+        .unwrap();
+    assert!(line.pass && line.value.unwrap() >= 0.95);
+}

@@ -228,7 +228,8 @@ impl StageMeasurements {
         line.at.unwrap_or(self.settings.default_amplitude_v)
     }
 
-    /// The value a line constrains (`None`: below the floor or unbounded).
+    /// The value a line constrains (`None`: below the floor or unbounded; always `None` for a
+    /// yield line, which the Monte Carlo study judges).
     pub fn measure(&self, line: &BudgetLine) -> Result<Option<f64>, SolveFailure> {
         let frequency = self.line_frequency(line);
         let amplitude = self.line_amplitude(line);
@@ -263,6 +264,8 @@ impl StageMeasurements {
             Metric::Gain => Some(20.0 * self.gain_at(frequency)?.abs().log10()),
             Metric::SteeringRange => Some(self.steering_range()?),
             Metric::InputNoise => Some(self.noise()?),
+            // A property of the population, not of one stage: the study counts it.
+            Metric::Yield => None,
         })
     }
 }

@@ -21,11 +21,13 @@ pub enum Metric {
     SteeringRange,
     /// White input-referred differential noise density, V/√Hz.
     InputNoise,
+    /// Fraction of the Monte Carlo runs meeting every other budget line (needs `monte_carlo`).
+    Yield,
 }
 
 /// Every metric name a plan accepts, for messages.
 pub const METRIC_NAMES: &str =
-    "hd2, hd3, hd5 (any hdN, N ≥ 2), thd, im3, iip3, oip3, p1db, gain, steering_range, input_noise";
+    "hd2, hd3, hd5 (any hdN, N ≥ 2), thd, im3, iip3, oip3, p1db, gain, steering_range, input_noise, yield";
 
 impl Metric {
     /// The name used in plans and reports (`hd3`, `iip3`, …).
@@ -40,6 +42,7 @@ impl Metric {
             Metric::Gain => "gain".into(),
             Metric::SteeringRange => "steering_range".into(),
             Metric::InputNoise => "input_noise".into(),
+            Metric::Yield => "yield".into(),
         }
     }
 
@@ -61,6 +64,7 @@ impl Metric {
             "gain" => Metric::Gain,
             "steering_range" => Metric::SteeringRange,
             "input_noise" => Metric::InputNoise,
+            "yield" => Metric::Yield,
             other => {
                 let order: usize = other.strip_prefix("hd")?.parse().ok()?;
                 if order < 2 {
@@ -79,6 +83,17 @@ impl Metric {
         )
     }
 
+    /// Whether the metric is a level relative to the fundamental (dBc): a distortion product,
+    /// which a budget can only bound from above.
+    pub fn is_dbc(self) -> bool {
+        matches!(self, Metric::Harmonic(_) | Metric::Thd | Metric::Im3)
+    }
+
+    /// Whether the metric is judged on the Monte Carlo population rather than on one stage.
+    pub fn is_population(self) -> bool {
+        self == Metric::Yield
+    }
+
     /// Whether the metric depends on the drive amplitude (`at`).
     pub fn needs_amplitude(self) -> bool {
         matches!(self, Metric::Harmonic(_) | Metric::Thd | Metric::Im3)
@@ -90,6 +105,7 @@ impl Metric {
             Metric::Harmonic(_) | Metric::Thd | Metric::Im3 => "dBc",
             Metric::Gain => "dB",
             Metric::InputNoise => "V/√Hz",
+            Metric::Yield => "fraction",
             _ => "V",
         }
     }

@@ -40,6 +40,9 @@ pub struct Plan {
     pub reference_impedance: Option<f64>,
     /// Process corners, the typical one first.
     pub corners: Vec<Corner>,
+    /// Values the plan reader accepted but found unusual for a bipolar stage (worded as
+    /// warnings by the report layer).
+    pub cautions: Vec<PlanCaution>,
 }
 
 impl Plan {
@@ -56,6 +59,7 @@ impl Plan {
             noise_band: None,
             reference_impedance: None,
             corners: vec![Corner::typical()],
+            cautions: Vec::new(),
         }
     }
 
@@ -122,4 +126,55 @@ pub struct SizingSettings {
     pub to: f64,
     /// Rescale the load to hold the small-signal gain of the stage as planned.
     pub hold_gain: bool,
+    /// Margin every line must keep at the recommended value, dB (0: the least value that
+    /// passes).
+    pub guard_band_db: f64,
+}
+
+impl SizingSettings {
+    /// Sizing of the emitter resistance over `from..=to` Ω, no guard band, load as planned.
+    pub fn new(from: f64, to: f64) -> Self {
+        SizingSettings {
+            from,
+            to,
+            hold_gain: false,
+            guard_band_db: 0.0,
+        }
+    }
+
+    /// Sets the guard band, dB.
+    #[must_use]
+    pub fn guard_band_db(mut self, guard_band_db: f64) -> Self {
+        self.guard_band_db = guard_band_db;
+        self
+    }
+
+    /// Rescales the load to hold the planned small-signal gain.
+    #[must_use]
+    pub fn hold_gain(mut self, hold_gain: bool) -> Self {
+        self.hold_gain = hold_gain;
+        self
+    }
+}
+
+/// A plan value that was accepted but lies outside what a bipolar stage usually has: the
+/// report warns about it, naming where it was written and the usual range.
+#[derive(Debug, Clone, PartialEq)]
+pub struct PlanCaution {
+    /// Key path, e.g. `stages[0].supply`.
+    pub key_path: String,
+    /// Where the value was written: `file:line:column`, or the `--set` argument.
+    pub location: String,
+    /// 1-based line of the value in the plan file (0 when unknown).
+    pub line: u64,
+    /// 1-based column of the value in the plan file (0 when unknown).
+    pub column: u64,
+    /// The value, in SI base units (°C for temperatures).
+    pub value: f64,
+    /// Unit symbol of the value (`V`, `Ω`, `°C`, or empty for a plain number).
+    pub unit: &'static str,
+    /// The usual range, in the same unit.
+    pub usual: (f64, f64),
+    /// What the value would mean for the stage, in a few words.
+    pub concern: &'static str,
 }

@@ -5,10 +5,12 @@
 //!    numeric ever runs on an unvalidated plan. Every error names the file, line, column, key
 //!    path, what is wrong and what is accepted.
 
+pub(crate) mod overrides;
 pub(crate) mod reader;
 pub(crate) mod tree;
 
 mod corners;
+mod plausibility;
 mod tail;
 
 use crate::error::{Error, PlanError};
@@ -18,6 +20,7 @@ use crate::model::plan::{MonteCarloSettings, NoiseBand, Plan, SizingSettings};
 use crate::model::stage::{Mismatch, Stage};
 use crate::model::transistor::Transistor;
 use crate::units::Unit;
+use overrides::{override_location, parse_override, Override};
 use reader::{At, MapAt, Range};
 use std::path::Path;
 
@@ -85,6 +88,17 @@ const DRIVE_KEYS: &[&str] = &[
 ];
 const SWEEP_KEYS: &[&str] = &["from", "to", "points", "spacing"];
 const BUDGET_KEYS: &[&str] = &["metric", "at", "frequency", "max", "min"];
+const SIZING_KEYS: &[&str] = &["emitter_resistance", "hold_gain", "guard_band_db"];
+
+/// Temperatures a plan may name, °C: refused outside (−273 °C is a kelvin above absolute zero;
+/// above 500 °C no silicon junction is a transistor any more).
+pub const TEMPERATURE_RANGE_C: (f64, f64) = (-273.0, 500.0);
+/// Tail currents a plan may name, A: refused outside (no single bipolar pair runs amperes, and
+/// below a picoampere the junction leakage the model leaves out dominates).
+pub const TAIL_CURRENT_RANGE_A: (f64, f64) = (1e-12, 1.0);
+/// Load resistances a plan may name, Ω: refused outside (below an ohm the gain is lost in the
+/// wiring; above 100 MΩ in the leakage and the next stage's input).
+pub const LOAD_RESISTANCE_RANGE_OHM: (f64, f64) = (1.0, 1e8);
 
 /// Most amplitudes, frequencies or temperatures a plan may list or sweep before it is refused
 /// (the list is held in memory); below this the whole-plan work limit applies.
@@ -92,12 +106,14 @@ pub const MAX_LIST: u64 = 100_000;
 /// Largest Monte Carlo run count read; the work limit normally refuses far fewer.
 pub const MAX_RUNS: u64 = 1_000_000_000_000_000;
 
-/// A plan file's text and the name it is shown by in messages.
+/// A plan file's text, the name it is shown by in messages, and any `--set` overrides.
 pub struct PlanSource {
     /// The file's text.
     pub text: String,
     /// The path as given, for messages.
     pub shown: String,
+    /// `--set KEY.PATH=VALUE` overrides, applied in order before validation.
+    overrides: Vec<Override>,
 }
 
 impl PlanSource {
@@ -123,12 +139,31 @@ impl PlanSource {
             path: path.to_owned(),
             source,
         })?;
-        Ok(PlanSource { text, shown })
+        Ok(PlanSource::from_text(text, shown))
     }
 
-    /// Validates the text into a plan.
+    /// A plan given as text; `shown` names it in messages.
+    pub fn from_text(text: String, shown: String) -> PlanSource {
+        PlanSource {
+            text,
+            shown,
+            overrides: Vec::new(),
+        }
+    }
+
+    /// Adds `--set KEY.PATH=VALUE` overrides (see [`overrides`]); a malformed argument is an
+    /// error located at the argument.
+    pub fn with_overrides(mut self, arguments: &[String]) -> Result<PlanSource, PlanError> {
+        for argument in arguments {
+            let index = self.overrides.len();
+            self.overrides.push(parse_override(argument, index)?);
+        }
+        Ok(self)
+    }
+
+    /// Validates the text, with the overrides applied, into a plan.
     pub fn plan(&self) -> Result<Plan, PlanError> {
-        Plan::from_yaml(&self.text, &self.shown)
+        read_plan(&self.text, &self.shown, &self.overrides)
     }
 
     /// An error about the value at a dotted key path (`monte_carlo.runs`), located in the text
@@ -139,15 +174,79 @@ impl PlanSource {
         problem: impl Into<String>,
         accepted: impl Into<String>,
     ) -> PlanError {
-        let (line, column) = locate(&self.text, key_path).unwrap_or((0, 0));
-        PlanError::at(line, column, key_path, problem, accepted).in_file(&self.shown, &self.text)
+        let (line, column) = self
+            .tree()
+            .ok()
+            .and_then(|root| locate(&root, key_path))
+            .unwrap_or((0, 0));
+        locate_error(
+            PlanError::at(line, column, key_path, problem, accepted),
+            &self.shown,
+            &self.text,
+            &self.overrides,
+        )
+    }
+
+    /// The plan's tree with the overrides applied.
+    fn tree(&self) -> Result<tree::Node, PlanError> {
+        parse_with_overrides(&self.text, &self.shown, &self.overrides)
     }
 }
 
-/// Line and column of the value at a dotted key path, by reading the text again.
-fn locate(text: &str, key_path: &str) -> Option<(u64, u64)> {
-    let root = tree::parse_tree(text).ok()?;
-    let mut node = &root;
+/// Places an error: at the `--set` argument it came from, or at its line of the file.
+fn locate_error(mut err: PlanError, file: &str, text: &str, overrides: &[Override]) -> PlanError {
+    if !err.file.is_empty() {
+        return err;
+    }
+    match override_location(err.line, overrides) {
+        Some(location) => {
+            err.file = location;
+            err.line = 0;
+            err.column = 0;
+            err.source_line = None;
+            err
+        }
+        None => err.in_file(file, text),
+    }
+}
+
+/// Parses the text and applies the overrides in order.
+fn parse_with_overrides(
+    text: &str,
+    file: &str,
+    overrides: &[Override],
+) -> Result<tree::Node, PlanError> {
+    let mut root = tree::parse_tree(text).map_err(|(message, line, column)| {
+        PlanError::at(
+            line,
+            column,
+            "",
+            format!("the YAML cannot be read: {message}"),
+            "a YAML mapping as described in specs/README.md",
+        )
+        .in_file(file, text)
+    })?;
+    for (index, o) in overrides.iter().enumerate() {
+        overrides::apply(&mut root, o, index)?;
+    }
+    Ok(root)
+}
+
+/// Reads and validates a plan: parse, override, validate; every error located.
+fn read_plan(text: &str, file: &str, overrides: &[Override]) -> Result<Plan, PlanError> {
+    let root = parse_with_overrides(text, file, overrides)?;
+    let mut plan =
+        Plan::from_tree(&root).map_err(|err| locate_error(err, file, text, overrides))?;
+    for caution in &mut plan.cautions {
+        caution.location = override_location(caution.line, overrides)
+            .unwrap_or_else(|| format!("{}:{}:{}", file, caution.line, caution.column));
+    }
+    Ok(plan)
+}
+
+/// Line and column of the value at a dotted key path in a plan's tree.
+fn locate(root: &tree::Node, key_path: &str) -> Option<(u64, u64)> {
+    let mut node = root;
     for key in key_path.split('.') {
         let tree::NodeValue::Map(entries) = &node.value else {
             return None;
@@ -179,17 +278,7 @@ impl Plan {
 
     /// Parses and validates plan text; `file` names it in errors.
     pub fn from_yaml(text: &str, file: &str) -> Result<Plan, PlanError> {
-        let root = tree::parse_tree(text).map_err(|(message, line, column)| {
-            PlanError::at(
-                line,
-                column,
-                "",
-                format!("the YAML cannot be read: {message}"),
-                "a YAML mapping as described in specs/README.md",
-            )
-            .in_file(file, text)
-        })?;
-        Plan::from_tree(&root).map_err(|err| err.in_file(file, text))
+        read_plan(text, file, &[])
     }
 
     fn from_tree(root: &tree::Node) -> Result<Plan, PlanError> {
@@ -214,7 +303,12 @@ impl Plan {
                 check_list_len(&at, items.len(), "temperature")?;
                 items
                     .iter()
-                    .map(|item| item.quantity_where(Unit::Celsius, Range::Between(-273.15, 1000.0)))
+                    .map(|item| {
+                        item.quantity_where(
+                            Unit::Celsius,
+                            Range::Within(TEMPERATURE_RANGE_C.0, TEMPERATURE_RANGE_C.1),
+                        )
+                    })
                     .collect::<Result<Vec<_>, _>>()?
             }
             None => vec![27.0],
@@ -227,11 +321,14 @@ impl Plan {
         }
         check_list_len(&stages_at, stage_items.len(), "stage")?;
         let mut stages = Vec::with_capacity(stage_items.len());
-        for item in &stage_items {
+        for (index, item) in stage_items.iter().enumerate() {
             let stage = read_stage(item)?;
-            if stages.iter().any(|s: &Stage| s.name == stage.name) {
+            if let Some(first) = stages.iter().position(|s: &Stage| s.name == stage.name) {
                 return Err(item.error(
-                    format!("stage name `{}` is used twice", stage.name),
+                    format!(
+                        "stage name `{}` is used twice: stages[{first}] (line {}) and stages[{index}] (line {})",
+                        stage.name, stage_items[first].node.line, item.node.line
+                    ),
                     "a unique name for each stage",
                 ));
             }
@@ -252,7 +349,14 @@ impl Plan {
             Some(at) => at
                 .seq("budget lines")?
                 .iter()
-                .map(|line| read_budget_line(line, &drive, reference_impedance))
+                .map(|line| {
+                    read_budget_line(
+                        line,
+                        &drive,
+                        top.get("monte_carlo").is_some(),
+                        reference_impedance,
+                    )
+                })
                 .collect::<Result<Vec<_>, _>>()?,
             None => Vec::new(),
         };
@@ -270,9 +374,9 @@ impl Plan {
             .map(|at| {
                 let map = at.map(&["from", "to"])?;
                 let from = map.quantity("from", Unit::Hertz, Range::NonNegative)?;
-                let to = map.quantity("to", Unit::Hertz, Range::Positive)?;
+                let to = map.quantity("to", Unit::Hertz, Range::NonNegative)?;
                 if to <= from {
-                    return Err(at.error("`to` must exceed `from`", "a band with from < to"));
+                    return Err(reversed(&map, "noise band", from, to, Unit::Hertz));
                 }
                 Ok(NoiseBand { from, to })
             })
@@ -293,7 +397,10 @@ impl Plan {
             }
         }
 
+        let cautions =
+            plausibility::cautions(&top, &stage_items, &temperatures_c, &stages, &drive)?;
         Ok(Plan {
+            cautions,
             corners,
             name,
             temperatures_c,
@@ -362,8 +469,16 @@ fn read_stage(at: &At) -> Result<Stage, PlanError> {
     };
     let stage = Stage {
         name,
-        tail_current: map.quantity("tail_current", Unit::Ampere, Range::Positive)?,
-        load_resistance: map.quantity("load_resistance", Unit::Ohm, Range::Positive)?,
+        tail_current: map.quantity(
+            "tail_current",
+            Unit::Ampere,
+            Range::Within(TAIL_CURRENT_RANGE_A.0, TAIL_CURRENT_RANGE_A.1),
+        )?,
+        load_resistance: map.quantity(
+            "load_resistance",
+            Unit::Ohm,
+            Range::Within(LOAD_RESISTANCE_RANGE_OHM.0, LOAD_RESISTANCE_RANGE_OHM.1),
+        )?,
         emitter_resistance: map.quantity_or(
             "emitter_resistance",
             Unit::Ohm,
@@ -482,7 +597,7 @@ fn read_transistor(at: &At) -> Result<Transistor, PlanError> {
         nominal_temperature_c: map.quantity_or(
             "nominal_temperature_c",
             Unit::Celsius,
-            Range::Between(-273.15, 1000.0),
+            Range::Within(TEMPERATURE_RANGE_C.0, TEMPERATURE_RANGE_C.1),
             d.nominal_temperature_c,
         )?,
         bandgap_ev: map.quantity_or(
@@ -559,10 +674,7 @@ fn read_sweep(at: &At, unit: Unit, what: &str) -> Result<Vec<f64>, PlanError> {
                 },
             };
             if points > 1 && to <= from {
-                return Err(at.error(
-                    "`to` must exceed `from`",
-                    format!("a sweep of {what} with from < to"),
-                ));
+                return Err(reversed(&map, &format!("sweep of {what}"), from, to, unit));
             }
             (0..points)
                 .map(|i| {
@@ -661,6 +773,7 @@ fn dbm_number(at: &At) -> Option<Result<f64, PlanError>> {
 fn read_budget_line(
     at: &At,
     drive: &Drive,
+    monte_carlo: bool,
     reference_impedance: Option<f64>,
 ) -> Result<BudgetLine, PlanError> {
     let map = at.map(BUDGET_KEYS)?;
@@ -685,6 +798,12 @@ fn read_budget_line(
             "drive.two_tone_spacing set, e.g. 100 kHz",
         ));
     }
+    if metric == Metric::Yield && !monte_carlo {
+        return Err(metric_at.error(
+            "a yield line needs a Monte Carlo population to count",
+            "a `monte_carlo: {runs: 2000, seed: 7}` section alongside the yield line",
+        ));
+    }
     let at_amplitude = map
         .get("at")
         .map(|a| a.quantity_where(Unit::Volt, Range::Positive))
@@ -694,6 +813,14 @@ fn read_budget_line(
             return Err(a.error(
                 format!("`at` does not apply to {}", metric.name()),
                 "`at` only on hdN, thd and im3 lines",
+            ));
+        }
+    }
+    if metric == Metric::Yield {
+        if let Some(f) = map.get("frequency") {
+            return Err(f.error(
+                "`frequency` does not apply to a yield line: it counts the runs meeting every other line, each at its own frequency",
+                "{metric: yield, min: 99%}",
             ));
         }
     }
@@ -721,7 +848,46 @@ fn read_budget_line(
                 )),
             };
         }
-        let value = if metric.is_decibel() {
+        let value = if metric == Metric::Yield {
+            if key == "max" {
+                return Err(limit_at.error(
+                    "a yield line sets the least pass fraction, so it takes `min`",
+                    "{metric: yield, min: 99%}",
+                ));
+            }
+            let fraction = limit_at.quantity(Unit::Ratio)?;
+            if !(fraction > 0.0 && fraction <= 1.0) {
+                return Err(limit_at.error(
+                    format!("a pass fraction of {fraction} is not a yield"),
+                    "a fraction above 0 and at most 1, e.g. 99% or 0.99",
+                ));
+            }
+            fraction
+        } else if metric.is_dbc() {
+            if key == "min" {
+                return Err(limit_at.error(
+                    format!(
+                        "{} is a level relative to the fundamental; a budget bounds it from above",
+                        metric.name()
+                    ),
+                    format!(
+                        "`max` with a negative dBc figure, e.g. {{metric: {}, max: -60}}",
+                        metric.name()
+                    ),
+                ));
+            }
+            let value = limit_at.quantity_where(Unit::Decibel, Range::Finite)?;
+            if value > 0.0 {
+                return Err(limit_at.error(
+                    format!(
+                        "a limit of {value} dBc would allow {} above the fundamental itself; dBc counts down from the fundamental",
+                        metric.name()
+                    ),
+                    "a negative dBc figure, e.g. max: -60 (60 dB below the fundamental)",
+                ));
+            }
+            value
+        } else if metric.is_decibel() {
             limit_at.quantity_where(Unit::Decibel, Range::Finite)?
         } else {
             // Intercepts, compression, steering range and noise density are all in volts.
@@ -729,6 +895,12 @@ fn read_budget_line(
         };
         Ok(Some(value))
     };
+    if map.get("max").is_some() == map.get("min").is_some() {
+        return Err(at.error(
+            "a budget line needs exactly one of `max` or `min`",
+            "{metric: hd3, at: 100 mV, max: -60} or {metric: iip3, min: 300 mV}",
+        ));
+    }
     let limit = match (read_limit("max")?, read_limit("min")?) {
         (Some(max), None) => Limit::Max(max),
         (None, Some(min)) => Limit::Min(min),
@@ -747,23 +919,71 @@ fn read_budget_line(
     })
 }
 
+/// Where a value was written, for a message naming two places: `line 5`, or `--set`.
+fn written_at(at: &At) -> String {
+    if at.node.line >= overrides::SET_LINE_BASE {
+        "given with --set".to_owned()
+    } else {
+        format!("line {}", at.node.line)
+    }
+}
+
+/// A `{from, to}` range whose ends are equal or the wrong way round, said in the plan's words
+/// and naming where each end is written; located at `to`.
+fn reversed(map: &MapAt, what: &str, from: f64, to: f64, unit: Unit) -> PlanError {
+    let (Some(from_at), Some(to_at)) = (map.get("from"), map.get("to")) else {
+        return PlanError::at(
+            0,
+            0,
+            "",
+            format!("the {what} has no `from` or `to`"),
+            "{from, to}",
+        );
+    };
+    let show = |v: f64| crate::units::format_si(v, unit.symbol());
+    let problem = if from == to {
+        format!(
+            "the {what} is empty: `from` ({}) and `to` ({}) are both {}",
+            written_at(&from_at),
+            written_at(&to_at),
+            show(from)
+        )
+    } else {
+        format!(
+            "the {what} is reversed: `from` is {} ({}) but `to` is {} ({}); `from` is the lower end",
+            show(from),
+            written_at(&from_at),
+            show(to),
+            written_at(&to_at)
+        )
+    };
+    to_at.error(problem, "`from` below `to` (swap the two values)")
+}
+
 fn read_sizing(at: &At) -> Result<SizingSettings, PlanError> {
-    let map = at.map(&["emitter_resistance", "hold_gain"])?;
+    let map = at.map(SIZING_KEYS)?;
     let range_at = map.required("emitter_resistance", "{from: 0, to: 5k}")?;
     let range = range_at.map(&["from", "to"])?;
     let from = range.quantity("from", Unit::Ohm, Range::NonNegative)?;
-    let to = range.quantity("to", Unit::Ohm, Range::Positive)?;
+    let to = range.quantity("to", Unit::Ohm, Range::NonNegative)?;
     if to <= from {
-        return Err(range_at.error("`to` must exceed `from`", "a range with from < to"));
+        return Err(reversed(&range, "sizing range", from, to, Unit::Ohm));
     }
     let hold_gain = match map.get("hold_gain") {
         Some(h) => h.boolean()?,
         None => false,
     };
+    let guard_band_db = map.quantity_or(
+        "guard_band_db",
+        Unit::Decibel,
+        Range::Within(0.0, 40.0),
+        0.0,
+    )?;
     Ok(SizingSettings {
         from,
         to,
         hold_gain,
+        guard_band_db,
     })
 }
 
@@ -934,6 +1154,7 @@ mod tests {
         let source = PlanSource {
             text: format!("{MINIMAL}monte_carlo:\n  runs: 5\n"),
             shown: "p.yaml".into(),
+            overrides: Vec::new(),
         };
         let err = source.error_at_key("monte_carlo.runs", "too many", "fewer");
         assert_eq!((err.line, err.column), (6, 9));

@@ -183,8 +183,8 @@ impl<'a> At<'a> {
 fn accepted_phrase(unit: Unit, range: Range) -> String {
     let description = unit.describe();
     match description.split_once(", e.g.") {
-        Some((kind, examples)) => format!("{kind} {}, e.g.{examples}", range.phrase()),
-        None => format!("{description} {}", range.phrase()),
+        Some((kind, examples)) => format!("{kind} {}, e.g.{examples}", range.phrase(unit)),
+        None => format!("{description} {}", range.phrase(unit)),
     }
 }
 
@@ -209,6 +209,9 @@ pub enum Range {
     Finite,
     /// Finite, strictly between the bounds.
     Between(f64, f64),
+    /// Finite, from the first bound to the second, both included (bounds shown with SI
+    /// prefixes in the unit of the key).
+    Within(f64, f64),
 }
 
 impl Range {
@@ -219,6 +222,7 @@ impl Range {
             Range::NonNegative => value.is_finite() && value >= 0.0,
             Range::Finite => value.is_finite(),
             Range::Between(low, high) => value.is_finite() && value > low && value < high,
+            Range::Within(low, high) => value.is_finite() && value >= low && value <= high,
         };
         if ok {
             Ok(())
@@ -229,8 +233,13 @@ impl Range {
         }
     }
 
-    fn phrase(self) -> String {
+    fn phrase(self, unit: Unit) -> String {
         match self {
+            Range::Within(low, high) => format!(
+                "from {} to {}",
+                crate::units::format_si(low, unit.symbol()),
+                crate::units::format_si(high, unit.symbol())
+            ),
             Range::Positive => "greater than zero and finite".into(),
             Range::PositiveOrInfinite => "greater than zero (.inf means ideal)".into(),
             Range::NonNegative => "zero or more, finite".into(),

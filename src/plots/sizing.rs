@@ -20,6 +20,8 @@ pub struct SizingPlot {
     x: Axis,
     y: Axis,
     y2: Axis,
+    /// Ranges of R_E usable at every temperature, Ω (shaded).
+    windows: Vec<[f64; 2]>,
 }
 
 const GAIN_COLOUR: RGBColor = RGBColor(0x7a, 0x80, 0x8a);
@@ -66,6 +68,14 @@ impl SizingPlot {
         let y2 = Axis::linear(g_low - 1.0, g_high + 1.0, 6);
         let x = Axis::linear_exact(r_low, r_high, 6).in_unit("Ω");
         let line_count = scans.map(|s| s.margins.len()).max().unwrap_or(0);
+        let windows = report
+            .verdict
+            .recommended
+            .iter()
+            .flat_map(|r| &r.stages)
+            .filter(|s| s.stage == stage)
+            .flat_map(|s| s.window_ohm.iter().copied())
+            .collect();
         Some(SizingPlot {
             stage: stage.to_owned(),
             slug: slug.to_owned(),
@@ -75,6 +85,7 @@ impl SizingPlot {
             x,
             y,
             y2,
+            windows,
         })
     }
 
@@ -115,7 +126,7 @@ impl Drawing for SizingPlot {
     }
     fn caption(&self) -> String {
         format!(
-            "Margin of each budget line of “{}” on the stage as planned with R_E swept (left axis, dB, positive passes; the worst corner at each value) and small-signal gain (right axis) versus emitter resistance per side; the vertical lines mark the least value meeting every line at each temperature.",
+            "Margin of each budget line of “{}” on the stage as planned with R_E swept (left axis, dB, positive passes; the worst corner at each value) and small-signal gain (right axis) versus emitter resistance per side; the vertical lines mark each temperature's least value, and the green band the values usable at every temperature.",
             self.stage
         )
     }
@@ -240,6 +251,9 @@ impl Drawing for SizingPlot {
             vec![(r_low, 0.0), (r_high, 0.0)],
             INK.stroke_width(2),
         )))?;
+        chart.draw_series(self.windows.iter().map(|[low, high]| {
+            Rectangle::new([(*low, y_low), (*high, y_high)], PASS.mix(0.08).filled())
+        }))?;
 
         for (ti, record) in self.records.iter().enumerate() {
             for k in 0..self.line_count {

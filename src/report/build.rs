@@ -3,22 +3,27 @@
 
 use crate::error::Error;
 use crate::measure::small_signal::STEERING_FRACTION;
-use crate::model::budget::Metric;
+use crate::model::budget::{BudgetLine, Limit, Metric};
 use crate::model::corner::TYPICAL;
-use crate::model::plan::Plan;
+use crate::model::plan::{Plan, PlanCaution, SizingSettings};
 use crate::model::stage::Stage;
+use crate::report::text::celsius;
 use crate::report::{
-    dbm, AnalysisRecord, BudgetRecord, Harmonics, InterceptRecord, MonteCarloRecord, PointRecord,
-    Report, SizingRecord, SizingScanRecord, SpreadRecord, StageRecord, TransferRecord, YieldRecord,
-    CAUTION,
+    dbm, quantity_text, AnalysisRecord, BudgetRecord, DesignVerdictRecord, FailingCheckRecord,
+    Harmonics, InterceptRecord, MonteCarloRecord, PointRecord, RecommendedStageRecord,
+    RecommendedVerdictRecord, Report, SizingRecord, SizingScanRecord, SpreadRecord, StageRecord,
+    TransferRecord, UnreachableRecord, VerdictRecord, YieldLineRecord, YieldRecord, CAUTION,
 };
 use crate::solve::response::CUTOFF_FRACTION;
 use crate::solve::spectrum::{ANALYSIS_FLOOR_DBC, CONVERGED_DB};
 use crate::study::case::{CaseEvaluation, DrivePoint};
 use crate::study::corners::{CornerSpread, SpreadFigure};
-use crate::study::evaluate::{evaluate, PlanEvaluation, Progress};
+use crate::study::evaluate::{evaluate, PlanEvaluation, Progress, RecommendedStage};
 use crate::study::montecarlo::{Population, PopulationFigure};
-use crate::study::sizing::{Binding, SizingOutcome, Trial};
+use crate::study::sizing::{
+    Basis, Binding, RangeEnd, RangeHint, SizingOutcome, Trial, Unreachable,
+};
+use crate::study::verdict::{DesignVerdict, FailingCheck, Judged, Verdict};
 use crate::units::format_si;
 
 /// Name of the yield interval written in the report.
@@ -50,15 +55,25 @@ impl Plan {
     }
 }
 
-/// The report of an evaluated plan.
+/// The report of an evaluated plan, its answer about the recommended design (plans with
+/// sizing) or the design as planned.
 pub fn build(plan: &Plan, evaluation: PlanEvaluation) -> Report {
-    let met = evaluation.met(plan);
+    build_judged(plan, evaluation, Judged::Recommended)
+}
+
+/// The report of an evaluated plan, with the overall answer about the design `judged` asks
+/// for.
+pub fn build_judged(plan: &Plan, evaluation: PlanEvaluation, judged: Judged) -> Report {
+    let verdict = evaluation.verdict();
     let PlanEvaluation {
         cases,
         spread,
         population,
         sizing,
+        recommended,
     } = evaluation;
+    let verdict = verdict_record(plan, &verdict, &recommended, &sizing, judged);
+    let met = verdict.met;
     let mut report = Report {
         plan: plan.name.clone(),
         points: Vec::new(),
@@ -76,32 +91,475 @@ pub fn build(plan: &Plan, evaluation: PlanEvaluation) -> Report {
             steering_fraction: STEERING_FRACTION,
             version: env!("CARGO_PKG_VERSION").to_owned(),
         },
-        warnings: Vec::new(),
+        warnings: plan.cautions.iter().map(caution_warning).collect(),
         met,
+        verdict,
         caution: CAUTION.to_owned(),
     };
-    for case in cases {
+    let derived = recommended.iter().flat_map(|design| {
+        let from = plan.stages[design.recommendation.stage_index].name.clone();
+        design
+            .cases
+            .iter()
+            .map(move |case| (case.clone(), Some(from.clone())))
+    });
+    for (case, derived_from) in cases.into_iter().map(|c| (c, None)).chain(derived) {
         let CaseRecords {
             points,
             intercepts,
             stage,
             budget,
             warnings,
-        } = case_records(plan, case);
+        } = case_records(plan, case, derived_from);
         report.points.extend(points);
         report.intercepts.extend(intercepts);
         report.stages.push(stage);
         report.budget.extend(budget);
         report.warnings.extend(warnings);
     }
+    report.corner_spread.extend(
+        recommended
+            .iter()
+            .flat_map(|design| design.spread.iter().map(|s| spread_record(plan, s))),
+    );
     if let Some(population) = population {
-        let (distributions, yields, warnings) = population_records(population);
+        let (distributions, yields, warnings) = population_records(plan, population);
         report.monte_carlo = distributions;
         report.yield_ = yields;
         report.warnings.extend(warnings);
     }
     report.sizing = sizing.into_iter().map(|s| sizing_record(plan, s)).collect();
     report
+}
+
+/// Re-judges a report: the overall answer (and `met`) about the design `judged` asks for. Both
+/// verdicts are already in the report; only the answer and its summary change.
+pub fn rejudge(report: &mut Report, judged: Judged) {
+    judge_verdict(&mut report.verdict, judged);
+    report.met = report.verdict.met;
+}
+
+/// Sets the answer of a verdict record (and its summary) to the design `judged` asks for.
+fn judge_verdict(verdict: &mut VerdictRecord, judged: Judged) {
+    verdict.judged = judged_name(judged, verdict.recommended.is_some()).into();
+    verdict.met = match (&verdict.recommended, judged) {
+        (Some(recommended), Judged::Recommended) => recommended.met,
+        _ => verdict.as_planned.met,
+    };
+    verdict.summary = summary_line(verdict, judged);
+}
+
+fn judged_name(judged: Judged, has_recommended: bool) -> &'static str {
+    match (judged, has_recommended) {
+        (Judged::Recommended, true) => "recommended",
+        _ => "as_planned",
+    }
+}
+
+/// The cautions of a validated plan, in words (what `check` prints).
+pub fn plan_warnings(plan: &Plan) -> Vec<String> {
+    plan.cautions.iter().map(caution_warning).collect()
+}
+
+/// A caution about a plan value, in words.
+fn caution_warning(caution: &PlanCaution) -> String {
+    let show = |v: f64| {
+        if caution.unit == "°C" {
+            format!("{} °C", crate::report::text::num(v, 0))
+        } else {
+            format_si(v, caution.unit).trim_end().to_owned()
+        }
+    };
+    let usual = match caution.usual {
+        (low, high) if high.is_infinite() => format!("at least {}", show(low)),
+        (low, high) if low <= 0.0 => format!("up to {}", show(high)),
+        (low, high) => format!("{} to {}", show(low), show(high)),
+    };
+    format!(
+        "{}: {}: {} is {} (usual: {usual}); accepted, but check the value",
+        caution.location,
+        caution.key_path,
+        show(caution.value),
+        caution.concern
+    )
+}
+
+/// A metric's name as a reader expects it (`HD3`, `IIP3`, `P1dB`, `gain`).
+fn metric_label(name: &str) -> String {
+    match name {
+        "p1db" => "P1dB".into(),
+        "steering_range" => "steering range".into(),
+        "input_noise" => "input noise".into(),
+        "gain" | "yield" => name.into(),
+        other => other.to_uppercase(),
+    }
+}
+
+/// A budget line in words: `HD3 at 150 mV ≤ −55.00 dBc`.
+fn line_text(line: &BudgetLine, at_v: Option<f64>) -> String {
+    let unit = line.metric.unit_label();
+    let at = at_v
+        .map(|a| format!(" at {}", format_si(a, "V")))
+        .unwrap_or_default();
+    let sign = match line.limit {
+        Limit::Max(_) => "≤",
+        Limit::Min(_) => "≥",
+    };
+    format!(
+        "{}{at} {sign} {}",
+        metric_label(&line.metric.name()),
+        quantity_text(unit, line.limit.value())
+    )
+}
+
+/// Where a check is: `of `x@sized` at 27 °C` plus the corner when it is not the typical one.
+fn place_text(stage: &str, temperature_c: f64, corner: &str) -> String {
+    let corner = if corner.is_empty() || corner == TYPICAL {
+        String::new()
+    } else {
+        format!(", {corner} corner")
+    };
+    format!("`{stage}` at {}{corner}", celsius(temperature_c))
+}
+
+fn failing_record(plan: &Plan, check: &FailingCheck) -> FailingCheckRecord {
+    let line = &plan.budget[check.line];
+    let unit = line.metric.unit_label();
+    let value = match check.value {
+        Some(v) => quantity_text(unit, v),
+        None if line.metric.is_population() => "not estimated".into(),
+        None => "no value".into(),
+    };
+    FailingCheckRecord {
+        stage: check.stage.clone(),
+        temperature_c: check.temperature_c,
+        corner: check.corner.clone(),
+        metric: line.metric.name(),
+        at_v: check.amplitude_v,
+        kind: line.limit.kind().into(),
+        limit: line.limit.value(),
+        value: check.value,
+        margin: check.margin,
+        unit: unit.into(),
+        text: format!(
+            "{} fails for {}: {value}",
+            line_text(line, check.amplitude_v),
+            place_text(&check.stage, check.temperature_c, &check.corner)
+        ),
+    }
+}
+
+fn design_verdict_record(plan: &Plan, verdict: &DesignVerdict) -> DesignVerdictRecord {
+    DesignVerdictRecord {
+        met: verdict.met,
+        checks: verdict.checks,
+        failing: verdict
+            .failing
+            .iter()
+            .map(|c| failing_record(plan, c))
+            .collect(),
+    }
+}
+
+fn unreachable_record(
+    plan: &Plan,
+    settings: &SizingSettings,
+    outcome: &SizingOutcome,
+    unreachable: &Unreachable,
+) -> UnreachableRecord {
+    let line = &plan.budget[unreachable.line];
+    let unit = line.metric.unit_label();
+    let at_v = line
+        .metric
+        .needs_amplitude()
+        .then(|| plan.drive.amplitude_of(line));
+    let best = match (unreachable.best_value, line.limit) {
+        (Some(v), Limit::Min(_)) => format!("the most is {}", quantity_text(unit, v)),
+        (Some(v), Limit::Max(_)) => format!("the least is {}", quantity_text(unit, v)),
+        (None, _) => "no value is reached".into(),
+    };
+    let corner = if unreachable.corner == TYPICAL || plan.corners.len() < 2 {
+        String::new()
+    } else {
+        format!(" in the {} corner", unreachable.corner)
+    };
+    let advice = match unreachable.at_end {
+        Some(RangeEnd::To) => "; it still improves at `to`: widen `to`".to_owned(),
+        Some(RangeEnd::From) if settings.from > 0.0 => {
+            "; it still improves at `from`: lower `from`".to_owned()
+        }
+        Some(RangeEnd::From) => "; no degeneration at all is the best it gets".to_owned(),
+        None => String::new(),
+    };
+    UnreachableRecord {
+        stage: outcome.stage.clone(),
+        temperature_c: outcome.temperature_c,
+        metric: line.metric.name(),
+        at_v,
+        kind: line.limit.kind().into(),
+        limit: line.limit.value(),
+        unit: unit.into(),
+        best_value: unreachable.best_value,
+        best_margin: unreachable.best_margin,
+        at_emitter_resistance_ohm: unreachable.at_emitter_resistance,
+        corner: unreachable.corner.clone(),
+        text: format!(
+            "{} cannot be met at any R_E from {} to {} for `{}` at {}; {best} at {}{corner}{advice}",
+            line_text(line, at_v),
+            format_si(settings.from, "Ω"),
+            format_si(settings.to, "Ω"),
+            outcome.stage,
+            celsius(outcome.temperature_c),
+            format_si(unreachable.at_emitter_resistance, "Ω"),
+        ),
+    }
+}
+
+fn hint_text(settings: &SizingSettings, outcome: &SizingOutcome, hint: RangeHint) -> String {
+    let at = celsius(outcome.temperature_c);
+    match hint {
+        RangeHint::AnswerAtFrom => format!(
+            "{at}: the least value that holds is `from` itself ({}); a smaller one may hold too: lower `from`",
+            format_si(settings.from, "Ω")
+        ),
+        RangeHint::AnswerNearTo => format!(
+            "{at}: the only values that hold lie in the last scan step below `to` ({}): widen `to` to see how far the window extends",
+            format_si(settings.to, "Ω")
+        ),
+        RangeHint::BestAt(RangeEnd::To) => format!(
+            "{at}: no value holds every line, and the worst margin still improves at `to` ({}): widen `to`",
+            format_si(settings.to, "Ω")
+        ),
+        RangeHint::BestAt(RangeEnd::From) => format!(
+            "{at}: no value holds every line, and the worst margin still improves at `from` ({}): lower `from`",
+            format_si(settings.from, "Ω")
+        ),
+    }
+}
+
+fn basis_name(basis: Basis) -> &'static str {
+    match basis {
+        Basis::CommonWindow => "least_in_common_window",
+        Basis::ReachableLines => "least_meeting_reachable_lines",
+        Basis::BestWorstMargin => "best_worst_margin",
+        Basis::YieldInWindow => "least_in_common_window_meeting_yield",
+    }
+}
+
+fn recommended_stage_record(
+    plan: &Plan,
+    settings: &SizingSettings,
+    design: &RecommendedStage,
+    sizing: &[SizingOutcome],
+) -> RecommendedStageRecord {
+    let r = &design.recommendation;
+    let planned = &plan.stages[r.stage_index];
+    let outcomes: Vec<&SizingOutcome> = sizing.iter().filter(|o| o.stage == planned.name).collect();
+    let mut hints: Vec<String> = Vec::new();
+    for outcome in outcomes.iter().filter(|o| o.headroom_binds && !o.met) {
+        hints.push(format!(
+            "{}: every R_E whose distortion passes leaves the collector-base junction without reverse bias (hold_gain scales the load up): raise the supply, lower the input common mode or relax the gain to hold",
+            celsius(outcome.temperature_c)
+        ));
+    }
+    if r.yield_short {
+        hints.push(
+            "no value tried in the usable windows brings the Monte Carlo yield up to the yield line: the yield is limited by matching, not by degeneration (tighten mismatch_sigma or relax the line)".into(),
+        );
+    }
+    if r.basis == Basis::YieldInWindow {
+        hints.push(format!(
+            "the least value holding every other line falls short of the yield line; {} is the least value in the usable windows whose Monte Carlo population meets it",
+            format_si(r.emitter_resistance, "Ω")
+        ));
+    }
+    if outcomes.iter().all(|o| o.met) && !r.met {
+        hints.push(
+            "every temperature has usable values, but no single R_E is usable at all of them: the windows do not overlap".into(),
+        );
+    }
+    for outcome in &outcomes {
+        for hint in &outcome.hints {
+            let text = hint_text(settings, outcome, *hint);
+            if !hints.contains(&text) {
+                hints.push(text);
+            }
+        }
+    }
+    RecommendedStageRecord {
+        stage: planned.name.clone(),
+        evaluated_as: design.stage.name.clone(),
+        emitter_resistance_ohm: r.emitter_resistance,
+        load_resistance_ohm: r.load_resistance,
+        planned_emitter_resistance_ohm: planned.emitter_resistance,
+        planned_load_resistance_ohm: planned.load_resistance,
+        found: r.met,
+        basis: basis_name(r.basis).into(),
+        window_ohm: r.windows.iter().map(|&(low, high)| [low, high]).collect(),
+        unreachable: outcomes
+            .iter()
+            .flat_map(|o| {
+                o.unreachable
+                    .iter()
+                    .map(|u| unreachable_record(plan, settings, o, u))
+            })
+            .collect(),
+        hints,
+    }
+}
+
+fn verdict_record(
+    plan: &Plan,
+    verdict: &Verdict,
+    recommended: &[RecommendedStage],
+    sizing: &[SizingOutcome],
+    judged: Judged,
+) -> VerdictRecord {
+    let recommended_record = match (&verdict.recommended, &plan.sizing) {
+        (Some(v), Some(settings)) => {
+            let design = design_verdict_record(plan, v);
+            Some(RecommendedVerdictRecord {
+                met: design.met,
+                checks: design.checks,
+                failing: design.failing,
+                stages: recommended
+                    .iter()
+                    .map(|d| recommended_stage_record(plan, settings, d, sizing))
+                    .collect(),
+            })
+        }
+        _ => None,
+    };
+    let mut record = VerdictRecord {
+        met: false,
+        judged: String::new(),
+        summary: String::new(),
+        as_planned: design_verdict_record(plan, &verdict.as_planned),
+        recommended: recommended_record,
+    };
+    judge_verdict(&mut record, judged);
+    record
+}
+
+/// The values to build, in words: `R_E = 520 Ω` or `R_E = 119 Ω for a, 118 Ω for b`, with the
+/// load where it differs from the plan's.
+fn values_text(stages: &[RecommendedStageRecord]) -> String {
+    let one = |s: &RecommendedStageRecord| {
+        let load = if (s.load_resistance_ohm / s.planned_load_resistance_ohm - 1.0).abs() > 1e-9 {
+            format!(" and R_L = {}", format_si(s.load_resistance_ohm, "Ω"))
+        } else {
+            String::new()
+        };
+        (format_si(s.emitter_resistance_ohm, "Ω"), load)
+    };
+    match stages {
+        [single] => {
+            let (r_e, load) = one(single);
+            format!("R_E = {r_e}{load}")
+        }
+        _ => format!(
+            "R_E = {}",
+            stages
+                .iter()
+                .map(|s| {
+                    let (r_e, load) = one(s);
+                    format!("{r_e}{load} for `{}`", s.stage)
+                })
+                .collect::<Vec<_>>()
+                .join(", ")
+        ),
+    }
+}
+
+fn failing_count(v: &DesignVerdictRecord) -> String {
+    if v.met {
+        if v.checks == 1 {
+            "the 1 check passes".into()
+        } else {
+            format!("all {} checks pass", v.checks)
+        }
+    } else {
+        format!("{} of {} checks fail", v.failing.len(), v.checks)
+    }
+}
+
+/// The answer in one line, naming the design that met (or did not).
+fn summary_line(v: &VerdictRecord, judged: Judged) -> String {
+    let planned = &v.as_planned;
+    let first_failure = |design: &DesignVerdictRecord| {
+        design
+            .failing
+            .first()
+            .map(|f| format!(" — {}", f.text))
+            .unwrap_or_default()
+    };
+    match (&v.recommended, judged) {
+        (Some(r), Judged::Recommended) => {
+            let values = values_text(&r.stages);
+            let planned_part = if planned.met {
+                format!("as planned: {} too", failing_count(planned))
+            } else {
+                format!("as planned: {}", failing_count(planned))
+            };
+            if r.met {
+                format!("met with {values} ({planned_part})")
+            } else {
+                let reason = r
+                    .stages
+                    .iter()
+                    .flat_map(|s| s.unreachable.first())
+                    .next()
+                    .map(|u| format!(" — {}", u.text))
+                    .or_else(|| r.failing.first().map(|f| format!(" — {}", f.text)))
+                    .or_else(|| {
+                        r.stages
+                            .iter()
+                            .flat_map(|s| s.hints.first())
+                            .next()
+                            .map(|h| format!(" — {h}"))
+                    })
+                    .unwrap_or_else(|| {
+                        " — sizing found no value holding every line at every temperature".into()
+                    });
+                let count = if r.failing.is_empty() {
+                    "every budget check passes, but not sizing's own constraints".to_owned()
+                } else {
+                    format!("{} of {} checks fail", r.failing.len(), r.checks)
+                };
+                format!("NOT met with {values}: {count}{reason} ({planned_part})")
+            }
+        }
+        (recommended, _) => {
+            let as_planned_words = if recommended.is_some() {
+                " as planned"
+            } else {
+                ""
+            };
+            let head = if planned.checks == 0 {
+                format!("met{as_planned_words} (no budget lines)")
+            } else if planned.met {
+                format!("met{as_planned_words}: {}", failing_count(planned))
+            } else {
+                format!(
+                    "NOT met{as_planned_words}: {}{}",
+                    failing_count(planned),
+                    first_failure(planned)
+                )
+            };
+            match recommended {
+                Some(r) => format!(
+                    "{head} (the recommended design, {}, {})",
+                    values_text(&r.stages),
+                    if r.met {
+                        "meets every line".to_owned()
+                    } else {
+                        format!("fails {} of {} checks", r.failing.len(), r.checks)
+                    }
+                ),
+                None => head,
+            }
+        }
+    }
 }
 
 struct CaseRecords {
@@ -112,7 +570,7 @@ struct CaseRecords {
     warnings: Vec<String>,
 }
 
-fn case_records(plan: &Plan, case: CaseEvaluation) -> CaseRecords {
+fn case_records(plan: &Plan, case: CaseEvaluation, derived_from: Option<String>) -> CaseRecords {
     let CaseEvaluation {
         stage,
         temperature_c,
@@ -212,9 +670,13 @@ fn case_records(plan: &Plan, case: CaseEvaluation) -> CaseRecords {
             .collect(),
         corner: corner.clone(),
         tail_current_a: operating.tail_current_a,
+        emitter_resistance_ohm: stage.emitter_resistance,
+        load_resistance_ohm: stage.load_resistance,
+        derived_from,
     };
     let budget = budget
         .iter()
+        .filter(|result| result.judged)
         .map(|result| {
             let line = &plan.budget[result.line];
             BudgetRecord {
@@ -232,6 +694,8 @@ fn case_records(plan: &Plan, case: CaseEvaluation) -> CaseRecords {
                 corner: corner.clone(),
                 limit_dbm: dbm_of(plan, line.metric, line.limit.value()),
                 value_dbm: result.value.and_then(|v| dbm_of(plan, line.metric, v)),
+                margin_at_least: result.margin_at_least,
+                interval: result.interval.map(|(low, high)| [low, high]),
             }
         })
         .collect();
@@ -334,6 +798,7 @@ fn population_name(figure: PopulationFigure) -> (&'static str, &'static str) {
 }
 
 fn population_records(
+    plan: &Plan,
     population: Population,
 ) -> (Vec<MonteCarloRecord>, Vec<YieldRecord>, Vec<String>) {
     let warnings = population
@@ -364,6 +829,26 @@ fn population_records(
             });
         }
         let estimate = stage.yield_estimate;
+        let lines = plan
+            .budget
+            .iter()
+            .zip(&estimate.failing_runs)
+            .filter_map(|(line, failing)| {
+                let failing = (*failing)?;
+                Some(YieldLineRecord {
+                    metric: line.metric.name(),
+                    at_v: line
+                        .metric
+                        .needs_amplitude()
+                        .then(|| plan.drive.amplitude_of(line)),
+                    kind: line.limit.kind().into(),
+                    limit: line.limit.value(),
+                    unit: line.metric.unit_label().into(),
+                    failing_runs: failing,
+                    failing_fraction: failing as f64 / estimate.runs as f64,
+                })
+            })
+            .collect();
         yields.push(YieldRecord {
             stage: stage.stage.clone(),
             temperature_c: stage.temperature_c,
@@ -374,6 +859,7 @@ fn population_records(
             pass_fraction_low: estimate.low,
             pass_fraction_high: estimate.high,
             interval: INTERVAL_NAME.into(),
+            lines,
         });
     }
     (distributions, yields, warnings)
@@ -412,6 +898,24 @@ fn sizing_record(plan: &Plan, outcome: SizingOutcome) -> SizingRecord {
         distortion_least_emitter_resistance_ohm: outcome.distortion_least,
         noise_greatest_emitter_resistance_ohm: outcome.noise_greatest,
         conflict_gap_ohm: outcome.conflict_gap,
+        guard_band_db: outcome.guard_band_db,
+        window_ohm: outcome.windows.iter().map(|w| [w.low, w.high]).collect(),
+        unreachable: match &plan.sizing {
+            Some(settings) => outcome
+                .unreachable
+                .iter()
+                .map(|u| unreachable_record(plan, settings, &outcome, u))
+                .collect(),
+            None => Vec::new(),
+        },
+        hints: match &plan.sizing {
+            Some(settings) => outcome
+                .hints
+                .iter()
+                .map(|h| hint_text(settings, &outcome, *h))
+                .collect(),
+            None => Vec::new(),
+        },
     }
 }
 
@@ -463,7 +967,14 @@ fn forward_active_warnings(
             .iter()
             .map(|p| p.max_base_collector_v)
             .fold(f64::NEG_INFINITY, f64::max);
-        if worst_forward_bias > 0.0 {
+        if worst_forward_bias > stage.supply_v() {
+            // The model has no saturation: past the supply its junction voltage is only a sign
+            // that the load drop exceeds the supply, not a voltage the circuit can reach.
+            reasons.push(format!(
+                "collector-base forward-biased beyond the supply ({}): the load's drop exceeds the supply",
+                format_si(stage.supply_v(), "V")
+            ));
+        } else if worst_forward_bias > 0.0 {
             reasons.push(format!(
                 "collector-base forward-biased by up to {:.3} V",
                 worst_forward_bias

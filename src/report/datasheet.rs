@@ -6,7 +6,9 @@
 //! figures, the model's assumptions and limits, and the caution. The HTML is self-contained
 //! (figures inline as SVG, styles inline) so it reads offline and prints to PDF.
 
-use super::queries::{frequencies, stage_names, temperatures, typical_temperature};
+use super::queries::{
+    frequencies, recommended_stage, stage_names, temperatures, typical_temperature,
+};
 use super::summary::{limit_cell, temperature_cell, value_cell};
 use super::table::{html_inline, html_text, markdown_inline, markdown_text, Cell, Table};
 use super::text::{celsius, metric_label, si_exact, si_short};
@@ -330,7 +332,7 @@ pub fn budget_table(report: &Report) -> Table {
             si_exact(b.frequency_hz, "Hz").into(),
             limit_cell(b).into(),
             value_cell(b).into(),
-            fixed(b.margin, 2).into(),
+            b.margin_text().into(),
             Cell::verdict(b.pass, "pass", "FAIL"),
         ]);
         table.push(row);
@@ -359,11 +361,21 @@ pub fn sizing_table(report: &Report) -> Table {
         ("gain cost (dB)", true),
         ("steering range", true),
         ("load", true),
+        ("usable R_E", false),
         ("result", false),
     ]);
     let mut table = Table::new(columns);
     let ohms = |v: Option<f64>| v.map(|r| si_short(r, "Ω")).unwrap_or_else(|| "—".into());
     for s in &report.sizing {
+        let windows = if s.window_ohm.is_empty() {
+            "none".to_owned()
+        } else {
+            s.window_ohm
+                .iter()
+                .map(|[low, high]| format!("{} – {}", si_short(*low, "Ω"), si_short(*high, "Ω")))
+                .collect::<Vec<_>>()
+                .join(", ")
+        };
         let mut row: Vec<Cell> = vec![
             s.stage.as_str().into(),
             temperature_cell(s.temperature_c).into(),
@@ -382,6 +394,7 @@ pub fn sizing_table(report: &Report) -> Table {
                 .unwrap_or_else(|| "—".into())
                 .into(),
             ohms(s.load_resistance_ohm).into(),
+            windows.into(),
             Cell::verdict(s.met, "met", "not met"),
         ]);
         table.push(row);
@@ -405,25 +418,43 @@ pub fn blocks(report: &Report, figures: &[EmbeddedFigure]) -> Vec<Block> {
         format!("{} — linearity report", report.plan),
     ));
     out.push(Block::Caution(CAUTION.to_owned()));
-    let failing_lines = report.budget.iter().filter(|b| !b.pass).count();
-    out.push(Block::Paragraph(if report.sizing.is_empty() {
-        format!(
-            "Verdict: the plan is {}.",
-            if report.met { "met" } else { "NOT met" }
-        )
-    } else {
-        format!(
-            "Verdict: the plan is {} by sizing — {} (the stages as planned fail {} of {} budget checks; see Degeneration sizing).",
-            if report.met { "met" } else { "NOT met" },
-            if report.met {
-                "a degeneration meeting every budget line was found for every stage"
-            } else {
-                "for at least one stage no degeneration in the range meets every line"
+    out.push(Block::Paragraph(format!(
+        "Verdict: {}.",
+        report.verdict.summary
+    )));
+    if let Some(recommended) = &report.verdict.recommended {
+        out.push(Block::Paragraph(format!(
+            "Two designs are judged. As planned: the stages as the plan writes them ({}). Recommended: each stage rebuilt with the emitter resistance sizing recommends, evaluated in full over every temperature, corner and drive point as a derived stage ({}); its datasheet, budget checks and figures are computed by the model like the planned ones, not measured. The overall answer is about the {} design{}.",
+            if report.verdict.as_planned.met { "meets every line".to_owned() } else {
+                format!("{} of {} checks fail", report.verdict.as_planned.failing.len(), report.verdict.as_planned.checks)
             },
-            failing_lines,
-            report.budget.len()
-        )
-    }));
+            recommended
+                .stages
+                .iter()
+                .map(|s| format!("{} = {} with R_E = {}{}", s.evaluated_as, s.stage,
+                    si_short(s.emitter_resistance_ohm, "Ω"),
+                    if (s.load_resistance_ohm / s.planned_load_resistance_ohm - 1.0).abs() > 1e-9 {
+                        format!(" and R_L = {}", si_short(s.load_resistance_ohm, "Ω"))
+                    } else { String::new() }))
+                .collect::<Vec<_>>()
+                .join("; "),
+            if report.verdict.judged == "as_planned" { "planned" } else { "recommended" },
+            if report.verdict.judged == "as_planned" { " (run with --as-planned)" } else { "" }
+        )));
+    }
+    let failing: Vec<String> = match (&report.verdict.recommended, report.verdict.judged.as_str()) {
+        (Some(r), "recommended") => r.failing.iter().map(|f| f.text.clone()).collect(),
+        _ => report
+            .verdict
+            .as_planned
+            .failing
+            .iter()
+            .map(|f| f.text.clone())
+            .collect(),
+    };
+    if !failing.is_empty() {
+        out.push(Block::Bullets(failing));
+    }
     let corner_names: Vec<&str> = {
         let mut names: Vec<&str> = Vec::new();
         for i in &report.intercepts {
@@ -467,7 +498,24 @@ pub fn blocks(report: &Report, figures: &[EmbeddedFigure]) -> Vec<Block> {
     ]));
 
     for stage in &stages {
-        out.push(Block::Heading(2, format!("Datasheet — {stage}")));
+        let derived = recommended_stage(report, stage);
+        out.push(Block::Heading(
+            2,
+            match derived {
+                Some(_) => format!("Datasheet — {stage} (recommended design, derived)"),
+                None => format!("Datasheet — {stage}"),
+            },
+        ));
+        if let Some(d) = derived {
+            out.push(Block::Paragraph(format!(
+                "Derived stage: {} as planned, with R_E = {} per side (planned {}) and R_L = {} per side (planned {}), the values sizing recommends. Every figure below is the model's prediction for that design.",
+                d.stage,
+                si_short(d.emitter_resistance_ohm, "Ω"),
+                si_short(d.planned_emitter_resistance_ohm, "Ω"),
+                si_short(d.load_resistance_ohm, "Ω"),
+                si_short(d.planned_load_resistance_ohm, "Ω"),
+            )));
+        }
         out.push(Block::Paragraph(format!(
             "Typical at {} in the typical process; min and max across the plan's {spread} at {}. A dash is a figure that is not available or below the analysis floor.",
             celsius(typical),
@@ -480,7 +528,7 @@ pub fn blocks(report: &Report, figures: &[EmbeddedFigure]) -> Vec<Block> {
         out.push(Block::Heading(2, "Budget verdict".into()));
         let failed = report.budget.iter().filter(|b| !b.pass).count();
         out.push(Block::Paragraph(format!(
-            "{} of {} checks pass. Margin is in dB and positive when the line passes.",
+            "{} of {} checks pass (stages as planned and, where sizing ran, the derived @sized stages of the recommended design). Margin is in dB and positive when the line passes (percentage points for a yield); “≥” marks a lower bound where the value is below the analysis floor.",
             report.budget.len() - failed,
             report.budget.len()
         )));
@@ -488,26 +536,62 @@ pub fn blocks(report: &Report, figures: &[EmbeddedFigure]) -> Vec<Block> {
     }
     if !report.sizing.is_empty() {
         out.push(Block::Heading(2, "Degeneration sizing".into()));
-        out.push(Block::Paragraph(
-            "The least emitter resistance per side that meets every budget line (or the best found when none does).".into(),
-        ));
+        let guard = report
+            .sizing
+            .first()
+            .map(|s| s.guard_band_db)
+            .unwrap_or(0.0);
+        out.push(Block::Paragraph(format!(
+            "Per temperature, the least emitter resistance per side that holds every budget line{} (or the best found when none does), and the usable windows: every value inside holds every line.",
+            if guard > 0.0 { format!(" with {guard} dB of guard band") } else { String::new() }
+        )));
         out.push(Block::Table(sizing_table(report)));
-        let to_build: Vec<String> = stages
-            .iter()
-            .filter_map(|stage| {
-                super::queries::value_to_build(report, stage)
-                    .map(|r| format!("{stage}: {}", si_short(r, "Ω")))
-            })
-            .collect();
-        if !to_build.is_empty() {
-            out.push(Block::Paragraph(format!(
-                "R_E to build (the largest per-temperature least value; every scanned value from each temperature's least value up to it passed every line): {}.",
-                to_build.join("; ")
-            )));
+        if let Some(recommended) = &report.verdict.recommended {
+            let mut advice: Vec<String> = Vec::new();
+            for s in &recommended.stages {
+                let windows: Vec<String> = s
+                    .window_ohm
+                    .iter()
+                    .map(|[low, high]| {
+                        format!("{} – {}", si_short(*low, "Ω"), si_short(*high, "Ω"))
+                    })
+                    .collect();
+                advice.push(if s.found {
+                    format!(
+                        "{}: {} R_E = {} ({}; usable at every temperature: {}).",
+                        s.stage,
+                        if recommended.met { "build" } else { "evaluated at" },
+                        si_short(s.emitter_resistance_ohm, "Ω"),
+                        if s.basis == "least_in_common_window_meeting_yield" {
+                            "the least value in the usable windows whose Monte Carlo population meets the yield line too"
+                        } else {
+                            "the least value holding every line at every temperature"
+                        },
+                        windows.join(", ")
+                    )
+                } else {
+                    format!(
+                        "{}: no value in the range holds every line at every temperature; the recommended design is evaluated at R_E = {} ({}).",
+                        s.stage,
+                        si_short(s.emitter_resistance_ohm, "Ω"),
+                        match s.basis.as_str() {
+                            "least_meeting_reachable_lines" => "the least value meeting every line that can be met",
+                            _ => "the value with the best worst-line margin",
+                        }
+                    )
+                });
+                advice.extend(s.unreachable.iter().map(|u| u.text.clone()));
+                advice.extend(s.hints.iter().cloned());
+            }
+            out.push(Block::Bullets(advice));
         }
     }
     if !report.yield_.is_empty() {
         out.push(Block::Heading(2, "Monte Carlo yield".into()));
+        out.push(Block::Paragraph(format!(
+            "The fraction of runs meeting every budget line, its {}, and per line the fraction of runs failing it (a run can fail several lines).",
+            report.yield_.first().map(|y| y.interval.as_str()).unwrap_or("confidence interval")
+        )));
         let mut table = Table::new([
             ("stage", false),
             ("corner", false),
@@ -515,8 +599,23 @@ pub fn blocks(report: &Report, figures: &[EmbeddedFigure]) -> Vec<Block> {
             ("runs", true),
             ("yield", true),
             ("95 % interval", true),
+            ("runs failing each line", false),
         ]);
         for y in &report.yield_ {
+            let lines: Vec<String> = y
+                .lines
+                .iter()
+                .map(|l| {
+                    format!(
+                        "{}{}: {:.2} %",
+                        l.metric.to_uppercase(),
+                        l.at_v
+                            .map(|a| format!(" at {}", si_short(a, "V")))
+                            .unwrap_or_default(),
+                        100.0 * l.failing_fraction
+                    )
+                })
+                .collect();
             table.push(vec![
                 y.stage.as_str().into(),
                 y.corner.as_str().into(),
@@ -529,6 +628,7 @@ pub fn blocks(report: &Report, figures: &[EmbeddedFigure]) -> Vec<Block> {
                     100.0 * y.pass_fraction_high
                 )
                 .into(),
+                lines.join("; ").into(),
             ]);
         }
         out.push(Block::Table(table));

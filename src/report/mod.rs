@@ -23,13 +23,45 @@ use std::collections::BTreeMap;
 pub const CAUTION: &str = "These figures are model predictions. Confirm them against measured silicon and the foundry's device models, following your local qualification practice, before committing a design or a datasheet limit.";
 
 impl BudgetRecord {
-    /// A limit or value of this line in its unit: SI-prefixed volts, or dB to two decimals.
+    /// A limit or value of this line in its unit: SI-prefixed volts, a percentage for a
+    /// yield, or dB to two decimals.
     pub fn quantity_text(&self, value: f64) -> String {
-        if self.unit.starts_with('V') {
-            crate::units::format_si(value, &self.unit)
-        } else {
-            format!("{value:.2} {}", self.unit)
+        quantity_text(&self.unit, value)
+    }
+
+    /// The margin as a table shows it: dB to two decimals (percentage points for a yield),
+    /// with `≥` when it is only a lower bound.
+    pub fn margin_text(&self) -> String {
+        match self.margin {
+            Some(m) if m.is_finite() => {
+                let number = if self.unit == YIELD_UNIT {
+                    format!("{:.2}", 100.0 * m)
+                } else {
+                    format!("{m:.2}")
+                };
+                if self.margin_at_least {
+                    format!("≥ {number}")
+                } else {
+                    number
+                }
+            }
+            _ => "—".into(),
         }
+    }
+}
+
+/// Unit label of a yield line's limit and value (a fraction of the runs).
+pub const YIELD_UNIT: &str = "fraction";
+
+/// A value in a budget unit: SI-prefixed volts, a percentage for a yield, or dB to two
+/// decimals.
+pub fn quantity_text(unit: &str, value: f64) -> String {
+    if unit.starts_with('V') {
+        crate::units::format_si(value, unit)
+    } else if unit == YIELD_UNIT {
+        format!("{:.2} %", 100.0 * value)
+    } else {
+        format!("{value:.2} {unit}")
     }
 }
 
@@ -72,19 +104,151 @@ pub struct Report {
     pub analysis: AnalysisRecord,
     /// Warnings raised while evaluating (also printed on standard error).
     pub warnings: Vec<String>,
-    /// Whether the plan is met (see the exit-status rules).
+    /// Whether the plan is met (see the exit-status rules): the same as `verdict.met`.
     pub met: bool,
+    /// The verdicts on the design as planned and on the recommended design, and which one
+    /// `met` is about.
+    #[serde(default)]
+    pub verdict: VerdictRecord,
     /// Caution to confirm against silicon.
     pub caution: String,
 }
 
 impl Report {
     /// Whether the plan is met: every budget line passes for every stage (or there is no
-    /// budget), or, where the plan asks for sizing, a value meeting every line was found for
-    /// every stage.
+    /// budget), or, where the plan asks for sizing, the recommended design (each stage with
+    /// the emitter resistance to build) meets every line. `run --as-planned` judges the stages
+    /// as written instead; `verdict` holds both answers.
     pub fn met(&self) -> bool {
         self.met
     }
+}
+
+/// The verdicts of a plan: the design as planned, the recommended design, and the answer.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq, Default)]
+pub struct VerdictRecord {
+    /// The overall answer (what the exit status says).
+    pub met: bool,
+    /// Which design `met` is about: `recommended` (plans with sizing) or `as_planned`.
+    pub judged: String,
+    /// The answer in one line, naming the design that met.
+    pub summary: String,
+    /// The stages as written in the plan.
+    pub as_planned: DesignVerdictRecord,
+    /// The recommended design: each stage with the emitter resistance (and load) to build,
+    /// evaluated in full as a derived stage (plans with sizing).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub recommended: Option<RecommendedVerdictRecord>,
+}
+
+/// The verdict on one design.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq, Default)]
+pub struct DesignVerdictRecord {
+    /// Whether every check passes.
+    pub met: bool,
+    /// Checks made: budget lines × stages × temperatures × corners.
+    pub checks: usize,
+    /// The checks that fail.
+    pub failing: Vec<FailingCheckRecord>,
+}
+
+/// One failing check, with the figures that decide it.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+pub struct FailingCheckRecord {
+    /// Stage name (the derived stage's for the recommended design).
+    pub stage: String,
+    /// Temperature, °C.
+    pub temperature_c: f64,
+    /// Process corner.
+    pub corner: String,
+    /// Metric name.
+    pub metric: String,
+    /// Input amplitude the line applies at, V.
+    pub at_v: Option<f64>,
+    /// `max` or `min`.
+    pub kind: String,
+    /// The limit.
+    pub limit: f64,
+    /// The value (null: below the floor, unbounded, or not estimated).
+    pub value: Option<f64>,
+    /// The margin (negative), dB (a fraction for yield lines).
+    pub margin: Option<f64>,
+    /// Unit of `limit` and `value`.
+    pub unit: String,
+    /// The check in words.
+    pub text: String,
+}
+
+/// The verdict on the recommended design.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq, Default)]
+pub struct RecommendedVerdictRecord {
+    /// Whether every check of the recommended design passes.
+    pub met: bool,
+    /// Checks made.
+    pub checks: usize,
+    /// The checks that fail.
+    pub failing: Vec<FailingCheckRecord>,
+    /// Per planned stage, the values to build.
+    pub stages: Vec<RecommendedStageRecord>,
+}
+
+/// The values sizing recommends for one planned stage.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+pub struct RecommendedStageRecord {
+    /// The planned stage.
+    pub stage: String,
+    /// The derived stage the recommended design is evaluated as (`<stage>@sized`): its
+    /// records in `points`, `intercepts`, `budget`, `stages`, … carry this name.
+    pub evaluated_as: String,
+    /// Emitter resistance per side to build, Ω.
+    pub emitter_resistance_ohm: f64,
+    /// Load resistance per side to build, Ω (rescaled with `hold_gain`).
+    pub load_resistance_ohm: f64,
+    /// The plan's emitter resistance, Ω.
+    pub planned_emitter_resistance_ohm: f64,
+    /// The plan's load resistance, Ω.
+    pub planned_load_resistance_ohm: f64,
+    /// Whether sizing found a value holding every line (by the guard band) at every
+    /// temperature.
+    pub found: bool,
+    /// How the value was found: `least_in_common_window`, `least_meeting_reachable_lines` or
+    /// `best_worst_margin`.
+    pub basis: String,
+    /// Windows of R_E holding every line at every temperature, Ω.
+    pub window_ohm: Vec<[f64; 2]>,
+    /// Lines no value in the range meets, with their best value and where it occurs.
+    pub unreachable: Vec<UnreachableRecord>,
+    /// Advice about the sizing range.
+    pub hints: Vec<String>,
+}
+
+/// A budget line that no emitter resistance in the sizing range meets at one temperature.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+pub struct UnreachableRecord {
+    /// Stage name.
+    pub stage: String,
+    /// Temperature, °C.
+    pub temperature_c: f64,
+    /// Metric name.
+    pub metric: String,
+    /// Input amplitude the line applies at, V.
+    pub at_v: Option<f64>,
+    /// `max` or `min`.
+    pub kind: String,
+    /// The limit.
+    pub limit: f64,
+    /// Unit of `limit` and `best_value`.
+    pub unit: String,
+    /// The best value reached in the range (worst corner).
+    pub best_value: Option<f64>,
+    /// The margin there (negative), dB.
+    pub best_margin: Option<f64>,
+    /// Where the best value occurs, Ω.
+    pub at_emitter_resistance_ohm: f64,
+    /// The corner giving that value.
+    pub corner: String,
+    /// The line in words.
+    pub text: String,
 }
 
 /// How the figures were obtained.
@@ -358,6 +522,15 @@ pub struct StageRecord {
     /// Tail current at this temperature and corner, A.
     #[serde(default)]
     pub tail_current_a: f64,
+    /// Emitter resistance per side, Ω (as built in this corner).
+    #[serde(default)]
+    pub emitter_resistance_ohm: f64,
+    /// Load resistance per side, Ω (as built in this corner).
+    #[serde(default)]
+    pub load_resistance_ohm: f64,
+    /// For a derived stage (the recommended design), the planned stage it was derived from.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub derived_from: Option<String>,
 }
 
 /// One sample of the transfer curve.
@@ -431,6 +604,28 @@ pub struct YieldRecord {
     /// How the interval was computed.
     #[serde(default)]
     pub interval: String,
+    /// Per budget line, the runs that fail it (a run may fail several).
+    #[serde(default)]
+    pub lines: Vec<YieldLineRecord>,
+}
+
+/// How many Monte Carlo runs fail one budget line.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+pub struct YieldLineRecord {
+    /// Metric name.
+    pub metric: String,
+    /// Input amplitude the line applies at, V.
+    pub at_v: Option<f64>,
+    /// `max` or `min`.
+    pub kind: String,
+    /// The limit.
+    pub limit: f64,
+    /// Unit of the limit.
+    pub unit: String,
+    /// Runs failing this line.
+    pub failing_runs: u64,
+    /// Fraction of the runs failing this line.
+    pub failing_fraction: f64,
 }
 
 /// One budget line checked for one stage and temperature.
@@ -461,6 +656,13 @@ pub struct BudgetRecord {
     /// Process corner.
     #[serde(default)]
     pub corner: String,
+    /// The value is below the analysis floor: `margin` is only a lower bound (the limit's
+    /// distance to the floor), not a margin to a computed figure.
+    #[serde(default)]
+    pub margin_at_least: bool,
+    /// For a yield line: the 95 % Wilson score interval of the pass fraction.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub interval: Option<[f64; 2]>,
     /// The limit in dBm into the plan's reference impedance (IIP3, OIP3 and P1dB lines of a
     /// plan that gives `reference_impedance`); `limit` stays in volts.
     #[serde(default, skip_serializing_if = "Option::is_none")]
@@ -517,6 +719,18 @@ pub struct SizingRecord {
     /// When no value meets both: how far apart the two ranges are, Ω (to scan resolution).
     #[serde(default)]
     pub conflict_gap_ohm: Option<f64>,
+    /// Margin every line keeps at the chosen value and inside the windows, dB.
+    #[serde(default)]
+    pub guard_band_db: f64,
+    /// The windows of R_E where every line holds by the guard band, Ω (`[low, high]`).
+    #[serde(default)]
+    pub window_ohm: Vec<[f64; 2]>,
+    /// Lines no value in the range meets, with their best value and where it occurs.
+    #[serde(default)]
+    pub unreachable: Vec<UnreachableRecord>,
+    /// Advice about the range (the answer or the best margin at one of its ends).
+    #[serde(default)]
+    pub hints: Vec<String>,
 }
 
 /// One figure across the process corners of a stage at one temperature.

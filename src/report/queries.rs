@@ -1,7 +1,7 @@
 //! Questions the tables and figures ask of a report: which stages, temperatures and
 //! frequencies it covers, the typical temperature, and the emitter resistance to build.
 
-use super::{Report, SizingRecord};
+use super::{RecommendedStageRecord, Report};
 
 /// Ordered, distinct stage names as they appear in the report.
 pub fn stage_names(report: &Report) -> Vec<String> {
@@ -56,27 +56,31 @@ pub fn typical_temperature(temps: &[f64]) -> Option<f64> {
         .min_by(|a, b| (a - 27.0).abs().total_cmp(&(b - 27.0).abs()))
 }
 
-/// The emitter resistance to build for `stage`: the largest of its per-temperature least
-/// values, offered only when sizing met the budget at every temperature (and corner) and every
-/// scanned value between each least value and that largest one passed every line too.
+/// The emitter resistance to build for `stage`: the recommended design's, offered only when
+/// sizing found a value holding every line at every temperature (and corner) and the
+/// recommended design, evaluated in full, meets every line.
 pub fn value_to_build(report: &Report, stage: &str) -> Option<f64> {
-    let records: Vec<&SizingRecord> = report.sizing.iter().filter(|s| s.stage == stage).collect();
-    if records.is_empty() || !records.iter().all(|s| s.met) {
+    let recommended = report.verdict.recommended.as_ref()?;
+    if !recommended.met {
         return None;
     }
-    let largest = records
+    recommended
+        .stages
         .iter()
-        .filter_map(|s| s.emitter_resistance_ohm)
-        .reduce(f64::max)?;
-    let holds = records.iter().all(|s| {
-        let least = s.emitter_resistance_ohm.unwrap_or(largest);
-        s.scan
-            .iter()
-            .filter(|t| t.emitter_resistance_ohm >= least && t.emitter_resistance_ohm <= largest)
-            .all(|t| {
-                t.margins.iter().all(|m| m.is_none_or(|m| m >= 0.0))
-                    && t.headroom_v.is_none_or(|h| h >= 0.0)
-            })
-    });
-    holds.then_some(largest)
+        .find(|s| s.stage == stage && s.found)
+        .map(|s| s.emitter_resistance_ohm)
+}
+
+/// The recommended design a derived stage stands for (`None` for a planned stage).
+pub fn recommended_stage<'a>(
+    report: &'a Report,
+    stage: &str,
+) -> Option<&'a RecommendedStageRecord> {
+    report
+        .verdict
+        .recommended
+        .as_ref()?
+        .stages
+        .iter()
+        .find(|s| s.evaluated_as == stage)
 }

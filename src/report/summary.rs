@@ -1,7 +1,7 @@
 //! `summary.md`: the human tables — per stage the drive points, the intercepts, the budget
 //! verdict and the sizing result.
 
-use super::queries::value_to_build;
+use super::queries::{recommended_stage, value_to_build};
 use super::table::{markdown_text, Cell, Table};
 use super::text::{limit_text, metric_label, num, si_exact, si_short};
 use super::{BudgetRecord, PointRecord, Report, CAUTION};
@@ -37,6 +37,10 @@ pub fn limit_cell(b: &BudgetRecord) -> String {
 /// A budget line's value in its unit (dBm beside volts where the plan gives a reference
 /// impedance), or why there is none.
 pub fn value_cell(b: &BudgetRecord) -> String {
+    if let (Some(v), Some([low, high])) = (b.value, b.interval) {
+        let q = |x: f64| b.quantity_text(x);
+        return format!("{} ({}–{})", q(v), q(low), q(high));
+    }
     match (b.value, b.value_dbm) {
         (Some(v), Some(dbm)) => format!(
             "{} ({})",
@@ -47,7 +51,8 @@ pub fn value_cell(b: &BudgetRecord) -> String {
         // how close a line is.
         (Some(v), None) if b.unit.starts_with("dB") => format!("{} {}", num(v, 2), b.unit),
         (Some(v), None) => super::text::level(v, &b.unit),
-        (None, _) if b.unit == "dBc" => "below floor".into(),
+        (None, _) if b.unit == "dBc" || b.margin_at_least => "below floor".into(),
+        (None, _) if b.unit == super::YIELD_UNIT => "not estimated".into(),
         (None, _) => "—".into(),
     }
 }
@@ -218,11 +223,23 @@ pub fn summary(report: &Report) -> String {
             let with_corner = lines
                 .iter()
                 .any(|b| !b.corner.is_empty() && b.corner != TYPICAL);
-            if !report.sizing.is_empty() {
-                let _ = writeln!(
-                    out,
-                    "Budget lines checked on the stage as planned (before sizing):\n"
-                );
+            match recommended_stage(report, name) {
+                Some(d) => {
+                    let _ = writeln!(
+                        out,
+                        "Budget lines checked on the recommended design (derived: `{}` with R_E = {}, R_L = {}):\n",
+                        markdown_text(&d.stage),
+                        si_short(d.emitter_resistance_ohm, "Ω"),
+                        si_short(d.load_resistance_ohm, "Ω")
+                    );
+                }
+                None if !report.sizing.is_empty() => {
+                    let _ = writeln!(
+                        out,
+                        "Budget lines checked on the stage as planned (before sizing):\n"
+                    );
+                }
+                None => {}
             }
             let mut columns = vec![("T (°C)", true)];
             if with_corner {
@@ -252,7 +269,7 @@ pub fn summary(report: &Report) -> String {
                     si_exact(b.frequency_hz, "Hz").into(),
                     limit_cell(b).into(),
                     value_cell(b).into(),
-                    db(b.margin).into(),
+                    b.margin_text().into(),
                     Cell::verdict(b.pass, "pass", "FAIL"),
                 ]);
                 table.push(row);
@@ -284,12 +301,28 @@ pub fn summary(report: &Report) -> String {
                 if s.headroom_binds { "; headroom, not distortion, binds" } else { "" }
             );
         }
+        for s in report.sizing.iter().filter(|s| s.stage == name) {
+            for text in s.unreachable.iter().map(|u| &u.text).chain(&s.hints) {
+                let _ = writeln!(out, "- {}", markdown_text(text));
+            }
+        }
         if let Some(value) = value_to_build(report, name) {
+            let windows = report
+                .verdict
+                .recommended
+                .iter()
+                .flat_map(|r| &r.stages)
+                .filter(|s| s.stage == name)
+                .flat_map(|s| &s.window_ohm)
+                .map(|[low, high]| format!("{} – {}", si_short(*low, "Ω"), si_short(*high, "Ω")))
+                .collect::<Vec<_>>()
+                .join(", ");
             let _ = writeln!(
                 out,
-                "**R_E to build for {}: {}** — the largest of the per-temperature least values; every scanned value from each temperature's least value up to it passed every line.\n",
+                "\n**R_E to build for {}: {}** — the least value holding every line at every temperature (usable at every temperature: {}); the recommended design, evaluated in full, meets every line.\n",
                 markdown_text(name),
-                si_short(value, "Ω")
+                si_short(value, "Ω"),
+                windows
             );
         }
     }
@@ -305,7 +338,7 @@ pub fn summary(report: &Report) -> String {
         out,
         "Plan {}: **{}**",
         markdown_text(&report.plan),
-        if report.met { "met" } else { "not met" }
+        markdown_text(&report.verdict.summary)
     );
     out
 }
@@ -444,9 +477,24 @@ fn population_sections(report: &Report, out: &mut String) {
         }
         let _ = writeln!(out, "{}", table.to_markdown());
         for y in &report.yield_ {
+            let failing: Vec<String> = y
+                .lines
+                .iter()
+                .filter(|l| l.failing_runs > 0)
+                .map(|l| {
+                    format!(
+                        "{}{} {:.1} %",
+                        l.metric,
+                        l.at_v
+                            .map(|a| format!(" at {}", si_exact(a, "V")))
+                            .unwrap_or_default(),
+                        100.0 * l.failing_fraction
+                    )
+                })
+                .collect();
             let _ = writeln!(
                 out,
-                "Yield of {} at {} °C ({} corner): {:.1} % of {} runs meet every budget line ({}: {:.1} % to {:.1} %).\n",
+                "Yield of {} at {} °C ({} corner): {:.1} % of {} runs meet every budget line ({}: {:.1} % to {:.1} %){}.\n",
                 markdown_text(&y.stage),
                 temperature_cell(y.temperature_c),
                 markdown_text(&y.corner),
@@ -454,7 +502,12 @@ fn population_sections(report: &Report, out: &mut String) {
                 y.runs,
                 y.interval,
                 100.0 * y.pass_fraction_low,
-                100.0 * y.pass_fraction_high
+                100.0 * y.pass_fraction_high,
+                if failing.is_empty() {
+                    String::new()
+                } else {
+                    format!("; runs failing each line: {}", markdown_text(&failing.join(", ")))
+                }
             );
         }
     }

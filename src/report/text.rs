@@ -51,6 +51,9 @@ pub fn metric_label(name: &str) -> String {
 /// A quantity of a budget line in its unit as people write it: dB levels to one decimal
 /// (`−60 dBc`, `20.5 dB`), volts and noise densities with SI prefixes (`300 mV`, `12 nV/√Hz`).
 pub fn level(value: f64, unit: &str) -> String {
+    if unit == crate::report::YIELD_UNIT {
+        return format!("{} %", num(100.0 * value, 1));
+    }
     if unit.starts_with("dB") {
         let text = num(value, 1);
         let text = text.strip_suffix(".0").map(str::to_owned).unwrap_or(text);

@@ -9,8 +9,10 @@ mod folder;
 use crate::error::Error;
 use crate::model::plan::Plan;
 use crate::plan::PlanSource;
+use crate::report::build::rejudge;
 use crate::report::Report;
 use crate::study::evaluate::{Phase, Progress};
+use crate::study::verdict::Judged;
 use crate::study::workload::{self, Workload};
 use std::path::{Path, PathBuf};
 
@@ -33,6 +35,27 @@ pub struct RunOptions {
     pub max_work: f64,
     /// Draw the figures (SVG and PNG); false writes the tables and reports only.
     pub figures: bool,
+    /// Judge the design as written (`--as-planned`), not the recommended one.
+    pub as_planned: bool,
+    /// `--set KEY.PATH=VALUE` overrides, applied in order.
+    pub overrides: Vec<String>,
+}
+
+impl RunOptions {
+    /// Options for `plan` with the command's defaults: output to `out`, figures drawn, the
+    /// default work limit, no overrides, judged on the recommended design.
+    pub fn new(plan: impl Into<PathBuf>) -> Self {
+        RunOptions {
+            plan: plan.into(),
+            out: PathBuf::from("out"),
+            json: false,
+            quiet: false,
+            max_work: DEFAULT_MAX_WORK,
+            figures: true,
+            as_planned: false,
+            overrides: Vec::new(),
+        }
+    }
 }
 
 /// What a run produced.
@@ -89,6 +112,9 @@ pub fn describe(progress: Progress) -> String {
             format!("Monte Carlo: {runs} run(s) per stage and temperature")
         }
         Progress::Sizing => "sizing emitter degeneration".into(),
+        Progress::Recommended { stages } => {
+            format!("evaluating the recommended design of {stages} stage(s)")
+        }
     }
 }
 
@@ -99,7 +125,17 @@ pub fn check(plan: &Path) -> Result<Plan, Error> {
 
 /// Validates a plan file and refuses it when its estimated work exceeds `max_work`.
 pub fn check_within(plan: &Path, max_work: f64) -> Result<Plan, Error> {
-    let source = PlanSource::read(plan)?;
+    check_with_overrides(plan, &[], max_work)
+}
+
+/// Validates a plan file with `--set` overrides applied (each validated like a value written
+/// in the file, errors located at the argument), within the work limit.
+pub fn check_with_overrides(
+    plan: &Path,
+    overrides: &[String],
+    max_work: f64,
+) -> Result<Plan, Error> {
+    let source = PlanSource::read(plan)?.with_overrides(overrides)?;
     let validated = source.plan()?;
     within_work_limit(&source, &validated, max_work)?;
     Ok(validated)
@@ -134,9 +170,12 @@ pub fn run(
     options: &RunOptions,
     progress: &(dyn Fn(RunProgress) + Sync),
 ) -> Result<RunOutcome, Error> {
-    let plan = check_within(&options.plan, options.max_work)?;
+    let plan = check_with_overrides(&options.plan, &options.overrides, options.max_work)?;
     check_output_dir(&options.out)?;
-    let report = plan.evaluate_with(&|event| progress(RunProgress::Study(event)))?;
+    let mut report = plan.evaluate_with(&|event| progress(RunProgress::Study(event)))?;
+    if options.as_planned {
+        rejudge(&mut report, Judged::AsPlanned);
+    }
     progress(RunProgress::Writing);
     let folder = write_report_folder(&options.out, &plan.name, |staging| {
         write_files(&report, options.figures, staging)

@@ -144,10 +144,34 @@ pub struct LineResult {
     pub amplitude_v: Option<f64>,
     /// The measured value (`None`: below the floor, or unbounded).
     pub value: Option<f64>,
-    /// Margin, dB.
+    /// Margin, dB (a fraction for a yield line).
     pub margin: Option<f64>,
     /// Whether the line passes.
     pub pass: bool,
+    /// The value is below the analysis floor and `margin` is only a lower bound.
+    pub margin_at_least: bool,
+    /// Whether the line is judged on this case: a yield line is judged on the Monte Carlo
+    /// population, which is drawn in the typical corner only.
+    pub judged: bool,
+    /// For a yield line: the 95 % Wilson score interval of the pass fraction.
+    pub interval: Option<(f64, f64)>,
+}
+
+impl LineResult {
+    /// A yield line judged on a population's pass fraction (`None`: not estimated).
+    pub fn judge_yield(
+        &mut self,
+        line: &crate::model::budget::BudgetLine,
+        pass_fraction: Option<f64>,
+        interval: Option<(f64, f64)>,
+    ) {
+        let judged = judge(line, pass_fraction, ANALYSIS_FLOOR_DBC);
+        self.value = pass_fraction;
+        self.margin = judged.margin;
+        self.pass = judged.pass;
+        self.margin_at_least = false;
+        self.interval = interval;
+    }
 }
 
 /// Measurements of a stage at a temperature, for the studies.
@@ -271,9 +295,26 @@ pub fn evaluate_case(
     };
 
     let mut budget = Vec::with_capacity(plan.budget.len());
+    let typical = plan.corners.first().is_none_or(|c| c.name == corner);
     for (index, line) in plan.budget.iter().enumerate() {
+        if line.metric.is_population() {
+            // Filled in from the Monte Carlo population; until then it fails (a verdict never
+            // rests on a figure that was not computed).
+            budget.push(LineResult {
+                line: index,
+                frequency_hz: measured.line_frequency(line),
+                amplitude_v: None,
+                value: None,
+                margin: None,
+                pass: false,
+                margin_at_least: false,
+                judged: typical,
+                interval: None,
+            });
+            continue;
+        }
         let value = measured.measure(line).map_err(fail)?;
-        let (margin, pass) = judge(line, value, ANALYSIS_FLOOR_DBC);
+        let judged = judge(line, value, ANALYSIS_FLOOR_DBC);
         budget.push(LineResult {
             line: index,
             frequency_hz: measured.line_frequency(line),
@@ -282,8 +323,11 @@ pub fn evaluate_case(
                 .needs_amplitude()
                 .then(|| measured.line_amplitude(line)),
             value,
-            margin,
-            pass,
+            margin: judged.margin,
+            pass: judged.pass,
+            margin_at_least: judged.margin_at_least,
+            judged: true,
+            interval: None,
         });
     }
 

@@ -103,6 +103,10 @@ pub fn spread(plan: &Plan, group: &[CaseEvaluation]) -> Vec<CornerSpread> {
         });
     };
     for index in 0..plan.budget.len() {
+        // A yield line is judged on the population, in the typical corner only.
+        if plan.budget[index].metric.is_population() {
+            continue;
+        }
         let Some(typical_line) = first.budget.get(index) else {
             continue;
         };

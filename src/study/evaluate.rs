@@ -3,12 +3,16 @@
 //! deterministic order, into typed results the report layer records and words.
 
 use crate::error::Error;
-use crate::model::plan::Plan;
+use crate::measure::budget::judge;
+use crate::model::plan::{MonteCarloSettings, Plan, SizingSettings};
+use crate::model::stage::Stage;
 use crate::solve::spectrum::FftCache;
+use crate::solve::spectrum::ANALYSIS_FLOOR_DBC;
 use crate::study::case::{evaluate_case, CaseEvaluation};
 use crate::study::corners::{spread, CornerSpread};
 use crate::study::montecarlo::{self, Population};
-use crate::study::sizing::{self, SizingOutcome};
+use crate::study::sizing::{self, Recommendation, SizingOutcome};
+use crate::study::verdict::{DesignVerdict, Judged, Verdict};
 use rayon::prelude::*;
 use std::sync::atomic::{AtomicU64, Ordering};
 use std::sync::Arc;
@@ -36,8 +40,13 @@ pub enum Progress {
     },
     /// Sizing the emitter degeneration.
     Sizing,
+    /// Evaluating the recommended design over the whole plan.
+    Recommended {
+        /// Stages sized.
+        stages: usize,
+    },
     /// How far a phase has come: `done` of `total` units (cases, runs or sizing trials). A
-    /// sizing's total is an estimate and grows if the bisection takes longer.
+    /// sizing's total is an estimate and grows if the refinement takes longer.
     Step {
         /// The phase counted.
         phase: Phase,
@@ -112,18 +121,217 @@ pub struct PlanEvaluation {
     pub population: Option<Population>,
     /// Sizing per stage and temperature, when the plan asks for it.
     pub sizing: Vec<SizingOutcome>,
+    /// The recommended design, one per planned stage, when the plan asks for sizing.
+    pub recommended: Vec<RecommendedStage>,
+}
+
+/// A planned stage rebuilt with the values sizing recommends, evaluated in full.
+#[derive(Debug, Clone)]
+pub struct RecommendedStage {
+    /// What sizing recommends.
+    pub recommendation: Recommendation,
+    /// The stage as recommended, named `<stage>@sized` (a derived stage).
+    pub stage: Stage,
+    /// Every temperature × corner, like the planned stage's cases.
+    pub cases: Vec<CaseEvaluation>,
+    /// Its spread across corners (plans with corners).
+    pub spread: Vec<CornerSpread>,
 }
 
 impl PlanEvaluation {
-    /// Whether the plan is met: every sizing found a value (when sizing ran), otherwise every
-    /// budget line passes in every case.
-    pub fn met(&self, plan: &Plan) -> bool {
-        if plan.sizing.is_some() {
-            self.sizing.iter().all(|s| s.met)
-        } else {
-            self.cases
+    /// The verdicts on the design as planned and on the recommended one.
+    pub fn verdict(&self) -> Verdict {
+        Verdict {
+            as_planned: DesignVerdict::of(&self.cases),
+            recommended: (!self.recommended.is_empty()).then(|| {
+                let mut verdict = DesignVerdict::of(self.recommended.iter().flat_map(|r| &r.cases));
+                // Sizing's own constraints (collector headroom with `hold_gain`, one value for
+                // every temperature) are not budget lines: a design sizing could not find is
+                // not met, whatever its budget checks say.
+                verdict.met &= self.recommended.iter().all(|r| r.recommendation.met);
+                verdict
+            }),
+        }
+    }
+
+    /// Whether the plan is met: the recommended design meets every line (plans with sizing),
+    /// otherwise the stages as planned do.
+    pub fn met(&self) -> bool {
+        self.verdict().met(Judged::Recommended)
+    }
+}
+
+/// Every stage × temperature × corner of `stages` (each with its plan index), in report order.
+fn evaluate_cases(
+    plan: &Plan,
+    stages: &[(usize, &Stage)],
+    cache: &Arc<FftCache>,
+    progress: &(dyn Fn(Progress) + Sync),
+) -> Result<Vec<CaseEvaluation>, Error> {
+    let cases: Vec<(usize, &Stage, f64, usize)> = stages
+        .iter()
+        .flat_map(|&(index, stage)| {
+            plan.temperatures_c
                 .iter()
-                .all(|case| case.budget.iter().all(|line| line.pass))
+                .flat_map(move |t| (0..plan.corners.len()).map(move |k| (index, stage, *t, k)))
+        })
+        .collect();
+    let counter = Counter::new(Phase::DrivePoints, cases.len() as u64, progress);
+    cases
+        .par_iter()
+        .map(|&(index, stage, temperature, corner)| {
+            let process = &plan.corners[corner];
+            let case = evaluate_case(
+                plan,
+                index,
+                process.apply(stage),
+                temperature,
+                &process.name,
+                cache,
+            );
+            counter.tick();
+            case
+        })
+        .collect()
+}
+
+/// The spread across corners of each stage and temperature (plans with corners).
+fn corner_spread(plan: &Plan, cases: &[CaseEvaluation]) -> Vec<CornerSpread> {
+    if plan.corners.len() > 1 {
+        cases
+            .chunks(plan.corners.len())
+            .flat_map(|group| spread(plan, group))
+            .collect()
+    } else {
+        Vec::new()
+    }
+}
+
+/// The recommended stage rebuilt at `emitter_resistance` (with the load `hold_gain` asks for).
+fn rebuilt(
+    plan: &Plan,
+    settings: &SizingSettings,
+    design: &RecommendedStage,
+    emitter_resistance: f64,
+    cache: &Arc<FftCache>,
+) -> Result<Stage, Error> {
+    let planned = &plan.stages[design.recommendation.stage_index];
+    let mut stage = design.stage.clone();
+    stage.emitter_resistance = emitter_resistance;
+    if settings.hold_gain {
+        stage.load_resistance = sizing::held_load(
+            plan,
+            planned,
+            sizing::typical_temperature(&plan.temperatures_c),
+            emitter_resistance,
+            cache,
+        )?;
+    }
+    Ok(stage)
+}
+
+/// Sizing's trials do not draw a population, so the least value holding the other lines may
+/// miss a yield line. When it does, the common windows are searched upward (their scan grid
+/// values and upper edges, then bisection to [`sizing::REFINE_RELATIVE`] inside the window where
+/// the yield is first reached) for the least value whose population meets every yield line at
+/// every temperature. The draws are the same dies at every value (common random numbers), so the
+/// search compares like with like. When no value in the windows reaches the yield, the least
+/// value is kept and the recommendation says so.
+fn raise_for_yield(
+    plan: &Plan,
+    settings: &SizingSettings,
+    monte_carlo: &MonteCarloSettings,
+    design: &mut RecommendedStage,
+    outcomes: &[&SizingOutcome],
+    cache: &Arc<FftCache>,
+) -> Result<(), Error> {
+    let yield_lines: Vec<_> = plan
+        .budget
+        .iter()
+        .filter(|l| l.metric.is_population())
+        .collect();
+    if yield_lines.is_empty() || !design.recommendation.met {
+        return Ok(());
+    }
+    let index = design.recommendation.stage_index;
+    let holds = |emitter_resistance: f64| -> Result<Option<bool>, Error> {
+        let stage = rebuilt(plan, settings, design, emitter_resistance, cache)?;
+        let population = montecarlo::evaluate_stages(plan, monte_carlo, &[(index, &stage)], cache)?;
+        if population.stages.is_empty() {
+            return Ok(None);
+        }
+        Ok(Some(population.stages.iter().all(|drawn| {
+            let fraction = Some(drawn.yield_estimate.pass_fraction());
+            yield_lines
+                .iter()
+                .all(|line| judge(line, fraction, ANALYSIS_FLOOR_DBC).pass)
+        })))
+    };
+    let least = design.recommendation.emitter_resistance;
+    if holds(least)? != Some(false) {
+        return Ok(());
+    }
+    let windows = design.recommendation.windows.clone();
+    let window_of = |r: f64| {
+        windows
+            .iter()
+            .position(|&(low, high)| r >= low && r <= high)
+    };
+    let mut candidates: Vec<f64> = outcomes
+        .first()
+        .map(|o| o.scan.iter().map(|t| t.emitter_resistance).collect())
+        .unwrap_or_default();
+    candidates.extend(windows.iter().map(|&(_, high)| high));
+    candidates.retain(|&r| r > least && window_of(r).is_some());
+    candidates.sort_by(f64::total_cmp);
+    candidates.dedup();
+    let mut failing = least;
+    for candidate in candidates {
+        if holds(candidate)? != Some(true) {
+            failing = candidate;
+            continue;
+        }
+        let mut passing = candidate;
+        if window_of(failing) == window_of(passing) {
+            while passing - failing > sizing::REFINE_RELATIVE * passing {
+                let mid = 0.5 * (failing + passing);
+                if holds(mid)? == Some(true) {
+                    passing = mid;
+                } else {
+                    failing = mid;
+                }
+            }
+        }
+        design.stage = rebuilt(plan, settings, design, passing, cache)?;
+        design.recommendation.emitter_resistance = passing;
+        design.recommendation.load_resistance = design.stage.load_resistance;
+        design.recommendation.basis = sizing::Basis::YieldInWindow;
+        return Ok(());
+    }
+    design.recommendation.yield_short = true;
+    Ok(())
+}
+
+/// Judges every yield line of `cases` on the population drawn for its stage and temperature;
+/// a stage the population left out keeps its yield lines failing (not estimated).
+fn judge_yield(plan: &Plan, cases: &mut [CaseEvaluation], population: Option<&Population>) {
+    for case in cases {
+        let drawn = population.and_then(|p| {
+            p.stages
+                .iter()
+                .find(|s| s.stage == case.stage.name && s.temperature_c == case.temperature_c)
+        });
+        for result in case.budget.iter_mut() {
+            let line = &plan.budget[result.line];
+            if !line.metric.is_population() || !result.judged {
+                continue;
+            }
+            let estimate = drawn.map(|d| &d.yield_estimate);
+            result.judge_yield(
+                line,
+                estimate.map(|e| e.pass_fraction()),
+                estimate.map(|e| (e.low, e.high)),
+            );
         }
     }
 }
@@ -134,17 +342,7 @@ pub fn evaluate(
     progress: &(dyn Fn(Progress) + Sync),
 ) -> Result<PlanEvaluation, Error> {
     let cache = Arc::new(FftCache::default());
-    // Every stage × temperature × process corner, in report order.
-    let cases: Vec<(usize, f64, usize)> = plan
-        .stages
-        .iter()
-        .enumerate()
-        .flat_map(|(i, _)| {
-            plan.temperatures_c
-                .iter()
-                .flat_map(move |t| (0..plan.corners.len()).map(move |k| (i, *t, k)))
-        })
-        .collect();
+    let planned: Vec<(usize, &Stage)> = plan.stages.iter().enumerate().collect();
 
     progress(Progress::DrivePoints {
         stages: plan.stages.len(),
@@ -153,43 +351,7 @@ pub fn evaluate(
         frequencies: plan.drive.frequencies.len(),
         amplitudes: plan.drive.amplitudes.len(),
     });
-    let counter = Counter::new(Phase::DrivePoints, cases.len() as u64, progress);
-    let evaluated: Vec<CaseEvaluation> = cases
-        .par_iter()
-        .map(|(index, temperature, corner)| {
-            let process = &plan.corners[*corner];
-            let stage = process.apply(&plan.stages[*index]);
-            let case = evaluate_case(plan, *index, stage, *temperature, &process.name, &cache);
-            counter.tick();
-            case
-        })
-        .collect::<Result<Vec<_>, Error>>()?;
-    let corner_spread = if plan.corners.len() > 1 {
-        evaluated
-            .chunks(plan.corners.len())
-            .flat_map(|group| spread(plan, group))
-            .collect()
-    } else {
-        Vec::new()
-    };
-
-    let population = match &plan.monte_carlo {
-        Some(settings) => {
-            progress(Progress::MonteCarlo {
-                runs: settings.runs,
-            });
-            let counter = Counter::new(
-                Phase::MonteCarlo,
-                montecarlo::planned_runs(plan, settings),
-                progress,
-            );
-            let population =
-                montecarlo::evaluate_observed(plan, settings, &cache, &|| counter.tick())?;
-            counter.finish();
-            Some(population)
-        }
-        None => None,
-    };
+    let mut evaluated = evaluate_cases(plan, &planned, &cache, progress)?;
 
     let sizing = match &plan.sizing {
         Some(settings) => {
@@ -224,10 +386,89 @@ pub fn evaluate(
         None => Vec::new(),
     };
 
+    // The recommended design: each planned stage with the values to build, as a stage of its own.
+    let mut recommended: Vec<RecommendedStage> = Vec::new();
+    if let Some(settings) = &plan.sizing {
+        let mut taken: Vec<String> = plan.stages.iter().map(|s| s.name.clone()).collect();
+        for (index, planned_stage) in plan.stages.iter().enumerate() {
+            let outcomes: Vec<&SizingOutcome> = sizing
+                .iter()
+                .filter(|o| o.stage == planned_stage.name)
+                .collect();
+            let recommendation = sizing::recommend(plan, index, &outcomes, settings, &cache)?;
+            let mut stage = planned_stage.clone();
+            stage.name = sizing::sized_name(&planned_stage.name, &taken);
+            taken.push(stage.name.clone());
+            stage.emitter_resistance = recommendation.emitter_resistance;
+            stage.load_resistance = recommendation.load_resistance;
+            recommended.push(RecommendedStage {
+                recommendation,
+                stage,
+                cases: Vec::new(),
+                spread: Vec::new(),
+            });
+        }
+        if let Some(monte_carlo) = &plan.monte_carlo {
+            for design in &mut recommended {
+                let outcomes: Vec<&SizingOutcome> = sizing
+                    .iter()
+                    .filter(|o| o.stage == plan.stages[design.recommendation.stage_index].name)
+                    .collect();
+                raise_for_yield(plan, settings, monte_carlo, design, &outcomes, &cache)?;
+            }
+        }
+        progress(Progress::Recommended {
+            stages: recommended.len(),
+        });
+        let derived: Vec<(usize, &Stage)> = recommended
+            .iter()
+            .map(|r| (r.recommendation.stage_index, &r.stage))
+            .collect();
+        let mut derived_cases = evaluate_cases(plan, &derived, &cache, progress)?;
+        let per_stage = plan.temperatures_c.len() * plan.corners.len();
+        for design in recommended.iter_mut().rev() {
+            let start = derived_cases.len() - per_stage;
+            design.cases = derived_cases.split_off(start);
+        }
+    }
+
+    let population = match &plan.monte_carlo {
+        Some(settings) => {
+            progress(Progress::MonteCarlo {
+                runs: settings.runs,
+            });
+            let mut stages = planned.clone();
+            stages.extend(
+                recommended
+                    .iter()
+                    .map(|r| (r.recommendation.stage_index, &r.stage)),
+            );
+            let counter = Counter::new(
+                Phase::MonteCarlo,
+                montecarlo::planned_runs(plan, settings, &stages),
+                progress,
+            );
+            let population =
+                montecarlo::evaluate_stages_observed(plan, settings, &stages, &cache, &|| {
+                    counter.tick()
+                })?;
+            counter.finish();
+            Some(population)
+        }
+        None => None,
+    };
+    judge_yield(plan, &mut evaluated, population.as_ref());
+    for design in &mut recommended {
+        judge_yield(plan, &mut design.cases, population.as_ref());
+        design.spread = corner_spread(plan, &design.cases);
+    }
+    let spread = corner_spread(plan, &evaluated);
+
     Ok(PlanEvaluation {
         cases: evaluated,
-        spread: corner_spread,
+        spread,
         population,
         sizing,
+        recommended,
     })
 }

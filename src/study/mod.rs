@@ -9,4 +9,5 @@ pub mod corners;
 pub mod evaluate;
 pub mod montecarlo;
 pub mod sizing;
+pub mod verdict;
 pub mod workload;

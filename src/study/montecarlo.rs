@@ -163,7 +163,7 @@ pub struct FigureDistribution {
 }
 
 /// The pass fraction of the runs against the whole budget.
-#[derive(Debug, Clone, Copy, PartialEq)]
+#[derive(Debug, Clone, PartialEq)]
 pub struct YieldEstimate {
     /// Runs meeting every budget line.
     pub passing_runs: u64,
@@ -173,6 +173,8 @@ pub struct YieldEstimate {
     pub low: f64,
     /// Upper end of the 95 % Wilson score interval.
     pub high: f64,
+    /// Per budget line (plan order), the runs failing that line (`None` for yield lines).
+    pub failing_runs: Vec<Option<u64>>,
 }
 
 impl YieldEstimate {
@@ -221,7 +223,8 @@ struct RunResult {
     /// Per resolution (amplitude), the POINT_METRICS values (±∞ for null).
     points: Vec<[f64; 7]>,
     offset_v: f64,
-    pass: bool,
+    /// Whether the run meets each budget line (yield lines count as met).
+    line_passes: Vec<bool>,
 }
 
 fn level_dbc(level: f64, fundamental: f64) -> f64 {
@@ -271,43 +274,60 @@ fn measure_amplitude(
     Ok((values, amplitudes))
 }
 
-/// Runs the Monte Carlo analysis of every stage and temperature. Stages with no
-/// `mismatch_sigma` have nothing to draw and are left out; stages with capacitance are left out
-/// and named (a periodic steady state per run would cost thousands of times more).
+/// Runs the Monte Carlo analysis of every stage of the plan and temperature (see
+/// [`evaluate_stages`]).
 pub fn evaluate(
     plan: &Plan,
     settings: &MonteCarloSettings,
     cache: &Arc<FftCache>,
 ) -> Result<Population, Error> {
-    evaluate_observed(plan, settings, cache, &|| {})
+    let stages: Vec<(usize, &Stage)> = plan.stages.iter().enumerate().collect();
+    evaluate_stages(plan, settings, &stages, cache)
 }
 
-/// The number of runs [`evaluate`] draws in all: `runs` per temperature of every stage it
-/// does not leave out.
-pub fn planned_runs(plan: &Plan, settings: &MonteCarloSettings) -> u64 {
+/// Runs the Monte Carlo analysis of `stages` at every temperature; each stage is given with the
+/// plan index its draws are keyed by (a derived stage shares its planned stage's index, so both
+/// see the same dies). Stages with no `mismatch_sigma` have nothing to draw and are left out,
+/// unless the budget has a yield line (then every run is the nominal die and the yield is 0 or
+/// 1); stages with capacitance are left out and named (a periodic steady state per run would
+/// cost thousands of times more).
+pub fn evaluate_stages(
+    plan: &Plan,
+    settings: &MonteCarloSettings,
+    stages: &[(usize, &Stage)],
+    cache: &Arc<FftCache>,
+) -> Result<Population, Error> {
+    evaluate_stages_observed(plan, settings, stages, cache, &|| {})
+}
+
+/// The number of runs [`evaluate_stages`] draws in all for `stages`: `runs` per temperature of
+/// every stage it does not leave out.
+pub fn planned_runs(plan: &Plan, settings: &MonteCarloSettings, stages: &[(usize, &Stage)]) -> u64 {
     let typical = &plan.corners[0];
-    let drawn = plan
-        .stages
+    let has_yield_line = plan.budget.iter().any(|l| l.metric.is_population());
+    let drawn = stages
         .iter()
-        .filter(|nominal| nominal.mismatch_sigma != Mismatch::default())
-        .filter(|nominal| {
+        .filter(|(_, nominal)| nominal.mismatch_sigma != Mismatch::default() || has_yield_line)
+        .filter(|(_, nominal)| {
             StageCircuit::new(&typical.apply(nominal), plan.temperatures_c[0]).is_memoryless()
         })
         .count();
     drawn as u64 * plan.temperatures_c.len() as u64 * settings.runs
 }
 
-/// [`evaluate`], calling `run_done` after every run (for a progress count).
-pub fn evaluate_observed(
+/// [`evaluate_stages`], calling `run_done` after every run (for a progress count).
+pub fn evaluate_stages_observed(
     plan: &Plan,
     settings: &MonteCarloSettings,
+    stages: &[(usize, &Stage)],
     cache: &Arc<FftCache>,
     run_done: &(dyn Fn() + Sync),
 ) -> Result<Population, Error> {
     let typical = &plan.corners[0];
+    let has_yield_line = plan.budget.iter().any(|l| l.metric.is_population());
     let mut population = Population::default();
-    for (stage_index, nominal) in plan.stages.iter().enumerate() {
-        if nominal.mismatch_sigma == Mismatch::default() {
+    for &(stage_index, nominal) in stages {
+        if nominal.mismatch_sigma == Mismatch::default() && !has_yield_line {
             continue;
         }
         let stage = typical.apply(nominal);
@@ -399,8 +419,12 @@ fn evaluate_one(
                     drive_settings,
                 )
             });
-            let mut pass = true;
+            let mut line_passes = Vec::with_capacity(plan.budget.len());
             for line in &plan.budget {
+                if line.metric.is_population() {
+                    line_passes.push(true);
+                    continue;
+                }
                 let at = resolutions
                     .iter()
                     .position(|r| r.amplitude_v == plan.drive.amplitude_of(line))
@@ -417,18 +441,19 @@ fn evaluate_one(
                     Metric::Im3 => finite(points[at][5]),
                     Metric::Gain => Some(20.0 * small_signal_gain(&solver)?.abs().log10()),
                     Metric::InputNoise => Some(input_noise_density(&solver)?),
+                    Metric::Yield => None,
                     _ => match &measured {
                         Some(m) => m.measure(line)?,
                         None => None,
                     },
                 };
-                pass &= judge(line, value, ANALYSIS_FLOOR_DBC).1;
+                line_passes.push(judge(line, value, ANALYSIS_FLOOR_DBC).pass);
             }
             run_done();
             Ok(RunResult {
                 points,
                 offset_v,
-                pass,
+                line_passes,
             })
         })
         .collect::<Result<Vec<_>, SolveFailure>>()
@@ -472,8 +497,20 @@ fn evaluate_one(
             offsets,
         ));
     }
-    let passes = runs.iter().filter(|r| r.pass).count() as u64;
+    let passes = runs
+        .iter()
+        .filter(|r| r.line_passes.iter().all(|p| *p))
+        .count() as u64;
     let (low, high) = wilson_interval(passes, settings.runs, Z_95);
+    let failing_runs = plan
+        .budget
+        .iter()
+        .enumerate()
+        .map(|(index, line)| {
+            (!line.metric.is_population())
+                .then(|| runs.iter().filter(|r| !r.line_passes[index]).count() as u64)
+        })
+        .collect();
     Ok(StagePopulation {
         stage: stage.name.clone(),
         temperature_c,
@@ -485,6 +522,7 @@ fn evaluate_one(
             runs: settings.runs,
             low,
             high,
+            failing_runs,
         },
     })
 }

@@ -1,16 +1,27 @@
-//! Sizing: the least emitter degeneration that meets every budget line.
+//! Sizing: the emitter degeneration to build, the range of it that works, and what cannot work.
 //!
 //! Margins are not assumed monotonic in R_E (mismatch, Early effect and a finite tail can bend
-//! them): the range is scanned on a uniform grid, the first passing grid value after a failing
-//! one is taken as the crossing, and the crossing is refined by bisection until the bracket is
-//! within 0.1 % of R_E. With `hold_gain`, the load is rescaled at each R_E so the small-signal
-//! gain stays that of the stage as planned, and collector-base headroom at the largest budget
-//! amplitude becomes a further constraint.
+//! them, and a gain line fails again at large R_E): the range is scanned on a uniform grid of
+//! [`SCAN_POINTS`], and every change between a grid value that *holds* every line and one that
+//! does not is refined — bisection to [`REFINE_RELATIVE`] of R_E, then two verified secant
+//! steps on the worst margin — into the edges of the usable windows. A value *holds* when every
+//! budget line passes with at least `guard_band_db` of margin (and, with `hold_gain`, the
+//! collector-base junction keeps reverse bias). The R_E to build is the low edge of the first
+//! window: the least value that holds. Windows narrower than one grid step can be missed; the
+//! edges found are verified trial values, the insides of a window are grid values.
 //!
-//! With process corners every trial is evaluated in every corner and each line keeps its
-//! worst margin, so the chosen R_E meets the budget in all corners. When noise lines and
-//! distortion lines cannot be met together, the record gives the least scanned R_E meeting
-//! the distortion lines, the greatest meeting the noise lines, and the gap between them.
+//! With `hold_gain`, the load is rescaled at each R_E so the small-signal gain stays that of
+//! the stage as planned, and collector-base headroom at the largest budget amplitude becomes a
+//! further constraint. With process corners every trial is evaluated in every corner and each
+//! line keeps its worst margin, so a value that holds does so in every corner.
+//!
+//! A line that no scanned value meets is *unreachable*: its best value and where it occurs are
+//! kept, and the recommendation then sizes against the lines that can be met (the verdict names
+//! the unreachable ones). When distortion and noise lines cannot be met together, the outcome
+//! gives the least scanned R_E meeting the distortion lines, the greatest meeting the noise
+//! lines, and the gap between them. Yield lines are not part of a trial (a Monte Carlo
+//! population per trial value would cost thousands of solves each); they are judged on the
+//! recommended design's full evaluation.
 
 use crate::error::{Error, SolveFailure};
 use crate::measure::budget::judge;
@@ -27,8 +38,12 @@ use std::sync::Arc;
 
 /// Grid points of the initial scan.
 pub const SCAN_POINTS: usize = 41;
-/// Relative width of the final bracket around the crossing.
+/// Relative width of the bracket around each window edge before the secant steps.
 pub const REFINE_RELATIVE: f64 = 1e-3;
+/// Verified secant steps on the worst margin after the bisection.
+pub const SECANT_STEPS: usize = 2;
+/// Most windows whose edges are refined (further ones keep grid resolution).
+pub const REFINED_WINDOWS: usize = 4;
 
 /// Everything measured at one emitter resistance.
 #[derive(Debug, Clone)]
@@ -37,9 +52,12 @@ pub struct Trial {
     pub emitter_resistance: f64,
     /// Load resistance used, Ω (rescaled with `hold_gain`).
     pub load_resistance: f64,
-    /// Worst margin of each budget line across corners, dB.
+    /// Worst margin of each budget line across corners, dB (`None` for yield lines, which a
+    /// trial does not judge).
     pub margins: Vec<Option<f64>>,
-    /// Whether each line passes in every corner.
+    /// Each line's value in the corner giving its worst margin.
+    pub values: Vec<Option<f64>>,
+    /// Whether each line passes in every corner (true for yield lines).
     pub passes: Vec<bool>,
     /// Corner giving each line's worst margin.
     pub corners: Vec<String>,
@@ -54,12 +72,64 @@ pub struct Trial {
 /// What decided a sizing result.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub enum Binding {
-    /// The budget line with this index (in the plan) has the least margin.
+    /// The budget line with this index (in the plan) has the least margin, or cannot be met.
     Line(usize),
     /// Collector-base headroom, not distortion (`hold_gain` only).
     Headroom,
     /// No budget line bounds the result.
     Nothing,
+}
+
+/// An end of the sizing range.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum RangeEnd {
+    /// `from`, the lower end.
+    From,
+    /// `to`, the upper end.
+    To,
+}
+
+/// Advice about the range itself: the answer or the best margin sits at one of its ends.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum RangeHint {
+    /// The least value that holds is `from` itself (above 0 Ω): a smaller one may hold too.
+    AnswerAtFrom,
+    /// The only usable values lie in the last grid step below `to`: the window may extend
+    /// beyond it.
+    AnswerNearTo,
+    /// No value holds, and the best worst-line margin is at this end: the margins were still
+    /// improving there.
+    BestAt(RangeEnd),
+}
+
+/// A range of emitter resistance where every line holds.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Window {
+    /// Least value that holds, Ω.
+    pub low: f64,
+    /// Greatest value that holds, Ω.
+    pub high: f64,
+    /// `low` is the range's `from` (the window may extend below it).
+    pub low_at_end: bool,
+    /// `high` is the range's `to` (the window may extend above it).
+    pub high_at_end: bool,
+}
+
+/// A budget line that no scanned value meets.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Unreachable {
+    /// Index of the line in the plan's budget.
+    pub line: usize,
+    /// The best value it reaches (`None`: below the floor or unbounded).
+    pub best_value: Option<f64>,
+    /// The margin there (negative), dB.
+    pub best_margin: Option<f64>,
+    /// Where the best value occurs, Ω.
+    pub at_emitter_resistance: f64,
+    /// The corner giving that (worst-corner) value.
+    pub corner: String,
+    /// The best value is at an end of the range (`None`: inside it).
+    pub at_end: Option<RangeEnd>,
 }
 
 /// The sizing of one stage at one temperature.
@@ -69,9 +139,9 @@ pub struct SizingOutcome {
     pub stage: String,
     /// Temperature, °C.
     pub temperature_c: f64,
-    /// Whether a value meeting every line was found.
+    /// Whether a value holding every line was found.
     pub met: bool,
-    /// The least value meeting every line, or the best trial when none does.
+    /// The least value holding every line, or the best trial when none does.
     pub chosen: Trial,
     /// What decided it.
     pub binding: Binding,
@@ -91,24 +161,79 @@ pub struct SizingOutcome {
     pub noise_greatest: Option<f64>,
     /// When no value meets both: how far apart the two ranges are, Ω.
     pub conflict_gap: Option<f64>,
+    /// The windows where every line holds, in increasing R_E.
+    pub windows: Vec<Window>,
+    /// Lines no scanned value meets.
+    pub unreachable: Vec<Unreachable>,
+    /// Advice about the range's ends.
+    pub hints: Vec<RangeHint>,
+    /// The guard band the windows were found with, dB.
+    pub guard_band_db: f64,
+}
+
+/// Which lines a holding test counts, and with what guard band.
+#[derive(Debug, Clone)]
+struct Criterion {
+    counted: Vec<bool>,
+    guard_band_db: f64,
+}
+
+impl Criterion {
+    fn all(plan: &Plan, guard_band_db: f64) -> Self {
+        Criterion {
+            counted: plan
+                .budget
+                .iter()
+                .map(|l| !l.metric.is_population())
+                .collect(),
+            guard_band_db,
+        }
+    }
+}
+
+/// A margin as a number to compare: a missing margin sorts above everything when the line
+/// passes (an unbounded intercept) and below everything when it fails.
+fn margin_key(margin: Option<f64>, pass: bool) -> f64 {
+    margin.unwrap_or(if pass {
+        f64::INFINITY
+    } else {
+        f64::NEG_INFINITY
+    })
 }
 
 impl Trial {
-    fn all_pass(&self) -> bool {
-        self.passes.iter().all(|p| *p) && self.headroom_v.is_none_or(|h| h >= 0.0)
+    /// Whether every counted line passes by the guard band, and headroom holds.
+    fn holds(&self, criterion: &Criterion) -> bool {
+        self.margins
+            .iter()
+            .zip(&self.passes)
+            .zip(&criterion.counted)
+            .filter(|(_, counted)| **counted)
+            .all(|((margin, pass), _)| *pass && margin.is_none_or(|m| m >= criterion.guard_band_db))
+            && self.headroom_v.is_none_or(|h| h >= 0.0)
     }
 
-    /// Worst budget-line margin (dB), its line, and the corner where it occurs. Headroom is
-    /// in volts and is judged separately.
-    fn worst_with_corner(&self) -> ((f64, Binding), String) {
+    /// Least counted margin less the guard band (for the secant steps), dB.
+    fn excess(&self, criterion: &Criterion) -> f64 {
+        self.margins
+            .iter()
+            .zip(&self.passes)
+            .zip(&criterion.counted)
+            .filter(|(_, counted)| **counted)
+            .map(|((margin, pass), _)| margin_key(*margin, *pass) - criterion.guard_band_db)
+            .fold(f64::INFINITY, f64::min)
+    }
+
+    /// Worst budget-line margin (dB) among the counted lines, its line, and the corner where
+    /// it occurs. Headroom is in volts and is judged separately.
+    fn worst_with_corner(&self, counted: &[bool]) -> ((f64, Binding), String) {
         let mut worst = (f64::INFINITY, Binding::Nothing);
         let mut corner = TYPICAL.to_owned();
         for (index, (margin, pass)) in self.margins.iter().zip(&self.passes).enumerate() {
-            let m = margin.unwrap_or(if *pass {
-                f64::INFINITY
-            } else {
-                f64::NEG_INFINITY
-            });
+            if !counted[index] {
+                continue;
+            }
+            let m = margin_key(*margin, *pass);
             if m < worst.0 {
                 worst = (m, Binding::Line(index));
                 corner = self.corners[index].clone();
@@ -128,6 +253,66 @@ impl Trial {
     }
 }
 
+/// The stage at one emitter resistance, with the load rescaled to `target_gain` when given.
+fn stage_at(
+    plan: &Plan,
+    base: &Stage,
+    temperature_c: f64,
+    emitter_resistance: f64,
+    target_gain: Option<f64>,
+    cache: &Arc<FftCache>,
+) -> Result<Stage, SolveFailure> {
+    let mut trial_stage = base.clone();
+    trial_stage.emitter_resistance = emitter_resistance;
+    if let Some(target) = target_gain {
+        // Gain is proportional to the load without Early effect; a few fixed-point steps
+        // settle it to 1e-12 otherwise.
+        for _ in 0..8 {
+            let measured = measurements(&trial_stage, temperature_c, plan, cache);
+            let gain = small_signal_gain(measured.engine().static_solver())?;
+            let ratio = target / gain;
+            trial_stage.load_resistance *= ratio;
+            if (ratio - 1.0).abs() < 1e-12 {
+                break;
+            }
+        }
+    }
+    Ok(trial_stage)
+}
+
+/// The planned stage's small-signal gain at `temperature_c` (the gain `hold_gain` holds), V/V.
+pub fn planned_gain(
+    plan: &Plan,
+    stage: &Stage,
+    temperature_c: f64,
+    cache: &Arc<FftCache>,
+) -> Result<f64, Error> {
+    let measured = measurements(stage, temperature_c, plan, cache);
+    small_signal_gain(measured.engine().static_solver())
+        .map_err(|failure| Error::solve(&stage.name, temperature_c, failure))
+}
+
+/// The load that gives the planned stage's gain at `temperature_c` with `emitter_resistance`.
+pub fn held_load(
+    plan: &Plan,
+    stage: &Stage,
+    temperature_c: f64,
+    emitter_resistance: f64,
+    cache: &Arc<FftCache>,
+) -> Result<f64, Error> {
+    let target = planned_gain(plan, stage, temperature_c, cache)?;
+    stage_at(
+        plan,
+        stage,
+        temperature_c,
+        emitter_resistance,
+        Some(target),
+        cache,
+    )
+    .map(|s| s.load_resistance)
+    .map_err(|failure| Error::solve(&stage.name, temperature_c, failure))
+}
+
 fn trial(
     plan: &Plan,
     base: &Stage,
@@ -136,48 +321,41 @@ fn trial(
     target_gain: Option<f64>,
     cache: &Arc<FftCache>,
 ) -> Result<Trial, Error> {
-    let mut trial_stage = base.clone();
-    trial_stage.emitter_resistance = emitter_resistance;
     let fail = |failure: SolveFailure| Error::solve(&base.name, temperature_c, failure);
-    if let Some(target) = target_gain {
-        // Gain is proportional to the load without Early effect; a few fixed-point steps
-        // settle it to 1e-12 otherwise.
-        for _ in 0..8 {
-            let measured = measurements(&trial_stage, temperature_c, plan, cache);
-            let gain = small_signal_gain(measured.engine().static_solver()).map_err(fail)?;
-            let ratio = target / gain;
-            trial_stage.load_resistance *= ratio;
-            if (ratio - 1.0).abs() < 1e-12 {
-                break;
-            }
-        }
-    }
+    let trial_stage = stage_at(
+        plan,
+        base,
+        temperature_c,
+        emitter_resistance,
+        target_gain,
+        cache,
+    )
+    .map_err(fail)?;
     // Worst case over the process corners, line by line.
-    let key = |margin: Option<f64>, pass: bool| {
-        margin.unwrap_or(if pass {
-            f64::INFINITY
-        } else {
-            f64::NEG_INFINITY
-        })
-    };
-    let mut margins: Vec<Option<f64>> = vec![None; plan.budget.len()];
-    let mut passes = vec![true; plan.budget.len()];
-    let mut corners = vec![TYPICAL.to_owned(); plan.budget.len()];
-    let mut keys = vec![f64::INFINITY; plan.budget.len()];
+    let lines = plan.budget.len();
+    let mut margins: Vec<Option<f64>> = vec![None; lines];
+    let mut values: Vec<Option<f64>> = vec![None; lines];
+    let mut passes = vec![true; lines];
+    let mut corners = vec![TYPICAL.to_owned(); lines];
+    let mut keys = vec![f64::INFINITY; lines];
     let mut headroom_worst: Option<f64> = None;
     for (corner_index, corner) in plan.corners.iter().enumerate() {
         let in_corner = corner.apply(&trial_stage);
         let measured = measurements(&in_corner, temperature_c, plan, cache);
         for (index, line) in plan.budget.iter().enumerate() {
+            if line.metric.is_population() {
+                continue;
+            }
             let value = measured.measure(line).map_err(fail)?;
-            let (margin, pass) = judge(line, value, ANALYSIS_FLOOR_DBC);
-            let k = key(margin, pass);
+            let judged = judge(line, value, ANALYSIS_FLOOR_DBC);
+            let k = margin_key(judged.margin, judged.pass);
             if corner_index == 0 || k < keys[index] {
                 keys[index] = k;
-                margins[index] = margin;
+                margins[index] = judged.margin;
+                values[index] = value;
                 corners[index] = corner.name.clone();
             }
-            passes[index] &= pass;
+            passes[index] &= judged.pass;
         }
         if let Some(h) = corner_headroom(&measured, plan, target_gain.is_some()).map_err(fail)? {
             headroom_worst = Some(headroom_worst.map_or(h, |w: f64| w.min(h)));
@@ -191,6 +369,7 @@ fn trial(
         emitter_resistance,
         load_resistance: trial_stage.load_resistance,
         margins,
+        values,
         passes,
         corners,
         gain_db: 20.0 * gain.abs().log10(),
@@ -228,11 +407,168 @@ fn corner_headroom(
     Ok(Some(-tone.region.max_base_collector_v))
 }
 
-/// Trials a sizing is expected to take: the scan and about ten bisection steps (from a scan
-/// step down to 0.1 % of the value). For a progress display; the real count may differ.
-pub const EXPECTED_TRIALS: usize = SCAN_POINTS + 10;
+/// One stage at one temperature, with what each trial needs.
+struct Search<'a> {
+    plan: &'a Plan,
+    stage: &'a Stage,
+    temperature_c: f64,
+    target_gain: Option<f64>,
+    cache: &'a Arc<FftCache>,
+    /// Absolute resolution below which an edge near 0 Ω is not refined further, Ω.
+    floor_ohm: f64,
+    /// Told after every trial (a progress count).
+    trial_done: &'a (dyn Fn() + Sync),
+}
 
-/// Finds the least emitter resistance for one stage at one temperature.
+impl Search<'_> {
+    fn trial(&self, emitter_resistance: f64) -> Result<Trial, Error> {
+        let outcome = trial(
+            self.plan,
+            self.stage,
+            self.temperature_c,
+            emitter_resistance,
+            self.target_gain,
+            self.cache,
+        );
+        (self.trial_done)();
+        outcome
+    }
+
+    /// The edge between a value that holds and one that does not (in either order): bisection
+    /// until the bracket is within [`REFINE_RELATIVE`] of R_E, then [`SECANT_STEPS`] secant
+    /// steps on the worst margin, each verified. Returns the holding trial nearest the edge.
+    fn edge(&self, holding: Trial, failing: Trial, criterion: &Criterion) -> Result<Trial, Error> {
+        let (mut good, mut bad) = (holding, failing);
+        let close = |good: &Trial, bad: &Trial| {
+            let width = (good.emitter_resistance - bad.emitter_resistance).abs();
+            width <= REFINE_RELATIVE * good.emitter_resistance.max(bad.emitter_resistance)
+                || width <= self.floor_ohm
+        };
+        let mut steps = 0;
+        while !close(&good, &bad) && steps < 64 {
+            let mid = 0.5 * (good.emitter_resistance + bad.emitter_resistance);
+            let probe = self.trial(mid)?;
+            if probe.holds(criterion) {
+                good = probe;
+            } else {
+                bad = probe;
+            }
+            steps += 1;
+        }
+        for _ in 0..SECANT_STEPS {
+            let (f_good, f_bad) = (good.excess(criterion), bad.excess(criterion));
+            if !(f_good.is_finite() && f_bad.is_finite() && f_good > f_bad) {
+                break;
+            }
+            let (r_good, r_bad) = (good.emitter_resistance, bad.emitter_resistance);
+            let r = r_good + f_good * (r_bad - r_good) / (f_good - f_bad);
+            // Stay strictly inside the bracket.
+            let inside = (r - r_good) * (r - r_bad) < 0.0;
+            if !inside {
+                break;
+            }
+            let probe = self.trial(r)?;
+            if probe.holds(criterion) {
+                good = probe;
+            } else {
+                bad = probe;
+            }
+        }
+        Ok(good)
+    }
+
+    /// The windows of the scan where every counted line holds, their edges refined; with each
+    /// window's low-edge trial.
+    fn windows(
+        &self,
+        scan: &[Trial],
+        criterion: &Criterion,
+    ) -> Result<Vec<(Window, Trial)>, Error> {
+        let holds: Vec<bool> = scan.iter().map(|t| t.holds(criterion)).collect();
+        let last = scan.len() - 1;
+        let mut runs: Vec<(usize, usize)> = Vec::new();
+        let mut i = 0;
+        while i <= last {
+            if holds[i] {
+                let start = i;
+                while i < last && holds[i + 1] {
+                    i += 1;
+                }
+                runs.push((start, i));
+            }
+            i += 1;
+        }
+        let mut windows = Vec::with_capacity(runs.len());
+        for (n, &(start, end)) in runs.iter().enumerate() {
+            let refine = n < REFINED_WINDOWS;
+            let low = if start == 0 || !refine {
+                scan[start].clone()
+            } else {
+                self.edge(scan[start].clone(), scan[start - 1].clone(), criterion)?
+            };
+            let high = if end == last || !refine {
+                scan[end].emitter_resistance
+            } else {
+                self.edge(scan[end].clone(), scan[end + 1].clone(), criterion)?
+                    .emitter_resistance
+            };
+            windows.push((
+                Window {
+                    low: low.emitter_resistance,
+                    high,
+                    low_at_end: start == 0,
+                    high_at_end: end == last,
+                },
+                low,
+            ));
+        }
+        Ok(windows)
+    }
+}
+
+/// Which end of the range a grid index is at, if either.
+fn end_of(index: usize, last: usize) -> Option<RangeEnd> {
+    if index == 0 {
+        Some(RangeEnd::From)
+    } else if index == last {
+        Some(RangeEnd::To)
+    } else {
+        None
+    }
+}
+
+/// The lines no scanned value meets, with their best value and where it is.
+fn unreachable_lines(plan: &Plan, scan: &[Trial]) -> Vec<Unreachable> {
+    let last = scan.len() - 1;
+    let mut out = Vec::new();
+    for (index, line) in plan.budget.iter().enumerate() {
+        if line.metric.is_population() || scan.iter().any(|t| t.passes[index]) {
+            continue;
+        }
+        let best = (0..scan.len())
+            .max_by(|&a, &b| {
+                margin_key(scan[a].margins[index], false)
+                    .total_cmp(&margin_key(scan[b].margins[index], false))
+            })
+            .unwrap_or(0);
+        let trial = &scan[best];
+        // Flat margins (a figure R_E does not change) have no best end.
+        let flat = scan
+            .iter()
+            .all(|t| t.margins[index] == trial.margins[index]);
+        out.push(Unreachable {
+            line: index,
+            best_value: trial.values[index],
+            best_margin: trial.margins[index],
+            at_emitter_resistance: trial.emitter_resistance,
+            corner: trial.corners[index].clone(),
+            at_end: if flat { None } else { end_of(best, last) },
+        });
+    }
+    out
+}
+
+/// Sizes one stage at one temperature: windows, the least value that holds, what cannot be met.
 pub fn size_stage(
     plan: &Plan,
     stage: &Stage,
@@ -243,6 +579,10 @@ pub fn size_stage(
     size_stage_observed(plan, stage, temperature_c, settings, cache, &|| {})
 }
 
+/// Trials a sizing is expected to take: the scan and about a dozen refinement steps. For a
+/// progress display; the real count may differ.
+pub const EXPECTED_TRIALS: usize = SCAN_POINTS + 12;
+
 /// [`size_stage`], calling `trial_done` after every trial R_E (for a progress count).
 pub fn size_stage_observed(
     plan: &Plan,
@@ -252,24 +592,19 @@ pub fn size_stage_observed(
     cache: &Arc<FftCache>,
     trial_done: &(dyn Fn() + Sync),
 ) -> Result<SizingOutcome, Error> {
-    let trial = |plan: &Plan,
-                 stage: &Stage,
-                 temperature_c: f64,
-                 r: f64,
-                 target_gain: Option<f64>,
-                 cache: &Arc<FftCache>| {
-        let outcome = trial(plan, stage, temperature_c, r, target_gain, cache);
-        trial_done();
-        outcome
-    };
     let target_gain = if settings.hold_gain {
-        let measured = measurements(stage, temperature_c, plan, cache);
-        Some(
-            small_signal_gain(measured.engine().static_solver())
-                .map_err(|failure| Error::solve(&stage.name, temperature_c, failure))?,
-        )
+        Some(planned_gain(plan, stage, temperature_c, cache)?)
     } else {
         None
+    };
+    let search = Search {
+        plan,
+        stage,
+        temperature_c,
+        target_gain,
+        cache,
+        floor_ohm: 1e-6 * (settings.to - settings.from),
+        trial_done,
     };
     let grid: Vec<f64> = (0..SCAN_POINTS)
         .map(|i| {
@@ -278,27 +613,16 @@ pub fn size_stage_observed(
         .collect();
     let scan: Vec<Trial> = grid
         .par_iter()
-        .map(|r| trial(plan, stage, temperature_c, *r, target_gain, cache))
+        .map(|r| search.trial(*r))
         .collect::<Result<Vec<_>, Error>>()?;
     let reference_gain_db = scan[0].gain_db;
+    let last = scan.len() - 1;
 
-    let chosen = match scan.iter().position(Trial::all_pass) {
-        None => None,
-        Some(0) => Some(scan[0].clone()),
-        Some(index) => {
-            let (mut low, mut high) = (scan[index - 1].emitter_resistance, scan[index].clone());
-            while high.emitter_resistance - low > REFINE_RELATIVE * high.emitter_resistance {
-                let mid = 0.5 * (low + high.emitter_resistance);
-                let probe = trial(plan, stage, temperature_c, mid, target_gain, cache)?;
-                if probe.all_pass() {
-                    high = probe;
-                } else {
-                    low = mid;
-                }
-            }
-            Some(high)
-        }
-    };
+    let every_line = Criterion::all(plan, settings.guard_band_db);
+    let found = search.windows(&scan, &every_line)?;
+    let unreachable = unreachable_lines(plan, &scan);
+    let met = !found.is_empty();
+    let windows: Vec<Window> = found.iter().map(|(w, _)| *w).collect();
 
     // Distortion and noise pull R_E in opposite directions: where does each allow it?
     let has_noise_lines = plan.budget.iter().any(|l| l.metric == Metric::InputNoise);
@@ -314,33 +638,60 @@ pub fn size_stage_observed(
     } else {
         None
     };
-    let conflict_gap = match (chosen.is_none(), distortion_least, noise_greatest) {
-        (true, Some(d), Some(n)) if d > n => Some(d - n),
+    let conflict_gap = match (met, distortion_least, noise_greatest) {
+        (false, Some(d), Some(n)) if d > n => Some(d - n),
         _ => None,
     };
-    let met = chosen.is_some();
-    let (chosen, headroom_binds) = match chosen {
-        Some(t) => {
-            let headroom_binds = t.headroom_v.is_some_and(|h| {
-                let distortion_worst = t
+
+    // The lines the result is judged on when nothing holds: those that can be met somewhere.
+    let reachable = Criterion {
+        counted: every_line
+            .counted
+            .iter()
+            .enumerate()
+            .map(|(i, c)| *c && !unreachable.iter().any(|u| u.line == i))
+            .collect(),
+        guard_band_db: settings.guard_band_db,
+    };
+    let mut hints = Vec::new();
+    let (chosen, headroom_binds) = match found.first() {
+        Some((window, low)) => {
+            if window.low_at_end && settings.from > 0.0 {
+                hints.push(RangeHint::AnswerAtFrom);
+            }
+            if found.len() == 1 && window.high_at_end && window.low > grid[last - 1] {
+                hints.push(RangeHint::AnswerNearTo);
+            }
+            let headroom_binds = low.headroom_v.is_some_and(|h| {
+                let distortion_worst = low
                     .margins
                     .iter()
                     .flatten()
                     .copied()
                     .fold(f64::INFINITY, f64::min);
-                h < 0.05 && distortion_worst > 0.5
+                h < 0.05 && distortion_worst > 0.5 + settings.guard_band_db
             });
-            (t, headroom_binds)
+            (low.clone(), headroom_binds)
         }
         None => {
             // Distortion alone may be meetable while headroom fails everywhere (hold_gain):
             // then headroom binds, and the best headroom among those trials is reported.
-            let distortion_ok: Vec<&Trial> = scan
-                .iter()
-                .filter(|t| t.passes.iter().all(|p| *p))
-                .collect();
-            let headroom_binds = !distortion_ok.is_empty();
-            let best = if headroom_binds {
+            let without_headroom = |t: &Trial| {
+                t.margins
+                    .iter()
+                    .zip(&t.passes)
+                    .zip(&reachable.counted)
+                    .filter(|(_, c)| **c)
+                    .all(|((m, p), _)| *p && m.is_none_or(|m| m >= settings.guard_band_db))
+            };
+            let distortion_ok: Vec<&Trial> = scan.iter().filter(|t| without_headroom(t)).collect();
+            let headroom_binds = target_gain.is_some()
+                && !distortion_ok.is_empty()
+                && !distortion_ok.iter().any(|t| t.holds(&reachable));
+            let best = if let Some(least) = scan.iter().find(|t| t.holds(&reachable)) {
+                // Every line that can be met is met here: the least such scanned value.
+                least.clone()
+            } else if headroom_binds {
                 distortion_ok
                     .iter()
                     .max_by(|a, b| {
@@ -351,29 +702,58 @@ pub fn size_stage_observed(
                     .map(|t| (*t).clone())
                     .unwrap_or_else(|| scan[0].clone())
             } else {
-                scan.iter()
-                    .max_by(|a, b| {
-                        a.worst_with_corner()
+                let best_index = (0..scan.len())
+                    .max_by(|&a, &b| {
+                        scan[a]
+                            .worst_with_corner(&reachable.counted)
                             .0
                              .0
-                            .total_cmp(&b.worst_with_corner().0 .0)
+                            .total_cmp(&scan[b].worst_with_corner(&reachable.counted).0 .0)
                     })
-                    .cloned()
-                    .unwrap_or_else(|| scan[0].clone())
+                    .unwrap_or(0);
+                if let Some(end) = end_of(best_index, last) {
+                    if end == RangeEnd::To || settings.from > 0.0 {
+                        hints.push(RangeHint::BestAt(end));
+                    }
+                }
+                scan[best_index].clone()
             };
             (best, headroom_binds)
         }
     };
-    let ((worst_margin, worst_line), binding_corner) = chosen.worst_with_corner();
+    let counted_for_binding = if met {
+        &every_line.counted
+    } else {
+        &reachable.counted
+    };
+    let ((worst_margin, worst_line), binding_corner) =
+        chosen.worst_with_corner(counted_for_binding);
+    // Nothing holds: an unreachable line is what decides (the one furthest from its limit).
+    let unreachable_binding = unreachable
+        .iter()
+        .min_by(|a, b| {
+            margin_key(a.best_margin, false).total_cmp(&margin_key(b.best_margin, false))
+        })
+        .map(|u| Binding::Line(u.line));
+    let binding = match (met, headroom_binds, unreachable_binding) {
+        (_, true, _) => Binding::Headroom,
+        (false, false, Some(line)) => line,
+        _ => worst_line,
+    };
+    let (worst_margin, binding_corner) = match (met, binding, unreachable.first()) {
+        (false, Binding::Line(index), Some(_)) => {
+            match unreachable.iter().find(|u| u.line == index) {
+                Some(u) => (margin_key(u.best_margin, false), u.corner.clone()),
+                None => (worst_margin, binding_corner),
+            }
+        }
+        _ => (worst_margin, binding_corner),
+    };
     Ok(SizingOutcome {
         stage: stage.name.clone(),
         temperature_c,
         met,
-        binding: if headroom_binds {
-            Binding::Headroom
-        } else {
-            worst_line
-        },
+        binding,
         worst_margin,
         binding_corner,
         reference_gain_db,
@@ -383,5 +763,166 @@ pub fn size_stage_observed(
         distortion_least,
         noise_greatest,
         conflict_gap,
+        windows,
+        unreachable,
+        hints,
+        guard_band_db: settings.guard_band_db,
     })
+}
+
+/// How the recommended value was found.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Basis {
+    /// The least value holding every line at every temperature (the low end of the first
+    /// window common to all temperatures).
+    CommonWindow,
+    /// No value holds every line at every temperature: the least scanned value holding every
+    /// line that can be met at each temperature (the others are unreachable).
+    ReachableLines,
+    /// Not even that: the scanned value with the best worst-line margin across temperatures.
+    BestWorstMargin,
+    /// The least value in the common windows whose Monte Carlo population also meets every
+    /// yield line (the least value holding the other lines did not).
+    YieldInWindow,
+}
+
+/// The design sizing recommends for one stage: one emitter resistance (and, with `hold_gain`,
+/// one load) for every temperature and corner.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Recommendation {
+    /// Index of the planned stage.
+    pub stage_index: usize,
+    /// Emitter resistance per side to build, Ω.
+    pub emitter_resistance: f64,
+    /// Load resistance per side to build, Ω (the plan's, or rescaled with `hold_gain` at the
+    /// typical temperature).
+    pub load_resistance: f64,
+    /// Whether sizing found a value holding every line at every temperature.
+    pub met: bool,
+    /// The windows common to every temperature, Ω (`[low, high]`).
+    pub windows: Vec<(f64, f64)>,
+    /// How the value was found.
+    pub basis: Basis,
+    /// The yield lines fail at the least value holding the other lines, and at every value of
+    /// the common windows tried above it.
+    pub yield_short: bool,
+}
+
+/// Intersection of two lists of increasing, disjoint intervals.
+fn intersect(a: &[(f64, f64)], b: &[(f64, f64)]) -> Vec<(f64, f64)> {
+    let mut out = Vec::new();
+    for &(a_low, a_high) in a {
+        for &(b_low, b_high) in b {
+            let (low, high) = (a_low.max(b_low), a_high.min(b_high));
+            if low <= high {
+                out.push((low, high));
+            }
+        }
+    }
+    out.sort_by(|x, y| x.0.total_cmp(&y.0));
+    out
+}
+
+/// The temperature nearest 27 °C (room temperature, common practice).
+pub fn typical_temperature(temperatures_c: &[f64]) -> f64 {
+    temperatures_c
+        .iter()
+        .copied()
+        .min_by(|a, b| (a - 27.0).abs().total_cmp(&(b - 27.0).abs()))
+        .unwrap_or(27.0)
+}
+
+/// One value for every temperature from the per-temperature outcomes of one stage.
+pub fn recommend(
+    plan: &Plan,
+    stage_index: usize,
+    outcomes: &[&SizingOutcome],
+    settings: &SizingSettings,
+    cache: &Arc<FftCache>,
+) -> Result<Recommendation, Error> {
+    let stage = &plan.stages[stage_index];
+    let mut common: Option<Vec<(f64, f64)>> = None;
+    for outcome in outcomes {
+        let here: Vec<(f64, f64)> = outcome.windows.iter().map(|w| (w.low, w.high)).collect();
+        common = Some(match common {
+            None => here,
+            Some(so_far) => intersect(&so_far, &here),
+        });
+    }
+    let windows = common.unwrap_or_default();
+    let every_met = !outcomes.is_empty() && outcomes.iter().all(|o| o.met);
+    let (emitter_resistance, basis) = match windows.first() {
+        Some(&(low, _)) if every_met => (low, Basis::CommonWindow),
+        _ => fallback(plan, outcomes, settings),
+    };
+    let load_resistance = if settings.hold_gain {
+        held_load(
+            plan,
+            stage,
+            typical_temperature(&plan.temperatures_c),
+            emitter_resistance,
+            cache,
+        )?
+    } else {
+        stage.load_resistance
+    };
+    Ok(Recommendation {
+        stage_index,
+        emitter_resistance,
+        load_resistance,
+        met: every_met && basis == Basis::CommonWindow,
+        windows,
+        basis,
+        yield_short: false,
+    })
+}
+
+/// The value to evaluate when no window is common to every temperature (all the outcomes
+/// scanned the same grid).
+fn fallback(plan: &Plan, outcomes: &[&SizingOutcome], settings: &SizingSettings) -> (f64, Basis) {
+    let Some(first) = outcomes.first() else {
+        return (settings.from, Basis::BestWorstMargin);
+    };
+    let counted: Vec<bool> = plan
+        .budget
+        .iter()
+        .enumerate()
+        .map(|(i, l)| {
+            !l.metric.is_population()
+                && !outcomes
+                    .iter()
+                    .any(|o| o.unreachable.iter().any(|u| u.line == i))
+        })
+        .collect();
+    let criterion = Criterion {
+        counted,
+        guard_band_db: settings.guard_band_db,
+    };
+    let points = first.scan.len();
+    if let Some(index) = (0..points).find(|&i| outcomes.iter().all(|o| o.scan[i].holds(&criterion)))
+    {
+        return (first.scan[index].emitter_resistance, Basis::ReachableLines);
+    }
+    let worst_at = |i: usize| {
+        outcomes
+            .iter()
+            .map(|o| o.scan[i].worst_with_corner(&criterion.counted).0 .0)
+            .fold(f64::INFINITY, f64::min)
+    };
+    let best = (0..points)
+        .max_by(|&a, &b| worst_at(a).total_cmp(&worst_at(b)))
+        .unwrap_or(0);
+    (first.scan[best].emitter_resistance, Basis::BestWorstMargin)
+}
+
+/// The name the recommended design of `stage` is evaluated under: `<stage>@sized`, made
+/// unique among `taken`.
+pub fn sized_name(stage: &str, taken: &[String]) -> String {
+    let mut name = format!("{stage}@sized");
+    let mut n = 2;
+    while taken.contains(&name) {
+        name = format!("{stage}@sized-{n}");
+        n += 1;
+    }
+    name
 }
