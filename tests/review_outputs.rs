@@ -60,6 +60,8 @@ fn review() -> (tempfile::TempDir, Report, PathBuf) {
         quiet: true,
         max_work: DEFAULT_MAX_WORK,
         figures: true,
+        as_planned: false,
+        overrides: Vec::new(),
     };
     let outcome = run(&options, &|_| {}).expect("the review plan runs");
     (dir, outcome.report, outcome.folder)
@@ -257,7 +259,9 @@ fn tables_name_corners_and_use_si_prefixes_and_trade_names() {
     }
     assert_eq!(rows, report.points.len());
     assert_eq!(keys.len(), rows, "a (stage, corner, T, f, A) key repeats");
-    assert_eq!(rows, 2 * 3 * 2 * 3);
+    // The planned stage and its recommended design (`pair@sized`), each over 3 corners,
+    // 2 temperatures, 2 frequencies and 3 amplitudes.
+    assert_eq!(rows, 2 * 3 * 2 * 2 * 3);
 
     let summary = fs::read_to_string(folder.join("summary.md")).unwrap();
     let header = summary
