@@ -134,9 +134,22 @@ impl Drawing for SizingPlot {
         let temps: Vec<f64> = self.records.iter().map(|r| r.temperature_c).collect();
         let mut key = Key::default();
         for k in 0..self.line_count {
+            // A yield line has no margin per trial value: nothing drawn, nothing to label.
+            if self.lines.get(k).is_some_and(|l| l.metric == "yield") {
+                continue;
+            }
             key.entry(
                 Swatch::line(self.line_colour(k), 3, None),
                 self.line_label(k),
+            );
+        }
+        if !self.windows.is_empty() {
+            key.entry(
+                Swatch::Band {
+                    colour: PASS,
+                    alpha: 0.08,
+                },
+                "R_E usable at every temperature",
             );
         }
         key.entry(
