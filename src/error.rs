@@ -42,8 +42,12 @@ impl PlanError {
         }
     }
 
-    /// Attaches the file name and the offending source line.
+    /// Attaches the file name and the offending source line; an error already located in
+    /// another file (a bench CSV named by the plan) keeps its own.
     pub fn in_file(mut self, file: &str, source: &str) -> Self {
+        if !self.file.is_empty() {
+            return self;
+        }
         self.file = file.to_owned();
         if self.line > 0 {
             self.source_line = source
@@ -62,8 +66,10 @@ impl fmt::Display for PlanError {
         } else {
             &self.file
         };
-        if self.line > 0 {
+        if self.line > 0 && self.column > 0 {
             write!(f, "{file}:{}:{}: ", self.line, self.column)?;
+        } else if self.line > 0 {
+            write!(f, "{file}:{}: ", self.line)?;
         } else {
             write!(f, "{file}: ")?;
         }
@@ -113,6 +119,14 @@ pub enum Error {
         /// The drive point (amplitude, frequency, sample) in words.
         point: String,
         /// Why it failed.
+        reason: String,
+    },
+    /// A stage could not be fitted to its bench data.
+    #[error("fit of stage `{stage}` to its bench data: {reason}")]
+    Fit {
+        /// Stage name.
+        stage: String,
+        /// Why the fit failed.
         reason: String,
     },
     /// A value handed to the library is out of range.

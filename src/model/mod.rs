@@ -6,6 +6,7 @@ pub mod budget;
 pub mod circuit;
 pub mod corner;
 pub mod drive;
+pub mod measurement;
 pub mod plan;
 pub mod stage;
 pub mod tail;

@@ -5,6 +5,7 @@
 use super::budget::BudgetLine;
 use super::corner::Corner;
 use super::drive::Drive;
+use super::measurement::{FitSettings, Measurements};
 use super::stage::Stage;
 
 /// A validated plan with every quantity in SI base units.
@@ -40,6 +41,10 @@ pub struct Plan {
     pub reference_impedance: Option<f64>,
     /// Process corners, the typical one first.
     pub corners: Vec<Corner>,
+    /// Bench sweeps of the stages, compared with the model (and fitted, with `fit`).
+    pub measurements: Vec<Measurements>,
+    /// The fit of every measured stage to its bench data, if asked for.
+    pub fit: Option<FitSettings>,
     /// Values the plan reader accepted but found unusual for a bipolar stage (worded as
     /// warnings by the report layer).
     pub cautions: Vec<PlanCaution>,
@@ -59,6 +64,8 @@ impl Plan {
             noise_band: None,
             reference_impedance: None,
             corners: vec![Corner::typical()],
+            measurements: Vec::new(),
+            fit: None,
             cautions: Vec::new(),
         }
     }
@@ -88,6 +95,20 @@ impl Plan {
     #[must_use]
     pub fn monte_carlo(mut self, settings: MonteCarloSettings) -> Self {
         self.monte_carlo = Some(settings);
+        self
+    }
+
+    /// Adds a bench sweep of one stage.
+    #[must_use]
+    pub fn measurements(mut self, measurements: Measurements) -> Self {
+        self.measurements.push(measurements);
+        self
+    }
+
+    /// Asks for every measured stage to be fitted to its bench data.
+    #[must_use]
+    pub fn fit(mut self, settings: FitSettings) -> Self {
+        self.fit = Some(settings);
         self
     }
 

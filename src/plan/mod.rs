@@ -5,6 +5,7 @@
 //!    numeric ever runs on an unvalidated plan. Every error names the file, line, column, key
 //!    path, what is wrong and what is accepted.
 
+pub(crate) mod bench;
 pub(crate) mod overrides;
 pub(crate) mod reader;
 pub(crate) mod tree;
@@ -38,6 +39,8 @@ const TOP_KEYS: &[&str] = &[
     "noise_band",
     "reference_impedance",
     "corners",
+    "measurements",
+    "fit",
 ];
 const STAGE_KEYS: &[&str] = &[
     "name",
@@ -235,8 +238,8 @@ fn parse_with_overrides(
 /// Reads and validates a plan: parse, override, validate; every error located.
 fn read_plan(text: &str, file: &str, overrides: &[Override]) -> Result<Plan, PlanError> {
     let root = parse_with_overrides(text, file, overrides)?;
-    let mut plan =
-        Plan::from_tree(&root).map_err(|err| locate_error(err, file, text, overrides))?;
+    let mut plan = Plan::from_tree(&root, Path::new(file).parent().unwrap_or(Path::new("")))
+        .map_err(|err| locate_error(err, file, text, overrides))?;
     for caution in &mut plan.cautions {
         caution.location = override_location(caution.line, overrides)
             .unwrap_or_else(|| format!("{}:{}:{}", file, caution.line, caution.column));
@@ -276,12 +279,13 @@ impl Plan {
         Ok(PlanSource::read(path.as_ref())?.plan()?)
     }
 
-    /// Parses and validates plan text; `file` names it in errors.
+    /// Parses and validates plan text; `file` names it in errors, and bench files named in
+    /// `measurements` are read relative to its folder.
     pub fn from_yaml(text: &str, file: &str) -> Result<Plan, PlanError> {
         read_plan(text, file, &[])
     }
 
-    fn from_tree(root: &tree::Node) -> Result<Plan, PlanError> {
+    fn from_tree(root: &tree::Node, plan_dir: &Path) -> Result<Plan, PlanError> {
         let top = At::root(root).map(TOP_KEYS)?;
         let name_at = top.required("name", "letters, digits, '-' and '_'")?;
         let name = name_at.text("letters, digits, '-' and '_'")?.to_owned();
@@ -399,7 +403,18 @@ impl Plan {
 
         let cautions =
             plausibility::cautions(&top, &stage_items, &temperatures_c, &stages, &drive)?;
+        let measurements = match top.get("measurements") {
+            Some(at) => bench::read_measurements(&at, plan_dir, &stages, &corners)?,
+            None => Vec::new(),
+        };
+        let fit = top
+            .get("fit")
+            .map(|at| bench::read_fit(&at, &measurements, &stages))
+            .transpose()?;
+
         Ok(Plan {
+            measurements,
+            fit,
             cautions,
             corners,
             name,

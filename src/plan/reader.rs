@@ -215,6 +215,11 @@ pub enum Range {
 }
 
 impl Range {
+    /// Whether `value` is in the range.
+    pub(crate) fn accepts(self, value: f64) -> bool {
+        self.check(value).is_ok()
+    }
+
     fn check(self, value: f64) -> Result<(), &'static str> {
         let ok = match self {
             Range::Positive => value.is_finite() && value > 0.0,
@@ -233,7 +238,7 @@ impl Range {
         }
     }
 
-    fn phrase(self, unit: Unit) -> String {
+    pub(crate) fn phrase(self, unit: Unit) -> String {
         match self {
             Range::Within(low, high) => format!(
                 "from {} to {}",
@@ -316,7 +321,7 @@ fn join(path: &str, key: &str) -> String {
 }
 
 /// The accepted name closest to a misspelt one (edit distance at most 3).
-fn closest<'b>(name: &str, allowed: &[&'b str]) -> Option<&'b str> {
+pub(crate) fn closest<'b>(name: &str, allowed: &[&'b str]) -> Option<&'b str> {
     allowed
         .iter()
         .map(|candidate| (edit_distance(name, candidate), *candidate))

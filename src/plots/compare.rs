@@ -2,6 +2,7 @@
 //! curves on the left, HD3 and THD versus amplitude on the right.
 
 use super::axis::{nice_step, Axis};
+use super::bench::{bench_marks, draw_bench, same, BenchMark};
 use super::key::{draw_key, split, Key, Swatch};
 use super::style::*;
 use super::{DrawResult, Drawing, PlotKind};
@@ -16,6 +17,8 @@ pub struct ComparisonPlot {
     transfers: Vec<StageRecord>,
     points: Vec<PointRecord>,
     corners: bool,
+    /// Bench HD3 and THD of the plan's stages at the drawn temperature and frequency.
+    bench: Vec<BenchMark>,
     x_left: Axis,
     y_left: Axis,
     x_right: Axis,
@@ -53,6 +56,14 @@ impl ComparisonPlot {
         if transfers.len() < 2 && points.is_empty() {
             return None;
         }
+        let bench: Vec<BenchMark> = bench_marks(report, None)
+            .into_iter()
+            .filter(|b| {
+                b.temperature_c == temperature_c
+                    && frequency_hz.is_some_and(|f| same(f, b.frequency_hz))
+                    && (b.metric == "hd3" || b.metric == "thd")
+            })
+            .collect();
         // Every curve spans the left axis: its end is the least of the curves' reaches.
         let reach = transfers
             .iter()
@@ -97,6 +108,7 @@ impl ComparisonPlot {
             transfers,
             points,
             corners,
+            bench,
             x_left,
             y_left,
             x_right,
@@ -148,6 +160,17 @@ impl Drawing for ComparisonPlot {
                 },
                 format!("{stage}: THD (right)"),
             );
+        }
+        for (shape, metric) in ["hd3", "thd"].iter().enumerate() {
+            if self.bench.iter().any(|b| b.metric == *metric) {
+                key.entry(
+                    Swatch::Open {
+                        index: shape,
+                        colour: INK,
+                    },
+                    format!("bench {} (lines: model)", metric_label(metric)),
+                );
+            }
         }
         key
     }
@@ -244,6 +267,17 @@ impl Drawing for ComparisonPlot {
                 colour.stroke_width(3),
             )?;
             draw_markers(&mut chart, &thd, (y_low, y_high), Marker::Square, colour)?;
+        }
+        for (shape, metric) in ["hd3", "thd"].iter().enumerate() {
+            let measured: Vec<(f64, f64)> = self
+                .bench
+                .iter()
+                .filter(|b| b.metric == *metric)
+                .map(|b| (b.amplitude_v, b.bench))
+                .collect();
+            if !measured.is_empty() {
+                draw_bench(&mut chart, &measured, (y_low, y_high), shape, INK)?;
+            }
         }
         Ok(())
     }

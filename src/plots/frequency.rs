@@ -4,6 +4,7 @@
 //! limit bar at its frequency, its worst case as a pass/fail marker.
 
 use super::axis::Axis;
+use super::bench::{bench_key, bench_marks, draw_bench, same, BenchMark};
 use super::key::{draw_key, hatch_pixels, split, verdict_marker, Key, Swatch};
 use super::style::*;
 use super::two_tone::dbv;
@@ -45,6 +46,8 @@ pub struct FrequencyPlot {
     /// Distortion lines (dB axis) and intercept lines (right axis, dBV).
     lines: Vec<LineChecks>,
     corners: bool,
+    /// Bench values of the drawn curves' metrics and amplitudes.
+    bench: Vec<BenchMark>,
     x: Axis,
     y: Axis,
     y2: Axis,
@@ -134,6 +137,15 @@ impl FrequencyPlot {
             .filter(|t| points.iter().any(|p| p.temperature_c == *t))
             .collect();
         let corners = mine.iter().any(|p| !is_typical(&p.corner));
+        let bench: Vec<BenchMark> = bench_marks(report, Some(stage))
+            .into_iter()
+            .filter(|b| {
+                temps.contains(&b.temperature_c)
+                    && curves
+                        .iter()
+                        .any(|c| c.metric == b.metric && same(c.amplitude_v, b.amplitude_v))
+            })
+            .collect();
 
         let values = points
             .iter()
@@ -146,7 +158,8 @@ impl FrequencyPlot {
                     .flat_map(|l| &l.records)
                     .flat_map(|b| [Some(b.limit), b.value])
                     .flatten(),
-            );
+            )
+            .chain(bench.iter().map(|b| b.bench));
         let (low, high) = values.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), v| {
             (lo.min(v), hi.max(v))
         });
@@ -184,6 +197,7 @@ impl FrequencyPlot {
             curves,
             lines,
             corners,
+            bench,
             x,
             y,
             y2,
@@ -237,6 +251,9 @@ impl Drawing for FrequencyPlot {
             );
         }
         key.temperatures(&self.temps);
+        if !self.bench.is_empty() {
+            bench_key(&mut key, &self.temps);
+        }
         if !self.lines.is_empty() {
             key.verdict_heading = "Budget lines".into();
             key.verdicts = self
@@ -369,6 +386,19 @@ impl Drawing for FrequencyPlot {
                     colour.stroke_width(3),
                 )?;
                 draw_markers(&mut chart, &data, (y_low, y_high), curve.marker, colour)?;
+                let measured: Vec<(f64, f64)> = self
+                    .bench
+                    .iter()
+                    .filter(|b| {
+                        b.temperature_c == *t
+                            && b.metric == curve.metric
+                            && same(b.amplitude_v, curve.amplitude_v)
+                    })
+                    .map(|b| (b.frequency_hz, b.bench))
+                    .collect();
+                if !measured.is_empty() {
+                    draw_bench(&mut chart, &measured, (y_low, y_high), ti, colour)?;
+                }
             }
             let iip3: Vec<(f64, f64)> = self
                 .intercepts

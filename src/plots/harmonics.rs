@@ -8,6 +8,7 @@
 //! of the picture: the verdict table names it.
 
 use super::axis::Axis;
+use super::bench::{bench_key, bench_marks, draw_bench, same, BenchMark};
 use super::key::{draw_key, hatch_pixels, split, verdict_marker, Key, Swatch};
 use super::style::*;
 use super::verdicts::{is_amplitude_line, lines_of, LineChecks};
@@ -103,6 +104,8 @@ pub struct HarmonicsPlot {
     series: Vec<Series>,
     missing: Vec<String>,
     floor_dbc: f64,
+    /// Bench values of the series' metrics at this frequency and the figure's temperatures.
+    bench: Vec<BenchMark>,
     x: Axis,
     y: Axis,
 }
@@ -258,7 +261,14 @@ impl HarmonicsPlot {
             .map(|(_, s)| s.label.clone())
             .collect();
         let floor_dbc = report.analysis.analysis_floor_dbc;
-
+        let bench: Vec<BenchMark> = bench_marks(report, Some(stage))
+            .into_iter()
+            .filter(|b| {
+                same(b.frequency_hz, frequency_hz)
+                    && temps.contains(&b.temperature_c)
+                    && series.iter().any(|s| s.metric == b.metric)
+            })
+            .collect();
         let values = points
             .iter()
             .flat_map(|p| p.values.iter().flatten().copied())
@@ -274,7 +284,8 @@ impl HarmonicsPlot {
                     .flat_map(|l| &l.records)
                     .flat_map(|b| [Some(b.limit), b.value])
                     .flatten(),
-            );
+            )
+            .chain(bench.iter().map(|b| b.bench));
         let (low, high) = values.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), v| {
             (lo.min(v), hi.max(v))
         });
@@ -294,6 +305,7 @@ impl HarmonicsPlot {
             .iter()
             .map(|p| p.amplitude_v)
             .chain(lines.iter().filter_map(|l| l.line().at_v))
+            .chain(bench.iter().map(|b| b.amplitude_v))
             .collect();
         let x = Axis::log(&amplitudes, "V");
         Some(HarmonicsPlot {
@@ -309,6 +321,7 @@ impl HarmonicsPlot {
             series,
             missing,
             floor_dbc,
+            bench,
             x,
             y,
         })
@@ -343,6 +356,9 @@ impl Drawing for HarmonicsPlot {
             caption.push_str(
                 "; lines are the typical process corner, the light band of each metric spans every corner and temperature",
             );
+        }
+        if !self.bench.is_empty() {
+            caption.push_str("; open markers are bench measurements over the model's lines");
         }
         if self.lines.is_empty() {
             caption.push_str("; no distortion budget line applies at this frequency.");
@@ -384,6 +400,9 @@ impl Drawing for HarmonicsPlot {
             }
         }
         key.temperatures(&self.temps);
+        if !self.bench.is_empty() {
+            bench_key(&mut key, &self.temps);
+        }
         if !self.lines.is_empty() {
             key.verdict_heading = format!("Budget at {}", si_exact(self.frequency_hz, "Hz"));
             key.verdicts = self
@@ -522,6 +541,27 @@ impl Drawing for HarmonicsPlot {
                     metric_marker(&series.metric),
                     colour,
                 )?;
+            }
+        }
+
+        // Bench values over the model's lines: the shape names the temperature.
+        for (ti, t) in self.temps.iter().enumerate() {
+            for series in &self.series {
+                let measured: Vec<(f64, f64)> = self
+                    .bench
+                    .iter()
+                    .filter(|b| b.temperature_c == *t && b.metric == series.metric)
+                    .map(|b| (b.amplitude_v, b.bench))
+                    .collect();
+                if !measured.is_empty() {
+                    draw_bench(
+                        &mut chart,
+                        &measured,
+                        (y_low, y_high),
+                        ti,
+                        metric_colour(&series.metric),
+                    )?;
+                }
             }
         }
 

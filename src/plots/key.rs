@@ -73,6 +73,13 @@ pub enum Swatch {
     },
     /// The intercept's ring.
     Ring,
+    /// An open bench marker (ring, square, triangle, diamond outline by `index`).
+    Open {
+        /// Shape index (the temperature's).
+        index: usize,
+        /// Colour.
+        colour: RGBColor,
+    },
 }
 
 impl Swatch {
@@ -251,6 +258,9 @@ pub fn draw_swatch<DB: DrawingBackend>(
         }
         Swatch::Dot { colour, marker } => {
             area.draw(&marker.element((x + 22, y), colour.mix(1.0)))?;
+        }
+        Swatch::Open { index, colour } => {
+            area.draw(&crate::plots::bench::outline(index, (x + 22, y), colour))?;
         }
         Swatch::Ring => {
             area.draw(&Circle::new((x + 22, y), 9, INK.stroke_width(3)))?;

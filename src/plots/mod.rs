@@ -15,6 +15,7 @@
 //! green round markers pass a budget line and red crosses fail it.
 
 pub mod axis;
+mod bench;
 pub mod canvas;
 mod compare;
 mod frequency;

@@ -4,6 +4,7 @@
 //! One figure at the first frequency and one at every frequency an IM3 or intercept line names.
 
 use super::axis::Axis;
+use super::bench::{bench_marks, draw_bench, same};
 use super::harmonics::{figure_frequencies, frequency_slug};
 use super::key::{draw_key, hatch_pixels, split, verdict_marker, Key, Swatch};
 use super::style::*;
@@ -27,6 +28,8 @@ pub struct TwoTonePlot {
     intercept: InterceptRecord,
     others: Vec<InterceptRecord>,
     lines: Vec<LineChecks>,
+    /// Bench IM3 products as (input dBV, output dBV) at the drawn temperature.
+    bench_im3: Vec<(f64, f64)>,
     x: Axis,
     y: Axis,
 }
@@ -104,6 +107,27 @@ impl TwoTonePlot {
             .filter(|l| is_two_tone_line(l.line()) && l.line().frequency_hz == frequency_hz)
             .collect();
 
+        let marks = bench_marks(report, Some(stage));
+        let bench_im3: Vec<(f64, f64)> = marks
+            .iter()
+            .filter(|b| {
+                b.metric == "im3"
+                    && b.temperature_c == typical
+                    && same(b.frequency_hz, frequency_hz)
+            })
+            .filter_map(|b| {
+                let companion = |metric: &str| {
+                    marks
+                        .iter()
+                        .find(|c| c.row == b.row && c.metric == metric)
+                        .map(|c| c.bench)
+                };
+                let output = companion("fundamental")
+                    .map(dbv)
+                    .or_else(|| companion("gain").map(|g| dbv(b.amplitude_v) + g))?;
+                Some((dbv(b.amplitude_v), output + b.bench))
+            })
+            .collect();
         let iip3_v = intercept.iip3_v?;
         let x_ip = dbv(iip3_v);
         let y_ip = x_ip + intercept.small_signal_gain_db;
@@ -122,7 +146,8 @@ impl TwoTonePlot {
             .map(|m| m.0)
             .chain(fit)
             .chain([x_ip])
-            .chain(limits_x);
+            .chain(limits_x)
+            .chain(bench_im3.iter().map(|b| b.0));
         let (x_min, x_max) = xs.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), x| {
             (lo.min(x), hi.max(x))
         });
@@ -136,7 +161,8 @@ impl TwoTonePlot {
             .flat_map(|m| [Some(m.1), m.2])
             .flatten()
             .chain([y_ip])
-            .chain(limits_y);
+            .chain(limits_y)
+            .chain(bench_im3.iter().map(|b| b.1));
         let (y_min, y_max) = ys.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), y| {
             (lo.min(y), hi.max(y))
         });
@@ -149,6 +175,7 @@ impl TwoTonePlot {
             intercept,
             others,
             lines,
+            bench_im3,
             x,
             y,
         })
@@ -249,6 +276,15 @@ impl Drawing for TwoTonePlot {
             );
         }
         key.entry(Swatch::Ring, "third-order intercept");
+        if !self.bench_im3.is_empty() {
+            key.entry(
+                Swatch::Open {
+                    index: 0,
+                    colour: IM3,
+                },
+                "IM3 product (bench)",
+            );
+        }
         if !self.lines.is_empty() {
             key.verdict_heading =
                 format!("Budget at {}", si_exact(self.intercept.frequency_hz, "Hz"));
@@ -413,6 +449,9 @@ impl Drawing for TwoTonePlot {
             draw_markers(&mut chart, data, (y_low, y_high), marker, colour)?;
         }
 
+        if !self.bench_im3.is_empty() {
+            draw_bench(&mut chart, &self.bench_im3, (y_low, y_high), 0, IM3)?;
+        }
         chart.draw_series(std::iter::once(
             EmptyElement::at((x_ip, y_ip))
                 + Circle::new((0, 0), 12, INK.stroke_width(3))

@@ -10,8 +10,9 @@ use crate::model::stage::Stage;
 use crate::report::text::celsius;
 use crate::report::{
     dbm, quantity_text, AnalysisRecord, BudgetRecord, DesignVerdictRecord, FailingCheckRecord,
-    Harmonics, InterceptRecord, MonteCarloRecord, PointRecord, RecommendedStageRecord,
-    RecommendedVerdictRecord, Report, SizingRecord, SizingScanRecord, SpreadRecord, StageRecord,
+    FitRecord, FitSummaryRecord, Harmonics, InterceptRecord, MonteCarloRecord, PointRecord,
+    RecommendedStageRecord, RecommendedVerdictRecord, Report, ResidualRecord,
+    ResidualSummaryRecord, SizingRecord, SizingScanRecord, SpreadRecord, StageRecord,
     TransferRecord, UnreachableRecord, VerdictRecord, YieldLineRecord, YieldRecord, CAUTION,
 };
 use crate::solve::response::CUTOFF_FRACTION;
@@ -19,6 +20,7 @@ use crate::solve::spectrum::{ANALYSIS_FLOOR_DBC, CONVERGED_DB};
 use crate::study::case::{CaseEvaluation, DrivePoint};
 use crate::study::corners::{CornerSpread, SpreadFigure};
 use crate::study::evaluate::{evaluate, PlanEvaluation, Progress, RecommendedStage};
+use crate::study::fit::{BenchComparison, FitOutcome, FitTermination};
 use crate::study::montecarlo::{Population, PopulationFigure};
 use crate::study::sizing::{
     Basis, Binding, RangeEnd, RangeHint, SizingOutcome, Trial, Unreachable,
@@ -71,6 +73,8 @@ pub fn build_judged(plan: &Plan, evaluation: PlanEvaluation, judged: Judged) -> 
         population,
         sizing,
         recommended,
+        fits,
+        comparisons,
     } = evaluation;
     let verdict = verdict_record(plan, &verdict, &recommended, &sizing, judged);
     let met = verdict.met;
@@ -84,6 +88,10 @@ pub fn build_judged(plan: &Plan, evaluation: PlanEvaluation, judged: Judged) -> 
         sizing: Vec::new(),
         corner_spread: spread.iter().map(|s| spread_record(plan, s)).collect(),
         stages: Vec::new(),
+        fit: Vec::new(),
+        fit_summary: Vec::new(),
+        residuals: Vec::new(),
+        residual_summary: Vec::new(),
         analysis: AnalysisRecord {
             analysis_floor_dbc: ANALYSIS_FLOOR_DBC,
             thd_harmonics: plan.drive.thd_harmonics,
@@ -129,6 +137,16 @@ pub fn build_judged(plan: &Plan, evaluation: PlanEvaluation, judged: Judged) -> 
         report.warnings.extend(warnings);
     }
     report.sizing = sizing.into_iter().map(|s| sizing_record(plan, s)).collect();
+    for fit in &fits {
+        let (parameters, summary, warnings) = fit_records(fit);
+        report.fit.extend(parameters);
+        report.fit_summary.push(summary);
+        report.warnings.extend(warnings);
+    }
+    for comparison in &comparisons {
+        report.residuals.extend(residual_records(plan, comparison));
+    }
+    report.residual_summary = residual_summaries(&report.residuals);
     report
 }
 
@@ -917,6 +935,215 @@ fn sizing_record(plan: &Plan, outcome: SizingOutcome) -> SizingRecord {
             None => Vec::new(),
         },
     }
+}
+
+/// A fitted parameter's value in words: a percentage for mismatch fractions, SI-prefixed
+/// with its unit otherwise.
+fn parameter_text(key: &str, unit: &str, value: f64) -> String {
+    if key.starts_with("mismatch.") {
+        format!("{:.4} %", 100.0 * value)
+    } else if unit.is_empty() {
+        format!("{value:.4}")
+    } else {
+        format_si(value, unit)
+    }
+}
+
+/// The records of one stage's fit, and its warnings worded: directions the data do not
+/// determine, parameters they hardly constrain or that have no effect, values at a bound, a
+/// fit that did not converge.
+fn fit_records(fit: &FitOutcome) -> (Vec<FitRecord>, FitSummaryRecord, Vec<String>) {
+    let name = &fit.stage;
+    let twin = &fit.fitted.name;
+    let mut warnings = Vec::new();
+    let records: Vec<FitRecord> = fit
+        .parameters
+        .iter()
+        .map(|p| FitRecord {
+            stage: name.clone(),
+            fitted_stage: twin.clone(),
+            parameter: p.key.clone(),
+            value: p.value,
+            standard_error: p.standard_error,
+            unit: p.unit.to_owned(),
+            start: p.start,
+            from: p.from,
+            to: p.to,
+            at_bound: p.at_bound,
+            constrained: p.is_constrained(),
+        })
+        .collect();
+    match fit.termination {
+        FitTermination::Converged => {}
+        FitTermination::OutOfEvaluations => warnings.push(format!(
+            "stage `{name}`: the fit to the bench data did not converge within {} model evaluations; `{twin}` is the best point reached, not a minimum",
+            fit.evaluations
+        )),
+        FitTermination::RoundingLimited => warnings.push(format!(
+            "stage `{name}`: the fit stopped where rounding stops any further progress (rms residual {:.3} dB); `{twin}` is the best point reachable",
+            fit.rms_after
+        )),
+    }
+    let mut in_flat_direction: Vec<usize> = Vec::new();
+    for direction in &fit.flat_directions {
+        let involved: Vec<usize> = direction.components.iter().map(|(j, _)| *j).collect();
+        in_flat_direction.extend(&involved);
+        let names: Vec<String> = involved
+            .iter()
+            .map(|j| format!("`{}`", fit.parameters[*j].key))
+            .collect();
+        let combination: Vec<String> = direction
+            .components
+            .iter()
+            .map(|(j, c)| format!("{c:+.2}·{}", fit.parameters[*j].key))
+            .collect();
+        let what = if names.len() > 1 {
+            format!("{} separately", names.join(" and "))
+        } else {
+            names.join("")
+        };
+        warnings.push(format!(
+            "stage `{name}`: the bench data do not determine {what}: the fit has a flat direction ({}, each in units of its own sensitivity; relative eigenvalue {:.1e}), so these fitted values are one point of a valley and their standard errors are large — add bench data that tells them apart or fit fewer parameters",
+            combination.join(" "),
+            direction.relative_eigenvalue
+        ));
+    }
+    for (j, p) in fit.parameters.iter().enumerate() {
+        let value = parameter_text(&p.key, p.unit, p.value);
+        match p.standard_error {
+            None => warnings.push(format!(
+                "stage `{name}`: `{}` has no effect on the fitted figures ({}); it stays at {value}, with no standard error",
+                p.key,
+                fit_metric_names(fit)
+            )),
+            Some(se) if !p.is_constrained() && !in_flat_direction.contains(&j) => {
+                let partner = fit.correlation[j]
+                    .iter()
+                    .enumerate()
+                    .filter(|(k, _)| *k != j)
+                    .filter_map(|(k, c)| c.map(|c| (k, c)))
+                    .max_by(|a, b| a.1.abs().total_cmp(&b.1.abs()));
+                warnings.push(format!(
+                    "stage `{name}`: the bench data hardly constrain `{}`: {value} ± {}, more than a quarter of its bounds {} to {}{}",
+                    p.key,
+                    parameter_text(&p.key, p.unit, se),
+                    parameter_text(&p.key, p.unit, p.from),
+                    parameter_text(&p.key, p.unit, p.to),
+                    partner
+                        .map(|(k, c)| format!("; most correlated with `{}` (ρ = {c:+.3})", fit.parameters[k].key))
+                        .unwrap_or_default()
+                ));
+            }
+            _ => {}
+        }
+        if p.at_bound {
+            warnings.push(format!(
+                "stage `{name}`: `{}` was fitted to a bound of its range ({value}); the data pull it further, so widen `fit.parameters.{}` or question the model (its standard error assumes it free)",
+                p.key, p.key
+            ));
+        }
+    }
+    let summary = FitSummaryRecord {
+        stage: name.clone(),
+        fitted_stage: twin.clone(),
+        parameters: fit.parameters.iter().map(|p| p.key.clone()).collect(),
+        metrics: fit.metrics.iter().map(|m| m.name()).collect(),
+        correlation: fit.correlation.clone(),
+        residual_count: fit.residual_count,
+        rms_before: fit.rms_before,
+        rms_after: fit.rms_after,
+        residual_scale: fit.residual_scale,
+        evaluations: fit.evaluations,
+        converged: fit.termination == FitTermination::Converged,
+        termination: match fit.termination {
+            FitTermination::Converged => "converged",
+            FitTermination::OutOfEvaluations => "out of evaluations",
+            FitTermination::RoundingLimited => "rounding limited",
+        }
+        .into(),
+    };
+    (records, summary, warnings)
+}
+
+fn fit_metric_names(fit: &FitOutcome) -> String {
+    fit.metrics
+        .iter()
+        .map(|m| m.name())
+        .collect::<Vec<_>>()
+        .join(", ")
+}
+
+/// Every measured value of one bench file next to one model stage's.
+fn residual_records(plan: &Plan, comparison: &BenchComparison) -> Vec<ResidualRecord> {
+    comparison
+        .values
+        .iter()
+        .map(|value| {
+            let point = &comparison.points[value.point];
+            ResidualRecord {
+                stage: comparison.model_stage.clone(),
+                measured_stage: comparison.measured_stage.clone(),
+                file: comparison.file.clone(),
+                row: point.row,
+                die: point.die.clone(),
+                corner: point
+                    .corner
+                    .clone()
+                    .unwrap_or_else(|| plan.corners[0].name.clone()),
+                temperature_c: point.temperature_c,
+                frequency_hz: point.frequency_hz,
+                amplitude_v: point.amplitude_v,
+                metric: value.figure.name(),
+                unit: value.figure.unit_label().into(),
+                bench: value.bench,
+                model: value.model,
+                residual: value.residual(),
+                residual_unit: value.figure.residual_unit().into(),
+                in_fit: value.in_fit,
+            }
+        })
+        .collect()
+}
+
+/// The worst and rms residual per model stage and metric, in the order first met.
+fn residual_summaries(records: &[ResidualRecord]) -> Vec<ResidualSummaryRecord> {
+    let mut keys: Vec<(&str, &str)> = Vec::new();
+    for r in records {
+        if !keys.contains(&(r.stage.as_str(), r.metric.as_str())) {
+            keys.push((&r.stage, &r.metric));
+        }
+    }
+    keys.into_iter()
+        .map(|(stage, metric)| {
+            let mine: Vec<&ResidualRecord> = records
+                .iter()
+                .filter(|r| r.stage == stage && r.metric == metric)
+                .collect();
+            let residuals: Vec<(f64, u64)> = mine
+                .iter()
+                .filter_map(|r| r.residual.map(|value| (value, r.row)))
+                .collect();
+            let rms = (!residuals.is_empty()).then(|| {
+                (residuals.iter().map(|(r, _)| r * r).sum::<f64>() / residuals.len() as f64).sqrt()
+            });
+            let worst = residuals
+                .iter()
+                .copied()
+                .max_by(|a, b| a.0.abs().total_cmp(&b.0.abs()));
+            ResidualSummaryRecord {
+                stage: stage.to_owned(),
+                measured_stage: mine[0].measured_stage.clone(),
+                metric: metric.to_owned(),
+                unit: mine[0].residual_unit.clone(),
+                points: mine.len(),
+                below_floor: mine.len() - residuals.len(),
+                rms,
+                worst: worst.map(|w| w.0),
+                worst_row: worst.map(|w| w.1),
+                in_fit: mine.iter().any(|r| r.in_fit),
+            }
+        })
+        .collect()
 }
 
 /// Largest number of amplitude ranges a forward-active warning lists one by one.

@@ -586,6 +586,7 @@ pub fn blocks(report: &Report, figures: &[EmbeddedFigure]) -> Vec<Block> {
             out.push(Block::Bullets(advice));
         }
     }
+    correlation_blocks(report, &mut out);
     if !report.yield_.is_empty() {
         out.push(Block::Heading(2, "Monte Carlo yield".into()));
         out.push(Block::Paragraph(format!(
@@ -655,6 +656,35 @@ pub fn blocks(report: &Report, figures: &[EmbeddedFigure]) -> Vec<Block> {
         out.push(Block::Bullets(report.warnings.clone()));
     }
     out
+}
+
+/// The correlation with bench data: the fit and the residual table.
+fn correlation_blocks(report: &Report, out: &mut Vec<Block>) {
+    use super::correlation::{correlation_table, fit_quality_table, fit_table, residual_table};
+    if !report.fit.is_empty() {
+        out.push(Block::Heading(2, "Fit to bench data".into()));
+        out.push(Block::Paragraph(
+            "Least squares in dB of the fitted figures (the offset in mV) over every measured value, by Levenberg–Marquardt within the bounds. Standard errors are the Gauss–Newton ones, s²·(JᵀJ)⁻¹ with s² the weighted residual variance; each fitted stage is evaluated through the whole plan as a stage of its own, named <stage>@fitted.".into(),
+        ));
+        out.push(Block::Table(fit_table(report)));
+        out.push(Block::Table(fit_quality_table(report)));
+        for summary in &report.fit_summary {
+            if summary.parameters.len() > 1 {
+                out.push(Block::Paragraph(format!(
+                    "Correlation of the fitted parameters of {}:",
+                    summary.stage
+                )));
+                out.push(Block::Table(correlation_table(summary)));
+            }
+        }
+    }
+    if !report.residual_summary.is_empty() {
+        out.push(Block::Heading(2, "Model against bench".into()));
+        out.push(Block::Paragraph(
+            "Residual = model − bench for every measured value (dB; mV for the offset), per model stage and metric: the rms and the largest in size, with the bench row it comes from. Every value is in report.json under residuals.".into(),
+        ));
+        out.push(Block::Table(residual_table(report)));
+    }
 }
 
 /// Renders the blocks as Markdown (figures as linked PNG images, SVG beside).

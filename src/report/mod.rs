@@ -8,6 +8,7 @@
 //! plan-and-report contract (see README). Extra fields are additions, never renames.
 
 pub mod build;
+pub mod correlation;
 pub mod csv;
 pub mod datasheet;
 pub mod json;
@@ -100,6 +101,18 @@ pub struct Report {
     pub corner_spread: Vec<SpreadRecord>,
     /// Per-stage, per-temperature operating point and transfer figures.
     pub stages: Vec<StageRecord>,
+    /// Every parameter of every stage fitted to bench data.
+    #[serde(default)]
+    pub fit: Vec<FitRecord>,
+    /// How each fit went: residuals before and after, correlation matrix, convergence.
+    #[serde(default)]
+    pub fit_summary: Vec<FitSummaryRecord>,
+    /// Every measured value next to the model's (nominal stage, and fitted stage when fitted).
+    #[serde(default)]
+    pub residuals: Vec<ResidualRecord>,
+    /// Worst and rms residual per model stage and metric.
+    #[serde(default)]
+    pub residual_summary: Vec<ResidualSummaryRecord>,
     /// Analysis settings that qualify every figure.
     pub analysis: AnalysisRecord,
     /// Warnings raised while evaluating (also printed on standard error).
@@ -770,6 +783,126 @@ pub struct SizingScanRecord {
     /// Headroom margin (collector-base), V (hold_gain only).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub headroom_v: Option<f64>,
+}
+
+/// One parameter of a stage fitted to bench data.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+pub struct FitRecord {
+    /// The plan stage fitted.
+    pub stage: String,
+    /// The fitted stage evaluated through the plan (`<stage>@fitted`).
+    pub fitted_stage: String,
+    /// The dotted stage key (`emitter_resistance`, `mismatch.saturation_current`).
+    pub parameter: String,
+    /// Fitted value, SI base units (a fraction for mismatch).
+    pub value: f64,
+    /// Standard error from the Gauss–Newton covariance s²·(JᵀJ)⁻¹ (null: the parameter has
+    /// no effect on the fitted figures).
+    pub standard_error: Option<f64>,
+    /// Unit of `value` and `standard_error` (empty for fractions and plain numbers).
+    pub unit: String,
+    /// Where the fit started (the plan's value, moved inside the bounds).
+    pub start: f64,
+    /// Lower bound.
+    pub from: f64,
+    /// Upper bound.
+    pub to: f64,
+    /// Whether the value sits at a bound (the standard error then assumes it free).
+    pub at_bound: bool,
+    /// Whether the data locate it: an effect, and a standard error within a quarter of the
+    /// bounds' span.
+    pub constrained: bool,
+}
+
+/// How one stage's fit went.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+pub struct FitSummaryRecord {
+    /// The plan stage fitted.
+    pub stage: String,
+    /// The fitted stage (`<stage>@fitted`).
+    pub fitted_stage: String,
+    /// The fitted parameters, in the order of `correlation`.
+    pub parameters: Vec<String>,
+    /// The figures fitted.
+    pub metrics: Vec<String>,
+    /// Correlation matrix of the fitted parameters (null where a standard error is).
+    pub correlation: Vec<Vec<Option<f64>>>,
+    /// Measured values in the fit.
+    pub residual_count: usize,
+    /// Root-mean-square weighted residual of the plan's stage, dB (offset in mV).
+    pub rms_before: f64,
+    /// Root-mean-square weighted residual of the fitted stage, dB.
+    pub rms_after: f64,
+    /// sqrt(Σ w·r²/(m − p)), the scale the standard errors carry.
+    pub residual_scale: f64,
+    /// Model evaluations over every measured point, Jacobians included.
+    pub evaluations: usize,
+    /// Whether the optimiser met its convergence tolerances.
+    pub converged: bool,
+    /// Why it stopped: `converged`, `out of evaluations` or `rounding limited`.
+    pub termination: String,
+}
+
+/// One measured value next to one model stage's.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+pub struct ResidualRecord {
+    /// The model stage compared (the plan stage, or `<stage>@fitted`).
+    pub stage: String,
+    /// The plan stage the bench part implements.
+    pub measured_stage: String,
+    /// Bench file, as named in the plan.
+    pub file: String,
+    /// Row of the file (the header is row 1).
+    pub row: u64,
+    /// Label of the part measured, if the file gives one.
+    pub die: Option<String>,
+    /// Process corner the part belongs to.
+    pub corner: String,
+    /// Temperature, °C.
+    pub temperature_c: f64,
+    /// Frequency, Hz.
+    pub frequency_hz: f64,
+    /// Peak differential input per tone, V.
+    pub amplitude_v: f64,
+    /// Figure (`hd3`, `gain`, `offset` …).
+    pub metric: String,
+    /// Unit of `bench` and `model` (dB, dBc or V).
+    pub unit: String,
+    /// The measured value.
+    pub bench: f64,
+    /// The model's value (null: below the analysis floor).
+    pub model: Option<f64>,
+    /// model − bench in `residual_unit` (20·log10 of the ratio for the fundamental).
+    pub residual: Option<f64>,
+    /// `dB`, or `mV` for the offset.
+    pub residual_unit: String,
+    /// Whether the value entered the fit.
+    pub in_fit: bool,
+}
+
+/// Residuals of one model stage and metric, summed up.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+pub struct ResidualSummaryRecord {
+    /// The model stage (the plan stage, or `<stage>@fitted`).
+    pub stage: String,
+    /// The plan stage measured.
+    pub measured_stage: String,
+    /// Figure.
+    pub metric: String,
+    /// Unit of the residuals (`dB` or `mV`).
+    pub unit: String,
+    /// Measured values compared.
+    pub points: usize,
+    /// Values where the model is below its analysis floor (left out of rms and worst).
+    pub below_floor: usize,
+    /// Root-mean-square residual.
+    pub rms: Option<f64>,
+    /// The residual largest in size, with its sign (model − bench).
+    pub worst: Option<f64>,
+    /// Bench row of the worst residual.
+    pub worst_row: Option<u64>,
+    /// Whether the metric was fitted.
+    pub in_fit: bool,
 }
 
 #[cfg(test)]

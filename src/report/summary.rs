@@ -327,6 +327,23 @@ pub fn summary(report: &Report) -> String {
         }
     }
     population_sections(report, &mut out);
+    if !report.fit.is_empty() {
+        let _ = writeln!(out, "## Fit to bench data\n");
+        let _ = writeln!(
+            out,
+            "{}\n{}",
+            super::correlation::fit_table(report).to_markdown(),
+            super::correlation::fit_quality_table(report).to_markdown()
+        );
+    }
+    if !report.residual_summary.is_empty() {
+        let _ = writeln!(out, "## Model against bench (model − bench)\n");
+        let _ = writeln!(
+            out,
+            "{}",
+            super::correlation::residual_table(report).to_markdown()
+        );
+    }
     if !report.warnings.is_empty() {
         let _ = writeln!(out, "## Warnings\n");
         for w in &report.warnings {

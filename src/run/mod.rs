@@ -112,6 +112,12 @@ pub fn describe(progress: Progress) -> String {
             format!("Monte Carlo: {runs} run(s) per stage and temperature")
         }
         Progress::Sizing => "sizing emitter degeneration".into(),
+        Progress::Fitting(fit) => format!(
+            "fitting stage {} to its bench data: {} model evaluation(s), rms residual {:.3} dB",
+            fit.stage_index + 1,
+            fit.evaluations,
+            fit.rms
+        ),
         Progress::Recommended { stages } => {
             format!("evaluating the recommended design of {stages} stage(s)")
         }

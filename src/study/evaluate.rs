@@ -10,6 +10,7 @@ use crate::solve::spectrum::FftCache;
 use crate::solve::spectrum::ANALYSIS_FLOOR_DBC;
 use crate::study::case::{evaluate_case, CaseEvaluation};
 use crate::study::corners::{spread, CornerSpread};
+use crate::study::fit::{self, BenchComparison, FitOutcome, FitProgress};
 use crate::study::montecarlo::{self, Population};
 use crate::study::sizing::{self, Recommendation, SizingOutcome};
 use crate::study::verdict::{DesignVerdict, Judged, Verdict};
@@ -45,6 +46,8 @@ pub enum Progress {
         /// Stages sized.
         stages: usize,
     },
+    /// Fitting a stage to its bench data.
+    Fitting(FitProgress),
     /// How far a phase has come: `done` of `total` units (cases, runs or sizing trials). A
     /// sizing's total is an estimate and grows if the refinement takes longer.
     Step {
@@ -123,6 +126,11 @@ pub struct PlanEvaluation {
     pub sizing: Vec<SizingOutcome>,
     /// The recommended design, one per planned stage, when the plan asks for sizing.
     pub recommended: Vec<RecommendedStage>,
+    /// Every measured stage fitted to its bench data, when the plan asks for a fit (the
+    /// fitted stages are evaluated among the planned ones, each right after its stage).
+    pub fits: Vec<FitOutcome>,
+    /// Every bench file compared with the nominal model and, when fitted, the fitted one.
+    pub comparisons: Vec<BenchComparison>,
 }
 
 /// A planned stage rebuilt with the values sizing recommends, evaluated in full.
@@ -337,11 +345,28 @@ fn judge_yield(plan: &Plan, cases: &mut [CaseEvaluation], population: Option<&Po
 }
 
 /// Evaluates the plan. `progress` hears what is being done.
+///
+/// Stages with bench data are fitted first (when the plan asks for a fit); each fitted stage
+/// is then evaluated like any planned stage — budget, sizing, Monte Carlo — named
+/// `<stage>@fitted` and placed right after its stage.
 pub fn evaluate(
     plan: &Plan,
     progress: &(dyn Fn(Progress) + Sync),
 ) -> Result<PlanEvaluation, Error> {
     let cache = Arc::new(FftCache::default());
+    let fits = fit::fit_all(plan, &cache, &|event| progress(Progress::Fitting(event)))?;
+    let mut comparisons = Vec::new();
+    for measurements in &plan.measurements {
+        let Some(nominal) = plan.stages.iter().find(|s| s.name == measurements.stage) else {
+            continue;
+        };
+        comparisons.push(fit::compare(plan, nominal, measurements, &cache)?);
+        if let Some(outcome) = fits.iter().find(|f| f.stage == measurements.stage) {
+            comparisons.push(fit::compare(plan, &outcome.fitted, measurements, &cache)?);
+        }
+    }
+    let augmented = fit::with_fitted_stages(plan, &fits);
+    let plan = &augmented;
     let planned: Vec<(usize, &Stage)> = plan.stages.iter().enumerate().collect();
 
     progress(Progress::DrivePoints {
@@ -470,5 +495,7 @@ pub fn evaluate(
         population,
         sizing,
         recommended,
+        fits,
+        comparisons,
     })
 }

@@ -22,6 +22,9 @@ pub const SAMPLES_PER_TWO_TONE: f64 = 5_376.0;
 pub const SAMPLES_PER_CORNER: f64 = 200_000.0;
 /// Trial values of the emitter resistance a sizing search evaluates (scan plus refinement).
 pub const SIZING_TRIALS: f64 = SCAN_POINTS as f64 + 12.0;
+/// Model evaluations over every bench point a fit takes (coarse search, optimiser,
+/// Jacobians and the final statistics; 25–50 for three parameters).
+pub const FIT_EVALUATIONS: f64 = 50.0;
 /// Default limit, sample solves: about a minute on one core of a 2020s laptop.
 pub const DEFAULT_MAX_WORK: f64 = 5e9;
 
@@ -58,6 +61,27 @@ pub fn estimate(plan: &Plan) -> Workload {
     } else {
         0.0
     };
+    // A fit evaluates every measured point about FIT_EVALUATIONS times, and the fitted stage
+    // is then evaluated through the plan like the nominal one.
+    let fitted_stages = match &plan.fit {
+        Some(_) => plan
+            .stages
+            .iter()
+            .filter(|s| plan.measurements.iter().any(|m| m.stage == s.name))
+            .count() as f64,
+        None => 0.0,
+    };
+    let bench_points: f64 = plan
+        .measurements
+        .iter()
+        .map(|m| m.points.len() as f64)
+        .sum();
+    let fit = if plan.fit.is_some() {
+        bench_points * SAMPLES_PER_TONE * FIT_EVALUATIONS
+            + fitted_stages / stages.max(1.0) * (sweep + monte_carlo + sizing)
+    } else {
+        0.0
+    };
     let mut breakdown = format!(
         "{} stage(s) × {} temperature(s) × {} process corner(s) × {} frequency(ies) × {} amplitude(s) × ~{} samples",
         plan.stages.len(),
@@ -73,7 +97,14 @@ pub fn estimate(plan: &Plan) -> Workload {
     if sizing > 0.0 {
         breakdown.push_str(&format!(", + sizing ({SIZING_TRIALS} trials)"));
     }
-    let dominant_key = if monte_carlo > sweep.max(sizing) {
+    if fit > 0.0 {
+        breakdown.push_str(&format!(
+            ", + fit ({bench_points} bench points × ~{FIT_EVALUATIONS} evaluations, and the fitted stage(s))"
+        ));
+    }
+    let dominant_key = if fit > sweep.max(sizing).max(monte_carlo) {
+        "measurements"
+    } else if monte_carlo > sweep.max(sizing) {
         "monte_carlo.runs"
     } else if sizing > sweep {
         "sizing"
@@ -87,7 +118,7 @@ pub fn estimate(plan: &Plan) -> Workload {
         "stages"
     };
     Workload {
-        sample_solves: sweep + monte_carlo + sizing,
+        sample_solves: sweep + monte_carlo + sizing + fit,
         breakdown,
         dominant_key,
     }
