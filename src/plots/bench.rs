@@ -3,7 +3,7 @@
 //! lines "model" and the markers "bench".
 
 use crate::plots::canvas::DrawResult;
-use crate::plots::key::{Key, Swatch};
+use crate::plots::key::{open_marker, Key, Swatch};
 use crate::plots::style::*;
 use crate::report::{Report, ResidualRecord};
 use plotters::prelude::*;
@@ -54,42 +54,6 @@ pub(crate) fn bench_marks(report: &Report, stage: Option<&str>) -> Vec<BenchMark
         .collect()
 }
 
-/// The open marker of the `index`-th temperature: ring, square, triangle, diamond outlines.
-pub(crate) fn outline(
-    index: usize,
-    centre: (i32, i32),
-    colour: RGBColor,
-) -> PathElement<(i32, i32)> {
-    let (x, y) = centre;
-    let points: Vec<(i32, i32)> = match index % 4 {
-        0 => (0..=20)
-            .map(|k| {
-                let a = k as f64 * std::f64::consts::TAU / 20.0;
-                (
-                    x + (9.0 * a.cos()).round() as i32,
-                    y + (9.0 * a.sin()).round() as i32,
-                )
-            })
-            .collect(),
-        1 => vec![
-            (x - 8, y - 8),
-            (x + 8, y - 8),
-            (x + 8, y + 8),
-            (x - 8, y + 8),
-            (x - 8, y - 8),
-        ],
-        2 => vec![(x, y - 10), (x + 9, y + 7), (x - 9, y + 7), (x, y - 10)],
-        _ => vec![
-            (x, y - 10),
-            (x + 10, y),
-            (x, y + 10),
-            (x - 10, y),
-            (x, y - 10),
-        ],
-    };
-    PathElement::new(points, colour.stroke_width(3))
-}
-
 /// Draws bench values as open markers (the shape names the temperature, the colour the
 /// metric), each on a white ring so it stands off the model's line beneath.
 pub(crate) fn draw_bench<
@@ -114,7 +78,7 @@ pub(crate) fn draw_bench<
             .map(move |&coord| {
                 EmptyElement::at(coord)
                     + Circle::new((0, 0), 11, PAPER.mix(0.7).filled())
-                    + outline(temperature_index, (0, 0), colour)
+                    + open_marker(temperature_index, (0, 0), colour)
             }),
     )?;
     Ok(())

@@ -260,7 +260,7 @@ pub fn draw_swatch<DB: DrawingBackend>(
             area.draw(&marker.element((x + 22, y), colour.mix(1.0)))?;
         }
         Swatch::Open { index, colour } => {
-            area.draw(&crate::plots::bench::outline(index, (x + 22, y), colour))?;
+            area.draw(&open_marker(index, (x + 22, y), colour))?;
         }
         Swatch::Ring => {
             area.draw(&Circle::new((x + 22, y), 9, INK.stroke_width(3)))?;
@@ -268,6 +268,38 @@ pub fn draw_swatch<DB: DrawingBackend>(
         }
     }
     Ok(())
+}
+
+/// The open marker of the `index`-th temperature: ring, square, triangle, diamond outlines.
+pub fn open_marker(index: usize, centre: (i32, i32), colour: RGBColor) -> PathElement<(i32, i32)> {
+    let (x, y) = centre;
+    let points: Vec<(i32, i32)> = match index % 4 {
+        0 => (0..=20)
+            .map(|k| {
+                let a = k as f64 * std::f64::consts::TAU / 20.0;
+                (
+                    x + (9.0 * a.cos()).round() as i32,
+                    y + (9.0 * a.sin()).round() as i32,
+                )
+            })
+            .collect(),
+        1 => vec![
+            (x - 8, y - 8),
+            (x + 8, y - 8),
+            (x + 8, y + 8),
+            (x - 8, y + 8),
+            (x - 8, y - 8),
+        ],
+        2 => vec![(x, y - 10), (x + 9, y + 7), (x - 9, y + 7), (x, y - 10)],
+        _ => vec![
+            (x, y - 10),
+            (x + 10, y),
+            (x, y + 10),
+            (x - 10, y),
+            (x, y - 10),
+        ],
+    };
+    PathElement::new(points, colour.stroke_width(3))
 }
 
 /// The pass (green disc) or fail (red cross) marker at a pixel position.
