@@ -56,7 +56,21 @@ fn at_applies_only_to_amplitude_metrics() {
         "budget[0].at",
         6,
         "`at` does not apply to iip3",
-        "`at` only on hdN, thd and im3 lines",
+        "`at` only on hdN, thd, im3 and collector_base_margin lines",
+    );
+}
+
+#[test]
+fn a_collector_base_margin_line_takes_a_minimum_only() {
+    let err = refused(&plan(
+        "drive: {amplitudes: [10 mV]}\nbudget:\n  - {metric: collector_base_margin, at: 10 mV, max: 300 mV}\n",
+    ));
+    assert_refusal(
+        &err,
+        "budget[0].max",
+        6,
+        "a collector_base_margin line sets the least reverse bias, with `min`",
+        "{metric: collector_base_margin, at: 150 mV, min: 300 mV}",
     );
 }
 

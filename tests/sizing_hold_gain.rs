@@ -1,5 +1,5 @@
 //! The hold-gain sizing mode: the load is rescaled so the small-signal gain stays put, and
-//! collector headroom becomes a constraint.
+//! the collector-base margin at the largest budget amplitude becomes a constraint.
 
 use assert_cmd::Command;
 use linbudget::report::Report;
@@ -51,7 +51,7 @@ fn hold_gain_scales_the_load_by_one_plus_gm_re() {
 }
 
 /// On a 3.3 V supply the larger load drives the collectors below their bases at 100 mV: the
-/// distortion lines can be met but headroom cannot, and the report says headroom binds.
+/// distortion lines can be met but the collector-base margin cannot, and the report says so.
 #[test]
 fn a_low_supply_makes_headroom_bind() {
     let report = run(
@@ -63,6 +63,6 @@ fn a_low_supply_makes_headroom_bind() {
     let sized = &report.sizing[0];
     assert!(!sized.met);
     assert!(sized.headroom_binds);
-    assert_eq!(sized.binding_metric, "headroom");
+    assert_eq!(sized.binding_metric, "collector_base_margin");
     assert!(sized.best_headroom_v.unwrap() < 0.0);
 }

@@ -111,9 +111,12 @@ fn independent_least_emitter(a: f64, limit: f64, high: f64) -> f64 {
     high
 }
 
+/// The stages of these plans are biased so that no drive forward-biases a collector-base
+/// junction (collectors at least 7 V above the bases): the independent reference is the
+/// exponential law, which is the transistor's only there.
 const GUARDED: &str = "name: guarded
 stages:
-  - {name: pair, tail_current: 1 mA, load_resistance: 5k}
+  - {name: pair, tail_current: 1 mA, load_resistance: 5k, supply: 12 V, input_common_mode: 2.5 V}
 drive:
   amplitudes: [10 mV, 100 mV]
 budget:
@@ -226,7 +229,7 @@ fn a_set_override_replaces_a_plan_value() {
 fn the_usable_window_has_the_edges_of_an_independent_calculation() {
     let text = "name: window
 stages:
-  - {name: pair, tail_current: 1 mA, load_resistance: 5k}
+  - {name: pair, tail_current: 1 mA, load_resistance: 5k, supply: 12 V, input_common_mode: 2.5 V}
 drive:
   amplitudes: [100 mV]
 budget:

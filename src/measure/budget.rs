@@ -3,14 +3,16 @@
 //! Margin convention (dB, positive = pass): `limit − value` for a `max` line in dB,
 //! `value − limit` for a `min` line in dB, `20·log10(value/limit)` for a `min` line in volts,
 //! `20·log10(limit/value)` for a `max` line in volts. A yield line's margin is the pass
-//! fraction minus the limit (a fraction, not dB).
+//! fraction minus the limit (a fraction, not dB). For the collector-base margin, whose value is
+//! negative in saturation, the margin is `value − limit` in volts.
 
 use crate::model::budget::{BudgetLine, Limit, Metric};
 
 /// The verdict of one measured value against one line.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct Judgement {
-    /// Margin, positive when the line passes (dB; a fraction for yield lines). `None` when
+    /// Margin, positive when the line passes (dB; a fraction for yield lines; volts for the
+    /// collector-base margin). `None` when
     /// there is no finite margin (an unbounded intercept, a missing figure).
     pub margin: Option<f64>,
     /// Whether the line passes.
@@ -26,6 +28,17 @@ pub struct Judgement {
 /// least `limit − floor` and is marked so. An unbounded intercept or compression point
 /// (`None`) passes a `min` line with no finite margin.
 pub fn judge(line: &BudgetLine, value: Option<f64>, floor_dbc: f64) -> Judgement {
+    if line.metric.margin_in_volts() {
+        let margin = value.map(|v| match line.limit {
+            Limit::Min(limit) => v - limit,
+            Limit::Max(limit) => limit - v,
+        });
+        return Judgement {
+            margin,
+            pass: margin.is_some_and(|m| m >= 0.0),
+            margin_at_least: false,
+        };
+    }
     let mut margin_at_least = false;
     let margin = match (line.limit, value, line.metric.is_decibel()) {
         (Limit::Min(limit), Some(v), _) if line.metric == Metric::Yield => Some(v - limit),

@@ -2,19 +2,61 @@
 //! point and the third-order intercept extrapolated from the small-signal region.
 
 use crate::error::SolveFailure;
-use crate::solve::response::{ResponseEngine, TwoToneResult};
+use crate::solve::response::{RegionCheck, ResponseEngine, TwoToneResult};
 
-/// Input P1dB: the single-tone amplitude at which the fundamental's gain is 1 dB below the
-/// small-signal gain, V peak; `None` when the gain never compresses by 1 dB below 100 V.
-pub fn input_p1db(
+/// The input 1 dB compression point and the operating region there.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Compression {
+    /// Input P1dB, V peak; `None` when the gain never compresses by 1 dB below 100 V.
+    pub input_v: Option<f64>,
+    /// Operating region of a single tone at `input_v` (when unbounded: at the largest
+    /// amplitude tried).
+    pub region: RegionCheck,
+}
+
+/// Input P1dB and the operating region of a single tone at the answer.
+pub fn input_compression(
     engine: &dyn ResponseEngine,
     frequency_hz: f64,
     small_signal_gain: f64,
     start_v: f64,
+) -> Result<Compression, SolveFailure> {
+    let mut largest = RegionCheck::new();
+    let found = input_p1db_tracking(
+        engine,
+        frequency_hz,
+        small_signal_gain,
+        start_v,
+        &mut largest,
+    )?;
+    let region = match found {
+        Some(amplitude) => engine.tone(amplitude, frequency_hz, 9)?.region,
+        None => largest,
+    };
+    Ok(Compression {
+        input_v: found,
+        region,
+    })
+}
+
+/// Input P1dB: the single-tone amplitude at which the fundamental's gain is 1 dB below the
+/// small-signal gain, V peak; `None` when the gain never compresses by 1 dB below 100 V. Keeps
+/// in `largest` the region of the largest amplitude tried.
+fn input_p1db_tracking(
+    engine: &dyn ResponseEngine,
+    frequency_hz: f64,
+    small_signal_gain: f64,
+    start_v: f64,
+    largest: &mut RegionCheck,
 ) -> Result<Option<f64>, SolveFailure> {
-    let compression =
+    let mut largest_amplitude = 0.0;
+    let mut compression =
         |amplitude: f64| -> Result<f64, SolveFailure> {
             let tone = engine.tone(amplitude, frequency_hz, 9)?;
+            if amplitude > largest_amplitude {
+                largest_amplitude = amplitude;
+                *largest = tone.region;
+            }
             Ok(20.0
                 * (tone.differential.fundamental() / (amplitude * small_signal_gain.abs())).log10()
                 + 1.0)
@@ -68,6 +110,8 @@ pub struct Intercept {
     pub im3_slope: f64,
     /// Input second-order intercept, peak V per tone (mismatch only).
     pub iip2_v: Option<f64>,
+    /// Operating region of the two tones at the fit amplitude.
+    pub fit_region: RegionCheck,
 }
 
 /// Extrapolates IIP3 (and IIP2) from a drive level inside the small-signal region: halves the
@@ -98,6 +142,7 @@ pub fn third_order_intercept(
                 fit_amplitude_v: lower.amplitude_v,
                 im3_slope: slope,
                 iip2_v: iip2,
+                fit_region: lower.region,
             }));
         }
         upper = lower;

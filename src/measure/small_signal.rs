@@ -65,6 +65,10 @@ pub fn steering_points(solver: &StaticSolver) -> Result<(f64, f64), SolveFailure
 }
 
 /// The differential input at which the two collector currents are equal, V.
+///
+/// The collector-current difference rises with the input in forward-active operation but can
+/// fall in deep saturation (more of each emitter current comes from the base), so the bracket
+/// is grown symmetrically about zero until either half changes sign.
 pub fn offset_voltage(solver: &StaticSolver) -> Result<f64, SolveFailure> {
     let c = solver.circuit();
     let balance = |v: f64| -> f64 {
@@ -73,11 +77,39 @@ pub fn offset_voltage(solver: &StaticSolver) -> Result<f64, SolveFailure> {
             .map(|p| (p.p.collector_current - p.m.collector_current) / c.tail_current)
             .unwrap_or(f64::NAN)
     };
-    let (low, high) = crate::solve::roots::bracket_increasing(balance, 0.0, c.thermal_voltage, 60)
-        .map_err(|e| SolveFailure {
-            point: "offset search".into(),
-            reason: e.reason,
-        })?;
+    let failure = |reason: String| SolveFailure {
+        point: "offset search".into(),
+        reason,
+    };
+    // Rising (forward-active): the usual bracket. Otherwise grow one about zero.
+    let mut bracket =
+        crate::solve::roots::bracket_increasing(balance, 0.0, c.thermal_voltage, 60).ok();
+    let at_zero = balance(0.0);
+    if bracket.is_none() && at_zero == 0.0 {
+        return Ok(0.0);
+    }
+    let mut step = c.thermal_voltage;
+    for _ in 0..60 {
+        if bracket.is_some() {
+            break;
+        }
+        let (below, above) = (balance(-step), balance(step));
+        if below.is_nan() || above.is_nan() || at_zero.is_nan() {
+            break;
+        }
+        if below.signum() != at_zero.signum() {
+            bracket = Some((-step, 0.0));
+        } else if above.signum() != at_zero.signum() {
+            bracket = Some((0.0, step));
+        } else {
+            step *= 2.0;
+        }
+    }
+    let (low, high) = bracket.ok_or_else(|| {
+        failure(format!(
+            "the collector currents do not balance within ±{step:e} V of zero input"
+        ))
+    })?;
     crate::solve::roots::safe_newton(
         |v| {
             let step = 1e-6 * c.thermal_voltage;
@@ -95,10 +127,7 @@ pub fn offset_voltage(solver: &StaticSolver) -> Result<f64, SolveFailure> {
             max_iterations: 200,
         },
     )
-    .map_err(|e| SolveFailure {
-        point: "offset search".into(),
-        reason: e.reason,
-    })
+    .map_err(|e| failure(e.reason))
 }
 
 /// One point of the transfer curve.
@@ -112,6 +141,9 @@ pub struct TransferSample {
     pub transconductance_s: f64,
     /// Differential output voltage, V.
     pub output_v: f64,
+    /// Intrinsic base-collector voltage of the P and M sides, V (positive: that side
+    /// saturates).
+    pub base_collector_v: [f64; 2],
 }
 
 /// The transfer curve over `±span_v` with `points` samples.
@@ -141,6 +173,10 @@ pub fn transfer_curve(
                     / c.tail_current,
                 transconductance_s: (up - down) / (2.0 * step),
                 output_v: point.output_voltage,
+                base_collector_v: [
+                    point.p.base_collector_voltage(),
+                    point.m.base_collector_voltage(),
+                ],
             })
         })
         .collect()

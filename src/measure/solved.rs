@@ -100,6 +100,14 @@ impl Stage {
                 "transistor.collector_junction_capacitance",
                 self.transistor.collector_junction_capacitance,
             ),
+            (
+                "transistor.collector_resistance",
+                self.transistor.collector_resistance,
+            ),
+            (
+                "transistor.reverse_transit_time",
+                self.transistor.reverse_transit_time,
+            ),
         ];
         for (name, value) in non_negative {
             if !(value.is_finite() && value >= 0.0) {
@@ -110,6 +118,19 @@ impl Stage {
             ("tail_resistance", self.tail_resistance),
             ("transistor.beta", self.transistor.beta),
             ("transistor.early_voltage", self.transistor.early_voltage),
+            ("transistor.reverse_beta", self.transistor.reverse_beta),
+            (
+                "transistor.forward_knee_current",
+                self.transistor.forward_knee_current,
+            ),
+            (
+                "transistor.reverse_knee_current",
+                self.transistor.reverse_knee_current,
+            ),
+            (
+                "transistor.reverse_early_voltage",
+                self.transistor.reverse_early_voltage,
+            ),
         ];
         for (name, value) in ideal_allowed {
             if value.is_nan() || value <= 0.0 {

@@ -2,7 +2,9 @@
 //! intercepts and compression computed once and kept, and each budget line's value.
 
 use crate::error::SolveFailure;
-use crate::measure::large_signal::{input_p1db, third_order_intercept, Intercept};
+use crate::measure::large_signal::{
+    input_compression, third_order_intercept, Compression, Intercept,
+};
 use crate::measure::noise::input_noise_density;
 use crate::measure::small_signal::{small_signal_gain, steering_points};
 use crate::model::budget::{BudgetLine, Metric};
@@ -10,8 +12,9 @@ use crate::model::circuit::StageCircuit;
 use crate::model::drive::{Drive, DEFAULT_THD_HARMONICS};
 use crate::model::stage::Stage;
 use crate::solve::engine::engine_for;
-use crate::solve::response::ResponseEngine;
+use crate::solve::response::{RegionCheck, ResponseEngine};
 use crate::solve::spectrum::FftCache;
+use crate::solve::transfer::junctions_reverse_biased;
 use std::collections::HashMap;
 use std::sync::{Arc, Mutex, OnceLock};
 
@@ -64,6 +67,15 @@ impl Default for DriveSettings {
     }
 }
 
+/// A budget line's value and the operating region of the drive it rests on.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Measured {
+    /// The value (`None`: below the floor, or unbounded).
+    pub value: Option<f64>,
+    /// Operating region where it was measured.
+    pub region: RegionCheck,
+}
+
 /// Figures of one stage at one temperature, each computed on first use and kept. Safe to
 /// share between threads: a figure two threads ask for at once is computed twice and kept
 /// once (the computation is deterministic).
@@ -73,8 +85,9 @@ pub struct StageMeasurements {
     gain: OnceLock<f64>,
     steering: OnceLock<(f64, f64)>,
     noise: OnceLock<f64>,
+    zero_input: OnceLock<RegionCheck>,
     intercepts: Mutex<HashMap<u64, Option<Intercept>>>,
-    p1db: Mutex<HashMap<u64, Option<f64>>>,
+    p1db: Mutex<HashMap<u64, Compression>>,
     gains_at: Mutex<HashMap<u64, f64>>,
 }
 
@@ -103,6 +116,7 @@ impl StageMeasurements {
             gain: OnceLock::new(),
             steering: OnceLock::new(),
             noise: OnceLock::new(),
+            zero_input: OnceLock::new(),
             intercepts: Mutex::default(),
             p1db: Mutex::default(),
             gains_at: Mutex::default(),
@@ -191,7 +205,7 @@ impl StageMeasurements {
         if let Some(found) = kept(&self.intercepts, frequency_hz) {
             return Ok(found);
         }
-        let start = self.steering_range()? / 8.0;
+        let start = self.intercept_start()?;
         let value = third_order_intercept(
             self.engine.as_ref(),
             frequency_hz,
@@ -202,13 +216,40 @@ impl StageMeasurements {
         Ok(value)
     }
 
+    /// Where the intercept search starts: an eighth of the steering range, halved (at most
+    /// ten times) until the two tones' static peak (twice the amplitude) forward-biases
+    /// neither collector-base junction — the search only looks for the small-signal region,
+    /// and two tones driven into saturation there would cost time and tell nothing. A stage
+    /// saturated at zero input keeps the eighth, V.
+    fn intercept_start(&self) -> Result<f64, SolveFailure> {
+        let solver = self.engine.static_solver();
+        let mut start = self.steering_range()? / 8.0;
+        if !junctions_reverse_biased(&solver.solve_cold(0.0)?) {
+            return Ok(start);
+        }
+        for _ in 0..10 {
+            let peak_up = solver.solve_cold(2.0 * start)?;
+            let peak_down = solver.solve_cold(-2.0 * start)?;
+            if junctions_reverse_biased(&peak_up) && junctions_reverse_biased(&peak_down) {
+                break;
+            }
+            start *= 0.5;
+        }
+        Ok(start)
+    }
+
     /// Input 1 dB compression point at `frequency_hz`, V.
     pub fn p1db(&self, frequency_hz: f64) -> Result<Option<f64>, SolveFailure> {
+        Ok(self.compression(frequency_hz)?.input_v)
+    }
+
+    /// Input 1 dB compression point at `frequency_hz` with the operating region there.
+    pub fn compression(&self, frequency_hz: f64) -> Result<Compression, SolveFailure> {
         if let Some(found) = kept(&self.p1db, frequency_hz) {
             return Ok(found);
         }
         let start = self.steering_range()? / 4.0;
-        let value = input_p1db(
+        let value = input_compression(
             self.engine.as_ref(),
             frequency_hz,
             self.gain_at(frequency_hz)?,
@@ -216,6 +257,28 @@ impl StageMeasurements {
         )?;
         keep(&self.p1db, frequency_hz, value);
         Ok(value)
+    }
+
+    /// Operating region at zero input (the bias point of the small-signal figures).
+    pub fn zero_input_region(&self) -> Result<RegionCheck, SolveFailure> {
+        if let Some(r) = self.zero_input.get() {
+            return Ok(*r);
+        }
+        let solver = self.engine.static_solver();
+        let point = solver.solve_cold(0.0)?;
+        let region = RegionCheck::of_point(&point, solver.circuit().tail_current);
+        Ok(*self.zero_input.get_or_init(|| region))
+    }
+
+    /// Operating region at the two steering points and zero input (static).
+    pub fn steering_region(&self) -> Result<RegionCheck, SolveFailure> {
+        let (low, high) = self.steering()?;
+        let solver = self.engine.static_solver();
+        let mut region = self.zero_input_region()?;
+        for v in [low, high] {
+            region.update(&solver.solve_cold(v)?, solver.circuit().tail_current);
+        }
+        Ok(region)
     }
 
     /// The frequency a line applies at, Hz.
@@ -231,20 +294,36 @@ impl StageMeasurements {
     /// The value a line constrains (`None`: below the floor or unbounded; always `None` for a
     /// yield line, which the Monte Carlo study judges).
     pub fn measure(&self, line: &BudgetLine) -> Result<Option<f64>, SolveFailure> {
+        Ok(self.measure_checked(line)?.value)
+    }
+
+    /// The value a line constrains, with the operating region of the drive it was measured
+    /// at: the tone or two tones at the line's amplitude, the compression point, the
+    /// intercept's fit point, the steering points, or the bias point for small-signal figures.
+    pub fn measure_checked(&self, line: &BudgetLine) -> Result<Measured, SolveFailure> {
         let frequency = self.line_frequency(line);
         let amplitude = self.line_amplitude(line);
         let thd_harmonics = self.settings.thd_harmonics;
-        Ok(match line.metric {
+        let (value, region) = match line.metric {
             Metric::Harmonic(order) => {
                 let tone = self
                     .engine
                     .tone(amplitude, frequency, thd_harmonics.max(order))?;
-                tone.differential.harmonic_dbc(order, tone.floor_dbc)
+                (
+                    tone.differential.harmonic_dbc(order, tone.floor_dbc),
+                    tone.region,
+                )
             }
             Metric::Thd => {
                 let tone = self.engine.tone(amplitude, frequency, thd_harmonics)?;
                 let thd = tone.differential.raw_thd_dbc(thd_harmonics);
-                (thd >= tone.floor_dbc).then_some(thd)
+                ((thd >= tone.floor_dbc).then_some(thd), tone.region)
+            }
+            Metric::CollectorBaseMargin => {
+                let tone =
+                    self.engine
+                        .tone(amplitude, frequency, self.settings.tone_harmonics())?;
+                (Some(tone.region.collector_base_margin_v()), tone.region)
             }
             Metric::Im3 => {
                 let result = self.engine.two_tone(
@@ -252,19 +331,34 @@ impl StageMeasurements {
                     frequency,
                     self.settings.spacing_at(frequency),
                 )?;
-                result.im3_resolved_dbc()
+                (result.im3_resolved_dbc(), result.region)
             }
-            Metric::Iip3 => self.intercept(frequency)?.map(|i| i.iip3_v),
-            Metric::Oip3 => {
-                let gain = self.gain_at(frequency)?.abs();
-                self.intercept(frequency)?.map(|i| i.iip3_v * gain)
+            Metric::Iip3 | Metric::Oip3 => {
+                let scale = if line.metric == Metric::Oip3 {
+                    self.gain_at(frequency)?.abs()
+                } else {
+                    1.0
+                };
+                match self.intercept(frequency)? {
+                    Some(i) => (Some(i.iip3_v * scale), i.fit_region),
+                    // No 3:1 region: judged at the bias point, the smallest drive there is.
+                    None => (None, self.zero_input_region()?),
+                }
             }
-            Metric::P1db => self.p1db(frequency)?,
-            Metric::Gain => Some(20.0 * self.gain_at(frequency)?.abs().log10()),
-            Metric::SteeringRange => Some(self.steering_range()?),
-            Metric::InputNoise => Some(self.noise()?),
-            // A property of the population, not of one stage: the study counts it.
-            Metric::Yield => None,
-        })
+            Metric::P1db => {
+                let c = self.compression(frequency)?;
+                (c.input_v, c.region)
+            }
+            Metric::Gain => (
+                Some(20.0 * self.gain_at(frequency)?.abs().log10()),
+                self.zero_input_region()?,
+            ),
+            Metric::SteeringRange => (Some(self.steering_range()?), self.steering_region()?),
+            Metric::InputNoise => (Some(self.noise()?), self.zero_input_region()?),
+            // A property of the population, not of one stage: the study counts it (judged at
+            // the bias point here).
+            Metric::Yield => (None, self.zero_input_region()?),
+        };
+        Ok(Measured { value, region })
     }
 }

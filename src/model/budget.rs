@@ -21,13 +21,16 @@ pub enum Metric {
     SteeringRange,
     /// White input-referred differential noise density, V/√Hz.
     InputNoise,
+    /// The least collector-base reverse bias over the period at an amplitude, V (negative
+    /// when a junction is forward-biased: saturation).
+    CollectorBaseMargin,
     /// Fraction of the Monte Carlo runs meeting every other budget line (needs `monte_carlo`).
     Yield,
 }
 
 /// Every metric name a plan accepts, for messages.
 pub const METRIC_NAMES: &str =
-    "hd2, hd3, hd5 (any hdN, N ≥ 2), thd, im3, iip3, oip3, p1db, gain, steering_range, input_noise, yield";
+    "hd2, hd3, hd5 (any hdN, N ≥ 2), thd, im3, iip3, oip3, p1db, gain, steering_range, input_noise, collector_base_margin, yield";
 
 impl Metric {
     /// The name used in plans and reports (`hd3`, `iip3`, …).
@@ -42,6 +45,7 @@ impl Metric {
             Metric::Gain => "gain".into(),
             Metric::SteeringRange => "steering_range".into(),
             Metric::InputNoise => "input_noise".into(),
+            Metric::CollectorBaseMargin => "collector_base_margin".into(),
             Metric::Yield => "yield".into(),
         }
     }
@@ -65,6 +69,7 @@ impl Metric {
             "gain" => Metric::Gain,
             "steering_range" => Metric::SteeringRange,
             "input_noise" => Metric::InputNoise,
+            "collector_base_margin" => Metric::CollectorBaseMargin,
             "yield" => Metric::Yield,
             other => {
                 // Digits only: `parse` alone would also take `hd+3`.
@@ -105,7 +110,16 @@ impl Metric {
 
     /// Whether the metric depends on the drive amplitude (`at`).
     pub fn needs_amplitude(self) -> bool {
-        matches!(self, Metric::Harmonic(_) | Metric::Thd | Metric::Im3)
+        matches!(
+            self,
+            Metric::Harmonic(_) | Metric::Thd | Metric::Im3 | Metric::CollectorBaseMargin
+        )
+    }
+
+    /// Whether a line's margin is a difference in the metric's own unit (volts) rather than
+    /// dB: the collector-base margin, which is negative in saturation.
+    pub fn margin_in_volts(self) -> bool {
+        self == Metric::CollectorBaseMargin
     }
 
     /// Unit label of the limit and value.

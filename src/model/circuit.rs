@@ -16,8 +16,19 @@ pub struct Side {
     pub saturation_current: f64,
     /// 1/β (0 for no base current).
     pub beta_inv: f64,
-    /// 1/V_A, 1/V (0 for no Early effect).
+    /// 1/V_AF, 1/V (0 for no forward Early effect).
     pub early_inv: f64,
+    /// 1/β_R (0 for no reverse base current).
+    pub reverse_beta_inv: f64,
+    /// 1/V_AR, 1/V (0 for no reverse Early effect).
+    pub reverse_early_inv: f64,
+    /// 1/I_KF, 1/A (0 for no forward high-level injection).
+    pub forward_knee_inv: f64,
+    /// 1/I_KR, 1/A (0 for no reverse high-level injection).
+    pub reverse_knee_inv: f64,
+    /// Collector series resistance r_c, between the collector terminal and the intrinsic
+    /// collector, Ω.
+    pub collector_resistance: f64,
     /// Source plus base resistance in the base path, Ω.
     pub base_path_resistance: f64,
     /// Emitter degeneration, Ω.
@@ -79,6 +90,11 @@ impl StageCircuit {
             saturation_current: is_m,
             beta_inv: inverse_or_zero(t.beta),
             early_inv: inverse_or_zero(t.early_voltage),
+            reverse_beta_inv: inverse_or_zero(t.reverse_beta),
+            reverse_early_inv: inverse_or_zero(t.reverse_early_voltage),
+            forward_knee_inv: inverse_or_zero(t.forward_knee_current),
+            reverse_knee_inv: inverse_or_zero(t.reverse_knee_current),
+            collector_resistance: t.collector_resistance,
             base_path_resistance: stage.source_resistance + t.base_resistance,
             emitter_resistance: stage.emitter_resistance,
             load_resistance: stage.load_resistance,
@@ -87,6 +103,11 @@ impl StageCircuit {
             saturation_current: scaled(is_m, mismatch.saturation_current),
             beta_inv: inverse_or_zero(scaled(t.beta, mismatch.beta)),
             early_inv: m.early_inv,
+            reverse_beta_inv: m.reverse_beta_inv,
+            reverse_early_inv: m.reverse_early_inv,
+            forward_knee_inv: m.forward_knee_inv,
+            reverse_knee_inv: m.reverse_knee_inv,
+            collector_resistance: m.collector_resistance,
             base_path_resistance: stage.source_resistance
                 + scaled(t.base_resistance, mismatch.base_resistance),
             emitter_resistance: scaled(stage.emitter_resistance, mismatch.emitter_resistance),
@@ -116,8 +137,25 @@ impl StageCircuit {
         self.charge.is_memoryless() && self.load_capacitance == 0.0 && self.tail_capacitance == 0.0
     }
 
-    /// Whether the reduced one-unknown solve applies (ideal tail and no Early effect).
+    /// Whether the reduced one-unknown solve applies: an ideal tail, no Early effect and no
+    /// high-level injection. It holds wherever both collector-base junctions are at or below
+    /// zero bias; [`crate::solve::transfer::StaticSolver`] checks that at every solved point
+    /// and solves the whole model where it does not.
     pub fn is_reducible(&self) -> bool {
-        self.tail_conductance == 0.0 && self.p.early_inv == 0.0 && self.m.early_inv == 0.0
+        self.tail_conductance == 0.0
+            && [&self.p, &self.m]
+                .iter()
+                .all(|s| s.forward_law() && s.early_inv == 0.0)
+    }
+}
+
+impl Side {
+    /// Whether, with the collector-base junction at or below zero bias, this side follows the
+    /// forward-active form `I_C = J·(1 + V_CE/V_AF)`, `I_B = J/β_F` (no knee currents and no
+    /// reverse Early voltage).
+    pub fn forward_law(&self) -> bool {
+        self.reverse_early_inv == 0.0
+            && self.forward_knee_inv == 0.0
+            && self.reverse_knee_inv == 0.0
     }
 }

@@ -2,8 +2,8 @@
 //! every stage on top of its nominal values and evaluated like temperatures.
 //!
 //! A shift `x` multiplies the parameter by `(1 + x)`: a saturation-current shift of −0.2 makes
-//! I_S 0.8 times nominal. `resistors` scales every on-chip resistor (load, emitter, base; not
-//! the external source resistance); `load_resistance`, `emitter_resistance` and
+//! I_S 0.8 times nominal. `resistors` scales every on-chip resistor (load, emitter, base,
+//! collector; not the external source resistance); `load_resistance`, `emitter_resistance` and
 //! `base_resistance` scale one kind further (the factors multiply). A plan's first corner is
 //! always the typical one.
 
@@ -51,6 +51,7 @@ impl Corner {
         stage.load_resistance *= resistor * (1.0 + self.load_resistance);
         stage.emitter_resistance *= resistor * (1.0 + self.emitter_resistance);
         stage.transistor.base_resistance *= resistor * (1.0 + self.base_resistance);
+        stage.transistor.collector_resistance *= resistor;
         stage.transistor.saturation_current *= 1.0 + self.saturation_current;
         stage.transistor.beta *= 1.0 + self.beta;
         stage.transistor.early_voltage *= 1.0 + self.early_voltage;

@@ -1,9 +1,18 @@
-//! The bipolar transistor as data: the parameters of the forward-active Gummel–Poon subset the
-//! engines solve, with their defaults, builders and the saturation current's temperature law.
+//! The bipolar transistor as data: the parameters of the Gummel–Poon core the engines solve
+//! over the whole drive range (forward-active, saturation, high-level injection), with their
+//! defaults, builders and the saturation current's temperature law.
 //!
-//! Collector current `I_C = I_S·exp(V_BE/φT)·(1 + V_CE/V_A)` (exponential law with Early
-//! effect), base current `I_B = I_S·exp(V_BE/φT)/β`. The saturation current follows the usual
-//! temperature law `I_S(T) = I_S(T0)·(T/T0)^XTI·exp(q·E_g/k·(1/T0 − 1/T))`.
+//! With the junction voltages `V_BE`, `V_BC` of the intrinsic transistor (inside r_b, R_E and
+//! r_c), the transport currents are `I_CC = I_S·(exp(V_BE/φT) − 1)` and
+//! `I_EC = I_S·(exp(V_BC/φT) − 1)`; the normalised base charge
+//! `q_b = q_1·(1 + sqrt(1 + 4·q_2))/2` with `1/q_1 = 1 + V_CE/V_AF − V_BE/V_AR` and
+//! `q_2 = I_CC/I_KF + I_EC/I_KR`; then `I_C = (I_CC − I_EC)/q_b − I_EC/β_R` and
+//! `I_B = I_CC/β_F + I_EC/β_R`. With the collector-base junction reverse-biased and the knee
+//! currents and reverse Early voltage infinite this is the exponential law with Early effect,
+//! `I_C = I_S·exp(V_BE/φT)·(1 + V_CE/V_A)`, `I_B = I_S·exp(V_BE/φT)/β`, to within terms of
+//! order I_S. The saturation current follows the usual temperature law
+//! `I_S(T) = I_S(T0)·(T/T0)^XTI·exp(q·E_g/k·(1/T0 − 1/T))`; every other parameter is taken as
+//! independent of temperature. `specs/README.md` writes the whole model down.
 
 use crate::units::{BOLTZMANN, ELEMENTARY_CHARGE, ZERO_CELSIUS_K};
 
@@ -55,6 +64,19 @@ pub struct Transistor {
     pub flicker_coefficient: f64,
     /// Flicker-noise exponent of the base current, AF.
     pub flicker_exponent: f64,
+    /// Reverse current gain β_R (infinite = no reverse base current).
+    pub reverse_beta: f64,
+    /// Forward knee current I_KF where high-level injection sets in, A (infinite = none).
+    pub forward_knee_current: f64,
+    /// Reverse knee current I_KR, A (infinite = none).
+    pub reverse_knee_current: f64,
+    /// Collector series resistance r_c, Ω (between the collector terminal and the intrinsic
+    /// collector).
+    pub collector_resistance: f64,
+    /// Reverse transit time τ_R, s (reverse diffusion charge τ_R·I_EC).
+    pub reverse_transit_time: f64,
+    /// Reverse Early voltage V_AR, V (infinite = none).
+    pub reverse_early_voltage: f64,
 }
 
 impl Default for Transistor {
@@ -76,6 +98,12 @@ impl Default for Transistor {
             saturation_current_exponent: 3.0,
             flicker_coefficient: 0.0,
             flicker_exponent: 1.0,
+            reverse_beta: 1.0,
+            forward_knee_current: f64::INFINITY,
+            reverse_knee_current: f64::INFINITY,
+            collector_resistance: 0.0,
+            reverse_transit_time: 0.0,
+            reverse_early_voltage: f64::INFINITY,
         }
     }
 }
@@ -130,6 +158,18 @@ builders!(
     flicker_coefficient,
     /// Sets the base current's flicker-noise exponent AF.
     flicker_exponent,
+    /// Sets the reverse current gain β_R (`f64::INFINITY` = no reverse base current).
+    reverse_beta,
+    /// Sets the forward knee current I_KF, A (`f64::INFINITY` = no high-level injection).
+    forward_knee_current,
+    /// Sets the reverse knee current I_KR, A (`f64::INFINITY` = none).
+    reverse_knee_current,
+    /// Sets the collector series resistance r_c, Ω.
+    collector_resistance,
+    /// Sets the reverse transit time τ_R, s.
+    reverse_transit_time,
+    /// Sets the reverse Early voltage V_AR, V (`f64::INFINITY` = none).
+    reverse_early_voltage,
 );
 
 impl Transistor {
@@ -145,8 +185,10 @@ impl Transistor {
 /// Charge-storage parameters of one transistor (for the dynamic engine).
 #[derive(Debug, Clone, Copy, PartialEq, Default)]
 pub struct ChargeModel {
-    /// Forward transit time, s (diffusion charge = τ_F·I_C).
+    /// Forward transit time, s (forward diffusion charge = τ_F·I_CC/q_b).
     pub transit_time: f64,
+    /// Reverse transit time, s (reverse diffusion charge = τ_R·I_EC).
+    pub reverse_transit_time: f64,
     /// Zero-bias base-emitter junction capacitance, F.
     pub emitter_junction_capacitance: f64,
     /// Base-emitter built-in potential, V.
@@ -166,6 +208,7 @@ impl ChargeModel {
     pub fn of(transistor: &Transistor) -> Self {
         ChargeModel {
             transit_time: transistor.transit_time,
+            reverse_transit_time: transistor.reverse_transit_time,
             emitter_junction_capacitance: transistor.emitter_junction_capacitance,
             emitter_junction_potential: transistor.emitter_junction_potential,
             emitter_grading: transistor.emitter_grading,
@@ -178,6 +221,7 @@ impl ChargeModel {
     /// Whether the transistor stores any charge.
     pub fn is_memoryless(&self) -> bool {
         self.transit_time == 0.0
+            && self.reverse_transit_time == 0.0
             && self.emitter_junction_capacitance == 0.0
             && self.collector_junction_capacitance == 0.0
     }

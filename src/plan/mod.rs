@@ -76,6 +76,12 @@ const TRANSISTOR_KEYS: &[&str] = &[
     "saturation_current_exponent",
     "flicker_coefficient",
     "flicker_exponent",
+    "reverse_beta",
+    "forward_knee_current",
+    "reverse_knee_current",
+    "collector_resistance",
+    "reverse_transit_time",
+    "reverse_early_voltage",
 ];
 const MISMATCH_KEYS: &[&str] = &[
     "saturation_current",
@@ -321,11 +327,22 @@ impl Plan {
             .get("monte_carlo")
             .map(|at| read_monte_carlo(&at))
             .transpose()?;
+        let reference_impedance = top
+            .get("reference_impedance")
+            .map(|at| at.quantity_where(Unit::Ohm, Range::Positive))
+            .transpose()?;
         let budget = match top.get("budget") {
             Some(at) => at
                 .seq("budget lines")?
                 .iter()
-                .map(|line| read_budget_line(line, &drive, top.get("monte_carlo").is_some()))
+                .map(|line| {
+                    read_budget_line(
+                        line,
+                        &drive,
+                        top.get("monte_carlo").is_some(),
+                        reference_impedance,
+                    )
+                })
                 .collect::<Result<Vec<_>, _>>()?,
             None => Vec::new(),
         };
@@ -349,10 +366,6 @@ impl Plan {
                 }
                 Ok(NoiseBand { from, to })
             })
-            .transpose()?;
-        let reference_impedance = top
-            .get("reference_impedance")
-            .map(|at| at.quantity_where(Unit::Ohm, Range::Positive))
             .transpose()?;
 
         let corners = corners::read_corners(top.get("corners").as_ref())?;
@@ -640,6 +653,42 @@ fn read_transistor(at: &At) -> Result<Transistor, PlanError> {
             Range::Between(0.5, 3.0),
             d.flicker_exponent,
         )?,
+        reverse_beta: map.quantity_or(
+            "reverse_beta",
+            Unit::Number,
+            Range::PositiveOrInfinite,
+            d.reverse_beta,
+        )?,
+        forward_knee_current: map.quantity_or(
+            "forward_knee_current",
+            Unit::Ampere,
+            Range::PositiveOrInfinite,
+            d.forward_knee_current,
+        )?,
+        reverse_knee_current: map.quantity_or(
+            "reverse_knee_current",
+            Unit::Ampere,
+            Range::PositiveOrInfinite,
+            d.reverse_knee_current,
+        )?,
+        collector_resistance: map.quantity_or(
+            "collector_resistance",
+            Unit::Ohm,
+            Range::NonNegative,
+            d.collector_resistance,
+        )?,
+        reverse_transit_time: map.quantity_or(
+            "reverse_transit_time",
+            Unit::Second,
+            Range::NonNegative,
+            d.reverse_transit_time,
+        )?,
+        reverse_early_voltage: map.quantity_or(
+            "reverse_early_voltage",
+            Unit::Volt,
+            Range::PositiveOrInfinite,
+            d.reverse_early_voltage,
+        )?,
     })
 }
 
@@ -768,7 +817,30 @@ fn read_monte_carlo(at: &At) -> Result<MonteCarloSettings, PlanError> {
     })
 }
 
-fn read_budget_line(at: &At, drive: &Drive, monte_carlo: bool) -> Result<BudgetLine, PlanError> {
+/// The number of a limit written in dBm (`"-10 dBm"`), if it is written so.
+fn dbm_number(at: &At) -> Option<Result<f64, PlanError>> {
+    let text = at.text("").ok()?.trim();
+    let number = text.strip_suffix("dBm")?.trim();
+    Some(
+        number
+            .parse::<f64>()
+            .ok()
+            .filter(|v| v.is_finite())
+            .ok_or_else(|| {
+                at.error(
+                    format!("\"{text}\" is not a level in dBm"),
+                    "a number followed by dBm, e.g. \"-10 dBm\"",
+                )
+            }),
+    )
+}
+
+fn read_budget_line(
+    at: &At,
+    drive: &Drive,
+    monte_carlo: bool,
+    reference_impedance: Option<f64>,
+) -> Result<BudgetLine, PlanError> {
     let map = at.map(BUDGET_KEYS)?;
     let metric_at = map.required("metric", METRIC_NAMES)?;
     let metric_name = metric_at.text(METRIC_NAMES)?;
@@ -805,7 +877,7 @@ fn read_budget_line(at: &At, drive: &Drive, monte_carlo: bool) -> Result<BudgetL
         if let Some(a) = map.get("at") {
             return Err(a.error(
                 format!("`at` does not apply to {}", metric.name()),
-                "`at` only on hdN, thd and im3 lines",
+                "`at` only on hdN, thd, im3 and collector_base_margin lines",
             ));
         }
     }
@@ -825,6 +897,22 @@ fn read_budget_line(at: &At, drive: &Drive, monte_carlo: bool) -> Result<BudgetL
         let Some(limit_at) = map.get(key) else {
             return Ok(None);
         };
+        if let Some(dbm) = dbm_number(&limit_at) {
+            let dbm = dbm?;
+            let power_like = matches!(metric, Metric::Iip3 | Metric::Oip3 | Metric::P1db);
+            return match (power_like, reference_impedance) {
+                // P = V²/(2R) of a sine of peak V into R, referred to 1 mW.
+                (true, Some(ohms)) => Ok(Some((2.0 * ohms * 1e-3 * 10f64.powf(dbm / 10.0)).sqrt())),
+                (true, None) => Err(limit_at.error(
+                    "a limit in dBm needs the plan's `reference_impedance`",
+                    "reference_impedance: 50 (ohms) at the top of the plan, or the limit in volts, e.g. 300 mV",
+                )),
+                (false, _) => Err(limit_at.error(
+                    format!("{} is not a power: dBm does not apply", metric.name()),
+                    "dBm limits on iip3, oip3 and p1db lines only",
+                )),
+            };
+        }
         let value = if metric == Metric::Yield {
             if key == "max" {
                 return Err(limit_at.error(
@@ -867,6 +955,9 @@ fn read_budget_line(at: &At, drive: &Drive, monte_carlo: bool) -> Result<BudgetL
             value
         } else if metric.is_decibel() {
             limit_at.quantity_where(Unit::Decibel, Range::Finite)?
+        } else if metric == Metric::CollectorBaseMargin {
+            // A least reverse bias: zero forbids forward bias, a negative value allows some.
+            limit_at.quantity_where(Unit::Volt, Range::Finite)?
         } else {
             // Intercepts, compression, steering range and noise density are all in volts.
             limit_at.quantity_where(Unit::Volt, Range::Positive)?
@@ -878,6 +969,14 @@ fn read_budget_line(at: &At, drive: &Drive, monte_carlo: bool) -> Result<BudgetL
             "a budget line needs exactly one of `max` or `min`",
             "{metric: hd3, at: 100 mV, max: -60} or {metric: iip3, min: 300 mV}",
         ));
+    }
+    if metric == Metric::CollectorBaseMargin {
+        if let Some(max_at) = map.get("max") {
+            return Err(max_at.error(
+                "a collector_base_margin line sets the least reverse bias, with `min`",
+                "{metric: collector_base_margin, at: 150 mV, min: 300 mV}",
+            ));
+        }
     }
     let limit = match (read_limit("max")?, read_limit("min")?) {
         (Some(max), None) => Limit::Max(max),
@@ -983,6 +1082,40 @@ mod tests {
             "name: p\nstages:\n  - {{name: a, tail_current: 1 mA, load_resistance: 2k, {keys}}}\ndrive: {{amplitudes: [1 mV]}}\n"
         );
         read(&text).stages.remove(0)
+    }
+
+    /// A limit in dBm is read into peak volts with P = V²/(2R): 10 dBm into 50 Ω is 1 V
+    /// peak (common practice); without `reference_impedance`, or on a dB metric, it is refused.
+    #[test]
+    fn dbm_limits_need_a_reference_impedance() {
+        let with = |top: &str, line: &str| {
+            format!("{MINIMAL}{top}budget:\n  - {line}\n").replace(
+                "drive: {amplitudes: [100 mV]}",
+                "drive: {amplitudes: [100 mV], two_tone_spacing: 1 kHz}",
+            )
+        };
+        let plan = read(&with(
+            "reference_impedance: 50\n",
+            "{metric: iip3, min: \"10 dBm\"}",
+        ));
+        match plan.budget[0].limit {
+            Limit::Min(v) => assert!((v - 1.0).abs() < 1e-12, "{v}"),
+            other => panic!("{other:?}"),
+        }
+        let error = Plan::from_yaml(&with("", "{metric: iip3, min: \"10 dBm\"}"), "p.yaml")
+            .unwrap_err()
+            .to_string();
+        assert!(error.contains("reference_impedance"), "{error}");
+        let error = Plan::from_yaml(
+            &with(
+                "reference_impedance: 50\n",
+                "{metric: hd3, max: \"-10 dBm\"}",
+            ),
+            "p.yaml",
+        )
+        .unwrap_err()
+        .to_string();
+        assert!(error.contains("dBm does not apply"), "{error}");
     }
 
     #[test]

@@ -3,19 +3,19 @@
 
 use crate::error::Error;
 use crate::measure::small_signal::STEERING_FRACTION;
-use crate::model::budget::{BudgetLine, Limit};
+use crate::model::budget::{BudgetLine, Limit, Metric};
 use crate::model::corner::TYPICAL;
 use crate::model::plan::{Plan, PlanCaution, SizingSettings};
 use crate::model::stage::Stage;
 use crate::report::text::celsius;
 use crate::report::{
-    quantity_text, AnalysisRecord, BudgetRecord, DesignVerdictRecord, FailingCheckRecord,
+    dbm, quantity_text, AnalysisRecord, BudgetRecord, DesignVerdictRecord, FailingCheckRecord,
     FitRecord, FitSummaryRecord, Harmonics, InterceptRecord, MonteCarloRecord, PointRecord,
-    RecommendedStageRecord, RecommendedVerdictRecord, Report, ResidualRecord,
+    RecommendedStageRecord, RecommendedVerdictRecord, Region, Report, ResidualRecord,
     ResidualSummaryRecord, SizingRecord, SizingScanRecord, SpreadRecord, StageRecord,
     TransferRecord, UnreachableRecord, VerdictRecord, YieldLineRecord, YieldRecord, CAUTION,
 };
-use crate::solve::response::CUTOFF_FRACTION;
+use crate::solve::response::{OperatingRegion, RegionCheck};
 use crate::solve::spectrum::{ANALYSIS_FLOOR_DBC, CONVERGED_DB};
 use crate::study::case::{CaseEvaluation, DrivePoint};
 use crate::study::corners::{CornerSpread, SpreadFigure};
@@ -604,7 +604,7 @@ fn case_records(plan: &Plan, case: CaseEvaluation, derived_from: Option<String>)
         .into_iter()
         .map(|p| point_record(name, temperature_c, &corner, p))
         .collect();
-    let mut warnings = forward_active_warnings(&stage, temperature_c, &points);
+    let mut warnings = default_bias_saturation_warnings(&stage, temperature_c, &points);
     warnings.extend(small_drive_warnings(name, temperature_c, &points));
     warnings.extend(collision_warnings(name, temperature_c, &points));
     let (steer_low, steer_high) = operating.steering_v;
@@ -651,7 +651,7 @@ fn case_records(plan: &Plan, case: CaseEvaluation, derived_from: Option<String>)
             iip3_dbv: iip3.map(|v| 20.0 * v.log10()),
             iip3_dbm: match (iip3, plan.reference_impedance) {
                 // Peak differential volts into R: P = V²/(2R).
-                (Some(v), Some(r)) => Some(10.0 * (v * v / (2.0 * r) / 1e-3).log10()),
+                (Some(v), Some(r)) => Some(dbm(v, r)),
                 _ => None,
             },
             iip3_fit_amplitude_v: intercept.map(|i| i.fit_amplitude_v),
@@ -662,6 +662,11 @@ fn case_records(plan: &Plan, case: CaseEvaluation, derived_from: Option<String>)
             integrated_noise_v: operating.band_noise_v,
             flicker_corner_hz: operating.noise.corner_hz(),
             spurious_free_dynamic_range_db: figures.sfdr_db,
+            p1db_region: region(&figures.p1db_region),
+            p1db_collector_base_margin_v: figures.p1db_region.collector_base_margin_v(),
+            iip3_fit_region: intercept.map(|i| region(&i.fit_region)),
+            iip3_fit_collector_base_margin_v: intercept
+                .map(|i| i.fit_region.collector_base_margin_v()),
         });
     }
     let zero = &operating.zero_input;
@@ -675,6 +680,8 @@ fn case_records(plan: &Plan, case: CaseEvaluation, derived_from: Option<String>)
         steering_low_v: steer_low,
         steering_high_v: steer_high,
         steering_rule_of_thumb_v: operating.steering_rule_of_thumb_v,
+        steering_region: region(&operating.steering_region),
+        steering_collector_base_margin_v: operating.steering_region.collector_base_margin_v(),
         collector_currents_a: [zero.p.collector_current, zero.m.collector_current],
         collector_voltages_v: [zero.p.collector_voltage, zero.m.collector_voltage],
         tail_voltage_v: zero.tail_voltage,
@@ -686,6 +693,7 @@ fn case_records(plan: &Plan, case: CaseEvaluation, derived_from: Option<String>)
                 normalised_current: s.normalised_current,
                 transconductance_s: s.transconductance_s,
                 output_v: s.output_v,
+                base_collector_v: s.base_collector_v,
             })
             .collect(),
         corner: corner.clone(),
@@ -712,6 +720,16 @@ fn case_records(plan: &Plan, case: CaseEvaluation, derived_from: Option<String>)
                 pass: result.pass,
                 unit: line.metric.unit_label().into(),
                 corner: corner.clone(),
+                margin_unit: if line.metric.margin_in_volts() {
+                    "V"
+                } else {
+                    "dB"
+                }
+                .into(),
+                region: region(&result.region),
+                collector_base_margin_v: result.region.collector_base_margin_v(),
+                limit_dbm: dbm_of(plan, line.metric, line.limit.value()),
+                value_dbm: result.value.and_then(|v| dbm_of(plan, line.metric, v)),
                 margin_at_least: result.margin_at_least,
                 interval: result.interval.map(|(low, high)| [low, high]),
             }
@@ -728,6 +746,25 @@ fn case_records(plan: &Plan, case: CaseEvaluation, derived_from: Option<String>)
         stage: stage_record,
         budget,
         warnings,
+    }
+}
+
+/// The report's name for the worst region of a drive.
+fn region(check: &RegionCheck) -> Region {
+    match check.region() {
+        OperatingRegion::ForwardActive => Region::ForwardActive,
+        OperatingRegion::HighInjection => Region::HighInjection,
+        OperatingRegion::Saturating => Region::Saturating,
+    }
+}
+
+/// A volt figure of a power-like metric (IIP3, OIP3, P1dB) in dBm, when the plan gives a
+/// reference impedance.
+fn dbm_of(plan: &Plan, metric: Metric, volts: f64) -> Option<f64> {
+    let power_like = matches!(metric, Metric::Iip3 | Metric::Oip3 | Metric::P1db);
+    match plan.reference_impedance {
+        Some(ohms) if power_like && volts > 0.0 && volts.is_finite() => Some(dbm(volts, ohms)),
+        _ => None,
     }
 }
 
@@ -760,9 +797,11 @@ fn point_record(stage: &str, temperature_c: f64, corner: &str, point: DrivePoint
             .filter(|floor| *floor > point.floor_dbc),
         im3_limited_by: two.and_then(|t| t.im3_limited_by).map(|p| p.to_string()),
         im2_limited_by: two.and_then(|t| t.im2_limited_by).map(|p| p.to_string()),
-        forward_active: point.region.is_forward_active(),
-        max_base_collector_v: point.region.max_base_collector_v,
+        region: region(&point.region),
+        collector_base_margin_v: point.region.collector_base_margin_v(),
         min_current_fraction: point.region.min_current_fraction,
+        two_tone_region: two.map(|t| region(&t.region)),
+        two_tone_collector_base_margin_v: two.map(|t| t.region.collector_base_margin_v()),
         corner: corner.to_owned(),
         snr_db: point.snr_db,
         sfdr_dbc: point.sfdr_dbc,
@@ -812,6 +851,7 @@ fn population_name(figure: PopulationFigure) -> (&'static str, &'static str) {
         PopulationFigure::Im3 => ("im3", "dBc"),
         PopulationFigure::Iip2 => ("iip2", "V"),
         PopulationFigure::Offset => ("offset", "V"),
+        PopulationFigure::CollectorBaseMargin => ("collector_base_margin", "V"),
     }
 }
 
@@ -877,6 +917,8 @@ fn population_records(
             pass_fraction_low: estimate.low,
             pass_fraction_high: estimate.high,
             interval: INTERVAL_NAME.into(),
+            least_collector_base_margin_v: stage.least_collector_base_margin_v,
+            saturating_runs: stage.saturating_runs,
             lines,
         });
     }
@@ -890,6 +932,10 @@ fn scan_record(trial: &Trial) -> SizingScanRecord {
         gain_db: trial.gain_db.is_finite().then_some(trial.gain_db),
         headroom_v: trial.headroom_v,
         tail_headroom_v: Some(trial.tail_headroom_v),
+        collector_base_margin_v: trial
+            .collector_base_margin_v
+            .is_finite()
+            .then_some(trial.collector_base_margin_v),
     }
 }
 
@@ -900,7 +946,7 @@ fn sizing_record(plan: &Plan, outcome: SizingOutcome) -> SizingRecord {
         temperature_c: outcome.temperature_c,
         emitter_resistance_ohm: Some(chosen.emitter_resistance),
         binding_metric: match outcome.binding {
-            Binding::Headroom => "headroom".into(),
+            Binding::Headroom => "collector_base_margin".into(),
             Binding::TailCompliance => "tail_compliance".into(),
             Binding::Line(index) => plan.budget[index].metric.name(),
             Binding::Nothing => "none".into(),
@@ -918,6 +964,7 @@ fn sizing_record(plan: &Plan, outcome: SizingOutcome) -> SizingRecord {
         load_resistance_ohm: Some(chosen.load_resistance),
         headroom_binds: outcome.headroom_binds,
         best_headroom_v: chosen.headroom_v,
+        collector_base_margin_v: Some(chosen.collector_base_margin_v),
         scan: outcome.scan.iter().map(scan_record).collect(),
         binding_corner: outcome.binding_corner.clone(),
         distortion_least_emitter_resistance_ohm: outcome.distortion_least,
@@ -1247,24 +1294,28 @@ fn residual_summaries(records: &[ResidualRecord]) -> Vec<ResidualSummaryRecord> 
         .collect()
 }
 
-/// Largest number of amplitude ranges a forward-active warning lists one by one.
+/// Largest number of amplitude ranges a saturation note lists one by one.
 const LISTED_RANGES: usize = 4;
 
-/// One warning per frequency for the drive points that leave forward-active operation,
-/// naming the amplitude ranges where they do (in increasing amplitude) and the worst case,
-/// rather than one line per point: a dense sweep into hard drive would otherwise print
-/// hundreds of near-identical lines.
-fn forward_active_warnings(
+/// Saturation is distortion the figures include, not a warning; but a stage that saturates
+/// with the default supply or input common mode is most likely not biased as designed. One
+/// warning per frequency names the amplitude ranges where it saturates (in increasing
+/// amplitude) and the worst forward bias, rather than one line per point.
+fn default_bias_saturation_warnings(
     stage: &Stage,
     temperature_c: f64,
     points: &[PointRecord],
 ) -> Vec<String> {
+    if !stage.bias_is_default() {
+        return Vec::new();
+    }
     let mut frequencies: Vec<f64> = Vec::new();
     for p in points {
         if !frequencies.contains(&p.frequency_hz) {
             frequencies.push(p.frequency_hz);
         }
     }
+    let saturating = |p: &PointRecord| p.region == Region::Saturating;
     let mut warnings = Vec::new();
     for frequency in frequencies {
         let mut here: Vec<&PointRecord> = points
@@ -1272,52 +1323,28 @@ fn forward_active_warnings(
             .filter(|p| p.frequency_hz == frequency)
             .collect();
         here.sort_by(|a, b| a.amplitude_v.total_cmp(&b.amplitude_v));
-        // Runs of consecutive amplitudes outside forward-active operation: (first, last, count).
+        // Runs of consecutive saturating amplitudes: (first, last, count).
         let mut runs: Vec<(f64, f64, usize)> = Vec::new();
         let mut inside_run = false;
         for p in &here {
-            match (p.forward_active, inside_run, runs.last_mut()) {
-                (false, true, Some(run)) => {
+            match (saturating(p), inside_run, runs.last_mut()) {
+                (true, true, Some(run)) => {
                     run.1 = p.amplitude_v;
                     run.2 += 1;
                 }
-                (false, _, _) => runs.push((p.amplitude_v, p.amplitude_v, 1)),
-                (true, _, _) => {}
+                (true, _, _) => runs.push((p.amplitude_v, p.amplitude_v, 1)),
+                (false, _, _) => {}
             }
-            inside_run = !p.forward_active;
+            inside_run = saturating(p);
         }
         if runs.is_empty() {
             continue;
         }
-        let outside: Vec<&&PointRecord> = here.iter().filter(|p| !p.forward_active).collect();
-        let mut reasons = Vec::new();
-        let worst_forward_bias = outside
+        let count = here.iter().filter(|p| saturating(p)).count();
+        let worst_forward_bias = here
             .iter()
-            .map(|p| p.max_base_collector_v)
+            .map(|p| -p.collector_base_margin_v)
             .fold(f64::NEG_INFINITY, f64::max);
-        if worst_forward_bias > stage.supply_v() {
-            // The model has no saturation: past the supply its junction voltage is only a sign
-            // that the load drop exceeds the supply, not a voltage the circuit can reach.
-            reasons.push(format!(
-                "collector-base forward-biased beyond the supply ({}): the load's drop exceeds the supply",
-                format_si(stage.supply_v(), "V")
-            ));
-        } else if worst_forward_bias > 0.0 {
-            reasons.push(format!(
-                "collector-base forward-biased by up to {:.3} V",
-                worst_forward_bias
-            ));
-        }
-        let least_current = outside
-            .iter()
-            .map(|p| p.min_current_fraction)
-            .fold(f64::INFINITY, f64::min);
-        if least_current < CUTOFF_FRACTION {
-            reasons.push(format!(
-                "a side cuts off, down to {:.1e} of the tail current",
-                least_current.max(0.0)
-            ));
-        }
         let range_text = |&(first, last, count): &(f64, f64, usize)| {
             if count == 1 {
                 format_si(first, "V")
@@ -1325,39 +1352,23 @@ fn forward_active_warnings(
                 format!("{} to {}", format_si(first, "V"), format_si(last, "V"))
             }
         };
-        let place = match runs.as_slice() {
-            [(first, _, 1)] if here.len() == 1 => format!(", {}", format_si(*first, "V")),
-            [single] if single.2 > 1 => format!(" from {}", range_text(single)),
-            _ => {
-                let mut listed: Vec<String> =
-                    runs.iter().take(LISTED_RANGES).map(range_text).collect();
-                if runs.len() > LISTED_RANGES {
-                    listed.push(format!("{} more ranges", runs.len() - LISTED_RANGES));
-                }
-                format!(" at {}", listed.join(", "))
-            }
-        };
-        if here.len() > 1 {
-            reasons.insert(0, format!("{} of {} amplitudes", outside.len(), here.len()));
+        let mut listed: Vec<String> = runs.iter().take(LISTED_RANGES).map(range_text).collect();
+        if runs.len() > LISTED_RANGES {
+            listed.push(format!("{} more ranges", runs.len() - LISTED_RANGES));
         }
-        let (point, span) = if here.len() == 1 {
-            (place, String::new())
+        let share = if here.len() > 1 {
+            format!("{count} of {} amplitudes, ", here.len())
         } else {
-            (String::new(), place)
+            String::new()
         };
-        warnings.push(
-            format!(
-                "stage `{}` at {} °C, {}{point}: leaves forward-active operation{span} ({}); the model's validity ends there",
-                stage.name,
-                temperature_c,
-                format_si(frequency, "Hz"),
-                reasons.join("; ")
-            ) + if stage.bias_is_default() {
-                " — note that the supply or input common mode is the default (5 V, half the supply); set `supply` and `input_common_mode` to the design's bias"
-            } else {
-                ""
-            },
-        );
+        warnings.push(format!(
+            "stage `{}` at {} °C, {}: saturates at {} ({share}collector-base forward-biased by up to {:.3} V; the figures include it) with the default supply or input common mode (5 V, half the supply); set `supply` and `input_common_mode` to the design's bias",
+            stage.name,
+            temperature_c,
+            format_si(frequency, "Hz"),
+            listed.join(", "),
+            worst_forward_bias,
+        ));
     }
     warnings
 }
@@ -1366,44 +1377,38 @@ fn forward_active_warnings(
 mod tests {
     use super::*;
 
-    fn point(amplitude_v: f64, forward_active: bool) -> PointRecord {
+    fn point(amplitude_v: f64, saturating: bool) -> PointRecord {
         serde_json::from_value(serde_json::json!({
             "stage": "s", "temperature_c": 27.0, "frequency_hz": 1000.0,
             "amplitude_v": amplitude_v, "fundamental_v": 1.0, "gain_db": 0.0,
             "thd_dbc": null, "single_ended_fundamental_v": 0.5,
             "single_ended_hd2_dbc": null, "single_ended_hd3_dbc": null, "samples": 256,
-            "forward_active": forward_active, "max_base_collector_v": -1.0,
-            "min_current_fraction": if forward_active { 0.1 } else { 1e-9 },
+            "region": if saturating { "saturating" } else { "forward-active" },
+            "collector_base_margin_v": if saturating { -amplitude_v } else { 0.5 },
+            "min_current_fraction": 0.1,
         }))
         .unwrap()
     }
 
-    fn stage() -> Stage {
-        Stage::new("s", 1e-3, 2e3)
-            .supply(5.0)
-            .input_common_mode(2.5)
-    }
-
-    /// Points outside forward-active operation are summed up per frequency as amplitude
-    /// ranges in increasing amplitude, whatever order the plan lists them in.
+    /// Saturating points of a stage on the default bias are summed up per frequency as
+    /// amplitude ranges in increasing amplitude, whatever order the plan lists them in; a
+    /// stage with its own bias gets no such warning.
     #[test]
-    fn forward_active_warnings_name_ranges_not_points() {
+    fn default_bias_saturation_warnings_name_ranges_not_points() {
+        let stage = Stage::new("s", 1e-3, 2e3);
         let points: Vec<PointRecord> = [0.5, 0.1, 0.6, 0.2, 0.7, 0.3, 0.01]
             .iter()
-            .map(|&a| point(a, a < 0.15 || (0.25..0.55).contains(&a)))
+            .map(|&a| point(a, !(a < 0.15 || (0.25..0.55).contains(&a))))
             .collect();
-        let warnings = forward_active_warnings(&stage(), 27.0, &points);
+        let warnings = default_bias_saturation_warnings(&stage, 27.0, &points);
         assert_eq!(warnings.len(), 1, "{warnings:?}");
         let w = &warnings[0];
         assert!(w.contains("at 200 mV, 600 mV to 700 mV"), "{w}");
         assert!(w.contains("3 of 7 amplitudes"), "{w}");
-        assert!(w.contains("a side cuts off, down to 1.0e-9"), "{w}");
-        let all_inside: Vec<PointRecord> = [0.1, 0.2].iter().map(|&a| point(a, true)).collect();
-        assert!(forward_active_warnings(&stage(), 27.0, &all_inside).is_empty());
-        let one = forward_active_warnings(&stage(), 27.0, &[point(0.4, false)]);
-        assert!(
-            one[0].contains("1.00 kHz, 400 mV: leaves forward-active operation ("),
-            "{one:?}"
-        );
+        assert!(w.contains("forward-biased by up to 0.700 V"), "{w}");
+        let biased = stage.clone().supply(5.0).input_common_mode(2.5);
+        assert!(default_bias_saturation_warnings(&biased, 27.0, &points).is_empty());
+        let none: Vec<PointRecord> = [0.1, 0.2].iter().map(|&a| point(a, false)).collect();
+        assert!(default_bias_saturation_warnings(&stage, 27.0, &none).is_empty());
     }
 }

@@ -37,6 +37,8 @@ impl BudgetRecord {
             Some(m) if m.is_finite() => {
                 let number = if self.unit == YIELD_UNIT {
                     format!("{:.2}", 100.0 * m)
+                } else if self.margin_unit == "V" {
+                    format!("{m:.3} V")
                 } else {
                     format!("{m:.2}")
                 };
@@ -341,12 +343,20 @@ pub struct PointRecord {
     /// "10f1 − 9f2".
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub im2_limited_by: Option<String>,
-    /// Whether both transistors stay forward-active over the whole period.
-    pub forward_active: bool,
-    /// Largest base-collector voltage over the period, V.
-    pub max_base_collector_v: f64,
+    /// Worst operating region of either transistor over the single-tone period.
+    pub region: Region,
+    /// The least collector-base reverse bias (intrinsic junction) over the single-tone
+    /// period, V; negative when a junction is forward-biased.
+    pub collector_base_margin_v: f64,
     /// Smallest collector current over the period relative to the tail current.
     pub min_current_fraction: f64,
+    /// Worst operating region over the two-tone drive (two-tone plans only; its peak is
+    /// twice one tone's).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub two_tone_region: Option<Region>,
+    /// The least collector-base reverse bias over the two-tone drive, V (two-tone only).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub two_tone_collector_base_margin_v: Option<f64>,
     /// Process corner.
     #[serde(default)]
     pub corner: String,
@@ -425,6 +435,34 @@ impl Harmonics {
             .parse::<usize>()
             .ok()
             .filter(|k| (2..=MAX_NAMED_ORDER).contains(k))
+    }
+}
+
+/// Where the transistors operate over a drive: the worst region either reached.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Serialize, Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Region {
+    /// Both collector-base junctions reverse-biased, no high-level injection.
+    ForwardActive,
+    /// High-level injection (the knee cut the transport current by more than 1 %).
+    HighInjection,
+    /// A collector-base junction forward-biased (saturation).
+    Saturating,
+}
+
+impl Region {
+    /// The name written in reports (`forward-active`, `high-injection`, `saturating`).
+    pub fn name(self) -> &'static str {
+        match self {
+            Region::ForwardActive => "forward-active",
+            Region::HighInjection => "high-injection",
+            Region::Saturating => "saturating",
+        }
+    }
+
+    /// Whether the drive stayed forward-active.
+    pub fn is_forward_active(self) -> bool {
+        self == Region::ForwardActive
     }
 }
 
@@ -524,6 +562,15 @@ pub struct InterceptRecord {
     /// Third-order spurious-free dynamic range (2/3)·(IIP3 − band noise), dB.
     #[serde(default)]
     pub spurious_free_dynamic_range_db: Option<f64>,
+    /// Operating region of a single tone at the P1dB answer (at the largest amplitude tried
+    /// when P1dB is unbounded).
+    pub p1db_region: Region,
+    /// The least collector-base reverse bias at the P1dB answer, V.
+    pub p1db_collector_base_margin_v: f64,
+    /// Operating region of the two tones at the IIP3 fit amplitude.
+    pub iip3_fit_region: Option<Region>,
+    /// The least collector-base reverse bias at the IIP3 fit amplitude, V.
+    pub iip3_fit_collector_base_margin_v: Option<f64>,
 }
 
 /// Operating point and transfer figures of one stage at one temperature.
@@ -547,6 +594,10 @@ pub struct StageRecord {
     pub steering_high_v: f64,
     /// Rule-of-thumb steering range 3φT + 0.9·I_tail·R_E, V, for comparison.
     pub steering_rule_of_thumb_v: f64,
+    /// Worst operating region at the two steering points (static).
+    pub steering_region: Region,
+    /// The least collector-base reverse bias at the steering points, V.
+    pub steering_collector_base_margin_v: f64,
     /// Collector currents at zero input, A.
     pub collector_currents_a: [f64; 2],
     /// Collector voltages at zero input, V.
@@ -583,6 +634,10 @@ pub struct TransferRecord {
     pub transconductance_s: f64,
     /// Differential output voltage, V.
     pub output_v: f64,
+    /// Intrinsic base-collector voltage of the P and M sides, V (positive: that side
+    /// saturates).
+    #[serde(default)]
+    pub base_collector_v: [f64; 2],
 }
 
 /// Distribution of one metric over the Monte Carlo runs.
@@ -643,6 +698,13 @@ pub struct YieldRecord {
     /// How the interval was computed.
     #[serde(default)]
     pub interval: String,
+    /// The least collector-base reverse bias over every run and every drive a run evaluated,
+    /// V (negative: some run saturates).
+    #[serde(default)]
+    pub least_collector_base_margin_v: f64,
+    /// Runs in which some evaluated drive forward-biased a collector-base junction.
+    #[serde(default)]
+    pub saturating_runs: u64,
     /// Per budget line, the runs that fail it (a run may fail several).
     #[serde(default)]
     pub lines: Vec<YieldLineRecord>,
@@ -686,7 +748,8 @@ pub struct BudgetRecord {
     pub kind: String,
     /// The measured value (null: below the analysis floor, or unbounded).
     pub value: Option<f64>,
-    /// Margin in dB, positive when the line passes.
+    /// Margin, positive when the line passes: in dB, or in volts for `collector_base_margin`
+    /// (see `margin_unit`).
     pub margin: Option<f64>,
     /// Whether the line passes.
     pub pass: bool,
@@ -695,6 +758,14 @@ pub struct BudgetRecord {
     /// Process corner.
     #[serde(default)]
     pub corner: String,
+    /// Unit of `margin`: `dB`, or `V` for `collector_base_margin` lines.
+    pub margin_unit: String,
+    /// Operating region of the drive the value rests on: the tone or two tones at `at_v`,
+    /// the P1dB answer, the IIP3 fit point, the steering points, or the bias point for
+    /// small-signal figures.
+    pub region: Region,
+    /// The least collector-base reverse bias over that drive, V.
+    pub collector_base_margin_v: f64,
     /// The value is below the analysis floor: `margin` is only a lower bound (the limit's
     /// distance to the floor), not a margin to a computed figure.
     #[serde(default)]
@@ -702,6 +773,18 @@ pub struct BudgetRecord {
     /// For a yield line: the 95 % Wilson score interval of the pass fraction.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub interval: Option<[f64; 2]>,
+    /// The limit in dBm into the plan's reference impedance (IIP3, OIP3 and P1dB lines of a
+    /// plan that gives `reference_impedance`); `limit` stays in volts.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub limit_dbm: Option<f64>,
+    /// The value in dBm into the plan's reference impedance (as `limit_dbm`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub value_dbm: Option<f64>,
+}
+
+/// Peak volts (a sine) into `ohms` as dBm: `P = V²/(2R)` referred to 1 mW.
+pub fn dbm(peak_v: f64, ohms: f64) -> f64 {
+    10.0 * (peak_v * peak_v / (2.0 * ohms) / 1e-3).log10()
 }
 
 /// Sizing result for one stage and temperature.
@@ -727,11 +810,17 @@ pub struct SizingRecord {
     pub steering_range_v: Option<f64>,
     /// Load resistance used at the chosen value, Ω (differs from the plan with hold_gain).
     pub load_resistance_ohm: Option<f64>,
-    /// Whether headroom, not distortion, decided the result (hold_gain only).
+    /// Whether the hold-gain collector-base margin (no saturation at the largest budget
+    /// amplitude), not distortion, decided the result.
     pub headroom_binds: bool,
-    /// Collector-base headroom at the chosen value, V (hold_gain only; negative = saturates).
+    /// Collector-base margin on the hold-gain check at the chosen value, V (hold_gain only;
+    /// negative = saturates).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub best_headroom_v: Option<f64>,
+    /// The least collector-base reverse bias over every drive evaluated at the chosen value
+    /// (each budget line's, in each corner), V.
+    #[serde(default)]
+    pub collector_base_margin_v: Option<f64>,
     /// Scan of the worst margin and gain versus emitter resistance.
     pub scan: Vec<SizingScanRecord>,
     /// Process corner with the least margin at the chosen value (margins are worst-case).
@@ -794,13 +883,16 @@ pub struct SizingScanRecord {
     pub margins: Vec<Option<f64>>,
     /// Small-signal gain, dB (null: the stage cannot bias at this value and was not solved).
     pub gain_db: Option<f64>,
-    /// Headroom margin (collector-base), V (hold_gain only).
+    /// Collector-base margin on the hold-gain check, V (hold_gain only).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub headroom_v: Option<f64>,
     /// Height of the tail node above the tail source's compliance at rest, worst corner, V
     /// (negative: the stage cannot bias at this value).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub tail_headroom_v: Option<f64>,
+    /// The least collector-base reverse bias over every drive evaluated at this value, V.
+    #[serde(default)]
+    pub collector_base_margin_v: Option<f64>,
 }
 
 /// One parameter of a stage fitted to bench data.
@@ -937,7 +1029,7 @@ mod tests {
             "hd2_dbc": null, "hd3_dbc": -70.5, "hd4_dbc": null, "hd5_dbc": -120.25,
             "hd11_dbc": -150.0, "thd_dbc": -70.5, "single_ended_fundamental_v": 0.04,
             "single_ended_hd2_dbc": null, "single_ended_hd3_dbc": -70.5, "samples": 256,
-            "forward_active": true, "max_base_collector_v": -1.0,
+            "region": "forward-active", "collector_base_margin_v": 1.0,
             "min_current_fraction": 0.4, "a_future_field": [1, 2]}"#;
         let point: PointRecord = serde_json::from_str(text).unwrap();
         assert_eq!(point.harmonic(2), None);

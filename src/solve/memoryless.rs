@@ -17,16 +17,22 @@ use std::sync::Arc;
 
 /// Analyses one single-tone drive `v_d = A·cos θ` of a memoryless stage, from a quarter
 /// period when the pair is matched (see [`super::symmetric`]), otherwise sample by sample.
+/// A drive that forward-biases a collector-base junction anywhere is solved with the whole
+/// model at every sample (see [`StaticSolver::solve_whole_model`]).
 pub fn single_tone(
     solver: &StaticSolver,
     cache: &FftCache,
     amplitude_v: f64,
     harmonics: usize,
 ) -> Result<ToneResult, SolveFailure> {
-    if crate::solve::symmetric::applies(solver.circuit()) {
-        crate::solve::symmetric::single_tone(solver, cache, amplitude_v, harmonics)
+    let whole = solver.saturates_within(amplitude_v)?;
+    let circuit = solver.circuit();
+    if crate::solve::symmetric::applies(circuit)
+        || (whole && crate::solve::symmetric::is_matched(circuit))
+    {
+        crate::solve::symmetric::single_tone(solver, cache, amplitude_v, harmonics, whole)
     } else {
-        single_tone_general(solver, cache, amplitude_v, harmonics)
+        general_tone(solver, cache, amplitude_v, harmonics, whole)
     }
 }
 
@@ -63,12 +69,24 @@ pub fn general_direct_floor_v(circuit: &StageCircuit) -> f64 {
     (1e-4 * phi).max(for_precision).min(3e-2 * phi)
 }
 
-/// The general single-tone analysis: every sample of the period solved in turn.
+/// The general single-tone analysis: every sample of the period solved in turn (with the
+/// whole model throughout when the drive saturates anywhere).
 pub fn single_tone_general(
     solver: &StaticSolver,
     cache: &FftCache,
     amplitude_v: f64,
     harmonics: usize,
+) -> Result<ToneResult, SolveFailure> {
+    let whole = solver.saturates_within(amplitude_v)?;
+    general_tone(solver, cache, amplitude_v, harmonics, whole)
+}
+
+fn general_tone(
+    solver: &StaticSolver,
+    cache: &FftCache,
+    amplitude_v: f64,
+    harmonics: usize,
+    whole: bool,
 ) -> Result<ToneResult, SolveFailure> {
     let tail = solver.circuit().tail_current;
     let mut warm = WarmStart::default();
@@ -80,7 +98,12 @@ pub fn single_tone_general(
         ANALYSIS_FLOOR_DBC,
         general_precision_v(solver.circuit()),
         |theta, out: &mut [f64]| {
-            let point = solver.solve(amplitude_v * theta.cos(), &mut warm)?;
+            let v_d = amplitude_v * theta.cos();
+            let point = if whole {
+                solver.solve_whole_model(v_d, &mut warm)?
+            } else {
+                solver.solve(v_d, &mut warm)?
+            };
             region.update(&point, tail);
             out[0] = point.output_voltage;
             out[1] = point.p.collector_voltage;
@@ -175,11 +198,19 @@ pub fn two_tone_grid(
     let plan = cache.plan(n);
     let mut grid = vec![Complex::new(0.0, 0.0); n * n];
     let mut warm = WarmStart::default();
+    let mut region = RegionCheck::new();
+    let tail = solver.circuit().tail_current;
+    let whole = solver.saturates_within(2.0 * amplitude_v)?;
     for row in 0..n {
         let first = amplitude_v * (TAU * row as f64 / n as f64).cos();
         for col in 0..n {
             let second = amplitude_v * (TAU * col as f64 / n as f64).cos();
-            let point = solver.solve(first + second, &mut warm)?;
+            let point = if whole {
+                solver.solve_whole_model(first + second, &mut warm)?
+            } else {
+                solver.solve(first + second, &mut warm)?
+            };
+            region.update(&point, tail);
             grid[row * n + col] = Complex::new(point.output_voltage, 0.0);
         }
     }
@@ -215,6 +246,7 @@ pub fn two_tone_grid(
         im2_floor_dbc: ANALYSIS_FLOOR_DBC,
         im3_limited_by: None,
         im2_limited_by: None,
+        region,
     })
 }
 
@@ -299,7 +331,7 @@ mod tests {
             let solver = solver(stage);
             assert!(applies(solver.circuit()));
             for amplitude in [1e-3, 0.01, 0.05, 0.2, 1.0] {
-                let fast = symmetric::single_tone(&solver, &cache, amplitude, 40).unwrap();
+                let fast = symmetric::single_tone(&solver, &cache, amplitude, 40, false).unwrap();
                 let slow = single_tone_general(&solver, &cache, amplitude, 40).unwrap();
                 assert_eq!(fast.samples, slow.samples, "{name} at {amplitude} V");
                 let f1 = slow.differential.fundamental();

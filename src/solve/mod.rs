@@ -10,6 +10,7 @@
 //! Every solver states its tolerance and returns a [`crate::SolveFailure`] naming the point
 //! where it could not meet it.
 
+pub mod device;
 pub mod dynamic;
 pub mod engine;
 pub mod memoryless;

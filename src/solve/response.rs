@@ -1,52 +1,122 @@
 //! What a response engine answers: single-tone and two-tone results of one stage at one
-//! temperature, with the operating-region check over the period, and the trait every engine
+//! temperature, with the operating region over the period, and the trait every engine
 //! implements. The memoryless engine ([`super::memoryless`]) and the periodic-steady-state
 //! engine ([`super::dynamic`]) both answer these, so measuring code never asks which it has.
 
 use crate::error::SolveFailure;
 use crate::model::products::Product;
+use crate::solve::device::{base_charge_factor, HIGH_INJECTION_FACTOR};
 use crate::solve::spectrum::Spectrum;
 use crate::solve::transfer::{OperatingPoint, StaticSolver};
 
-/// A collector current below this fraction of the tail current counts as cut off.
-pub const CUTOFF_FRACTION: f64 = 1e-6;
+/// Where a transistor operates over a drive: the worst region any sample reached.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash)]
+pub enum OperatingRegion {
+    /// Both collector-base junctions reverse-biased (or at zero bias) and no high-level
+    /// injection anywhere in the period.
+    ForwardActive,
+    /// The transport current reached high-level injection: the base-charge factor
+    /// `(1 + sqrt(1 + 4·q_2))/2` exceeded [`HIGH_INJECTION_FACTOR`] somewhere in the period.
+    HighInjection,
+    /// A collector-base junction was forward-biased somewhere in the period (saturation,
+    /// including quasi-saturation behind the collector resistance).
+    Saturating,
+}
 
-/// Where a drive point leaves the model's forward-active validity.
-#[derive(Debug, Clone, Copy, PartialEq, Default)]
+impl OperatingRegion {
+    /// The region's name in reports: `forward-active`, `high-injection`, `saturating`.
+    pub fn name(self) -> &'static str {
+        match self {
+            OperatingRegion::ForwardActive => "forward-active",
+            OperatingRegion::HighInjection => "high-injection",
+            OperatingRegion::Saturating => "saturating",
+        }
+    }
+}
+
+/// The operating region over a drive: the extremes both transistors reached, sample by
+/// sample, on the intrinsic junctions.
+#[derive(Debug, Clone, Copy, PartialEq)]
 pub struct RegionCheck {
-    /// Largest base-collector voltage seen on either side, V (positive = forward-biased).
+    /// Largest intrinsic base-collector voltage seen on either side, V (positive =
+    /// forward-biased).
     pub max_base_collector_v: f64,
     /// Smallest collector current seen on either side, relative to the tail current.
     pub min_current_fraction: f64,
+    /// Largest injection level `q_2 = I_CC/I_KF + I_EC/I_KR` seen on either side.
+    pub max_injection: f64,
+}
+
+impl Default for RegionCheck {
+    fn default() -> Self {
+        RegionCheck::new()
+    }
 }
 
 impl RegionCheck {
     /// No point seen yet.
-    pub(crate) fn new() -> Self {
+    pub fn new() -> Self {
         RegionCheck {
             max_base_collector_v: f64::NEG_INFINITY,
             min_current_fraction: f64::INFINITY,
+            max_injection: f64::NEG_INFINITY,
         }
+    }
+
+    /// The region of one static operating point.
+    pub fn of_point(point: &OperatingPoint, tail: f64) -> Self {
+        let mut region = RegionCheck::new();
+        region.update(point, tail);
+        region
     }
 
     /// Includes both sides of a solved point.
-    pub(crate) fn update(&mut self, point: &OperatingPoint, tail: f64) {
+    pub fn update(&mut self, point: &OperatingPoint, tail: f64) {
         for side in [&point.p, &point.m] {
-            self.include(side.base_collector_voltage(), side.collector_current / tail);
+            self.include(
+                side.base_collector_voltage(),
+                side.collector_current / tail,
+                side.injection,
+            );
         }
     }
 
-    /// Includes one side's base-collector voltage and collector-current fraction.
-    pub(crate) fn include(&mut self, base_collector_v: f64, current_fraction: f64) {
+    /// Includes one side's base-collector voltage, collector-current fraction and injection
+    /// level.
+    pub fn include(&mut self, base_collector_v: f64, current_fraction: f64, injection: f64) {
         self.max_base_collector_v = self.max_base_collector_v.max(base_collector_v);
         self.min_current_fraction = self.min_current_fraction.min(current_fraction);
+        self.max_injection = self.max_injection.max(injection);
     }
 
-    /// Whether both transistors stayed forward-active over the whole period: the
-    /// collector-base junctions reverse-biased (or at zero bias) and neither side cut off.
+    /// Includes another check (the worst of both).
+    pub fn merge(&mut self, other: &RegionCheck) {
+        self.max_base_collector_v = self.max_base_collector_v.max(other.max_base_collector_v);
+        self.min_current_fraction = self.min_current_fraction.min(other.min_current_fraction);
+        self.max_injection = self.max_injection.max(other.max_injection);
+    }
+
+    /// The least collector-base reverse bias over the drive, V: negative when a junction was
+    /// forward-biased.
+    pub fn collector_base_margin_v(&self) -> f64 {
+        -self.max_base_collector_v
+    }
+
+    /// The worst region reached.
+    pub fn region(&self) -> OperatingRegion {
+        if self.max_base_collector_v > 0.0 {
+            OperatingRegion::Saturating
+        } else if base_charge_factor(self.max_injection) > HIGH_INJECTION_FACTOR {
+            OperatingRegion::HighInjection
+        } else {
+            OperatingRegion::ForwardActive
+        }
+    }
+
+    /// Whether both transistors stayed forward-active (no saturation, no high-level injection)
+    /// over the whole drive.
     pub fn is_forward_active(&self) -> bool {
-        let leaves = self.max_base_collector_v > 0.0 || self.min_current_fraction < CUTOFF_FRACTION;
-        !leaves
+        self.region() == OperatingRegion::ForwardActive
     }
 }
 
@@ -63,7 +133,7 @@ pub struct ToneResult {
     pub samples: usize,
     /// Analysis floor, dBc.
     pub floor_dbc: f64,
-    /// Forward-active check over the period.
+    /// Operating region over the period.
     pub region: RegionCheck,
 }
 
@@ -91,6 +161,8 @@ pub struct TwoToneResult {
     pub im3_limited_by: Option<Product>,
     /// The product of higher order that sets IM2's floor, when one does.
     pub im2_limited_by: Option<Product>,
+    /// Operating region over the two-tone drive.
+    pub region: RegionCheck,
 }
 
 impl TwoToneResult {

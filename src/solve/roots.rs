@@ -134,6 +134,75 @@ pub fn safe_newton(
     })
 }
 
+/// The root of an increasing `f` (value, slope) by Newton's method from `start`, never above
+/// `upper` (a bound on the root, or +∞), without a bracket to begin with.
+///
+/// Each evaluation narrows the interval known to hold the root. Newton steps longer than
+/// `max_step` are cut to it (junction limiting: an exponential law is never evaluated far
+/// from where it was last seen). A step that leaves the interval is replaced by the Newton
+/// point of the upper end when that lies inside (from below, a convex `f` throws Newton past
+/// the root; from above it approaches monotonically), else by bisection once both ends are
+/// known, else by a step of `max_step` away from the side already seen. Unlike
+/// [`safe_newton`], Newton steps need not shrink from one to the next, so a start above the
+/// root of a nearly exponential `f` costs a few steps, not a bisection. Converges when a step
+/// is at most `tolerance.relative·max(|x|, tolerance.scale)`.
+pub fn newton_increasing(
+    mut f: impl FnMut(f64) -> (f64, f64),
+    start: f64,
+    upper: f64,
+    max_step: f64,
+    tolerance: Tolerance,
+) -> Result<f64, RootFailure> {
+    let (mut low, mut high) = (f64::NEG_INFINITY, upper);
+    let mut from_high = f64::NAN;
+    let mut x = start;
+    for _ in 0..tolerance.max_iterations {
+        let (value, slope) = f(x);
+        if value.is_nan() {
+            return Err(RootFailure {
+                reason: format!("the function is not finite at x = {x:e}"),
+            });
+        }
+        if value == 0.0 {
+            return Ok(x);
+        }
+        let limit = |at: f64| tolerance.relative * at.abs().max(tolerance.scale);
+        let newton_step = -value / slope;
+        if newton_step.abs() <= limit(x) {
+            return Ok(x + newton_step);
+        }
+        let mut next = x + newton_step.clamp(-max_step, max_step);
+        if value > 0.0 {
+            high = x;
+            from_high = next;
+        } else {
+            low = x;
+        }
+        let inside = |v: f64| v.is_finite() && v > low && v < high;
+        if !inside(next) {
+            next = if inside(from_high) {
+                from_high
+            } else {
+                match (low.is_finite(), high.is_finite()) {
+                    (true, true) => 0.5 * (low + high),
+                    (false, _) => x - max_step,
+                    (true, false) => x + max_step,
+                }
+            };
+        }
+        if (next - x).abs() <= limit(next) || high - low <= limit(next) {
+            return Ok(next);
+        }
+        x = next;
+    }
+    Err(RootFailure {
+        reason: format!(
+            "no convergence in {} iterations; bracket [{low:e}, {high:e}]",
+            tolerance.max_iterations
+        ),
+    })
+}
+
 /// Widens `[low, high]` geometrically around a guess until `f` changes sign.
 ///
 /// `f` must be increasing for the direction logic to apply; at most `max_doublings` widenings.
@@ -217,6 +286,33 @@ mod tests {
             Tolerance::MACHINE,
         );
         assert!(err.unwrap_err().reason.contains("no sign change"));
+    }
+
+    #[test]
+    fn newton_without_a_bracket_finds_exponential_roots_from_either_side() {
+        // e^x − 5 is convex: from far above Newton walks down monotonically, from below it
+        // overshoots and the upper end's Newton point takes over.
+        for start in [-30.0f64, 0.0, 20.0] {
+            let root = newton_increasing(
+                |x: f64| (x.exp() - 5.0, x.exp()),
+                start,
+                f64::INFINITY,
+                1.0,
+                Tolerance::MACHINE,
+            )
+            .unwrap();
+            assert!((root - 5f64.ln()).abs() < 1e-15, "from {start}: {root}");
+        }
+        // atan flattens far out, where a full Newton step would run away.
+        let root = newton_increasing(
+            |x: f64| (x.atan(), 1.0 / (1.0 + x * x)),
+            10.0,
+            f64::INFINITY,
+            1.0,
+            Tolerance::MACHINE,
+        )
+        .unwrap();
+        assert!(root.abs() < 1e-15);
     }
 
     #[test]

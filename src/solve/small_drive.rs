@@ -121,6 +121,7 @@ pub fn two_tone_from_series(
         im2_floor_dbc,
         im3_limited_by: upper.im3_limited_by.or(lower.im3_limited_by),
         im2_limited_by: upper.im2_limited_by.or(lower.im2_limited_by),
+        region: lower.region,
     }
 }
 

@@ -15,7 +15,10 @@
 //! most `2·C·s²` with `C = 0.1925·R/(2φT)` whenever `C·|s| ≤ 1/4`; iteration stops when that
 //! bound is below `4ε·max(|y|, 1)`, the same tolerance as [`crate::solve::transfer`]. Any iterate that
 //! leaves the bracket `[(v_d − R)/φT − 1, (v_d + R)/φT + 1]`, or 30 steps without convergence,
-//! hands the sample to the safeguarded general solver instead.
+//! hands the sample to the safeguarded general solver instead. So does a sample where either
+//! intrinsic collector-base junction is forward-biased, where the reduced equation no longer
+//! holds: the symmetry holds for the whole model too, so only that sample's solve changes,
+//! never the unfolding.
 
 use crate::error::SolveFailure;
 use crate::model::circuit::StageCircuit;
@@ -30,7 +33,13 @@ use std::cell::RefCell;
 
 /// Whether the symmetric fast path applies: matched sides, ideal tail, no Early effect.
 pub fn applies(circuit: &StageCircuit) -> bool {
-    circuit.is_reducible() && circuit.p == circuit.m
+    circuit.is_reducible() && is_matched(circuit)
+}
+
+/// Whether the two sides are identical, so that the quarter-period symmetry holds whatever
+/// the model solved at each sample (used with the whole model for saturating drives).
+pub fn is_matched(circuit: &StageCircuit) -> bool {
+    circuit.p == circuit.m
 }
 
 /// What one quarter sample contributes: the differential output and the two collector
@@ -119,11 +128,41 @@ impl<'a> MatchedPair<'a> {
         v_d: f64,
         guess: &mut f64,
         region: &mut RegionCheck,
+        fallback: &mut WarmStart,
+        whole: bool,
     ) -> Result<QuarterSample, SolveFailure> {
         let c = self.solver.circuit();
-        let Some(y) = self.solve_log_ratio(v_d, *guess) else {
-            // The safeguarded solver: slower, never wrong.
-            let point = self.solver.solve(v_d, &mut WarmStart::default())?;
+        if whole {
+            let point = self.solver.solve_whole_model(v_d, fallback)?;
+            region.update(&point, c.tail_current);
+            return Ok(QuarterSample {
+                output_v: point.output_voltage,
+                collector_p_v: point.p.collector_voltage,
+                collector_m_v: point.m.collector_voltage,
+                log_ratio: 0.0,
+            });
+        }
+        let solved = self.solve_log_ratio(v_d, *guess);
+        let reduced = solved.filter(|&y| {
+            // Both intrinsic collector-base junctions at or below zero bias?
+            let (_, e) = Self::split(y);
+            let larger = self.transport_sum / (1.0 + e);
+            let side = &c.p;
+            let internal = side.load_resistance + side.collector_resistance;
+            // The side carrying the larger current has the lower collector and, at v_d ≥ 0,
+            // the higher base: it is the one that saturates first.
+            let base_collector = c.input_common_mode + 0.5 * v_d.abs()
+                - side.base_path_resistance * larger * side.beta_inv
+                - (c.supply - internal * larger);
+            base_collector <= 0.0
+        });
+        let Some(y) = reduced else {
+            // The safeguarded solver: slower, never wrong. Saturating samples keep a warm
+            // start from one to the next; others start afresh.
+            let point = match solved {
+                Some(_) => self.solver.solve(v_d, fallback)?,
+                None => self.solver.solve(v_d, &mut WarmStart::default())?,
+            };
             region.update(&point, c.tail_current);
             *guess = (point.p.collector_current / point.m.collector_current).ln();
             return Ok(QuarterSample {
@@ -150,8 +189,17 @@ impl<'a> MatchedPair<'a> {
             c.input_common_mode + 0.5 * v_d - side.base_path_resistance * j_p * side.beta_inv;
         let base_m_v =
             c.input_common_mode - 0.5 * v_d - side.base_path_resistance * j_m * side.beta_inv;
-        region.include(base_p_v - collector_p_v, j_p / c.tail_current);
-        region.include(base_m_v - collector_m_v, j_m / c.tail_current);
+        let behind_rc = side.collector_resistance;
+        region.include(
+            base_p_v - (collector_p_v - behind_rc * j_p),
+            j_p / c.tail_current,
+            0.0,
+        );
+        region.include(
+            base_m_v - (collector_m_v - behind_rc * j_m),
+            j_m / c.tail_current,
+            0.0,
+        );
         Ok(QuarterSample {
             output_v: side.load_resistance * self.transport_sum * t,
             collector_p_v,
@@ -175,22 +223,28 @@ thread_local! {
     static SCRATCH: RefCell<Scratch> = RefCell::new(Scratch::default());
 }
 
-/// Analyses `v_d = A·cos θ` of a matched pair from quarter periods (see the module docs).
-/// Callers check [`applies`] first; otherwise the general path must be used.
+/// Analyses `v_d = A·cos θ` of a matched pair from quarter periods (see the module docs);
+/// `whole` solves every quarter sample with the whole model (a drive that saturates).
+/// Callers check [`applies`] first (or [`is_matched`] with `whole`); otherwise the general
+/// path must be used.
 pub fn single_tone(
     solver: &StaticSolver,
     cache: &FftCache,
     amplitude_v: f64,
     harmonics: usize,
+    whole: bool,
 ) -> Result<ToneResult, SolveFailure> {
     SCRATCH.with(|scratch| match scratch.try_borrow_mut() {
-        Ok(mut scratch) => single_tone_in(solver, cache, amplitude_v, harmonics, &mut scratch),
+        Ok(mut scratch) => {
+            single_tone_in(solver, cache, amplitude_v, harmonics, whole, &mut scratch)
+        }
         // Only reachable if a solve re-entered this function on the same thread.
         Err(_) => single_tone_in(
             solver,
             cache,
             amplitude_v,
             harmonics,
+            whole,
             &mut Scratch::default(),
         ),
     })
@@ -201,6 +255,7 @@ fn single_tone_in(
     cache: &FftCache,
     amplitude_v: f64,
     harmonics: usize,
+    whole: bool,
     scratch: &mut Scratch,
 ) -> Result<ToneResult, SolveFailure> {
     let pair = MatchedPair::new(solver);
@@ -213,6 +268,8 @@ fn single_tone_in(
                   guess: &mut f64,
                   region: &mut RegionCheck|
      -> Result<(Spectrum, Spectrum), SolveFailure> {
+        // Warm start of the samples handed to the safeguarded solver (neighbours in θ).
+        let mut fallback = WarmStart::default();
         let cosines = cache.quarter_cosines(n);
         std::mem::swap(&mut scratch.quarter, &mut scratch.coarse);
         let (fresh, coarse) = (&mut scratch.quarter, &scratch.coarse);
@@ -243,7 +300,13 @@ fn single_tone_in(
             } else if i >= 2 {
                 *guess = 2.0 * fresh[i - 1].log_ratio - fresh[i - 2].log_ratio;
             }
-            fresh.push(pair.sample(amplitude_v * cosines[i], guess, region)?);
+            fresh.push(pair.sample(
+                amplitude_v * cosines[i],
+                guess,
+                region,
+                &mut fallback,
+                whole,
+            )?);
         }
         unfold_packed(fresh, n, &mut scratch.packed);
         let (a, b) =

@@ -1,17 +1,37 @@
-//! The memoryless large-signal solve of the emitter-coupled pair.
+//! The memoryless large-signal solve of the emitter-coupled pair, over the whole drive range.
 //!
-//! Unknowns are written in well-conditioned forms. With an ideal tail and no Early effect the
-//! circuit reduces exactly to one unknown, the log ratio `y = ln(J_P/J_M)` of the two
-//! transport currents `J = I_S·exp(V_BE/φT)`:
+//! Each side is the Gummel–Poon core of [`super::device`] with the base path `R_S + r_b`, the
+//! emitter resistor `R_E`, the collector resistance `r_c` and the load `R_L` to the supply;
+//! the emitters meet at the tail node, fed by the tail source `I_tail` in parallel with
+//! `R_tail` to ground.
 //!
-//! ```text
-//! v_d = φT·(y − ln(I_SP/I_SM)) + Σ± (R_b/β + R_E·(1 + 1/β))·J,   J_P + J_M weighted = I_tail
-//! ```
+//! **Forward-active form.** Where both intrinsic collector-base junctions are at or below zero
+//! bias and the transistor has no knee currents and no reverse Early voltage, every term the
+//! collector-base junction adds to the core is of order `I_S` (the reverse injection
+//! `I_S·exp(V_BC/φT) ≤ I_S` and the constant `I_S` terms of `I_CC`, `I_EC`), about 10⁻¹³ of the
+//! currents, and the solve uses the core without them:
+//! `I_C = J·(1 + V_CE/V_AF)`, `I_B = J/β_F` with `J = I_S·exp(V_BE/φT)`. Every point it returns
+//! is checked (both `V_BC ≤ 0`); where that fails, the whole model is solved instead.
 //!
-//! which is strictly increasing in `y` and bracketed by `(v_d ± B)/φT`, where `B` bounds the
-//! resistive drops. Otherwise (Early effect or a finite tail resistance) the tail-node voltage
-//! is the outer unknown and each side's `ln J` an inner one; each is a monotone scalar
-//! problem solved by bracketed Newton.
+//! - *Reduced solve.* With an ideal tail and no Early effect the forward-active form reduces
+//!   exactly to one unknown, the log ratio `y = ln(J_P/J_M)`:
+//!
+//!   ```text
+//!   v_d = φT·(y − ln(I_SP/I_SM)) + Σ± (R_b/β + R_E·(1 + 1/β))·J,   Σ (1 + 1/β)·J = I_tail
+//!   ```
+//!
+//!   which is strictly increasing in `y` and bracketed by `(v_d ± B)/φT`, where `B` bounds
+//!   the resistive drops.
+//! - *Forward-active general solve.* Otherwise (Early effect or a finite tail resistance) the
+//!   tail-node voltage is the outer unknown and each side's `ln J` an inner one, with the
+//!   collector voltage eliminated in closed form.
+//!
+//! **The whole model.** The tail-node voltage is the outer unknown; for each side `ln J` is
+//! the middle unknown (its base-emitter loop) and `V_BC` the inner one (its base-collector
+//! loop `V_BC = V_in − R_B·I_B − V_CC + (R_L + r_c)·I_C`), with the full core. Each is a
+//! monotone scalar problem solved by bracketed Newton; where the reverse injection is below
+//! 2⁻⁵³ of the tail current ([`NEGLIGIBLE_REVERSE_INJECTION`]) the inner one is linear and
+//! solved in closed form.
 //!
 //! Tolerance: every unknown is converged to a few ulps (relative step ≤ 4ε), so the solution
 //! is exact to double precision; the analysis floor reported elsewhere (−200 dBc) sits far
@@ -19,7 +39,17 @@
 
 use crate::error::SolveFailure;
 use crate::model::circuit::{Side, StageCircuit};
-use crate::solve::roots::{bracket_increasing, safe_newton, RootFailure, Tolerance};
+use crate::solve::device::{
+    gummel_poon, reverse_biased, reverse_injection_weight, DeviceCurrents, EXPONENT_CAP,
+};
+use crate::solve::roots::{
+    bracket_increasing, newton_increasing, safe_newton, RootFailure, Tolerance,
+};
+use std::cell::Cell;
+
+/// Reverse injection `I_S·exp(V_BC/φT)·(2 + 1/β_R)` below this fraction of the tail current
+/// is left out (it is below the rounding of the currents): 2⁻⁵³.
+pub const NEGLIGIBLE_REVERSE_INJECTION: f64 = 1.0 / 9_007_199_254_740_992.0;
 
 /// The solved state of one side.
 #[derive(Debug, Clone, Copy, PartialEq, Default)]
@@ -32,16 +62,20 @@ pub struct SidePoint {
     pub emitter_current: f64,
     /// Base-emitter voltage (intrinsic), V.
     pub base_emitter_voltage: f64,
-    /// Collector voltage, V.
+    /// Collector terminal voltage (below the load), V.
     pub collector_voltage: f64,
     /// Intrinsic base voltage, V.
     pub base_voltage: f64,
+    /// Intrinsic collector voltage (inside the collector resistance), V.
+    pub internal_collector_voltage: f64,
+    /// Injection level `q_2 = I_CC/I_KF + I_EC/I_KR` (0 without knee currents).
+    pub injection: f64,
 }
 
 impl SidePoint {
-    /// Base-collector voltage; positive means the junction is forward-biased.
+    /// Intrinsic base-collector voltage; positive means the junction is forward-biased.
     pub fn base_collector_voltage(&self) -> f64 {
-        self.base_voltage - self.collector_voltage
+        self.base_voltage - self.internal_collector_voltage
     }
 }
 
@@ -71,8 +105,23 @@ impl OperatingPoint {
 pub struct WarmStart {
     /// Last reduced unknown `y`.
     log_ratio: Option<f64>,
-    /// Last tail voltage and inner unknowns.
+    /// Last forward-active general solution: tail voltage and `ln J` per side.
     general: Option<(f64, f64, f64)>,
+    /// Last solution of the whole model.
+    whole: Option<GeneralStart>,
+    /// Whether the last point solved had a forward-biased collector-base junction: its
+    /// neighbour then goes straight to the whole model.
+    saturating: bool,
+}
+
+/// The unknowns of a solve of the whole model, as a warm start.
+#[derive(Debug, Clone, Copy)]
+struct GeneralStart {
+    tail_v: f64,
+    /// `ln J` of the P and M sides.
+    log_forward: [f64; 2],
+    /// `V_BC` of the P and M sides.
+    base_collector_v: [f64; 2],
 }
 
 /// Solves the memoryless stage; build once per stage and temperature, call per sample.
@@ -80,13 +129,40 @@ pub struct WarmStart {
 pub struct StaticSolver {
     circuit: StageCircuit,
     reducible: bool,
+    forward_law: bool,
+    /// Per side (P, M): the largest `V_BC` at which the reverse injection is negligible, V.
+    negligible_below_v: [f64; 2],
+}
+
+/// The largest base-collector voltage at which a side's reverse injection
+/// `I_S·exp(V_BC/φT)·(2 + 1/β_R)` stays below [`NEGLIGIBLE_REVERSE_INJECTION`] of the tail
+/// current, V.
+pub fn negligible_injection_limit(circuit: &StageCircuit, side: &Side) -> f64 {
+    let weight = side.saturation_current * (2.0 + side.reverse_beta_inv);
+    circuit.thermal_voltage * (NEGLIGIBLE_REVERSE_INJECTION * circuit.tail_current / weight).ln()
+}
+
+/// Whether both intrinsic collector-base junctions of a point are at or below zero bias,
+/// where the forward-active form holds.
+pub fn junctions_reverse_biased(point: &OperatingPoint) -> bool {
+    point.p.base_collector_voltage() <= 0.0 && point.m.base_collector_voltage() <= 0.0
 }
 
 impl StaticSolver {
     /// Prepares a solver for one stage at one temperature.
     pub fn new(circuit: StageCircuit) -> Self {
         let reducible = circuit.is_reducible();
-        StaticSolver { circuit, reducible }
+        let forward_law = circuit.p.forward_law() && circuit.m.forward_law();
+        let negligible_below_v = [
+            negligible_injection_limit(&circuit, &circuit.p),
+            negligible_injection_limit(&circuit, &circuit.m),
+        ];
+        StaticSolver {
+            circuit,
+            reducible,
+            forward_law,
+            negligible_below_v,
+        }
     }
 
     /// The circuit being solved.
@@ -101,15 +177,26 @@ impl StaticSolver {
         }
         let reduced = self.solve_reduced(v_d, warm.log_ratio)?;
         warm.log_ratio = Some(reduced.0);
-        if self.reducible {
+        if self.reducible && junctions_reverse_biased(&reduced.1) {
+            warm.saturating = false;
             return Ok(reduced.1);
         }
-        let point = self.solve_general(v_d, &reduced.1, warm.general)?;
-        warm.general = Some((
-            point.tail_voltage,
-            transport_log(&point.p, &self.circuit.p, self.circuit.thermal_voltage),
-            transport_log(&point.m, &self.circuit.m, self.circuit.thermal_voltage),
-        ));
+        let mut start = reduced.1;
+        if self.forward_law && !self.reducible && !(warm.saturating && warm.whole.is_some()) {
+            let point = self.solve_general(v_d, &reduced.1, warm.general)?;
+            warm.general = Some((
+                point.tail_voltage,
+                transport_log(&point.p, &self.circuit.p, self.circuit.thermal_voltage),
+                transport_log(&point.m, &self.circuit.m, self.circuit.thermal_voltage),
+            ));
+            if junctions_reverse_biased(&point) {
+                warm.saturating = false;
+                return Ok(point);
+            }
+            start = point;
+        }
+        let point = self.solve_whole(v_d, &start, warm.whole)?;
+        self.remember_whole(&point, warm);
         Ok(point)
     }
 
@@ -118,8 +205,57 @@ impl StaticSolver {
         self.solve(v_d, &mut WarmStart::default())
     }
 
-    /// The reduced one-unknown problem: exact for an ideal tail without Early effect, and the
-    /// starting point of the general solve otherwise.
+    /// Solves the whole model at `v_d`, even where the forward-active form would do: for
+    /// every sample of a waveform that saturates somewhere, so that no sample of it switches
+    /// form (the forms differ by terms of order `I_S`, a step the harmonic analysis would
+    /// otherwise chase down to its floor).
+    pub fn solve_whole_model(
+        &self,
+        v_d: f64,
+        warm: &mut WarmStart,
+    ) -> Result<OperatingPoint, SolveFailure> {
+        if !v_d.is_finite() {
+            return Err(failure(v_d, "the input is not finite"));
+        }
+        let start = match warm.whole {
+            Some(_) => OperatingPoint::default(),
+            None => self.solve(v_d, &mut WarmStart::default())?,
+        };
+        let point = self.solve_whole(v_d, &start, warm.whole)?;
+        self.remember_whole(&point, warm);
+        Ok(point)
+    }
+
+    /// Whether a drive whose input swings over `±peak_v` forward-biases a collector-base
+    /// junction somewhere (in the static transfer each side's base-collector voltage rises
+    /// with its own input, so the peaks decide).
+    pub fn saturates_within(&self, peak_v: f64) -> Result<bool, SolveFailure> {
+        for v in [peak_v, -peak_v] {
+            if !junctions_reverse_biased(&self.solve_cold(v)?) {
+                return Ok(true);
+            }
+        }
+        Ok(false)
+    }
+
+    fn remember_whole(&self, point: &OperatingPoint, warm: &mut WarmStart) {
+        let phi = self.circuit.thermal_voltage;
+        warm.whole = Some(GeneralStart {
+            tail_v: point.tail_voltage,
+            log_forward: [
+                transport_log(&point.p, &self.circuit.p, phi),
+                transport_log(&point.m, &self.circuit.m, phi),
+            ],
+            base_collector_v: [
+                point.p.base_collector_voltage(),
+                point.m.base_collector_voltage(),
+            ],
+        });
+        warm.saturating = !junctions_reverse_biased(point);
+    }
+
+    /// The reduced one-unknown problem: exact for the forward-active form with an ideal tail
+    /// and no Early effect, and the starting point of the other solves otherwise.
     fn solve_reduced(
         &self,
         v_d: f64,
@@ -178,6 +314,9 @@ impl StaticSolver {
                 base_emitter_voltage: phi * (j / side.saturation_current).ln(),
                 collector_voltage: c.supply - side.load_resistance * j,
                 base_voltage: v_in - side.base_path_resistance * base_current,
+                internal_collector_voltage: c.supply
+                    - (side.load_resistance + side.collector_resistance) * j,
+                injection: 0.0,
             }
         };
         let v_in_p = c.input_common_mode + 0.5 * v_d;
@@ -198,7 +337,8 @@ impl StaticSolver {
         ))
     }
 
-    /// The general problem: outer unknown the tail voltage, inner unknowns `ln J` per side.
+    /// The forward-active general problem: outer unknown the tail voltage, inner unknowns
+    /// `ln J` per side.
     fn solve_general(
         &self,
         v_d: f64,
@@ -216,8 +356,8 @@ impl StaticSolver {
         let mut inner_error: Option<SolveFailure> = None;
         // −(tail KCL residual) and its slope: increasing in the tail voltage.
         let mut outer = |v_tail: f64| -> (f64, f64) {
-            let solved_p = solve_side(c, &c.p, v_in_p, v_tail, u_p);
-            let solved_m = solve_side(c, &c.m, v_in_m, v_tail, u_m);
+            let solved_p = solve_forward_side(c, &c.p, v_in_p, v_tail, u_p);
+            let solved_m = solve_forward_side(c, &c.m, v_in_m, v_tail, u_m);
             match (solved_p, solved_m) {
                 (Ok(sp), Ok(sm)) => {
                     u_p = sp.log_transport;
@@ -247,9 +387,9 @@ impl StaticSolver {
         if let Some(err) = inner_error.take() {
             return Err(err);
         }
-        let sp = solve_side(c, &c.p, v_in_p, v_tail, u_p)
+        let sp = solve_forward_side(c, &c.p, v_in_p, v_tail, u_p)
             .map_err(|e| root_failure(v_d, "P junction", e))?;
-        let sm = solve_side(c, &c.m, v_in_m, v_tail, u_m)
+        let sm = solve_forward_side(c, &c.m, v_in_m, v_tail, u_m)
             .map_err(|e| root_failure(v_d, "M junction", e))?;
         Ok(OperatingPoint {
             p: sp.point(c, &c.p, v_in_p),
@@ -263,6 +403,117 @@ impl StaticSolver {
             ),
         })
     }
+
+    /// The whole model: outer unknown the tail voltage, middle unknowns `ln J` per side,
+    /// inner unknowns `V_BC` per side.
+    fn solve_whole(
+        &self,
+        v_d: f64,
+        start_point: &OperatingPoint,
+        warm: Option<GeneralStart>,
+    ) -> Result<OperatingPoint, SolveFailure> {
+        let c = &self.circuit;
+        let phi = c.thermal_voltage;
+        let v_in = [
+            c.input_common_mode + 0.5 * v_d,
+            c.input_common_mode - 0.5 * v_d,
+        ];
+        let sides = [&c.p, &c.m];
+        let start = warm.unwrap_or(GeneralStart {
+            tail_v: start_point.tail_voltage,
+            log_forward: [
+                transport_log(&start_point.p, &c.p, phi),
+                transport_log(&start_point.m, &c.m, phi),
+            ],
+            // The starting point knows nothing of saturation: let the loops estimate their own.
+            base_collector_v: [f64::NAN, f64::NAN],
+        });
+        let mut guesses = start;
+        let inner_error: Cell<Option<SolveFailure>> = Cell::new(None);
+        // −(tail KCL residual) and its slope: increasing in the tail voltage.
+        let mut outer = |v_tail: f64| -> (f64, f64) {
+            let mut emitter = 0.0;
+            let mut slope = 0.0;
+            for k in 0..2 {
+                let limit = self.negligible_below_v[k];
+                match solve_side(
+                    c,
+                    sides[k],
+                    v_in[k],
+                    v_tail,
+                    guesses.log_forward[k],
+                    guesses.base_collector_v[k],
+                    limit,
+                ) {
+                    Ok(solved) => {
+                        guesses.log_forward[k] = solved.log_forward;
+                        guesses.base_collector_v[k] = solved.base_collector_v;
+                        emitter += solved.currents.emitter();
+                        slope += solved.d_emitter_d_tail;
+                    }
+                    Err(e) => {
+                        inner_error.set(Some(root_failure(v_d, "one side's junctions", e)));
+                        return (f64::NAN, f64::NAN);
+                    }
+                }
+            }
+            let value = emitter - c.tail_current - c.tail_conductance * v_tail;
+            (-value, -(slope - c.tail_conductance))
+        };
+        let tolerance = Tolerance {
+            relative: 4.0 * f64::EPSILON,
+            scale: 1.0,
+            max_iterations: 200,
+        };
+        let v_tail = newton_increasing(
+            &mut outer,
+            start.tail_v,
+            f64::INFINITY,
+            8.0 * phi,
+            tolerance,
+        );
+        if let Some(err) = inner_error.take() {
+            return Err(err);
+        }
+        let v_tail = v_tail.map_err(|e| root_failure(v_d, "tail-node voltage", e))?;
+        let mut solved = Vec::with_capacity(2);
+        for k in 0..2 {
+            let side = solve_side(
+                c,
+                sides[k],
+                v_in[k],
+                v_tail,
+                guesses.log_forward[k],
+                guesses.base_collector_v[k],
+                self.negligible_below_v[k],
+            )
+            .map_err(|e| root_failure(v_d, ["P junctions", "M junctions"][k], e))?;
+            if side.currents.early_floored {
+                return Err(failure(
+                    v_d,
+                    &format!(
+                        "the Early factor 1 + V_CE/V_AF − V_BE/V_AR of the {} side falls to zero or below at V_BE = {:.4} V, V_BC = {:.4} V: the Early voltages are too small for this bias",
+                        ["P", "M"][k],
+                        side.base_emitter_v,
+                        side.base_collector_v
+                    ),
+                ));
+            }
+            solved.push(side);
+        }
+        let (sp, sm) = (&solved[0], &solved[1]);
+        Ok(OperatingPoint {
+            p: sp.point(c, &c.p, v_in[0]),
+            m: sm.point(c, &c.m, v_in[1]),
+            tail_voltage: v_tail,
+            output_voltage: differential_output(
+                &c.p,
+                &c.m,
+                sp.currents.collector - sm.currents.collector,
+                sp.currents.collector + sm.currents.collector,
+            ),
+        })
+    }
 }
 
 /// `ln J` of a solved side, where `J = I_S·exp(V_BE/φT)` is its transport current.
@@ -270,8 +521,8 @@ fn transport_log(point: &SidePoint, side: &Side, thermal_voltage: f64) -> f64 {
     side.saturation_current.ln() + point.base_emitter_voltage / thermal_voltage
 }
 
-/// One side solved at a given tail voltage.
-struct SideSolution {
+/// One side solved in the forward-active form at a given tail voltage.
+struct ForwardSide {
     log_transport: f64,
     collector_current: f64,
     base_current: f64,
@@ -279,7 +530,7 @@ struct SideSolution {
     d_emitter_d_tail: f64,
 }
 
-impl SideSolution {
+impl ForwardSide {
     fn point(&self, c: &StageCircuit, side: &Side, v_in: f64) -> SidePoint {
         SidePoint {
             collector_current: self.collector_current,
@@ -289,23 +540,28 @@ impl SideSolution {
                 * (self.log_transport - side.saturation_current.ln()),
             collector_voltage: c.supply - side.load_resistance * self.collector_current,
             base_voltage: v_in - side.base_path_resistance * self.base_current,
+            internal_collector_voltage: c.supply
+                - (side.load_resistance + side.collector_resistance) * self.collector_current,
+            injection: 0.0,
         }
     }
 }
 
-/// Currents of one side for transport `J = exp(u)` at tail voltage `v_tail`, with the Early
-/// effect evaluated at the collector voltage the load sets. Returns
+/// Currents of one side in the forward-active form for `J = exp(u)` at tail voltage `v_tail`,
+/// with the Early effect evaluated at the intrinsic collector voltage the load and the
+/// collector resistance set. Returns
 /// `(I_C, I_B, I_E, ∂I_E/∂u, ∂I_C/∂v_tail)`.
 fn side_currents(c: &StageCircuit, side: &Side, u: f64, v_tail: f64) -> (f64, f64, f64, f64, f64) {
     let j = u.exp();
     let q = side.early_inv;
     let r_e = side.emitter_resistance;
-    // I_C·(1 + q·J·(R_L + R_E)) = J + q·J·(V_CC − V_tail − R_E·J/β)
+    // I_C·(1 + q·J·(R_L + r_c + R_E)) = J + q·J·(V_CC − V_tail − R_E·J/β)
     let numerator = j + q * j * (c.supply - v_tail - r_e * j * side.beta_inv);
-    let denominator = 1.0 + q * j * (side.load_resistance + r_e);
+    let r_l = side.load_resistance + side.collector_resistance;
+    let denominator = 1.0 + q * j * (r_l + r_e);
     let collector = numerator / denominator;
     let d_num_dj = 1.0 + q * (c.supply - v_tail) - 2.0 * q * r_e * j * side.beta_inv;
-    let d_den_dj = q * (side.load_resistance + r_e);
+    let d_den_dj = q * (r_l + r_e);
     let d_collector_dj =
         (d_num_dj * denominator - numerator * d_den_dj) / (denominator * denominator);
     let base = j * side.beta_inv;
@@ -315,13 +571,13 @@ fn side_currents(c: &StageCircuit, side: &Side, u: f64, v_tail: f64) -> (f64, f6
     (collector, base, emitter, d_emitter_du, d_collector_d_tail)
 }
 
-fn solve_side(
+fn solve_forward_side(
     c: &StageCircuit,
     side: &Side,
     v_in: f64,
     v_tail: f64,
     guess: f64,
-) -> Result<SideSolution, RootFailure> {
+) -> Result<ForwardSide, RootFailure> {
     let phi = c.thermal_voltage;
     let log_is = side.saturation_current.ln();
     let residual = |u: f64| -> (f64, f64) {
@@ -342,12 +598,240 @@ fn solve_side(
     let dg_du = side.base_path_resistance * base + phi + side.emitter_resistance * d_emitter_du;
     let dg_dtail = side.emitter_resistance * d_collector_d_tail + 1.0;
     let du_dtail = -dg_dtail / dg_du;
-    Ok(SideSolution {
+    Ok(ForwardSide {
         log_transport: u,
         collector_current: collector,
         base_current: base,
         emitter_current: emitter,
         d_emitter_d_tail: d_collector_d_tail + d_emitter_du * du_dtail,
+    })
+}
+
+/// One side of the whole model solved at a given tail voltage.
+struct SideSolution {
+    log_forward: f64,
+    base_emitter_v: f64,
+    base_collector_v: f64,
+    currents: DeviceCurrents,
+    /// Total derivative of the emitter current with respect to the tail voltage, S.
+    d_emitter_d_tail: f64,
+}
+
+impl SideSolution {
+    fn point(&self, c: &StageCircuit, side: &Side, v_in: f64) -> SidePoint {
+        let collector = self.currents.collector;
+        SidePoint {
+            collector_current: collector,
+            base_current: self.currents.base,
+            emitter_current: self.currents.emitter(),
+            base_emitter_voltage: self.base_emitter_v,
+            collector_voltage: c.supply - side.load_resistance * collector,
+            base_voltage: v_in - side.base_path_resistance * self.currents.base,
+            internal_collector_voltage: c.supply
+                - (side.load_resistance + side.collector_resistance) * collector,
+            injection: self.currents.injection,
+        }
+    }
+}
+
+/// A side's currents at a given `V_BE` with its base-collector loop solved, and the total
+/// derivatives along that loop's solution.
+struct LoopSolution {
+    base_collector_v: f64,
+    currents: DeviceCurrents,
+    /// `dV_BC/dV_BE` along the base-collector loop.
+    d_bc_d_be: f64,
+}
+
+impl LoopSolution {
+    /// Total derivative of the emitter and base currents with respect to `V_BE`.
+    fn total_derivatives(&self) -> (f64, f64) {
+        let de = self.currents.d_emitter();
+        let db = self.currents.d_base;
+        (
+            de[0] + de[1] * self.d_bc_d_be,
+            db[0] + db[1] * self.d_bc_d_be,
+        )
+    }
+}
+
+/// Solves a side's base-collector loop
+/// `h(V_BC) = V_BC − (V_in − V_CC) + R_B·I_B − (R_L + r_c)·I_C = 0` at `V_BE`, `h` increasing
+/// in `V_BC`. Without reverse injection it is linear; that root bounds the true one from
+/// above (the reverse injection only raises `h`), and is the answer when it lies at or below
+/// `limit_v`, where the reverse injection is negligible. `guess_v` (NaN: none) warm-starts
+/// the full solve.
+fn solve_loop(
+    c: &StageCircuit,
+    side: &Side,
+    v_in: f64,
+    log_forward: f64,
+    guess_v: f64,
+    limit_v: f64,
+) -> Result<LoopSolution, RootFailure> {
+    let phi = c.thermal_voltage;
+    let vbe = phi * (log_forward - side.saturation_current.ln());
+    let forward = log_forward
+        .min(side.saturation_current.ln() + EXPONENT_CAP)
+        .exp();
+    let r_b = side.base_path_resistance;
+    let r_c = side.load_resistance + side.collector_resistance;
+    let drive = v_in - c.supply;
+    // Without reverse injection I_B does not depend on V_BC and I_C is linear in it through
+    // the Early factor, wherever that factor is above its floor (it is linear in V_BC, so
+    // above the floor at both ends means above it in between).
+    let mut upper = f64::INFINITY;
+    let at_zero = reverse_biased(side, phi, vbe, 0.0, forward);
+    let linear_slope = 1.0 - r_c * at_zero.d_collector[1];
+    if !at_zero.early_floored {
+        let root = (drive - r_b * at_zero.base + r_c * at_zero.collector) / linear_slope;
+        let linear = reverse_biased(side, phi, vbe, root, forward);
+        if !linear.early_floored && root.is_finite() {
+            if root <= limit_v {
+                let d_h_d_be = r_b * linear.d_base[0] - r_c * linear.d_collector[0];
+                return Ok(LoopSolution {
+                    base_collector_v: root,
+                    currents: linear,
+                    d_bc_d_be: -d_h_d_be / linear_slope,
+                });
+            }
+            upper = root;
+        }
+    }
+    let h = |vbc: f64| -> (f64, f64) {
+        let d = gummel_poon(side, phi, vbe, vbc);
+        (
+            vbc - drive + r_b * d.base - r_c * d.collector,
+            1.0 + r_b * d.d_base[1] - r_c * d.d_collector[1],
+        )
+    };
+    // The linear root bounds the root from above (the reverse injection only raises h); where
+    // the Early floor bent the linear form there is no such bound. Start from the guess, else
+    // where the reverse injection alone would close the linear loop,
+    // V ≈ φT·ln(s·(V₀ − V)/K) with K the injection's weight in h (one fixed-point step).
+    let start = if guess_v.is_finite() {
+        guess_v
+    } else {
+        let weight = side.saturation_current
+            * (r_b * side.reverse_beta_inv + r_c * (1.0 + side.reverse_beta_inv));
+        let first = phi * (linear_slope * phi / weight).ln();
+        let reference = if upper.is_finite() {
+            upper
+        } else {
+            first + phi
+        };
+        let second = phi * (linear_slope * (reference - first).max(phi) / weight).ln();
+        if second.is_finite() {
+            second
+        } else {
+            reference
+        }
+    };
+    let vbc = if upper.is_finite() {
+        // Below the linear root the loop is h = s·(V − V₀) + W·I_S·exp(V/φT) with W the
+        // injection weight: solve ln(W·I_S·exp(V/φT)) = ln(s·(V₀ − V)) instead, nearly linear
+        // in V on both sides of the root (h itself is exponential above it), then polish on h.
+        let log_is = side.saturation_current.ln();
+        let log_form = |v: f64| -> (f64, f64) {
+            let gap = upper - v;
+            if gap.is_nan() || gap <= 0.0 {
+                return (f64::INFINITY, f64::INFINITY);
+            }
+            let weight = reverse_injection_weight(side, phi, vbe, v, r_b, r_c);
+            (
+                log_is + v / phi + weight.ln() - (linear_slope * gap).ln(),
+                1.0 / phi + 1.0 / gap,
+            )
+        };
+        let tolerance = Tolerance {
+            relative: 1e-12,
+            scale: 1.0,
+            max_iterations: 200,
+        };
+        let near = newton_increasing(log_form, start.min(upper), upper, 8.0, tolerance)?;
+        // Newton on h from there: quadratic, a step or two to the last ulps.
+        let mut v = near;
+        for _ in 0..4 {
+            let (value, slope) = h(v);
+            let step = value / slope;
+            if !step.is_finite() {
+                break;
+            }
+            v = (v - step).min(upper);
+            if step.abs() <= 4.0 * f64::EPSILON * v.abs().max(1.0) {
+                break;
+            }
+        }
+        v
+    } else {
+        newton_increasing(h, start, upper, 8.0 * phi, Tolerance::MACHINE)?
+    };
+    let currents = gummel_poon(side, phi, vbe, vbc);
+    let d_h_d_bc = 1.0 + r_b * currents.d_base[1] - r_c * currents.d_collector[1];
+    let d_h_d_be = r_b * currents.d_base[0] - r_c * currents.d_collector[0];
+    Ok(LoopSolution {
+        base_collector_v: vbc,
+        currents,
+        d_bc_d_be: -d_h_d_be / d_h_d_bc,
+    })
+}
+
+/// Solves one side at tail voltage `v_tail`: its base-emitter loop
+/// `g(u) = R_B·I_B + V_BE + R_E·I_E + V_tail − V_in = 0` in `u = ln J`, each evaluation solving
+/// the base-collector loop.
+fn solve_side(
+    c: &StageCircuit,
+    side: &Side,
+    v_in: f64,
+    v_tail: f64,
+    guess: f64,
+    guess_bc: f64,
+    limit_v: f64,
+) -> Result<SideSolution, RootFailure> {
+    let phi = c.thermal_voltage;
+    let log_is = side.saturation_current.ln();
+    // The last loop solved (ln J, V_BC, dV_BC/dV_BE): V_BC is predicted along its slope (in
+    // saturation it follows V_BE almost one for one).
+    let mut last = (guess, guess_bc, 1.0);
+    let predict = |last: (f64, f64, f64), u: f64| last.1 + last.2 * phi * (u - last.0);
+    let loop_error: Cell<Option<RootFailure>> = Cell::new(None);
+    let mut residual = |u: f64| -> (f64, f64) {
+        match solve_loop(c, side, v_in, u, predict(last, u), limit_v) {
+            Ok(solved) => {
+                last = (u, solved.base_collector_v, solved.d_bc_d_be);
+                let (d_emitter, d_base) = solved.total_derivatives();
+                let value = side.base_path_resistance * solved.currents.base
+                    + phi * (u - log_is)
+                    + side.emitter_resistance * solved.currents.emitter()
+                    + v_tail
+                    - v_in;
+                let slope = phi
+                    * (side.base_path_resistance * d_base
+                        + 1.0
+                        + side.emitter_resistance * d_emitter);
+                (value, slope)
+            }
+            Err(e) => {
+                loop_error.set(Some(e));
+                (f64::NAN, f64::NAN)
+            }
+        }
+    };
+    let u = newton_increasing(&mut residual, guess, f64::INFINITY, 8.0, Tolerance::MACHINE);
+    if let Some(e) = loop_error.take() {
+        return Err(e);
+    }
+    let u = u?;
+    let solved = solve_loop(c, side, v_in, u, predict(last, u), limit_v)?;
+    let (d_emitter, d_base) = solved.total_derivatives();
+    // Implicit differentiation of the base-emitter loop: dV_BE/dV_tail = −1/(∂g/∂V_BE).
+    let dg_dbe = side.base_path_resistance * d_base + 1.0 + side.emitter_resistance * d_emitter;
+    Ok(SideSolution {
+        log_forward: u,
+        base_emitter_v: phi * (u - log_is),
+        base_collector_v: solved.base_collector_v,
+        currents: solved.currents,
+        d_emitter_d_tail: -d_emitter / dg_dbe,
     })
 }
 

@@ -73,7 +73,7 @@ pub struct DrivePoint {
     /// Whether the point was answered from the small-signal power series (a drive below the
     /// engine's direct floor, see `solve::small_drive`).
     pub from_series: bool,
-    /// Operating-region check over the period.
+    /// Operating region over the single-tone period.
     pub region: RegionCheck,
     /// Signal over band noise, dB (plans with a noise band).
     pub snr_db: Option<f64>,
@@ -102,6 +102,8 @@ pub struct TwoToneFigures {
     pub im3_limited_by: Option<Product>,
     /// The product of higher order sharing IM2's frequency that sets its floor, if any.
     pub im2_limited_by: Option<Product>,
+    /// Operating region over the two-tone drive (its peak is twice one tone's).
+    pub region: RegionCheck,
 }
 
 /// Intercepts, compression and gain at one frequency.
@@ -113,6 +115,9 @@ pub struct FrequencyFigures {
     pub intercept: Option<Intercept>,
     /// Input 1 dB compression point, V.
     pub p1db_v: Option<f64>,
+    /// Operating region of a single tone at the compression point (at the largest amplitude
+    /// tried when it is unbounded).
+    pub p1db_region: RegionCheck,
     /// Small-signal gain at this frequency, V/V (magnitude).
     pub gain: f64,
     /// Third-order spurious-free dynamic range against the band noise, dB.
@@ -132,6 +137,8 @@ pub struct OperatingFigures {
     pub input_offset_v: f64,
     /// Inputs at the 5 % and 95 % steering points, V.
     pub steering_v: (f64, f64),
+    /// Operating region at the steering points (static).
+    pub steering_region: RegionCheck,
     /// 3φT + 0.9·I_tail·R_E, V.
     pub steering_rule_of_thumb_v: f64,
     /// Tail current at this temperature and corner, A.
@@ -170,6 +177,9 @@ pub struct LineResult {
     pub judged: bool,
     /// For a yield line: the 95 % Wilson score interval of the pass fraction.
     pub interval: Option<(f64, f64)>,
+    /// Operating region of the drive the value was measured at (for a yield line: the worst
+    /// over the case's other lines, which every run must meet).
+    pub region: RegionCheck,
 }
 
 impl LineResult {
@@ -241,7 +251,7 @@ pub fn evaluate_case(
             measured.noise()?;
             for &frequency in &plan.drive.frequencies {
                 measured.intercept(frequency)?;
-                measured.p1db(frequency)?;
+                measured.compression(frequency)?;
                 measured.gain_at(frequency)?;
             }
             Ok::<_, SolveFailure>(())
@@ -276,10 +286,12 @@ pub fn evaluate_case(
     for &frequency_hz in &plan.drive.frequencies {
         let intercept = measured.intercept(frequency_hz).map_err(fail)?;
         let iip3 = intercept.map(|i| i.iip3_v);
+        let compression = measured.compression(frequency_hz).map_err(fail)?;
         frequencies.push(FrequencyFigures {
             frequency_hz,
             intercept,
-            p1db_v: measured.p1db(frequency_hz).map_err(fail)?,
+            p1db_v: compression.input_v,
+            p1db_region: compression.region,
             gain: measured.gain_at(frequency_hz).map_err(fail)?.abs(),
             sfdr_db: match (iip3, band_noise_v) {
                 (Some(v), Some(n)) => Some(third_order_sfdr_db(v, n)),
@@ -289,6 +301,7 @@ pub fn evaluate_case(
     }
 
     let zero_input = solver.solve_cold(0.0).map_err(fail)?;
+    let operating_region = RegionCheck::of_point(&zero_input, circuit.tail_current);
     let input_offset_v = offset_voltage(solver).map_err(fail)?;
     let (steer_low, steer_high) = steering;
     let span = (2.0 * steer_high.abs().max(steer_low.abs())).max(4.0 * circuit.thermal_voltage);
@@ -299,6 +312,7 @@ pub fn evaluate_case(
         transconductance_s: gain / (0.5 * (circuit.p.load_resistance + circuit.m.load_resistance)),
         input_offset_v,
         steering_v: steering,
+        steering_region: measured.steering_region().map_err(fail)?,
         steering_rule_of_thumb_v: 3.0 * circuit.thermal_voltage
             + 0.9 * circuit.tail_current * stage.emitter_resistance,
         tail_current_a: circuit.tail_current,
@@ -325,10 +339,12 @@ pub fn evaluate_case(
                 margin_at_least: false,
                 judged: typical,
                 interval: None,
+                region: RegionCheck::new(),
             });
             continue;
         }
-        let value = measured.measure(line).map_err(fail)?;
+        let measured_line = measured.measure_checked(line).map_err(fail)?;
+        let value = measured_line.value;
         let judged = judge(line, value, ANALYSIS_FLOOR_DBC);
         budget.push(LineResult {
             line: index,
@@ -343,7 +359,24 @@ pub fn evaluate_case(
             margin_at_least: judged.margin_at_least,
             judged: true,
             interval: None,
+            region: measured_line.region,
         });
+    }
+    // A yield line rests on every other line of every run: it carries their worst region.
+    let mut others = RegionCheck::new();
+    for (result, line) in budget.iter().zip(&plan.budget) {
+        if !line.metric.is_population() {
+            others.merge(&result.region);
+        }
+    }
+    for (result, line) in budget.iter_mut().zip(&plan.budget) {
+        if line.metric.is_population() {
+            result.region = if others.max_base_collector_v.is_finite() {
+                others
+            } else {
+                operating_region
+            };
+        }
     }
 
     Ok(CaseEvaluation {
@@ -407,6 +440,7 @@ pub fn drive_point(
                 im2_floor_dbc: two.im2_floor_dbc,
                 im3_limited_by: two.im3_limited_by,
                 im2_limited_by: two.im2_limited_by,
+                region: two.region,
             })
         }
         None => None,

@@ -31,6 +31,7 @@ use crate::model::circuit::StageCircuit;
 use crate::model::plan::{MonteCarloSettings, Plan};
 use crate::model::stage::{Mismatch, Stage};
 use crate::solve::memoryless::{single_tone, two_tone, two_tone_grid, MemorylessEngine};
+use crate::solve::response::RegionCheck;
 use crate::solve::spectrum::{FftCache, ANALYSIS_FLOOR_DBC};
 use crate::solve::transfer::{StaticSolver, WarmStart};
 use rand::SeedableRng;
@@ -130,10 +131,14 @@ pub enum PopulationFigure {
     Iip2,
     /// Input offset, V (one per frequency, amplitude 0).
     Offset,
+    /// The least collector-base reverse bias over the single-tone period, V (negative:
+    /// saturation).
+    CollectorBaseMargin,
 }
 
-/// The figures tracked per drive point, in report order; the last three need two tones.
-pub const POINT_FIGURES: [PopulationFigure; 7] = [
+/// The figures tracked per drive point, in report order; `Im2`, `Im3` and `Iip2` need two
+/// tones.
+pub const POINT_FIGURES: [PopulationFigure; 8] = [
     PopulationFigure::Hd2,
     PopulationFigure::Hd3,
     PopulationFigure::Thd,
@@ -141,7 +146,18 @@ pub const POINT_FIGURES: [PopulationFigure; 7] = [
     PopulationFigure::Im2,
     PopulationFigure::Im3,
     PopulationFigure::Iip2,
+    PopulationFigure::CollectorBaseMargin,
 ];
+
+impl PopulationFigure {
+    /// Whether the figure needs two-tone drive.
+    pub fn needs_two_tones(self) -> bool {
+        matches!(
+            self,
+            PopulationFigure::Im2 | PopulationFigure::Im3 | PopulationFigure::Iip2
+        )
+    }
+}
 
 /// The distribution of one figure at one drive point over the runs.
 #[derive(Debug, Clone, PartialEq)]
@@ -199,6 +215,11 @@ pub struct StagePopulation {
     pub distributions: Vec<FigureDistribution>,
     /// Yield against the budget.
     pub yield_estimate: YieldEstimate,
+    /// Least collector-base margin over every run and every drive a run evaluated (drive
+    /// amplitudes, budget amplitudes, two tones), V.
+    pub least_collector_base_margin_v: f64,
+    /// Runs in which some evaluated drive forward-biased a collector-base junction.
+    pub saturating_runs: u64,
 }
 
 /// The Monte Carlo population of a plan.
@@ -220,11 +241,13 @@ struct Resolution {
 
 /// What one run measured.
 struct RunResult {
-    /// Per resolution (amplitude), the POINT_METRICS values (±∞ for null).
-    points: Vec<[f64; 7]>,
+    /// Per resolution (amplitude), the POINT_FIGURES values (±∞ for null).
+    points: Vec<[f64; 8]>,
     offset_v: f64,
     /// Whether the run meets each budget line (yield lines count as met).
     line_passes: Vec<bool>,
+    /// Least collector-base margin over every drive the run evaluated, V.
+    least_margin_v: f64,
 }
 
 fn level_dbc(level: f64, fundamental: f64) -> f64 {
@@ -241,14 +264,25 @@ fn measure_amplitude(
     cache: &FftCache,
     resolution: &Resolution,
     harmonics: usize,
-) -> Result<([f64; 7], Vec<f64>), SolveFailure> {
+) -> Result<([f64; 8], Vec<f64>, RegionCheck), SolveFailure> {
     let n = resolution.tone_samples;
     let a = resolution.amplitude_v;
     let mut warm = WarmStart::default();
     let mut samples = Vec::with_capacity(n);
+    let mut region = RegionCheck::new();
+    let tail = solver.circuit().tail_current;
+    // A run that saturates is solved with the whole model at every sample (no switch of form
+    // within the period; see StaticSolver::solve_whole_model).
+    let whole = solver.saturates_within(a)?;
     for i in 0..n {
         let theta = std::f64::consts::TAU * i as f64 / n as f64;
-        samples.push(solver.solve(a * theta.cos(), &mut warm)?.output_voltage);
+        let point = if whole {
+            solver.solve_whole_model(a * theta.cos(), &mut warm)?
+        } else {
+            solver.solve(a * theta.cos(), &mut warm)?
+        };
+        region.update(&point, tail);
+        samples.push(point.output_voltage);
     }
     let amplitudes = cache.harmonic_amplitudes(&samples, harmonics);
     let fundamental = amplitudes[1];
@@ -262,7 +296,9 @@ fn measure_amplitude(
         f64::NEG_INFINITY,
         f64::NEG_INFINITY,
         f64::INFINITY,
+        region.collector_base_margin_v(),
     ];
+    let mut evaluated = region;
     if let Some(grid) = resolution.grid_samples {
         let two = two_tone_grid(solver, cache, a, grid)?;
         values[4] = level_dbc(two.im2_v, two.fundamental_v);
@@ -270,8 +306,9 @@ fn measure_amplitude(
         if values[4].is_finite() {
             values[6] = a * 10f64.powf(-values[4] / 20.0);
         }
+        evaluated.merge(&two.region);
     }
-    Ok((values, amplitudes))
+    Ok((values, amplitudes, evaluated))
 }
 
 /// Runs the Monte Carlo analysis of every stage of the plan and temperature (see
@@ -297,6 +334,32 @@ pub fn evaluate_stages(
     stages: &[(usize, &Stage)],
     cache: &Arc<FftCache>,
 ) -> Result<Population, Error> {
+    evaluate_stages_observed(plan, settings, stages, cache, &|| {})
+}
+
+/// The number of runs [`evaluate_stages`] draws in all for `stages`: `runs` per temperature of
+/// every stage it does not leave out.
+pub fn planned_runs(plan: &Plan, settings: &MonteCarloSettings, stages: &[(usize, &Stage)]) -> u64 {
+    let typical = &plan.corners[0];
+    let has_yield_line = plan.budget.iter().any(|l| l.metric.is_population());
+    let drawn = stages
+        .iter()
+        .filter(|(_, nominal)| nominal.mismatch_sigma != Mismatch::default() || has_yield_line)
+        .filter(|(_, nominal)| {
+            StageCircuit::new(&typical.apply(nominal), plan.temperatures_c[0]).is_memoryless()
+        })
+        .count();
+    drawn as u64 * plan.temperatures_c.len() as u64 * settings.runs
+}
+
+/// [`evaluate_stages`], calling `run_done` after every run (for a progress count).
+pub fn evaluate_stages_observed(
+    plan: &Plan,
+    settings: &MonteCarloSettings,
+    stages: &[(usize, &Stage)],
+    cache: &Arc<FftCache>,
+    run_done: &(dyn Fn() + Sync),
+) -> Result<Population, Error> {
     let typical = &plan.corners[0];
     let has_yield_line = plan.budget.iter().any(|l| l.metric.is_population());
     let mut population = Population::default();
@@ -316,10 +379,10 @@ pub fn evaluate_stages(
                 plan,
                 settings,
                 &stage,
-                (stage_index, temperature_index),
-                temperature_c,
+                (stage_index, temperature_index, temperature_c),
                 cache,
                 &typical.name,
+                run_done,
             )?);
         }
     }
@@ -330,10 +393,10 @@ fn evaluate_one(
     plan: &Plan,
     settings: &MonteCarloSettings,
     stage: &Stage,
-    (stage_index, temperature_index): (usize, usize),
-    temperature_c: f64,
+    (stage_index, temperature_index, temperature_c): (usize, usize, f64),
     cache: &Arc<FftCache>,
     corner: &str,
+    run_done: &(dyn Fn() + Sync),
 ) -> Result<StagePopulation, Error> {
     let fail = |failure: SolveFailure| Error::solve(&stage.name, temperature_c, failure);
     let nominal_circuit = StageCircuit::new(stage, temperature_c);
@@ -380,9 +443,11 @@ fn evaluate_one(
             let solver = StaticSolver::new(circuit.clone());
             let mut points = Vec::with_capacity(resolutions.len());
             let mut spectra = Vec::with_capacity(resolutions.len());
+            let mut least_margin_v = f64::INFINITY;
             for resolution in &resolutions {
-                let (values, amplitudes) =
+                let (values, amplitudes, region) =
                     measure_amplitude(&solver, cache, resolution, harmonics)?;
+                least_margin_v = least_margin_v.min(region.collector_base_margin_v());
                 points.push(values);
                 spectra.push(amplitudes);
             }
@@ -413,20 +478,28 @@ fn evaluate_one(
                     }
                     Metric::Thd => finite(points[at][2]),
                     Metric::Im3 => finite(points[at][5]),
+                    Metric::CollectorBaseMargin => Some(points[at][7]),
                     Metric::Gain => Some(20.0 * small_signal_gain(&solver)?.abs().log10()),
                     Metric::InputNoise => Some(input_noise_density(&solver)?),
                     Metric::Yield => None,
                     _ => match &measured {
-                        Some(m) => m.measure(line)?,
+                        Some(m) => {
+                            let checked = m.measure_checked(line)?;
+                            least_margin_v =
+                                least_margin_v.min(checked.region.collector_base_margin_v());
+                            checked.value
+                        }
                         None => None,
                     },
                 };
                 line_passes.push(judge(line, value, ANALYSIS_FLOOR_DBC).pass);
             }
+            run_done();
             Ok(RunResult {
                 points,
                 offset_v,
                 line_passes,
+                least_margin_v,
             })
         })
         .collect::<Result<Vec<_>, SolveFailure>>()
@@ -455,7 +528,7 @@ fn evaluate_one(
     for &frequency_hz in &plan.drive.frequencies {
         for (index, &amplitude_v) in plan.drive.amplitudes.iter().enumerate() {
             for (k, figure) in POINT_FIGURES.iter().enumerate() {
-                if k >= 4 && !two_tone_plan {
+                if figure.needs_two_tones() && !two_tone_plan {
                     continue;
                 }
                 let values = runs.iter().map(|r| r.points[index][k]).collect();
@@ -475,6 +548,11 @@ fn evaluate_one(
         .filter(|r| r.line_passes.iter().all(|p| *p))
         .count() as u64;
     let (low, high) = wilson_interval(passes, settings.runs, Z_95);
+    let least_collector_base_margin_v = runs
+        .iter()
+        .map(|r| r.least_margin_v)
+        .fold(f64::INFINITY, f64::min);
+    let saturating_runs = runs.iter().filter(|r| r.least_margin_v < 0.0).count() as u64;
     let failing_runs = plan
         .budget
         .iter()
@@ -497,5 +575,7 @@ fn evaluate_one(
             high,
             failing_runs,
         },
+        least_collector_base_margin_v,
+        saturating_runs,
     })
 }

@@ -5,14 +5,19 @@
 //! [`SCAN_POINTS`], and every change between a grid value that *holds* every line and one that
 //! does not is refined — bisection to [`REFINE_RELATIVE`] of R_E, then two verified secant
 //! steps on the worst margin — into the edges of the usable windows. A value *holds* when every
-//! budget line passes with at least `guard_band_db` of margin (and, with `hold_gain`, the
-//! collector-base junction keeps reverse bias). The R_E to build is the low edge of the first
+//! budget line passes with at least `guard_band_db` of margin (a `collector_base_margin` line,
+//! whose margin is in volts, by its own limit; with `hold_gain`, the collector-base junction
+//! keeps reverse bias). The R_E to build is the low edge of the first
 //! window: the least value that holds. Windows narrower than one grid step can be missed; the
 //! edges found are verified trial values, the insides of a window are grid values.
 //!
 //! With `hold_gain`, the load is rescaled at each R_E so the small-signal gain stays that of
-//! the stage as planned, and collector-base headroom at the largest budget amplitude becomes a
-//! further constraint. With process corners every trial is evaluated in every corner and each
+//! the stage as planned (a load that saturates the stage at zero input holds no gain: scaling
+//! stops there), and, unless the plan has a `collector_base_margin` line of its own, the
+//! collector-base margin at the largest budget amplitude must stay at or above zero — an
+//! implicit `{metric: collector_base_margin, min: 0 V}`. Every trial records the least
+//! collector-base margin over every drive it evaluated (each line's, in each corner), so no
+//! trial is judged on a drive whose operating region was not looked at. With process corners every trial is evaluated in every corner and each
 //! line keeps its worst margin, so a value that holds does so in every corner.
 //!
 //! A line that no scanned value meets is *unreachable*: its best value and where it occurs are
@@ -28,11 +33,12 @@ use crate::measure::budget::judge;
 use crate::measure::small_signal::small_signal_gain;
 use crate::measure::stage::StageMeasurements;
 use crate::model::bias::{bias_problem, rest_collector_headroom_v, rest_point};
-use crate::model::budget::Metric;
+use crate::model::budget::{BudgetLine, Limit, Metric};
 use crate::model::corner::TYPICAL;
 use crate::model::plan::{Plan, SizingSettings};
 use crate::model::stage::Stage;
 use crate::solve::spectrum::{FftCache, ANALYSIS_FLOOR_DBC};
+use crate::solve::transfer::junctions_reverse_biased;
 use crate::study::case::measurements;
 use rayon::prelude::*;
 use std::sync::Arc;
@@ -66,7 +72,8 @@ pub struct Trial {
     pub gain_db: f64,
     /// Steering range in the typical corner, V.
     pub steering_range_v: f64,
-    /// Worst collector-base headroom across corners, V (`hold_gain` only).
+    /// Worst collector-base margin across corners at the largest budget amplitude, V
+    /// (`hold_gain` without a `collector_base_margin` line of the plan's own).
     pub headroom_v: Option<f64>,
     /// Worst height of the tail node above the tail source's compliance at rest across
     /// corners, V (negative: the stage cannot bias at this value and was not solved).
@@ -75,6 +82,9 @@ pub struct Trial {
     /// the tail source's compliance, collectors above the bases); a trial that cannot is
     /// not solved and fails every line.
     pub biases: bool,
+    /// Least collector-base margin over every drive the trial evaluated, V (negative: a
+    /// junction was forward-biased).
+    pub collector_base_margin_v: f64,
 }
 
 /// What decided a sizing result.
@@ -82,7 +92,8 @@ pub struct Trial {
 pub enum Binding {
     /// The budget line with this index (in the plan) has the least margin, or cannot be met.
     Line(usize),
-    /// Collector-base headroom, not distortion (`hold_gain` only).
+    /// The implicit collector-base margin of `hold_gain` (no saturation at the largest budget
+    /// amplitude), not distortion.
     Headroom,
     /// The tail source's compliance: larger values cannot bias.
     TailCompliance,
@@ -186,6 +197,9 @@ pub struct SizingOutcome {
 struct Criterion {
     counted: Vec<bool>,
     guard_band_db: f64,
+    /// Lines whose margin is in volts (collector-base margin): they hold by their own limit,
+    /// not by the guard band in dB.
+    volts: Vec<bool>,
 }
 
 impl Criterion {
@@ -197,8 +211,36 @@ impl Criterion {
                 .map(|l| !l.metric.is_population())
                 .collect(),
             guard_band_db,
+            volts: volts_lines(plan),
         }
     }
+
+    /// The guard band a line's margin must clear: the dB band, or zero for a margin in volts.
+    fn band(&self, index: usize) -> f64 {
+        if self.volts[index] {
+            0.0
+        } else {
+            self.guard_band_db
+        }
+    }
+
+    /// A line's margin for comparing lines: a margin in volts counts 10 mV as 1 dB (only the
+    /// secant steps compare across lines; every edge they find is verified).
+    fn comparable(&self, index: usize, margin: f64) -> f64 {
+        if self.volts[index] {
+            100.0 * margin
+        } else {
+            margin
+        }
+    }
+}
+
+/// Which lines have margins in volts.
+fn volts_lines(plan: &Plan) -> Vec<bool> {
+    plan.budget
+        .iter()
+        .map(|l| l.metric.margin_in_volts())
+        .collect()
 }
 
 /// A margin as a number to compare: a missing margin sorts above everything when the line
@@ -217,9 +259,11 @@ impl Trial {
         self.margins
             .iter()
             .zip(&self.passes)
-            .zip(&criterion.counted)
-            .filter(|(_, counted)| **counted)
-            .all(|((margin, pass), _)| *pass && margin.is_none_or(|m| m >= criterion.guard_band_db))
+            .enumerate()
+            .filter(|(index, _)| criterion.counted[*index])
+            .all(|(index, (margin, pass))| {
+                *pass && margin.is_none_or(|m| m >= criterion.band(index))
+            })
             && self.headroom_v.is_none_or(|h| h >= 0.0)
             && self.biases
     }
@@ -229,22 +273,29 @@ impl Trial {
         self.margins
             .iter()
             .zip(&self.passes)
-            .zip(&criterion.counted)
-            .filter(|(_, counted)| **counted)
-            .map(|((margin, pass), _)| margin_key(*margin, *pass) - criterion.guard_band_db)
+            .enumerate()
+            .filter(|(index, _)| criterion.counted[*index])
+            .map(|(index, (margin, pass))| {
+                criterion.comparable(index, margin_key(*margin, *pass) - criterion.band(index))
+            })
             .fold(f64::INFINITY, f64::min)
     }
 
     /// Worst budget-line margin (dB) among the counted lines, its line, and the corner where
-    /// it occurs. Headroom is in volts and is judged separately.
-    fn worst_with_corner(&self, counted: &[bool]) -> ((f64, Binding), String) {
+    /// it occurs. Margins in volts (collector-base margin lines, the hold-gain headroom) are
+    /// judged separately: a failing one ranks below every dB margin, a passing one not at all.
+    fn worst_with_corner(&self, counted: &[bool], volts: &[bool]) -> ((f64, Binding), String) {
         let mut worst = (f64::INFINITY, Binding::Nothing);
         let mut corner = TYPICAL.to_owned();
         for (index, (margin, pass)) in self.margins.iter().zip(&self.passes).enumerate() {
             if !counted[index] {
                 continue;
             }
-            let m = margin_key(*margin, *pass);
+            let m = match (volts[index], *pass) {
+                (true, true) => f64::INFINITY,
+                (true, false) => f64::NEG_INFINITY,
+                (false, _) => margin_key(*margin, *pass),
+            };
             if m < worst.0 {
                 worst = (m, Binding::Line(index));
                 corner = self.corners[index].clone();
@@ -279,7 +330,7 @@ fn rest_feasibility(plan: &Plan, stage: &Stage, temperature_c: f64) -> (f64, f64
         collector = collector.min(rest_collector_headroom_v(&built, temperature_c));
         biases &= bias_problem(&built, temperature_c).is_none();
     }
-    (tail, collector, biases && collector >= 0.0)
+    (tail, collector, biases)
 }
 
 /// The stage at one emitter resistance, with the load rescaled to `target_gain` when given.
@@ -295,16 +346,24 @@ fn stage_at(
     trial_stage.emitter_resistance = emitter_resistance;
     if let Some(target) = target_gain {
         // Gain is proportional to the load without Early effect; a few fixed-point steps
-        // settle it to 1e-12 otherwise. A load that would pull the collectors below the bases
-        // at rest (or a tail node below its compliance) ends the search: such a stage is not
-        // solved, and the trial made of it fails.
+        // settle it to 1e-12 otherwise. A stage that cannot bias (a tail node below its
+        // compliance) ends the search: it is not solved, and the trial made of it fails. A
+        // load that saturates the stage at zero input holds no gain: scaling stops there, and
+        // the collector-base margin check fails the trial.
         for _ in 0..8 {
             if !rest_feasibility(plan, &trial_stage, temperature_c).2 {
                 break;
             }
             let measured = measurements(&trial_stage, temperature_c, plan, cache);
-            let gain = small_signal_gain(measured.engine().static_solver())?;
+            let solver = measured.engine().static_solver();
+            if !junctions_reverse_biased(&solver.solve_cold(0.0)?) {
+                break;
+            }
+            let gain = small_signal_gain(solver)?;
             let ratio = target / gain;
+            if !(ratio.is_finite() && ratio > 0.0) {
+                break;
+            }
             trial_stage.load_resistance *= ratio;
             if (ratio - 1.0).abs() < 1e-12 {
                 break;
@@ -386,6 +445,8 @@ fn trial(
             headroom_v: target_gain.map(|_| collector_v),
             tail_headroom_v,
             biases: false,
+            // Not solved: no drive was evaluated.
+            collector_base_margin_v: f64::NAN,
         });
     }
     // Worst case over the process corners, line by line.
@@ -395,6 +456,7 @@ fn trial(
     let mut corners = vec![TYPICAL.to_owned(); lines];
     let mut keys = vec![f64::INFINITY; lines];
     let mut headroom_worst: Option<f64> = None;
+    let mut least_margin = f64::INFINITY;
     for (corner_index, corner) in plan.corners.iter().enumerate() {
         let in_corner = corner.apply(&trial_stage);
         let measured = measurements(&in_corner, temperature_c, plan, cache);
@@ -402,7 +464,9 @@ fn trial(
             if line.metric.is_population() {
                 continue;
             }
-            let value = measured.measure(line).map_err(fail)?;
+            let checked = measured.measure_checked(line).map_err(fail)?;
+            least_margin = least_margin.min(checked.region.collector_base_margin_v());
+            let value = checked.value;
             let judged = judge(line, value, ANALYSIS_FLOOR_DBC);
             let k = margin_key(judged.margin, judged.pass);
             if corner_index == 0 || k < keys[index] {
@@ -414,6 +478,7 @@ fn trial(
             passes[index] &= judged.pass;
         }
         if let Some(h) = corner_headroom(&measured, plan, target_gain.is_some()).map_err(fail)? {
+            least_margin = least_margin.min(h);
             headroom_worst = Some(headroom_worst.map_or(h, |w: f64| w.min(h)));
         }
     }
@@ -433,17 +498,19 @@ fn trial(
         headroom_v: headroom_worst,
         tail_headroom_v,
         biases,
+        collector_base_margin_v: least_margin,
     })
 }
 
-/// Collector-base headroom at the largest budget amplitude (hold_gain only), V.
-fn corner_headroom(
-    measured: &StageMeasurements,
-    plan: &Plan,
-    hold_gain: bool,
-) -> Result<Option<f64>, SolveFailure> {
-    if !hold_gain {
-        return Ok(None);
+/// The implicit line of `hold_gain`: no saturation at the largest budget amplitude, unless the
+/// plan has a `collector_base_margin` line of its own.
+pub fn implicit_headroom_line(plan: &Plan, measured: &StageMeasurements) -> Option<BudgetLine> {
+    if plan
+        .budget
+        .iter()
+        .any(|l| l.metric == Metric::CollectorBaseMargin)
+    {
+        return None;
     }
     let amplitude = plan
         .budget
@@ -461,8 +528,26 @@ fn corner_headroom(
         .first()
         .map(|l| measured.line_frequency(l))
         .unwrap_or(plan.drive.frequencies[0]);
-    let tone = measured.engine().tone(amplitude, frequency, 3)?;
-    Ok(Some(-tone.region.max_base_collector_v))
+    Some(
+        BudgetLine::new(Metric::CollectorBaseMargin, Limit::Min(0.0))
+            .at(amplitude)
+            .frequency(frequency),
+    )
+}
+
+/// Collector-base margin on the implicit line of `hold_gain`, V.
+fn corner_headroom(
+    measured: &StageMeasurements,
+    plan: &Plan,
+    hold_gain: bool,
+) -> Result<Option<f64>, SolveFailure> {
+    if !hold_gain {
+        return Ok(None);
+    }
+    match implicit_headroom_line(plan, measured) {
+        Some(line) => Ok(measured.measure_checked(&line)?.value),
+        None => Ok(None),
+    }
 }
 
 /// One stage at one temperature, with what each trial needs.
@@ -474,18 +559,22 @@ struct Search<'a> {
     cache: &'a Arc<FftCache>,
     /// Absolute resolution below which an edge near 0 Ω is not refined further, Ω.
     floor_ohm: f64,
+    /// Told after every trial (a progress count).
+    trial_done: &'a (dyn Fn() + Sync),
 }
 
 impl Search<'_> {
     fn trial(&self, emitter_resistance: f64) -> Result<Trial, Error> {
-        trial(
+        let outcome = trial(
             self.plan,
             self.stage,
             self.temperature_c,
             emitter_resistance,
             self.target_gain,
             self.cache,
-        )
+        );
+        (self.trial_done)();
+        outcome
     }
 
     /// The edge between a value that holds and one that does not (in either order): bisection
@@ -630,6 +719,22 @@ pub fn size_stage(
     settings: &SizingSettings,
     cache: &Arc<FftCache>,
 ) -> Result<SizingOutcome, Error> {
+    size_stage_observed(plan, stage, temperature_c, settings, cache, &|| {})
+}
+
+/// Trials a sizing is expected to take: the scan and about a dozen refinement steps. For a
+/// progress display; the real count may differ.
+pub const EXPECTED_TRIALS: usize = SCAN_POINTS + 12;
+
+/// [`size_stage`], calling `trial_done` after every trial R_E (for a progress count).
+pub fn size_stage_observed(
+    plan: &Plan,
+    stage: &Stage,
+    temperature_c: f64,
+    settings: &SizingSettings,
+    cache: &Arc<FftCache>,
+    trial_done: &(dyn Fn() + Sync),
+) -> Result<SizingOutcome, Error> {
     let target_gain = if settings.hold_gain {
         Some(planned_gain(plan, stage, temperature_c, cache)?)
     } else {
@@ -642,6 +747,7 @@ pub fn size_stage(
         target_gain,
         cache,
         floor_ohm: 1e-6 * (settings.to - settings.from),
+        trial_done,
     };
     let grid: Vec<f64> = (0..SCAN_POINTS)
         .map(|i| {
@@ -689,6 +795,7 @@ pub fn size_stage(
             .map(|(i, c)| *c && !unreachable.iter().any(|u| u.line == i))
             .collect(),
         guard_band_db: settings.guard_band_db,
+        volts: every_line.volts.clone(),
     };
     // When nothing holds and part of the range cannot bias, the bias limit met first (at the
     // least R_E that cannot bias) is what binds: the values that might meet the budget are out
@@ -717,8 +824,9 @@ pub fn size_stage(
                 let distortion_worst = low
                     .margins
                     .iter()
-                    .flatten()
-                    .copied()
+                    .enumerate()
+                    .filter(|(index, _)| !every_line.volts[*index])
+                    .filter_map(|(_, m)| *m)
                     .fold(f64::INFINITY, f64::min);
                 h < 0.05 && distortion_worst > 0.5 + settings.guard_band_db
             });
@@ -732,9 +840,9 @@ pub fn size_stage(
                     && t.margins
                         .iter()
                         .zip(&t.passes)
-                        .zip(&reachable.counted)
-                        .filter(|(_, c)| **c)
-                        .all(|((m, p), _)| *p && m.is_none_or(|m| m >= settings.guard_band_db))
+                        .enumerate()
+                        .filter(|(index, _)| reachable.counted[*index])
+                        .all(|(index, (m, p))| *p && m.is_none_or(|m| m >= reachable.band(index)))
             };
             let distortion_ok: Vec<&Trial> = scan.iter().filter(|t| without_headroom(t)).collect();
             let headroom_binds = (target_gain.is_some()
@@ -758,10 +866,15 @@ pub fn size_stage(
                 let best_index = (0..scan.len())
                     .max_by(|&a, &b| {
                         scan[a]
-                            .worst_with_corner(&reachable.counted)
+                            .worst_with_corner(&reachable.counted, &reachable.volts)
                             .0
                              .0
-                            .total_cmp(&scan[b].worst_with_corner(&reachable.counted).0 .0)
+                            .total_cmp(
+                                &scan[b]
+                                    .worst_with_corner(&reachable.counted, &reachable.volts)
+                                    .0
+                                     .0,
+                            )
                     })
                     .unwrap_or(0);
                 if let Some(end) = end_of(best_index, last) {
@@ -779,8 +892,26 @@ pub fn size_stage(
     } else {
         &reachable.counted
     };
-    let ((worst_margin, worst_line), binding_corner) =
-        chosen.worst_with_corner(counted_for_binding);
+    let ((worst_margin, mut worst_line), binding_corner) =
+        chosen.worst_with_corner(counted_for_binding, &every_line.volts);
+    // A collector-base margin line that nearly binds while every dB line has room is what
+    // decides the result.
+    if let Binding::Line(_) | Binding::Nothing = worst_line {
+        let nearly = chosen
+            .margins
+            .iter()
+            .enumerate()
+            .filter(|(index, _)| every_line.volts[*index] && counted_for_binding[*index])
+            .filter_map(|(index, m)| m.map(|m| (index, m)))
+            .min_by(|a, b| a.1.total_cmp(&b.1));
+        if let Some((index, margin)) = nearly {
+            if margin < 0.05
+                && (worst_margin > 0.5 + settings.guard_band_db || worst_line == Binding::Nothing)
+            {
+                worst_line = Binding::Line(index);
+            }
+        }
+    }
     // Nothing holds: an unreachable line is what decides (the one furthest from its limit).
     let unreachable_binding = unreachable
         .iter()
@@ -965,6 +1096,7 @@ fn fallback(plan: &Plan, outcomes: &[&SizingOutcome], settings: &SizingSettings)
     let criterion = Criterion {
         counted,
         guard_band_db: settings.guard_band_db,
+        volts: volts_lines(plan),
     };
     let points = first.scan.len();
     if let Some(index) = (0..points).find(|&i| outcomes.iter().all(|o| o.scan[i].holds(&criterion)))
@@ -974,7 +1106,12 @@ fn fallback(plan: &Plan, outcomes: &[&SizingOutcome], settings: &SizingSettings)
     let worst_at = |i: usize| {
         outcomes
             .iter()
-            .map(|o| o.scan[i].worst_with_corner(&criterion.counted).0 .0)
+            .map(|o| {
+                o.scan[i]
+                    .worst_with_corner(&criterion.counted, &criterion.volts)
+                    .0
+                     .0
+            })
             .fold(f64::INFINITY, f64::min)
     };
     let best = (0..points)

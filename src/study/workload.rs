@@ -242,7 +242,9 @@ pub fn estimate(plan: &Plan) -> Workload {
                 .map(|line| {
                     let f = line.frequency.unwrap_or(frequencies[0]);
                     match line.metric {
-                        Metric::Harmonic(_) | Metric::Thd => engine.tone_s(harmonics),
+                        Metric::Harmonic(_) | Metric::Thd | Metric::CollectorBaseMargin => {
+                            engine.tone_s(harmonics)
+                        }
                         Metric::Im3 => engine.two_tone_s(f, spacing(f)),
                         Metric::Iip3 | Metric::Oip3 => engine.intercept_s(f, spacing(f)),
                         Metric::P1db => COMPRESSION_TONES * engine.tone_s(9),

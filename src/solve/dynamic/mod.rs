@@ -61,8 +61,9 @@ use crate::solve::spectrum::{FftCache, Spectrum};
 use crate::solve::transfer::StaticSolver;
 use dense::Lu;
 use num_complex::Complex;
-use pair::{Drive, PairSystem, UNKNOWNS};
+use pair::{Drive, PairSystem};
 use std::sync::Arc;
+use trapezoid::ChargeSystem;
 use trapezoid::{periodic_steady_state, State, SteadyTolerance, StepTolerance};
 
 /// Newton tolerance inside each time step, V (error after the last step is of order its square).
@@ -162,7 +163,7 @@ struct Refined {
     single_ended: Vec<Complex<f64>>,
     /// Steps per period of the finest level.
     steps: usize,
-    /// Forward-active check over the finest verified period.
+    /// Operating region over the finest verified period.
     region: RegionCheck,
 }
 
@@ -200,14 +201,20 @@ impl DynamicEngine {
         label: &str,
     ) -> Result<Refined, SolveFailure> {
         let circuit = self.solver.circuit();
-        let system = PairSystem::new(circuit, drive);
+        // A drive whose static peak saturates is solved with the whole core throughout.
+        let peak_v = match drive {
+            Drive::Tone { amplitude_v, .. } => amplitude_v,
+            Drive::TwoTone { amplitude_v, .. } => 2.0 * amplitude_v,
+        };
+        let whole = self.solver.saturates_within(peak_v)?;
+        let system = PairSystem::new(circuit, drive, whole);
         let fail = |reason: String| SolveFailure {
             point: label.to_owned(),
             reason,
         };
         let start = self.solver.solve_cold(drive.differential_v(0.0))?;
         let mut guess = State {
-            x: PairSystem::state_from(&start),
+            x: system.state_from(&start),
             i: vec![0.0; pair::CHARGES],
         };
         let mut monodromy: Option<Lu> = None;
@@ -241,7 +248,7 @@ impl DynamicEngine {
                     e.reason
                 ))
             })?;
-            let rows = solution.trajectory.chunks_exact(UNKNOWNS);
+            let rows = solution.trajectory.chunks_exact(system.unknowns());
             let differential: Vec<f64> = rows.clone().map(PairSystem::output_v).collect();
             let single: Vec<f64> = rows.map(PairSystem::p_collector_v).collect();
             let raw_differential = self.cache.harmonic_phasors(&differential, bins);
@@ -266,17 +273,9 @@ impl DynamicEngine {
                         .map(|(a, b)| if a == b { 0.0 } else { (a - b).abs() })
                         .fold(0.0, f64::max);
                     if last_change <= REFINEMENT_TOLERANCE_DB {
-                        let mut region = RegionCheck {
-                            max_base_collector_v: f64::NEG_INFINITY,
-                            min_current_fraction: f64::INFINITY,
-                        };
-                        for x in solution.trajectory.chunks_exact(UNKNOWNS) {
-                            region.max_base_collector_v = region
-                                .max_base_collector_v
-                                .max(PairSystem::max_base_collector_v(x));
-                            region.min_current_fraction = region
-                                .min_current_fraction
-                                .min(system.min_collector_current(x) / circuit.tail_current);
+                        let mut region = RegionCheck::new();
+                        for x in solution.trajectory.chunks_exact(system.unknowns()) {
+                            system.include_region(x, &mut region);
                         }
                         return Ok(Refined {
                             differential: extrapolated,
@@ -485,6 +484,7 @@ impl ResponseEngine for DynamicEngine {
             im2_floor_dbc,
             im3_limited_by,
             im2_limited_by,
+            region: refined.region,
         })
     }
 

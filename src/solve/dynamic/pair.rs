@@ -1,28 +1,35 @@
 //! The emitter-coupled pair with its charges, in the charge-based form of
 //! [`super::trapezoid`].
 //!
-//! Unknowns (node voltages): intrinsic bases `B_P, B_M`, emitters `E_P, E_M`, the tail node
-//! `T`, collectors `C_P, C_M`. Resistors are written as `V_a − V_b − R·I = 0`, so a zero
-//! resistance simply ties the nodes together without any infinite conductance.
+//! Unknowns (node voltages): intrinsic bases `B_P, B_M`, intrinsic emitters `E_P, E_M`, the
+//! tail node `T`, collector terminals `C_P, C_M` and, when the transistor has a collector
+//! resistance, intrinsic collectors `C'_P, C'_M` (otherwise `C' = C`). Resistors are written
+//! as `V_a − V_b − R·I = 0`, so a zero resistance simply ties the nodes together without any
+//! infinite conductance.
 //!
-//! Per side, with `J = I_S·exp(V_BE/φT)`, `I_C = J·(1 + V_CE/V_A)`, `I_B = J/β`:
+//! Per side, `I_C` and `I_B` are the Gummel–Poon core of [`crate::solve::device`] at
+//! `V_BE = V_B − V_E`, `V_BC = V_B − V_C'`, and `i_BE`, `i_BC`, `i_L`, `i_T` the currents of the
+//! charges below:
 //!
 //! ```text
 //! base path:   V_in − V_B − (R_S + r_b)·(I_B + i_BE + i_BC) = 0
 //! emitter:     V_E − V_T − R_E·(I_C + I_B + i_BE)          = 0
 //! collector:   V_CC − V_C + R_L·(i_L − I_C + i_BC)          = 0
+//! r_c:         V_C − V_C' − r_c·(I_C − i_BC)                = 0   (with r_c > 0)
 //! tail (KCL):  Σ (I_C + I_B + i_BE) − I_tail − V_T/R_tail − i_T = 0
 //! ```
 //!
-//! Charges: `Q_BE = τ_F·I_C + Q_j(V_BE; C_je, V_je, m_e)` (diffusion charge on the collector
-//! current including the Early factor, as the plan's `transit_time` is defined),
-//! `Q_BC = Q_j(V_BC; C_jc, V_jc, m_c)`, `Q_L = C_L·(V_CC − V_C)` across each load and
-//! `Q_T = C_T·V_T`. The depletion charge follows the junction law
+//! Charges: `Q_BE = τ_F·I_CC/q_b + Q_j(V_BE; C_je, V_je, m_e)` (the forward diffusion charge
+//! carries the Early factor and the knee through `q_b`), `Q_BC = τ_R·I_EC + Q_j(V_BC; C_jc,
+//! V_jc, m_c)` (both on the intrinsic junction, inside r_b, R_E and r_c), `Q_L = C_L·(V_CC − V_C)`
+//! across each load and `Q_T = C_T·V_T`. The depletion charge follows the junction law
 //! `C(V) = C_j0·(1 − V/V_j)^(−m)` below `F_C·V_j` (`F_C` = 0.5) and its tangent line above, so
 //! it stays finite under forward bias; the charge is the exact integral of that capacitance.
 
 use super::trapezoid::ChargeSystem;
 use crate::model::circuit::{Side, StageCircuit};
+use crate::solve::device::gummel_poon;
+use crate::solve::response::RegionCheck;
 use std::f64::consts::TAU;
 
 /// Forward-bias coefficient where the depletion capacitance law is continued linearly.
@@ -36,8 +43,13 @@ const E_M: usize = 3;
 const TAIL: usize = 4;
 const C_P: usize = 5;
 const C_M: usize = 6;
-/// Number of unknowns.
+/// Intrinsic collectors, when the transistor has a collector resistance.
+const CI_P: usize = 7;
+const CI_M: usize = 8;
+/// Number of unknowns without collector resistance.
 pub const UNKNOWNS: usize = 7;
+/// Number of unknowns with collector resistance (two intrinsic collectors more).
+pub const UNKNOWNS_WITH_COLLECTOR_RESISTANCE: usize = 9;
 /// Charge indices.
 const Q_BE_P: usize = 0;
 const Q_BE_M: usize = 1;
@@ -124,59 +136,135 @@ fn phase_cos(frequency_hz: f64, time_s: f64) -> f64 {
 pub struct PairSystem<'a> {
     circuit: &'a StageCircuit,
     drive: Drive,
-    coupling: [f64; UNKNOWNS * CHARGES],
+    /// Number of unknowns: [`UNKNOWNS`], or [`UNKNOWNS_WITH_COLLECTOR_RESISTANCE`].
+    unknowns: usize,
+    /// Intrinsic collector node of the P and M sides.
+    internal_collector: [usize; 2],
+    coupling: Vec<f64>,
     tail_scale: f64,
+    /// Whether every evaluation uses the whole Gummel–Poon core (a drive that saturates
+    /// somewhere), rather than the forward-active form where it holds.
+    whole: bool,
 }
 
-/// Per-side currents and their partial derivatives with respect to `V_B, V_E, V_C`.
+/// A side's currents at the node voltages of a state, with their derivatives with respect to
+/// `(V_B, V_E, V_C')`.
 struct SideCurrents {
     collector: f64,
     base: f64,
     d_collector: [f64; 3],
     d_base: [f64; 3],
+    /// `I_CC/q_b` (τ_F times it is the forward diffusion charge) and its derivatives.
+    forward_diffusion: f64,
+    d_forward_diffusion: [f64; 3],
+    /// `I_EC` (τ_R times it is the reverse diffusion charge) and `∂/∂V_BC`.
+    reverse_transport: f64,
+    d_reverse_transport: f64,
+    injection: f64,
 }
 
-fn side_currents(side: &Side, phi: f64, vb: f64, ve: f64, vc: f64) -> SideCurrents {
-    let j = side.saturation_current * ((vb - ve) / phi).exp();
-    let early = 1.0 + (vc - ve) * side.early_inv;
-    let collector = j * early;
-    let dj = j / phi;
-    SideCurrents {
-        collector,
-        base: j * side.beta_inv,
-        d_collector: [
+/// A side's currents: the forward-active form `I_C = J·(1 + V_CE/V_AF)`, `I_B = J/β_F` where
+/// the intrinsic collector-base junction is at or below zero bias and the side has no knee
+/// currents or reverse Early voltage (the terms it leaves out are of order I_S, see
+/// [`crate::solve::transfer`]), the whole Gummel–Poon core otherwise, and always when
+/// `whole` (a drive that saturates somewhere keeps one form over its period).
+fn side_currents(side: &Side, phi: f64, vb: f64, ve: f64, vci: f64, whole: bool) -> SideCurrents {
+    if !whole && vb - vci <= 0.0 && side.forward_law() {
+        let j = side.saturation_current * ((vb - ve) / phi).exp();
+        let early = 1.0 + (vci - ve) * side.early_inv;
+        let collector = j * early;
+        let dj = j / phi;
+        let d_collector = [
             dj * early,
             -dj * early - j * side.early_inv,
             j * side.early_inv,
-        ],
-        d_base: [dj * side.beta_inv, -dj * side.beta_inv, 0.0],
+        ];
+        return SideCurrents {
+            collector,
+            base: j * side.beta_inv,
+            d_collector,
+            d_base: [dj * side.beta_inv, -dj * side.beta_inv, 0.0],
+            forward_diffusion: collector,
+            d_forward_diffusion: d_collector,
+            reverse_transport: -side.saturation_current,
+            d_reverse_transport: 0.0,
+            injection: 0.0,
+        };
+    }
+    let d = gummel_poon(side, phi, vb - ve, vb - vci);
+    SideCurrents {
+        collector: d.collector,
+        base: d.base,
+        d_collector: by_node(d.d_collector),
+        d_base: by_node(d.d_base),
+        forward_diffusion: d.forward_diffusion,
+        d_forward_diffusion: by_node(d.d_forward_diffusion),
+        reverse_transport: d.reverse_transport,
+        d_reverse_transport: d.d_reverse_transport,
+        injection: d.injection,
     }
 }
 
+/// `∂/∂(V_B, V_E, V_C')` of a quantity from its `∂/∂(V_BE, V_BC)`.
+fn by_node(d: [f64; 2]) -> [f64; 3] {
+    [d[0] + d[1], -d[0], -d[1]]
+}
+
 impl<'a> PairSystem<'a> {
-    /// The stage `circuit` driven by `drive`.
-    pub fn new(circuit: &'a StageCircuit, drive: Drive) -> Self {
-        let mut coupling = [0.0; UNKNOWNS * CHARGES];
+    /// The stage `circuit` driven by `drive`; `whole` evaluates the whole core everywhere (for
+    /// drives that saturate somewhere).
+    pub fn new(circuit: &'a StageCircuit, drive: Drive, whole: bool) -> Self {
+        let with_rc = circuit.p.collector_resistance > 0.0 || circuit.m.collector_resistance > 0.0;
+        let (unknowns, internal_collector) = if with_rc {
+            (UNKNOWNS_WITH_COLLECTOR_RESISTANCE, [CI_P, CI_M])
+        } else {
+            (UNKNOWNS, [C_P, C_M])
+        };
+        let mut coupling = vec![0.0; unknowns * CHARGES];
         let tail_scale = 0.5 * (circuit.p.load_resistance + circuit.m.load_resistance);
         let mut set =
             |row: usize, charge: usize, value: f64| coupling[row * CHARGES + charge] = value;
-        for (side, b, e, c, qbe, qbc, ql) in [
-            (&circuit.p, B_P, E_P, C_P, Q_BE_P, Q_BC_P, Q_L_P),
-            (&circuit.m, B_M, E_M, C_M, Q_BE_M, Q_BC_M, Q_L_M),
+        for (side, b, e, c, ci, qbe, qbc, ql) in [
+            (
+                &circuit.p,
+                B_P,
+                E_P,
+                C_P,
+                internal_collector[0],
+                Q_BE_P,
+                Q_BC_P,
+                Q_L_P,
+            ),
+            (
+                &circuit.m,
+                B_M,
+                E_M,
+                C_M,
+                internal_collector[1],
+                Q_BE_M,
+                Q_BC_M,
+                Q_L_M,
+            ),
         ] {
             set(b, qbe, -side.base_path_resistance);
             set(b, qbc, -side.base_path_resistance);
             set(e, qbe, -side.emitter_resistance);
             set(c, ql, side.load_resistance);
             set(c, qbc, side.load_resistance);
+            if ci != c {
+                set(ci, qbc, side.collector_resistance);
+            }
             set(TAIL, qbe, tail_scale);
         }
         set(TAIL, Q_T, -tail_scale);
         PairSystem {
             circuit,
             drive,
+            unknowns,
+            internal_collector,
             coupling,
             tail_scale,
+            whole,
         }
     }
 
@@ -185,27 +273,27 @@ impl<'a> PairSystem<'a> {
         x[C_M] - x[C_P]
     }
 
-    /// P-side collector voltage of a state, V.
+    /// P-side collector terminal voltage of a state, V.
     pub fn p_collector_v(x: &[f64]) -> f64 {
         x[C_P]
     }
 
-    /// Largest base-collector voltage of the two sides (positive = forward-biased), V.
-    pub fn max_base_collector_v(x: &[f64]) -> f64 {
-        (x[B_P] - x[C_P]).max(x[B_M] - x[C_M])
-    }
-
-    /// Smaller collector current of the two sides, A.
-    pub fn min_collector_current(&self, x: &[f64]) -> f64 {
-        let phi = self.circuit.thermal_voltage;
-        let p = side_currents(&self.circuit.p, phi, x[B_P], x[E_P], x[C_P]);
-        let m = side_currents(&self.circuit.m, phi, x[B_M], x[E_M], x[C_M]);
-        p.collector.min(m.collector)
+    /// Includes both sides of a state in a region check: intrinsic base-collector voltages,
+    /// collector-current fractions and injection levels.
+    pub fn include_region(&self, x: &[f64], region: &mut RegionCheck) {
+        let c = self.circuit;
+        for (side, b, e, ci) in [
+            (&c.p, B_P, E_P, self.internal_collector[0]),
+            (&c.m, B_M, E_M, self.internal_collector[1]),
+        ] {
+            let d = side_currents(side, c.thermal_voltage, x[b], x[e], x[ci], self.whole);
+            region.include(x[b] - x[ci], d.collector / c.tail_current, d.injection);
+        }
     }
 
     /// The node voltages of a memoryless operating point (a start for shooting).
-    pub fn state_from(point: &crate::solve::transfer::OperatingPoint) -> Vec<f64> {
-        let mut x = vec![0.0; UNKNOWNS];
+    pub fn state_from(&self, point: &crate::solve::transfer::OperatingPoint) -> Vec<f64> {
+        let mut x = vec![0.0; self.unknowns];
         x[B_P] = point.p.base_voltage;
         x[B_M] = point.m.base_voltage;
         x[E_P] = point.p.base_voltage - point.p.base_emitter_voltage;
@@ -213,13 +301,15 @@ impl<'a> PairSystem<'a> {
         x[TAIL] = point.tail_voltage;
         x[C_P] = point.p.collector_voltage;
         x[C_M] = point.m.collector_voltage;
+        x[self.internal_collector[0]] = point.p.internal_collector_voltage;
+        x[self.internal_collector[1]] = point.m.internal_collector_voltage;
         x
     }
 }
 
 impl ChargeSystem for PairSystem<'_> {
     fn unknowns(&self) -> usize {
-        UNKNOWNS
+        self.unknowns
     }
 
     fn charges(&self) -> usize {
@@ -231,14 +321,18 @@ impl ChargeSystem for PairSystem<'_> {
         let phi = c.thermal_voltage;
         let v_d = self.drive.differential_v(time_s);
         jacobian.fill(0.0);
-        let n = UNKNOWNS;
+        let n = self.unknowns;
         let st = self.tail_scale;
         f[TAIL] = -st * (c.tail_current + c.tail_conductance * x[TAIL]);
         jacobian[TAIL * n + TAIL] = -st * c.tail_conductance;
-        for (side, sign, b, e, col) in [(&c.p, 0.5, B_P, E_P, C_P), (&c.m, -0.5, B_M, E_M, C_M)] {
+        for (side, sign, b, e, col, ci) in [
+            (&c.p, 0.5, B_P, E_P, C_P, self.internal_collector[0]),
+            (&c.m, -0.5, B_M, E_M, C_M, self.internal_collector[1]),
+        ] {
             let v_in = c.input_common_mode + sign * v_d;
-            let s = side_currents(side, phi, x[b], x[e], x[col]);
-            let nodes = [b, e, col];
+            let s = side_currents(side, phi, x[b], x[e], x[ci], self.whole);
+            let (d_collector, d_base) = (s.d_collector, s.d_base);
+            let nodes = [b, e, ci];
             f[b] = v_in - x[b] - side.base_path_resistance * s.base;
             jacobian[b * n + b] -= 1.0;
             f[e] = x[e] - x[TAIL] - side.emitter_resistance * (s.collector + s.base);
@@ -246,13 +340,20 @@ impl ChargeSystem for PairSystem<'_> {
             jacobian[e * n + TAIL] -= 1.0;
             f[col] = c.supply - x[col] - side.load_resistance * s.collector;
             jacobian[col * n + col] -= 1.0;
+            if ci != col {
+                f[ci] = x[col] - x[ci] - side.collector_resistance * s.collector;
+                jacobian[ci * n + col] += 1.0;
+                jacobian[ci * n + ci] -= 1.0;
+            }
             f[TAIL] += st * (s.collector + s.base);
             for (k, &node) in nodes.iter().enumerate() {
-                jacobian[b * n + node] -= side.base_path_resistance * s.d_base[k];
-                jacobian[e * n + node] -=
-                    side.emitter_resistance * (s.d_collector[k] + s.d_base[k]);
-                jacobian[col * n + node] -= side.load_resistance * s.d_collector[k];
-                jacobian[TAIL * n + node] += st * (s.d_collector[k] + s.d_base[k]);
+                jacobian[b * n + node] -= side.base_path_resistance * d_base[k];
+                jacobian[e * n + node] -= side.emitter_resistance * (d_collector[k] + d_base[k]);
+                jacobian[col * n + node] -= side.load_resistance * d_collector[k];
+                if ci != col {
+                    jacobian[ci * n + node] -= side.collector_resistance * d_collector[k];
+                }
+                jacobian[TAIL * n + node] += st * (d_collector[k] + d_base[k]);
             }
         }
     }
@@ -261,34 +362,53 @@ impl ChargeSystem for PairSystem<'_> {
         let c = self.circuit;
         let ch = &c.charge;
         let phi = c.thermal_voltage;
-        let n = UNKNOWNS;
+        let n = self.unknowns;
         jacobian.fill(0.0);
-        for (side, b, e, col, qbe, qbc, ql) in [
-            (&c.p, B_P, E_P, C_P, Q_BE_P, Q_BC_P, Q_L_P),
-            (&c.m, B_M, E_M, C_M, Q_BE_M, Q_BC_M, Q_L_M),
+        for (side, b, e, col, ci, qbe, qbc, ql) in [
+            (
+                &c.p,
+                B_P,
+                E_P,
+                C_P,
+                self.internal_collector[0],
+                Q_BE_P,
+                Q_BC_P,
+                Q_L_P,
+            ),
+            (
+                &c.m,
+                B_M,
+                E_M,
+                C_M,
+                self.internal_collector[1],
+                Q_BE_M,
+                Q_BC_M,
+                Q_L_M,
+            ),
         ] {
-            let s = side_currents(side, phi, x[b], x[e], x[col]);
+            let s = side_currents(side, phi, x[b], x[e], x[ci], self.whole);
             let (junction, capacitance) = depletion_charge(
                 x[b] - x[e],
                 ch.emitter_junction_capacitance,
                 ch.emitter_junction_potential,
                 ch.emitter_grading,
             );
-            q[qbe] = ch.transit_time * s.collector + junction;
-            for (k, &node) in [b, e, col].iter().enumerate() {
-                jacobian[qbe * n + node] += ch.transit_time * s.d_collector[k];
+            q[qbe] = ch.transit_time * s.forward_diffusion + junction;
+            for (k, &node) in [b, e, ci].iter().enumerate() {
+                jacobian[qbe * n + node] += ch.transit_time * s.d_forward_diffusion[k];
             }
             jacobian[qbe * n + b] += capacitance;
             jacobian[qbe * n + e] -= capacitance;
             let (junction, capacitance) = depletion_charge(
-                x[b] - x[col],
+                x[b] - x[ci],
                 ch.collector_junction_capacitance,
                 ch.collector_junction_potential,
                 ch.collector_grading,
             );
-            q[qbc] = junction;
-            jacobian[qbc * n + b] += capacitance;
-            jacobian[qbc * n + col] -= capacitance;
+            q[qbc] = ch.reverse_transit_time * s.reverse_transport + junction;
+            let reverse_diffusion = ch.reverse_transit_time * s.d_reverse_transport;
+            jacobian[qbc * n + b] += capacitance + reverse_diffusion;
+            jacobian[qbc * n + ci] -= capacitance + reverse_diffusion;
             q[ql] = c.load_capacitance * (c.supply - x[col]);
             jacobian[ql * n + col] = -c.load_capacitance;
         }
@@ -300,15 +420,26 @@ impl ChargeSystem for PairSystem<'_> {
         &self.coupling
     }
 
-    fn step_fraction(&self, _x: &[f64], dx: &[f64]) -> f64 {
+    fn step_fraction(&self, x: &[f64], dx: &[f64]) -> f64 {
         // Junction limiting: no base-emitter voltage moves by more than 8·φT per iteration
-        // (keeps the exponentials finite far from the solution), no node by more than 1 V.
+        // (keeps the exponentials finite far from the solution), nor a base-collector voltage
+        // that is or would become forward-biased; no node by more than 1 V.
         let limit = 8.0 * self.circuit.thermal_voltage;
         let junction = (dx[B_P] - dx[E_P]).abs().max((dx[B_M] - dx[E_M]).abs());
         let node = dx.iter().fold(0.0f64, |a, v| a.max(v.abs()));
         let mut fraction: f64 = 1.0;
         if junction > limit {
             fraction = fraction.min(limit / junction);
+        }
+        for (b, ci) in [
+            (B_P, self.internal_collector[0]),
+            (B_M, self.internal_collector[1]),
+        ] {
+            let change = dx[b] - dx[ci];
+            let now = x[b] - x[ci];
+            if change.abs() > limit && now.max(now + change) > 0.0 {
+                fraction = fraction.min(limit / change.abs());
+            }
         }
         if node > 1.0 {
             fraction = fraction.min(1.0 / node);
