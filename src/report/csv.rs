@@ -91,8 +91,8 @@ mod tests {
             "amplitude_v": 0.02, "fundamental_v": 0.2, "gain_db": 20.0,
             "hd2_dbc": null, "hd3_dbc": -60.5, "thd_dbc": -60.5,
             "single_ended_fundamental_v": 0.1, "single_ended_hd2_dbc": null,
-            "single_ended_hd3_dbc": -60.5, "samples": 64, "forward_active": true,
-            "max_base_collector_v": -1.0, "min_current_fraction": 0.3, "corner": corner,
+            "single_ended_hd3_dbc": -60.5, "samples": 64, "region": "forward-active",
+            "collector_base_margin_v": 1.0, "min_current_fraction": 0.3, "corner": corner,
         }))
         .unwrap()
     }
