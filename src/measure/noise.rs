@@ -42,7 +42,10 @@ pub fn input_noise_density(solver: &StaticSolver) -> Result<f64, SolveFailure> {
 ///   a matched split tail, and the pairs' offset currents in a multi-tanh cell;
 /// - each load: `4kT·R_L/A²`.
 ///
-/// For a matched emitter-resistor pair with an ideal tail this is the usual
+/// Emitter-resistor stages use the textbook sum below directly (it refers the load noise
+/// through `G`, leaving out the base path's `R_B/(β + 1)`, which the transfers would include:
+/// 0.05 % in the strain-logger example) plus their tail source through its transfer. For a
+/// matched emitter-resistor pair with an ideal tail the transfers give the usual
 /// `2·[4kT(R_S + r_b + R_E) + 2kT/g_m + 2q·I_B·(R_S + r_b)² + 4kT/(G²·R_L)]`,
 /// `G = g_m/(1 + g_m·R_E)` (standard bipolar noise analysis, from memory).
 #[derive(Debug, Clone, Copy, PartialEq, Default)]
@@ -110,6 +113,30 @@ impl NoiseBreakdown {
             };
             Ok((at(h_v)? - at(-h_v)?) / (2.0 * h_v))
         };
+        if c.cell.is_empty() && c.split_tail.is_none() {
+            // Emitter resistors: the textbook sum per side (standard bipolar noise analysis,
+            // from memory), `G = g_m/(1 + g_m·R_E)`, which the worked example in
+            // specs/README.md follows; the tail source through its transfer (zero for a
+            // matched pair, common mode).
+            let point = solver.solve_cold(0.0)?;
+            let mut figures = NoiseBreakdown::default();
+            for (side, state) in [(&c.p, &point.p), (&c.m, &point.m)] {
+                let gm = state.collector_current / phi;
+                let g = gm / (1.0 + gm * side.emitter_resistance);
+                let r_b = side.base_path_resistance - c.source_resistance;
+                figures.transistors_v2 += 4.0 * kt * r_b
+                    + 2.0 * kt / gm
+                    + 2.0 * q * state.base_current * side.base_path_resistance.powi(2);
+                figures.resistors_v2 += 4.0 * kt * (c.source_resistance + side.emitter_resistance);
+                figures.loads_v2 += 4.0 * kt / (g * g * side.load_resistance);
+            }
+            let i_n2 = c.tail_noise_current * c.tail_noise_current;
+            if i_n2 > 0.0 {
+                let probe = |circuit: &mut StageCircuit, h: f64| circuit.tail_current += h;
+                figures.tail_sources_v2 = i_n2 * refer(transfer(&probe, PROBE * c.tail_current)?);
+            }
+            return Ok(figures);
+        }
         let node_transfer = [node(1.0)?, node(-1.0)?];
         let r_s = c.source_resistance;
         let mut figures = NoiseBreakdown::default();
