@@ -722,6 +722,9 @@ fn case_records(plan: &Plan, case: CaseEvaluation, derived_from: Option<String>)
                 corner: corner.clone(),
                 margin_unit: if line.metric.margin_in_volts() {
                     "V"
+                } else if line.metric == Metric::Yield {
+                    // A yield's margin is the pass fraction less the limit.
+                    crate::report::YIELD_UNIT
                 } else {
                     "dB"
                 }

@@ -748,8 +748,8 @@ pub struct BudgetRecord {
     pub kind: String,
     /// The measured value (null: below the analysis floor, or unbounded).
     pub value: Option<f64>,
-    /// Margin, positive when the line passes: in dB, or in volts for `collector_base_margin`
-    /// (see `margin_unit`).
+    /// Margin, positive when the line passes: in dB, in volts for `collector_base_margin`, a
+    /// fraction for `yield` (see `margin_unit`).
     pub margin: Option<f64>,
     /// Whether the line passes.
     pub pass: bool,
@@ -758,7 +758,8 @@ pub struct BudgetRecord {
     /// Process corner.
     #[serde(default)]
     pub corner: String,
-    /// Unit of `margin`: `dB`, or `V` for `collector_base_margin` lines.
+    /// Unit of `margin`: `dB`, `V` for `collector_base_margin` lines, or `fraction` for a
+    /// yield line (the pass fraction less the limit: −0.05 is 5 percentage points short).
     pub margin_unit: String,
     /// Operating region of the drive the value rests on: the tone or two tones at `at_v`,
     /// the P1dB answer, the IIP3 fit point, the steering points, or the bias point for
