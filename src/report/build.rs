@@ -501,13 +501,32 @@ fn failing_count(v: &DesignVerdictRecord) -> String {
     }
 }
 
+/// The failing check a headline names: the first failing line in report order, and of its
+/// checks (one stage, every temperature and corner) the one with the least margin — margins of
+/// one line share a unit, so they compare.
+fn worst_failure(failing: &[FailingCheckRecord]) -> Option<&FailingCheckRecord> {
+    let first = failing.first()?;
+    failing
+        .iter()
+        .filter(|f| {
+            f.stage == first.stage
+                && f.metric == first.metric
+                && f.at_v == first.at_v
+                && f.kind == first.kind
+                && f.limit == first.limit
+        })
+        .min_by(|a, b| {
+            a.margin
+                .unwrap_or(f64::INFINITY)
+                .total_cmp(&b.margin.unwrap_or(f64::INFINITY))
+        })
+}
+
 /// The answer in one line, naming the design that met (or did not).
 fn summary_line(v: &VerdictRecord, judged: Judged) -> String {
     let planned = &v.as_planned;
     let first_failure = |design: &DesignVerdictRecord| {
-        design
-            .failing
-            .first()
+        worst_failure(&design.failing)
             .map(|f| format!(" — {}", f.text))
             .unwrap_or_default()
     };
@@ -528,7 +547,7 @@ fn summary_line(v: &VerdictRecord, judged: Judged) -> String {
                     .flat_map(|s| s.unreachable.first())
                     .next()
                     .map(|u| format!(" — {}", u.text))
-                    .or_else(|| r.failing.first().map(|f| format!(" — {}", f.text)))
+                    .or_else(|| worst_failure(&r.failing).map(|f| format!(" — {}", f.text)))
                     .or_else(|| {
                         r.stages
                             .iter()
@@ -1413,5 +1432,32 @@ mod tests {
         assert!(default_bias_saturation_warnings(&biased, 27.0, &points).is_empty());
         let none: Vec<PointRecord> = [0.1, 0.2].iter().map(|&a| point(a, false)).collect();
         assert!(default_bias_saturation_warnings(&stage, 27.0, &none).is_empty());
+    }
+
+    #[test]
+    fn the_headline_names_the_failing_check_with_the_least_margin_of_its_line() {
+        // A check fails by its margin: of one line's failing checks, the worst is the one
+        // furthest past the limit (common practice), not the first in temperature order.
+        let check = |t: f64, metric: &str, value: f64, margin: f64| FailingCheckRecord {
+            stage: "pair".into(),
+            temperature_c: t,
+            corner: TYPICAL.into(),
+            metric: metric.into(),
+            at_v: Some(0.1),
+            kind: "max".into(),
+            limit: -45.0,
+            value: Some(value),
+            margin: Some(margin),
+            unit: "dBc".into(),
+            text: format!("{metric} at {t}"),
+        };
+        let failing = [
+            check(27.0, "hd3", -44.82, -0.18),
+            check(85.0, "hd3", -44.73, -0.27),
+            check(27.0, "thd", -30.0, -5.0),
+        ];
+        let worst = worst_failure(&failing).unwrap();
+        assert_eq!((worst.metric.as_str(), worst.temperature_c), ("hd3", 85.0));
+        assert!(worst_failure(&[]).is_none());
     }
 }
