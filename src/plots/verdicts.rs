@@ -315,7 +315,8 @@ impl Drawing for MarginsPlot {
         }
         if self.lines.iter().any(|l| !margin_in_db(l.line())) {
             key.notes.push(
-                "Hatched bars: a margin not in dB (volts, a yield's percentage points), drawn as its share of the limit; its value is in its row below.".into(),
+                "Hatched: margin not in dB, drawn as a share of its limit (value in its row)."
+                    .into(),
             );
         }
         key.verdict_heading = "Budget lines (worst case)".into();
