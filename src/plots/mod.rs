@@ -14,6 +14,7 @@ mod compare;
 mod frequency;
 mod harmonics;
 mod monte_carlo;
+mod region;
 mod sizing;
 mod spectrum;
 pub(crate) mod style;
@@ -45,6 +46,11 @@ pub enum PlotKind {
     TwoTone,
     /// Budget margins versus emitter resistance with the chosen value.
     Sizing,
+    /// The map of tail current against emitter resistance: usable designs and the line
+    /// closing each edge.
+    SizingRegion,
+    /// Pareto fronts of supply current against input noise and the binding distortion.
+    SizingPareto,
     /// Harmonic stems at one drive point.
     Spectrum,
     /// Several stages overlaid.
@@ -63,6 +69,8 @@ impl PlotKind {
             PlotKind::Harmonics => "harmonics",
             PlotKind::TwoTone => "two-tone",
             PlotKind::Sizing => "sizing",
+            PlotKind::SizingRegion => "sizing-region",
+            PlotKind::SizingPareto => "sizing-pareto",
             PlotKind::Spectrum => "spectrum",
             PlotKind::StageComparison => "stage-comparison",
             PlotKind::Frequency => "frequency",
@@ -233,8 +241,8 @@ impl Sketch {
             PlotKind::Harmonics | PlotKind::TwoTone => 8,
             PlotKind::Transfer => 6,
             PlotKind::StageComparison | PlotKind::Frequency | PlotKind::Sizing => 5,
-            PlotKind::MonteCarlo => 4,
-            PlotKind::Spectrum => 3,
+            PlotKind::MonteCarlo | PlotKind::SizingRegion => 4,
+            PlotKind::Spectrum | PlotKind::SizingPareto => 3,
         }
     }
 }
@@ -323,6 +331,8 @@ pub fn sketches(report: &Report) -> Vec<Sketch> {
         per_stage!(two_tone::TwoTonePlot::new);
         per_stage!(spectrum::SpectrumPlot::new);
         per_stage!(sizing::SizingPlot::new);
+        per_stage!(region::RegionPlot::new);
+        per_stage!(region::ParetoPlot::new);
         per_stage!(frequency::FrequencyPlot::new);
         per_stage!(monte_carlo::MonteCarloPlot::new);
     }

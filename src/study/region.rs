@@ -24,8 +24,10 @@
 //! caller raises the answer along the map when a yield line fails there).
 //!
 //! The map also gives the *Pareto fronts* of supply current against input noise and against
-//! the binding distortion figure: among the grid points meeting every line except the front's
-//! own, the points no other point beats on both current and that figure.
+//! the binding distortion figure: in each grid row, the design meeting every line except the
+//! front's own with the best figure (its edge towards the better neighbour refined by
+//! bisection, since the figure is best where another line closes the row), and of those the
+//! ones no other beats on both current and figure.
 
 use crate::error::Error;
 use crate::model::budget::Metric;
@@ -44,6 +46,8 @@ pub const SECONDARY_POINTS: usize = 13;
 pub const PRIMARY_REFINE: f64 = 1e-3;
 /// Width of the golden-section bracket on the other variable, relative to its range.
 pub const SECONDARY_REFINE: f64 = 1e-4;
+/// Bisection steps refining each grid row's edge on a Pareto front (1/256 of a grid step).
+pub const FRONT_BISECTIONS: usize = 8;
 /// Most bisection steps on the minimised variable (the bracket starts one grid step wide).
 const MAX_BISECTIONS: usize = 40;
 
@@ -380,6 +384,61 @@ impl Region<'_> {
     }
 }
 
+impl Region<'_> {
+    /// The best design of each grid row for a Pareto front: among the row's designs meeting
+    /// `others` (every line but the front's own), the one with the best `score`, its edge
+    /// towards the better neighbour refined by [`FRONT_BISECTIONS`] bisection steps on the
+    /// other variable (the front's figure is best where another line closes the row).
+    fn front_rows(
+        &self,
+        map: &[RegionPoint],
+        width: usize,
+        others: &Criterion,
+        score: &(dyn Fn(&RegionPoint) -> f64 + Sync),
+    ) -> Result<Vec<RegionPoint>, Error> {
+        let eligible = |p: &RegionPoint| p.trials.iter().all(|t| t.holds(others));
+        let rows: Vec<&[RegionPoint]> = map.chunks(width).collect();
+        let refined = rows
+            .par_iter()
+            .map(|row| -> Result<Option<RegionPoint>, Error> {
+                let Some(best) = (0..row.len())
+                    .filter(|&j| eligible(&row[j]))
+                    .max_by(|&a, &b| score(&row[a]).total_cmp(&score(&row[b])))
+                else {
+                    return Ok(None);
+                };
+                let (Some(axis), true) = (&self.secondary, row.len() > 1) else {
+                    return Ok(Some(row[best].clone()));
+                };
+                let neighbour = [best.checked_sub(1), Some(best + 1)]
+                    .into_iter()
+                    .flatten()
+                    .filter(|&j| j < row.len() && !eligible(&row[j]))
+                    .max_by(|&a, &b| score(&row[a]).total_cmp(&score(&row[b])));
+                let Some(outside) = neighbour else {
+                    return Ok(Some(row[best].clone()));
+                };
+                let mut good = row[best].clone();
+                let (mut inside_value, mut outside_value) = (axis.grid[best], axis.grid[outside]);
+                for _ in 0..FRONT_BISECTIONS {
+                    let middle = 0.5 * (inside_value + outside_value);
+                    let probe = self.design(good.primary, Some(middle))?;
+                    if eligible(&probe) {
+                        inside_value = middle;
+                        if score(&probe) >= score(&good) {
+                            good = probe;
+                        }
+                    } else {
+                        outside_value = middle;
+                    }
+                }
+                Ok(Some(good))
+            })
+            .collect::<Result<Vec<_>, Error>>()?;
+        Ok(refined.into_iter().flatten().collect())
+    }
+}
+
 /// Whether `a` is a better design than `b` at the same value of the minimised variable: it
 /// holds and `b` does not, or it has the greater worst excess.
 fn better(a: &RegionPoint, b: &RegionPoint) -> bool {
@@ -430,17 +489,15 @@ fn row_summary(primary: f64, points: &[RegionPoint], secondary: Option<&Axis>) -
     }
 }
 
-/// The Pareto front of tail current against one figure, among the points `eligible` admits:
-/// sorted by current, each point kept when its figure beats every point of lower current
-/// (`score`: larger is better).
+/// The Pareto front of tail current against one figure: sorted by current, each design kept
+/// when its figure beats every design of lower current (`figure` gives the value, its margin
+/// and a score, larger better).
 fn front(
     points: &[RegionPoint],
-    eligible: impl Fn(&RegionPoint) -> bool,
     figure: impl Fn(&RegionPoint) -> Option<(f64, Option<f64>, f64)>,
 ) -> Vec<FrontPoint> {
     let mut candidates: Vec<(&RegionPoint, f64, Option<f64>, f64)> = points
         .iter()
-        .filter(|p| eligible(p))
         .filter_map(|p| figure(p).map(|(value, margin, score)| (p, value, margin, score)))
         .filter(|(_, value, _, score)| value.is_finite() && !score.is_nan())
         .collect();
@@ -613,31 +670,32 @@ pub fn size_region(
             }),
     };
     let (noise_front, distortion_front) = if current_varies {
-        let others_than_noise = region.criterion.without(&noise_lines);
-        let noise_front = front(
+        let noise_score = |p: &RegionPoint| -p.input_noise_v_rthz;
+        let noise_rows = region.front_rows(
             &map,
-            |p| p.trials.iter().all(|t| t.holds(&others_than_noise)),
-            |p| {
-                let margin = noise_lines
-                    .iter()
-                    .filter_map(|&i| p.margins[i])
-                    .min_by(f64::total_cmp);
-                Some((p.input_noise_v_rthz, margin, -p.input_noise_v_rthz))
-            },
-        );
+            width,
+            &region.criterion.without(&noise_lines),
+            &noise_score,
+        )?;
+        let noise_front = front(&noise_rows, |p| {
+            let margin = noise_lines
+                .iter()
+                .filter_map(|&i| p.margins[i])
+                .min_by(f64::total_cmp);
+            Some((p.input_noise_v_rthz, margin, noise_score(p)))
+        });
         let distortion_front = match distortion_line {
             Some(d) => {
-                let others = region.criterion.without(&[d]);
-                front(
+                let distortion_score = |p: &RegionPoint| margin_key(p.margins[d], p.line_holds[d]);
+                let rows = region.front_rows(
                     &map,
-                    |p| p.trials.iter().all(|t| t.holds(&others)),
-                    |p| {
-                        p.values[d].map(|value| {
-                            let margin = p.margins[d];
-                            (value, margin, margin_key(margin, p.line_holds[d]))
-                        })
-                    },
-                )
+                    width,
+                    &region.criterion.without(&[d]),
+                    &distortion_score,
+                )?;
+                front(&rows, |p| {
+                    p.values[d].map(|value| (value, p.margins[d], distortion_score(p)))
+                })
             }
             None => Vec::new(),
         };

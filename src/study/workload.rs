@@ -12,6 +12,7 @@
 //! minutes-long plan from a years-long one.
 
 use crate::model::plan::Plan;
+use crate::study::region::{PRIMARY_POINTS, SECONDARY_POINTS};
 use crate::study::sizing::SCAN_POINTS;
 
 /// Sample solves of one single-tone drive point (first two adaptive sample counts).
@@ -22,6 +23,12 @@ pub const SAMPLES_PER_TWO_TONE: f64 = 5_376.0;
 pub const SAMPLES_PER_CORNER: f64 = 200_000.0;
 /// Trial values of the emitter resistance a sizing search evaluates (scan plus refinement).
 pub const SIZING_TRIALS: f64 = SCAN_POINTS as f64 + 12.0;
+/// Designs a sizing search over two variables evaluates: the map, the refinement of the least
+/// value (about ten bisection steps, each a row of the other variable and a golden-section
+/// search), and the Pareto fronts' edges (about eight per grid row and front).
+pub const REGION_DESIGNS: f64 = (PRIMARY_POINTS * SECONDARY_POINTS) as f64
+    + 10.0 * (SECONDARY_POINTS as f64 + 20.0)
+    + 2.0 * 8.0 * PRIMARY_POINTS as f64;
 /// Model evaluations over every bench point a fit takes (coarse search, optimiser,
 /// Jacobians and the final statistics; 25–50 for three parameters).
 pub const FIT_EVALUATIONS: f64 = 50.0;
@@ -56,11 +63,12 @@ pub fn estimate(plan: &Plan) -> Workload {
     let sweep = corners * (frequencies * amplitudes * per_point + SAMPLES_PER_CORNER);
     let runs = plan.monte_carlo.as_ref().map_or(0.0, |mc| mc.runs as f64);
     let monte_carlo = runs * corners * (frequencies * amplitudes * per_point + SAMPLES_PER_CORNER);
-    let sizing = if plan.sizing.is_some() {
-        SIZING_TRIALS * corners * (plan.budget.len() as f64 * per_point + SAMPLES_PER_CORNER)
-    } else {
-        0.0
+    let trials = match &plan.sizing {
+        Some(settings) if settings.is_emitter_only() => SIZING_TRIALS,
+        Some(_) => REGION_DESIGNS,
+        None => 0.0,
     };
+    let sizing = trials * corners * (plan.budget.len() as f64 * per_point + SAMPLES_PER_CORNER);
     // A fit evaluates every measured point about FIT_EVALUATIONS times, and the fitted stage
     // is then evaluated through the plan like the nominal one.
     let fitted_stages = match &plan.fit {
@@ -95,7 +103,7 @@ pub fn estimate(plan: &Plan) -> Workload {
         breakdown.push_str(&format!(", × {runs} Monte Carlo runs"));
     }
     if sizing > 0.0 {
-        breakdown.push_str(&format!(", + sizing ({SIZING_TRIALS} trials)"));
+        breakdown.push_str(&format!(", + sizing ({trials} trials)"));
     }
     if fit > 0.0 {
         breakdown.push_str(&format!(
@@ -161,5 +169,28 @@ mod tests {
         let sweep = 100.0 * SAMPLES_PER_TONE + SAMPLES_PER_CORNER;
         assert_eq!(work.sample_solves, sweep * (1.0 + 1e12));
         assert_eq!(work.dominant_key, "monte_carlo.runs");
+    }
+
+    #[test]
+    fn sizing_the_current_costs_the_region_designs() {
+        use crate::model::budget::{BudgetLine, Limit, Metric};
+        use crate::model::plan::SizingSettings;
+        let line = BudgetLine::new(Metric::Harmonic(3), Limit::Max(-60.0)).at(0.1);
+        let one = plan()
+            .budget_line(line.clone())
+            .sizing(SizingSettings::new(0.0, 1e3));
+        let two = plan()
+            .budget_line(line)
+            .sizing(SizingSettings::new(0.0, 1e3).tail_current(1e-4, 1e-3));
+        let per_trial = SAMPLES_PER_TONE + SAMPLES_PER_CORNER;
+        let sweep = 100.0 * SAMPLES_PER_TONE + SAMPLES_PER_CORNER;
+        assert_eq!(
+            estimate(&one).sample_solves,
+            sweep + SIZING_TRIALS * per_trial
+        );
+        assert_eq!(
+            estimate(&two).sample_solves,
+            sweep + REGION_DESIGNS * per_trial
+        );
     }
 }
