@@ -11,7 +11,7 @@ use super::queries::{
 };
 use super::table::{html_text, markdown_text, Cell, Table};
 use super::text::celsius;
-use super::{Region, Report, CAUTION};
+use super::{Region, RegionRecord, Report, CAUTION};
 use crate::model::corner::TYPICAL;
 use std::fmt::Write;
 
@@ -368,6 +368,7 @@ pub fn sizing_table(report: &Report) -> Table {
         ("stage", false),
         ("T (°C)", true),
         ("R_E (Ω)", true),
+        ("I_tail", true),
         ("binding line", false),
         ("worst margin (dB)", true),
         ("gain (dB)", true),
@@ -397,6 +398,10 @@ pub fn sizing_table(report: &Report) -> Table {
             s.stage.as_str().into(),
             format!("{}", s.temperature_c).into(),
             fixed(s.emitter_resistance_ohm, 1).into(),
+            s.tail_current_a
+                .map(|i| crate::units::format_si(i, "A"))
+                .unwrap_or_else(|| "—".into())
+                .into(),
             s.binding_metric.to_uppercase().into(),
             fixed(Some(s.best_margin), 2).into(),
             fixed(s.gain_db, 2).into(),
@@ -411,6 +416,158 @@ pub fn sizing_table(report: &Report) -> Table {
         ]);
     }
     table
+}
+
+/// A line's name as a table shows it (`HD3`, `input noise`, `—` for none).
+fn line_name(metric: Option<&str>) -> String {
+    match metric {
+        None => "— (range end)".into(),
+        Some("input_noise") => "input noise".into(),
+        Some("collector_base_margin") => "collector-base margin".into(),
+        Some(other) => other.to_uppercase(),
+    }
+}
+
+/// The tables of a sizing region: the map row by row (where R_E may lie at each current and
+/// which line closes each side), and the two Pareto fronts.
+pub fn region_tables(region: &RegionRecord) -> Vec<(String, Table)> {
+    let si = crate::units::format_si;
+    let unit = |i: usize| region.units.get(i).map(String::as_str).unwrap_or("");
+    let first = region.variables.first().map(String::as_str).unwrap_or("");
+    let second = region.variables.get(1).map(String::as_str);
+    let mut out = Vec::new();
+    fn symbol(key: Option<&str>) -> &str {
+        match key {
+            Some("tail_current") => "I_tail",
+            Some("emitter_resistance") => "R_E",
+            Some(other) => other,
+            None => "",
+        }
+    }
+    let step = |i: usize| {
+        region
+            .grid
+            .get(i)
+            .filter(|g| g.len() > 1)
+            .map(|g| (g[1] - g[0]).abs())
+    };
+    let usable_title = match (second, step(1)) {
+        (Some(key), Some(step)) => format!(
+            "usable grid values of {} (grid step {})",
+            symbol(Some(key)),
+            si(step, unit(1))
+        ),
+        _ => "holds".into(),
+    };
+    let mut rows = Table::new([
+        (symbol(Some(first)), true),
+        (usable_title.as_str(), false),
+        ("closed below by", false),
+        ("closed above by", false),
+    ]);
+    for row in &region.rows {
+        let spans = if row.spans.is_empty() {
+            format!(
+                "no grid value (the best limited by {})",
+                line_name(row.limiting_metric.as_deref())
+            )
+        } else {
+            row.spans
+                .iter()
+                .map(|sp| match second {
+                    Some(_) => format!("{} – {}", si(sp.low, unit(1)), si(sp.high, unit(1))),
+                    None => "yes".into(),
+                })
+                .collect::<Vec<_>>()
+                .join(", ")
+        };
+        let below: Vec<String> = row
+            .spans
+            .iter()
+            .map(|sp| line_name(sp.below.as_deref()))
+            .collect();
+        let above: Vec<String> = row
+            .spans
+            .iter()
+            .map(|sp| line_name(sp.above.as_deref()))
+            .collect();
+        rows.push(vec![
+            si(row.value, unit(0)).into(),
+            if row.spans.is_empty() {
+                Cell::verdict(false, "", &spans)
+            } else {
+                spans.into()
+            },
+            below.join(", ").into(),
+            above.join(", ").into(),
+        ]);
+    }
+    out.push((
+        format!(
+            "The region row by row, at grid resolution: at each grid value of {}, the grid values of {} where every line holds, and the line failing just outside each side (a window narrower than one grid step shows as none; the recommended design is refined between grid values).",
+            symbol(Some(first)),
+            symbol(second)
+        ),
+        rows,
+    ));
+    if !region.noise_front.is_empty() {
+        let mut table = Table::new([
+            ("I_tail", true),
+            ("R_E", true),
+            ("input noise (nV/√Hz)", true),
+            ("noise margin (dB)", true),
+        ]);
+        for p in &region.noise_front {
+            table.push(vec![
+                si(p.tail_current_a, "A").into(),
+                si(p.emitter_resistance_ohm, "Ω").into(),
+                format!("{:.3}", 1e9 * p.value).into(),
+                fixed(p.margin, 2).into(),
+            ]);
+        }
+        out.push((
+            "Pareto front of supply current against input noise: at each grid current, the lowest-noise design meeting every other line; a design is listed when no lower current reaches its noise.".into(),
+            table,
+        ));
+    }
+    if let Some(front) = region
+        .distortion_front
+        .as_ref()
+        .filter(|f| !f.points.is_empty())
+    {
+        let at = front
+            .at_v
+            .map(|a| format!(" at {}", si(a, "V")))
+            .unwrap_or_default();
+        let heading = format!("{}{at} ({})", front.metric.to_uppercase(), front.unit);
+        let mut table = Table::new([
+            ("I_tail", true),
+            ("R_E", true),
+            (heading.as_str(), true),
+            ("margin (dB)", true),
+        ]);
+        for p in &front.points {
+            table.push(vec![
+                si(p.tail_current_a, "A").into(),
+                si(p.emitter_resistance_ohm, "Ω").into(),
+                if front.unit == "V" {
+                    si(p.value, "V")
+                } else {
+                    format!("{:.2}", p.value)
+                }
+                .into(),
+                fixed(p.margin, 2).into(),
+            ]);
+        }
+        out.push((
+            format!(
+                "Pareto front of supply current against the binding distortion line ({}{at}): at each grid current, the best design meeting every other line.",
+                front.metric.to_uppercase()
+            ),
+            table,
+        ));
+    }
+    out
 }
 
 fn list_of(values: &[f64], unit: &str) -> String {
@@ -571,7 +728,37 @@ pub fn blocks(report: &Report, figures: &[EmbeddedFigure]) -> Vec<Block> {
                         )
                     })
                     .collect();
-                advice.push(if s.found {
+                let region_basis = s.basis.contains("in_region");
+                let minimised = report
+                    .sizing_region
+                    .iter()
+                    .find(|r| r.stage == s.stage)
+                    .map(|r| r.minimise.replace('_', " "))
+                    .unwrap_or_else(|| "tail current".into());
+                let least_text =
+                    format!("the least {minimised} holding every line at every temperature");
+                let yield_text = format!(
+                    "the least grid {minimised} above that whose Monte Carlo population meets the yield line too"
+                );
+                advice.push(if region_basis {
+                    format!(
+                        "{}: {} I_tail = {} and R_E = {} per side{} ({}).",
+                        s.stage,
+                        if recommended.met { "build" } else { "evaluated at" },
+                        crate::units::format_si(s.tail_current_a, "A"),
+                        crate::units::format_si(s.emitter_resistance_ohm, "Ω"),
+                        if (s.load_resistance_ohm / s.planned_load_resistance_ohm - 1.0).abs() > 1e-9 {
+                            format!(" with R_L = {}", crate::units::format_si(s.load_resistance_ohm, "Ω"))
+                        } else {
+                            String::new()
+                        },
+                        match s.basis.as_str() {
+                            "least_in_region" => least_text.as_str(),
+                            "least_in_region_meeting_yield" => yield_text.as_str(),
+                            _ => "no design holds every line; the one with the best worst-line margin",
+                        }
+                    )
+                } else if s.found {
                     format!(
                         "{}: {} R_E = {} ({}; usable at every temperature: {}).",
                         s.stage,
@@ -599,6 +786,43 @@ pub fn blocks(report: &Report, figures: &[EmbeddedFigure]) -> Vec<Block> {
                 advice.extend(s.hints.iter().cloned());
             }
             out.push(Block::Bullets(advice));
+        }
+    }
+    for region in &report.sizing_region {
+        out.push(Block::Heading(
+            2,
+            format!("Sizing current and degeneration · {}", region.stage),
+        ));
+        let si = crate::units::format_si;
+        out.push(Block::Paragraph(if region.met {
+            format!(
+                "The least {} holding every budget line at every temperature{}: I_tail = {}, R_E = {} per side, limited by {} at {} °C ({} designs evaluated). The map and the fronts below are on the search grid; the design itself is refined between grid values.",
+                region.minimise.replace('_', " "),
+                if region.guard_band_db > 0.0 {
+                    format!(" with {} dB of guard band", region.guard_band_db)
+                } else {
+                    String::new()
+                },
+                si(region.tail_current_a, "A"),
+                si(region.emitter_resistance_ohm, "Ω"),
+                line_name(Some(&region.binding_metric)),
+                region.binding_temperature_c,
+                region.designs_evaluated
+            )
+        } else {
+            format!(
+                "No design in the ranges holds every budget line at every temperature; the best (I_tail = {}, R_E = {}) is limited by {}.",
+                si(region.tail_current_a, "A"),
+                si(region.emitter_resistance_ohm, "Ω"),
+                line_name(Some(&region.binding_metric))
+            )
+        }));
+        for (text, table) in region_tables(region) {
+            out.push(Block::Paragraph(text));
+            out.push(Block::Table(table));
+        }
+        if !region.hints.is_empty() {
+            out.push(Block::Bullets(region.hints.clone()));
         }
     }
     correlation_blocks(report, &mut out);

@@ -211,10 +211,15 @@ pub fn summary(report: &Report) -> String {
         for s in report.sizing.iter().filter(|s| s.stage == name) {
             let _ = writeln!(
                 out,
-                "Sizing at {} °C: {} R_E = {} (binding: {}, worst margin {:.2} dB, gain {} dB, gain cost {} dB, steering range {}, load {}){}\n",
+                "Sizing at {} °C: {} R_E = {}{} (binding: {}, worst margin {:.2} dB, gain {} dB, gain cost {} dB, steering range {}, load {}){}\n",
                 s.temperature_c,
-                if s.met { "least" } else { "no value meets every line; best" },
+                match (s.met, report.sizing_region.iter().any(|r| r.stage == s.stage)) {
+                    (true, false) => "least",
+                    (true, true) => "the design of least current has",
+                    (false, _) => "no value meets every line; best",
+                },
                 s.emitter_resistance_ohm.map(|r| format_si(r, "Ω")).unwrap_or_else(|| "—".into()),
+                s.tail_current_a.map(|i| format!(", I_tail = {}", format_si(i, "A"))).unwrap_or_default(),
                 markdown_text(&s.binding_metric),
                 s.best_margin,
                 db(s.gain_db),
@@ -229,7 +234,34 @@ pub fn summary(report: &Report) -> String {
                 let _ = writeln!(out, "- {}", markdown_text(text));
             }
         }
-        if let Some(value) = value_to_build(report, name) {
+        if let Some(region) = report.sizing_region.iter().find(|r| r.stage == *name) {
+            if let Some(stage) = recommended_stage(report, name) {
+                let _ = writeln!(
+                    out,
+                    "\n**{} for {}: I_tail = {}, R_E = {}** — {}; binding: {}.\n",
+                    if region.met {
+                        "To build"
+                    } else {
+                        "Best found (not met)"
+                    },
+                    markdown_text(name),
+                    format_si(stage.tail_current_a, "A"),
+                    format_si(stage.emitter_resistance_ohm, "Ω"),
+                    if region.met {
+                        format!(
+                            "the least {} holding every line at every temperature",
+                            region.minimise.replace('_', " ")
+                        )
+                    } else {
+                        "no design in the ranges holds every line".to_owned()
+                    },
+                    markdown_text(&region.binding_metric)
+                );
+            }
+            for (text, table) in super::datasheet::region_tables(region) {
+                let _ = writeln!(out, "{}\n\n{}", markdown_text(&text), table.to_markdown());
+            }
+        } else if let Some(value) = value_to_build(report, name) {
             let windows = report
                 .verdict
                 .recommended
