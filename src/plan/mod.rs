@@ -1006,8 +1006,11 @@ fn read_variable_range(
     let from = range.quantity("from", unit, range_kind)?;
     let to = range.quantity("to", unit, range_kind)?;
     if to <= from {
-        let what = format!("sizing range of `{}`", variable.key());
-        return Err(reversed(&range, &what, from, to, unit));
+        let what = match variable {
+            SizingVariable::EmitterResistance => "sizing range",
+            SizingVariable::TailCurrent => "tail-current sizing range",
+        };
+        return Err(reversed(&range, what, from, to, unit));
     }
     Ok(Some(VariableRange { variable, from, to }))
 }

@@ -14,7 +14,7 @@ use plotters::prelude::*;
 fn limit_colour(metric: &str) -> RGBColor {
     match metric {
         "input_noise" => SERIES[2],
-        "collector_base_margin" => SERIES[6],
+        "collector_base_margin" => RGBColor(0x8a, 0x6d, 0x3b),
         "none" => MUTED,
         other => metric_colour(other),
     }
@@ -320,6 +320,7 @@ fn front_panel<DB: DrawingBackend>(
     unit: &str,
     limit: Option<f64>,
     chosen_current: f64,
+    currents: (f64, f64),
     colour: RGBColor,
     name: &str,
 ) -> DrawResult {
@@ -341,14 +342,7 @@ fn front_panel<DB: DrawingBackend>(
     }
     let pad = ((high - low) * 0.12).max(0.5);
     let (y_low, y_high) = (low - pad, high + pad);
-    let (c_low, c_high) = values
-        .iter()
-        .map(|(c, _)| *c)
-        .chain(std::iter::once(chosen_current))
-        .fold((f64::INFINITY, 0.0f64), |(lo, hi), c| {
-            (lo.min(c), hi.max(c))
-        });
-    let (x_low, x_high) = log_span(c_low, c_high, 1.25);
+    let (x_low, x_high) = log_span(currents.0, currents.1, 1.1);
     let mut chart =
         house_chart(area, 24, 96).build_cartesian_2d((x_low..x_high).log_scale(), y_low..y_high)?;
     mesh_style(&mut chart.configure_mesh())
@@ -416,7 +410,7 @@ impl Drawing for ParetoPlot {
     }
     fn caption(&self) -> String {
         format!(
-            "Pareto fronts of “{}”: the least input noise (left) and the best binding distortion figure (right) reachable at each tail current among the grid designs meeting every other budget line; the dashed line is the recommended current.",
+            "Pareto fronts of “{}”: the least input noise (left) and the best binding distortion figure (right) reachable at each grid tail current among the designs meeting every other budget line (every non-distortion line, for the right panel); the dashed line is the recommended current.",
             self.stage
         )
     }
@@ -432,6 +426,13 @@ impl Drawing for ParetoPlot {
             num(r.guard_band_db, 1)
         );
         let body = frame(root, &self.title(), &subtitle)?;
+        let currents = r
+            .variables
+            .iter()
+            .position(|v| v == "tail_current")
+            .and_then(|i| r.grid.get(i))
+            .and_then(|g| Some((*g.first()?, *g.last()?)))
+            .unwrap_or((r.tail_current_a / 2.0, r.tail_current_a * 2.0));
         let (width, _) = body.dim_in_pixel();
         let (left, right) = body.split_horizontally(width / 2);
         front_panel(
@@ -444,6 +445,7 @@ impl Drawing for ParetoPlot {
                 .iter()
                 .find_map(|p| p.margin.map(|m| p.value * 10f64.powf(m / 20.0))),
             r.tail_current_a,
+            currents,
             limit_colour("input_noise"),
             "input noise",
         )?;
@@ -465,6 +467,7 @@ impl Drawing for ParetoPlot {
                 unit,
                 Some(front.limit),
                 r.tail_current_a,
+                currents,
                 limit_colour(&front.metric),
                 &metric_label(&front.metric),
             )?;

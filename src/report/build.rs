@@ -1043,7 +1043,7 @@ fn region_hints(plan: &Plan, region: &RegionOutcome) -> Vec<String> {
         hints.push(format!(
             "no design in the ranges of {key}{other} holds every line by the guard band; the best one ({}) is limited by {} at {}",
             design_text(&region.chosen),
-            metric.to_uppercase(),
+            metric.replace('_', " "),
             celsius(region.chosen.limiting_temperature_c)
         ));
     }

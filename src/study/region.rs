@@ -25,7 +25,7 @@
 //!
 //! The map also gives the *Pareto fronts* of supply current against input noise and against
 //! the binding distortion figure: in each grid row, the design meeting every line except the
-//! front's own with the best figure (its edge towards the better neighbour refined by
+//! front's own (every distortion line, for the distortion front) with the best figure (its edge towards the better neighbour refined by
 //! bisection, since the figure is best where another line closes the row), and of those the
 //! ones no other beats on both current and figure.
 
@@ -39,9 +39,9 @@ use rayon::prelude::*;
 use std::sync::Arc;
 
 /// Grid values of the variable to minimise.
-pub const PRIMARY_POINTS: usize = 13;
+pub const PRIMARY_POINTS: usize = 17;
 /// Grid values of the other variable.
-pub const SECONDARY_POINTS: usize = 13;
+pub const SECONDARY_POINTS: usize = 17;
 /// Relative width of the final bracket on the minimised variable.
 pub const PRIMARY_REFINE: f64 = 1e-3;
 /// Width of the golden-section bracket on the other variable, relative to its range.
@@ -687,10 +687,15 @@ pub fn size_region(
         let distortion_front = match distortion_line {
             Some(d) => {
                 let distortion_score = |p: &RegionPoint| margin_key(p.margins[d], p.line_holds[d]);
+                // Distortion lines move together (HD3 and THD, say): the front is among the
+                // designs meeting every line that is not a distortion line.
+                let distortion_lines: Vec<usize> = (0..plan.budget.len())
+                    .filter(|&i| is_distortion(plan.budget[i].metric))
+                    .collect();
                 let rows = region.front_rows(
                     &map,
                     width,
-                    &region.criterion.without(&[d]),
+                    &region.criterion.without(&distortion_lines),
                     &distortion_score,
                 )?;
                 front(&rows, |p| {
