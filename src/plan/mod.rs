@@ -359,11 +359,22 @@ impl Plan {
             .get("monte_carlo")
             .map(|at| read_monte_carlo(&at))
             .transpose()?;
+        let reference_impedance = top
+            .get("reference_impedance")
+            .map(|at| at.quantity_where(Unit::Ohm, Range::Positive))
+            .transpose()?;
         let budget = match top.get("budget") {
             Some(at) => at
                 .seq("budget lines")?
                 .iter()
-                .map(|line| read_budget_line(line, &drive, top.get("monte_carlo").is_some()))
+                .map(|line| {
+                    read_budget_line(
+                        line,
+                        &drive,
+                        top.get("monte_carlo").is_some(),
+                        reference_impedance,
+                    )
+                })
                 .collect::<Result<Vec<_>, _>>()?,
             None => Vec::new(),
         };
@@ -387,10 +398,6 @@ impl Plan {
                 }
                 Ok(NoiseBand { from, to })
             })
-            .transpose()?;
-        let reference_impedance = top
-            .get("reference_impedance")
-            .map(|at| at.quantity_where(Unit::Ohm, Range::Positive))
             .transpose()?;
 
         let corners = corners::read_corners(top.get("corners").as_ref())?;
@@ -810,7 +817,30 @@ fn read_monte_carlo(at: &At) -> Result<MonteCarloSettings, PlanError> {
     })
 }
 
-fn read_budget_line(at: &At, drive: &Drive, monte_carlo: bool) -> Result<BudgetLine, PlanError> {
+/// The number of a limit written in dBm (`"-10 dBm"`), if it is written so.
+fn dbm_number(at: &At) -> Option<Result<f64, PlanError>> {
+    let text = at.text("").ok()?.trim();
+    let number = text.strip_suffix("dBm")?.trim();
+    Some(
+        number
+            .parse::<f64>()
+            .ok()
+            .filter(|v| v.is_finite())
+            .ok_or_else(|| {
+                at.error(
+                    format!("\"{text}\" is not a level in dBm"),
+                    "a number followed by dBm, e.g. \"-10 dBm\"",
+                )
+            }),
+    )
+}
+
+fn read_budget_line(
+    at: &At,
+    drive: &Drive,
+    monte_carlo: bool,
+    reference_impedance: Option<f64>,
+) -> Result<BudgetLine, PlanError> {
     let map = at.map(BUDGET_KEYS)?;
     let metric_at = map.required("metric", METRIC_NAMES)?;
     let metric_name = metric_at.text(METRIC_NAMES)?;
@@ -867,6 +897,22 @@ fn read_budget_line(at: &At, drive: &Drive, monte_carlo: bool) -> Result<BudgetL
         let Some(limit_at) = map.get(key) else {
             return Ok(None);
         };
+        if let Some(dbm) = dbm_number(&limit_at) {
+            let dbm = dbm?;
+            let power_like = matches!(metric, Metric::Iip3 | Metric::Oip3 | Metric::P1db);
+            return match (power_like, reference_impedance) {
+                // P = V²/(2R) of a sine of peak V into R, referred to 1 mW.
+                (true, Some(ohms)) => Ok(Some((2.0 * ohms * 1e-3 * 10f64.powf(dbm / 10.0)).sqrt())),
+                (true, None) => Err(limit_at.error(
+                    "a limit in dBm needs the plan's `reference_impedance`",
+                    "reference_impedance: 50 (ohms) at the top of the plan, or the limit in volts, e.g. 300 mV",
+                )),
+                (false, _) => Err(limit_at.error(
+                    format!("{} is not a power: dBm does not apply", metric.name()),
+                    "dBm limits on iip3, oip3 and p1db lines only",
+                )),
+            };
+        }
         let value = if metric == Metric::Yield {
             if key == "max" {
                 return Err(limit_at.error(
@@ -1110,6 +1156,40 @@ mod tests {
             "name: p\nstages:\n  - {{name: a, tail_current: 1 mA, load_resistance: 2k, {keys}}}\ndrive: {{amplitudes: [1 mV]}}\n"
         );
         read(&text).stages.remove(0)
+    }
+
+    /// A limit in dBm is read into peak volts with P = V²/(2R): 10 dBm into 50 Ω is 1 V
+    /// peak (common practice); without `reference_impedance`, or on a dB metric, it is refused.
+    #[test]
+    fn dbm_limits_need_a_reference_impedance() {
+        let with = |top: &str, line: &str| {
+            format!("{MINIMAL}{top}budget:\n  - {line}\n").replace(
+                "drive: {amplitudes: [100 mV]}",
+                "drive: {amplitudes: [100 mV], two_tone_spacing: 1 kHz}",
+            )
+        };
+        let plan = read(&with(
+            "reference_impedance: 50\n",
+            "{metric: iip3, min: \"10 dBm\"}",
+        ));
+        match plan.budget[0].limit {
+            Limit::Min(v) => assert!((v - 1.0).abs() < 1e-12, "{v}"),
+            other => panic!("{other:?}"),
+        }
+        let error = Plan::from_yaml(&with("", "{metric: iip3, min: \"10 dBm\"}"), "p.yaml")
+            .unwrap_err()
+            .to_string();
+        assert!(error.contains("reference_impedance"), "{error}");
+        let error = Plan::from_yaml(
+            &with(
+                "reference_impedance: 50\n",
+                "{metric: hd3, max: \"-10 dBm\"}",
+            ),
+            "p.yaml",
+        )
+        .unwrap_err()
+        .to_string();
+        assert!(error.contains("dBm does not apply"), "{error}");
     }
 
     #[test]

@@ -3,6 +3,8 @@
 //! of the line that closes it; and the Pareto fronts of supply current against input noise and
 //! against the binding distortion figure.
 
+use super::axis::Axis;
+use super::key::{draw_key, split, Key, Swatch, VerdictRow};
 use super::style::*;
 use super::{DrawResult, Drawing, PlotKind};
 use crate::report::{FrontRecord, RegionCellRecord, RegionRecord, Report};
@@ -12,6 +14,7 @@ use plotters::prelude::*;
 /// Colour of the line limiting a design: the metric's colour, the collector-base margin's
 /// slate for headroom.
 fn limit_colour(metric: &str) -> RGBColor {
+    // The line colours of the other figures, with noise and headroom given their own.
     match metric {
         "input_noise" => SERIES[2],
         "collector_base_margin" => RGBColor(0x8a, 0x6d, 0x3b),
@@ -20,20 +23,9 @@ fn limit_colour(metric: &str) -> RGBColor {
     }
 }
 
-/// A metric's name as drawn.
-fn metric_label(metric: &str) -> String {
-    match metric {
-        "input_noise" => "input noise".into(),
-        "collector_base_margin" => "collector-base margin".into(),
-        "steering_range" => "steering range".into(),
-        other => other.to_uppercase(),
-    }
-}
-
-/// Boundaries of the cells around grid values: midpoints (geometric on a log axis), the
-/// range's ends outside.
+/// Boundaries of the cells around grid values: midpoints (geometric on a log axis); the end
+/// cells are halves, so the map spans exactly the sizing range.
 fn cell_edges(grid: &[f64], geometric: bool) -> Vec<f64> {
-    let mut edges = Vec::with_capacity(grid.len() + 1);
     let mid = |a: f64, b: f64| {
         if geometric {
             (a * b).sqrt()
@@ -41,32 +33,50 @@ fn cell_edges(grid: &[f64], geometric: bool) -> Vec<f64> {
             0.5 * (a + b)
         }
     };
-    edges.push(match grid {
-        [a, b, ..] => {
-            if geometric {
-                a * (a / b).sqrt()
-            } else {
-                a - 0.5 * (b - a)
-            }
-        }
-        [a] => *a,
-        [] => 0.0,
-    });
-    for pair in grid.windows(2) {
-        edges.push(mid(pair[0], pair[1]));
-    }
-    edges.push(match grid {
-        [.., a, b] => {
-            if geometric {
-                b * (b / a).sqrt()
-            } else {
-                b + 0.5 * (b - a)
-            }
-        }
-        [a] => *a,
-        [] => 0.0,
-    });
+    let mut edges = Vec::with_capacity(grid.len() + 1);
+    edges.extend(grid.first());
+    edges.extend(grid.windows(2).map(|pair| mid(pair[0], pair[1])));
+    edges.extend(grid.last());
     edges
+}
+
+/// A line's name in the figures' words (the collector-base margin spelt out).
+fn line_label(metric: &str) -> String {
+    match metric {
+        "collector_base_margin" => "collector-base margin".into(),
+        "none" => "no line".into(),
+        other => metric_label(other),
+    }
+}
+
+/// The verdict row of the design a region search recommends.
+fn design_row(r: &RegionRecord) -> VerdictRow {
+    VerdictRow {
+        swatch: Swatch::Dot {
+            colour: if r.met { PASS } else { FAIL },
+            marker: Marker::Diamond,
+        },
+        line: format!(
+            "I_tail = {}, R_E = {}",
+            si_short(r.tail_current_a, "A"),
+            si_short(r.emitter_resistance_ohm, "Ω")
+        ),
+        detail: format!(
+            "{} {} at {}{}",
+            if r.met {
+                "least current; binding"
+            } else {
+                "best found; limited by"
+            },
+            line_label(&r.binding_metric),
+            celsius(r.binding_temperature_c),
+            r.excess_db
+                .map(|e| format!(" · {} dB above the guard band", num(e, 2)))
+                .unwrap_or_default()
+        ),
+        verdict: if r.met { "met" } else { "not met" }.into(),
+        pass: r.met,
+    }
 }
 
 /// The map of one stage's sizing region.
@@ -74,6 +84,10 @@ pub struct RegionPlot {
     stage: String,
     slug: String,
     record: RegionRecord,
+    x: Axis,
+    y: Axis,
+    /// Limiting lines of the failing designs, in order of first appearance.
+    metrics: Vec<String>,
 }
 
 impl RegionPlot {
@@ -81,10 +95,37 @@ impl RegionPlot {
     pub fn new(report: &Report, stage: &str, slug: &str) -> Option<Self> {
         let record = report.sizing_region.iter().find(|r| r.stage == stage)?;
         let has = |v: &str| record.variables.iter().any(|n| n == v);
-        (has("tail_current") && has("emitter_resistance")).then(|| RegionPlot {
+        if !(has("tail_current") && has("emitter_resistance")) {
+            return None;
+        }
+        let grid = |v: &str| {
+            record
+                .variables
+                .iter()
+                .position(|n| n == v)
+                .map(|i| record.grid[i].clone())
+                .unwrap_or_default()
+        };
+        let currents = grid("tail_current");
+        let resistances = grid("emitter_resistance");
+        let (Some(&r_low), Some(&r_high)) = (resistances.first(), resistances.last()) else {
+            return None;
+        };
+        let x = Axis::log(&currents, "A");
+        let y = Axis::linear_exact(r_low, r_high, 6).in_unit("Ω");
+        let mut metrics: Vec<String> = Vec::new();
+        for cell in record.cells.iter().filter(|c| !c.holds) {
+            if !metrics.contains(&cell.limiting_metric) {
+                metrics.push(cell.limiting_metric.clone());
+            }
+        }
+        Some(RegionPlot {
             stage: stage.to_owned(),
             slug: slug.to_owned(),
             record: record.clone(),
+            x,
+            y,
+            metrics,
         })
     }
 
@@ -125,10 +166,45 @@ impl Drawing for RegionPlot {
     }
     fn caption(&self) -> String {
         format!(
-            "Every design of the sizing grid of “{}”: green where every budget line holds by the {} dB guard band at every temperature, otherwise tinted by the line that fails it worst; each edge of the green region is drawn in the colour of the line that closes it. The tints are the grid's designs; the ringed diamond is the design recommended, refined between grid points.",
+            "Every design of the sizing grid of “{}”, tail current against emitter resistance: green where every budget line holds by the {} dB guard band at every temperature, otherwise tinted by the line that fails it worst; each edge of the green region is drawn in the colour of the line that closes it. The tints are the grid's designs; the ringed diamond is the design recommended, refined between grid points.",
             self.stage,
             num(self.record.guard_band_db, 1)
         )
+    }
+    fn key(&self) -> Key {
+        let mut key = Key::default();
+        key.entry(
+            Swatch::Band {
+                colour: PASS,
+                alpha: 0.45,
+            },
+            "every line holds (grid design)",
+        );
+        for metric in &self.metrics {
+            key.entry(
+                Swatch::Line {
+                    colour: limit_colour(metric),
+                    alpha: 1.0,
+                    width: 5,
+                    pattern: pattern(0),
+                    marker: None,
+                },
+                format!(
+                    "{} fails worst (tint) and closes the edge",
+                    line_label(metric)
+                ),
+            );
+        }
+        key.verdict_heading = "Recommended design".into();
+        key.verdicts = vec![design_row(&self.record)];
+        key.notes.push(format!(
+            "{} designs evaluated at every temperature and corner",
+            self.record.designs_evaluated
+        ));
+        key
+    }
+    fn axes(&self) -> Vec<Axis> {
+        vec![self.x.clone(), self.y.clone()]
     }
 
     fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> DrawResult {
@@ -137,37 +213,37 @@ impl Drawing for RegionPlot {
             format!(
                 "least {}: I_tail = {}, R_E = {} · binding {} at {}",
                 r.minimise.replace('_', " "),
-                si(r.tail_current_a, "A"),
-                si(r.emitter_resistance_ohm, "Ω"),
-                metric_label(&r.binding_metric),
+                si_short(r.tail_current_a, "A"),
+                si_short(r.emitter_resistance_ohm, "Ω"),
+                line_label(&r.binding_metric),
                 celsius(r.binding_temperature_c)
             )
         } else {
             format!(
                 "no design holds every line; best: I_tail = {}, R_E = {}, limited by {}",
-                si(r.tail_current_a, "A"),
-                si(r.emitter_resistance_ohm, "Ω"),
-                metric_label(&r.binding_metric)
+                si_short(r.tail_current_a, "A"),
+                si_short(r.emitter_resistance_ohm, "Ω"),
+                line_label(&r.binding_metric)
             )
         };
         let body = frame(root, &self.title(), &subtitle)?;
+        let (plot, side) = split(&body);
+        draw_key(&side, &self.key())?;
         let currents = self.grid_of("tail_current");
         let resistances = self.grid_of("emitter_resistance");
         let x_edges = cell_edges(currents, true);
         let y_edges = cell_edges(resistances, false);
-        let (x_low, x_high) = (x_edges[0], x_edges[x_edges.len() - 1]);
-        let (y_low, y_high) = (y_edges[0], y_edges[y_edges.len() - 1]);
-        let mut chart = house_chart(&body, 40, 110)
-            .build_cartesian_2d((x_low..x_high).log_scale(), y_low..y_high)?;
+        let (x, y) = (&self.x, &self.y);
+        let mut chart =
+            house_chart(&plot, 24, 110).build_cartesian_2d(x.log_range(), y.linear_range())?;
         mesh_style(&mut chart.configure_mesh())
             .disable_mesh()
-            .x_desc("tail current I_tail (supply current of the pair, log)")
-            .y_desc("emitter resistance per side R_E (Ω)")
-            .x_label_formatter(&|v| log_tick(*v, "A"))
-            .y_label_formatter(&|v| si(*v, "").trim().to_owned())
+            .x_desc("tail current I_tail, the pair's supply current (log)")
+            .y_desc("emitter resistance per side R_E")
+            .x_label_formatter(&|v| x.label(*v))
+            .y_label_formatter(&|v| y.label(*v))
             .draw()?;
 
-        let mut metrics: Vec<String> = Vec::new();
         for i in 0..currents.len() {
             for j in 0..resistances.len() {
                 let Some(cell) = self.cell(i, j) else {
@@ -176,9 +252,6 @@ impl Drawing for RegionPlot {
                 let fill = if cell.holds {
                     PASS.mix(0.45)
                 } else {
-                    if !metrics.contains(&cell.limiting_metric) {
-                        metrics.push(cell.limiting_metric.clone());
-                    }
                     limit_colour(&cell.limiting_metric).mix(0.22)
                 };
                 chart.draw_series(std::iter::once(Rectangle::new(
@@ -243,46 +316,6 @@ impl Drawing for RegionPlot {
                 + Circle::new((0, 0), 15, INK.stroke_width(3))
                 + Marker::Diamond.element((0, 0), mark.mix(1.0)),
         ))?;
-        let at = chart.backend_coord(&chosen);
-        let label = format!(
-            "{} · {}",
-            si(r.tail_current_a, "A"),
-            si(r.emitter_resistance_ohm, "Ω")
-        );
-        let (width, _) = root.dim_in_pixel();
-        let right = at.0 > width as i32 - 420;
-        backed_label(
-            root,
-            &label,
-            (if right { at.0 - 24 } else { at.0 + 24 }, at.1),
-            bold(LEGEND_PX).color(&INK),
-            right,
-        )?;
-
-        legend_entry(
-            &mut chart,
-            "every line holds",
-            pattern(0),
-            PASS.mix(0.6).filled(),
-            Some(Marker::Square),
-        )?;
-        for metric in &metrics {
-            legend_entry(
-                &mut chart,
-                &format!("{} fails worst · the edge it closes", metric_label(metric)),
-                pattern(0),
-                limit_colour(metric).stroke_width(5),
-                Some(Marker::Square),
-            )?;
-        }
-        legend_entry(
-            &mut chart,
-            "recommended design",
-            pattern(0),
-            mark.stroke_width(0),
-            Some(Marker::Diamond),
-        )?;
-        legend(&mut chart, SeriesLabelPosition::UpperRight)?;
         Ok(())
     }
 }
@@ -292,6 +325,43 @@ pub struct ParetoPlot {
     stage: String,
     slug: String,
     record: RegionRecord,
+    x: Axis,
+    noise_y: Axis,
+    distortion_y: Option<Axis>,
+}
+
+/// Scale and unit of a distortion front's values as drawn (mV for volts).
+fn distortion_scale(unit: &str) -> (f64, String) {
+    if unit == "V" {
+        (1e3, "mV".into())
+    } else {
+        (1.0, unit.to_owned())
+    }
+}
+
+/// The noise line's limit, V/√Hz, from a front point's value and margin (margin =
+/// 20·log10(limit / value) for a max line).
+fn noise_limit(record: &RegionRecord) -> Option<f64> {
+    record
+        .noise_front
+        .iter()
+        .find_map(|p| p.margin.map(|m| p.value * 10f64.powf(m / 20.0)))
+}
+
+/// A value axis around `values` and an optional limit.
+fn value_axis(values: impl Iterator<Item = f64>, limit: Option<f64>) -> Axis {
+    let (mut low, mut high) = values.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), v| {
+        (lo.min(v), hi.max(v))
+    });
+    if let Some(l) = limit {
+        low = low.min(l);
+        high = high.max(l);
+    }
+    if !low.is_finite() {
+        (low, high) = (0.0, 1.0);
+    }
+    let pad = ((high - low) * 0.12).max(0.5);
+    Axis::linear(low - pad, high + pad, 6)
 }
 
 impl ParetoPlot {
@@ -301,100 +371,86 @@ impl ParetoPlot {
         let distortion = record
             .distortion_front
             .as_ref()
-            .is_some_and(|f| !f.points.is_empty());
-        (!record.noise_front.is_empty() || distortion).then(|| ParetoPlot {
+            .filter(|f| !f.points.is_empty());
+        if record.noise_front.is_empty() && distortion.is_none() {
+            return None;
+        }
+        let currents: Vec<f64> = record
+            .variables
+            .iter()
+            .position(|v| v == "tail_current")
+            .and_then(|i| record.grid.get(i))
+            .cloned()
+            .unwrap_or_else(|| vec![record.tail_current_a / 2.0, record.tail_current_a * 2.0]);
+        let x = Axis::log(&currents, "A");
+        let noise_y = value_axis(
+            record.noise_front.iter().map(|p| 1e9 * p.value),
+            noise_limit(record).map(|l| 1e9 * l),
+        );
+        let distortion_y = distortion.map(|f| {
+            let (scale, _) = distortion_scale(&f.unit);
+            value_axis(
+                f.points.iter().map(|p| scale * p.value),
+                Some(scale * f.limit),
+            )
+        });
+        Some(ParetoPlot {
             stage: stage.to_owned(),
             slug: slug.to_owned(),
             record: record.clone(),
+            x,
+            noise_y,
+            distortion_y,
         })
     }
 }
 
-/// One front panel: `values` against current with the chosen current and the limit marked.
+/// One front panel: `points` (scaled) against current, with the limit and the recommended
+/// current marked.
 #[allow(clippy::too_many_arguments)]
 fn front_panel<DB: DrawingBackend>(
     area: &DrawingArea<DB, Shift>,
+    (x, y): (&Axis, &Axis),
     points: &[FrontRecord],
     scale: f64,
     y_desc: &str,
-    unit: &str,
     limit: Option<f64>,
     chosen_current: f64,
-    currents: (f64, f64),
     colour: RGBColor,
-    name: &str,
 ) -> DrawResult {
-    let values: Vec<(f64, f64)> = points
-        .iter()
-        .map(|p| (p.tail_current_a, p.value * scale))
-        .collect();
-    if values.is_empty() {
-        return Ok(());
-    }
-    let (mut low, mut high) = values
-        .iter()
-        .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), (_, v)| {
-            (lo.min(*v), hi.max(*v))
-        });
-    if let Some(l) = limit {
-        low = low.min(l * scale);
-        high = high.max(l * scale);
-    }
-    let pad = ((high - low) * 0.12).max(0.5);
-    let (y_low, y_high) = (low - pad, high + pad);
-    let (x_low, x_high) = log_span(currents.0, currents.1, 1.1);
     let mut chart =
-        house_chart(area, 24, 96).build_cartesian_2d((x_low..x_high).log_scale(), y_low..y_high)?;
+        house_chart(area, 24, 96).build_cartesian_2d(x.log_range(), y.linear_range())?;
     mesh_style(&mut chart.configure_mesh())
-        .x_desc("tail current (supply current, log)")
+        .x_desc("tail current (log)")
         .y_desc(y_desc)
-        .x_label_formatter(&|v| log_tick(*v, "A"))
-        .y_label_formatter(&|v| num(*v, 1))
+        .x_label_formatter(&|v| x.label(*v))
+        .y_label_formatter(&|v| y.label(*v))
         .draw()?;
     if let Some(l) = limit {
         let l = l * scale;
         chart.draw_series(std::iter::once(PathElement::new(
-            vec![(x_low, l), (x_high, l)],
+            vec![(x.low, l), (x.high, l)],
             FAIL.stroke_width(2),
         )))?;
-        legend_entry(
-            &mut chart,
-            &format!("budget limit {} {unit}", num(l, 1)),
-            pattern(0),
-            FAIL.stroke_width(2),
-            None,
-        )?;
     }
-    let line: Vec<(f64, Option<f64>)> = values.iter().map(|(c, v)| (*c, Some(*v))).collect();
+    let line: Vec<(f64, Option<f64>)> = points
+        .iter()
+        .map(|p| (p.tail_current_a, Some(p.value * scale)))
+        .collect();
     draw_runs(
         &mut chart,
         &line,
-        (y_low, y_high),
+        (y.low, y.high),
         true,
         pattern(0),
         colour.stroke_width(3),
     )?;
-    draw_markers(&mut chart, &line, (y_low, y_high), Marker::Circle, colour)?;
-    legend_entry(
-        &mut chart,
-        &format!("{name}: Pareto front of the grid"),
-        pattern(0),
-        colour.stroke_width(3),
-        Some(Marker::Circle),
-    )?;
+    draw_markers(&mut chart, &line, (y.low, y.high), Marker::Circle, colour)?;
     chart.draw_series(std::iter::once(dashed(
-        vec![(chosen_current, y_low), (chosen_current, y_high)],
+        vec![(chosen_current, y.low), (chosen_current, y.high)],
         pattern(1),
         PASS.stroke_width(3),
     )))?;
-    legend_entry(
-        &mut chart,
-        &format!("recommended I_tail = {}", si(chosen_current, "A")),
-        pattern(1),
-        PASS.stroke_width(3),
-        None,
-    )?;
-    legend(&mut chart, SeriesLabelPosition::UpperRight)?;
     Ok(())
 }
 
@@ -414,62 +470,91 @@ impl Drawing for ParetoPlot {
             self.stage
         )
     }
+    fn key(&self) -> Key {
+        let r = &self.record;
+        let mut key = Key::default();
+        if !r.noise_front.is_empty() {
+            key.entry(
+                Swatch::line(limit_colour("input_noise"), 3, Some(Marker::Circle)),
+                "input noise: least at each current (left)",
+            );
+        }
+        if let Some(front) = r.distortion_front.as_ref().filter(|f| !f.points.is_empty()) {
+            let at = front
+                .at_v
+                .map(|a| format!(" at {}", si_exact(a, "V")))
+                .unwrap_or_default();
+            key.entry(
+                Swatch::line(limit_colour(&front.metric), 3, Some(Marker::Circle)),
+                format!(
+                    "{}{at}: best at each current (right)",
+                    line_label(&front.metric)
+                ),
+            );
+        }
+        key.entry(Swatch::line(FAIL, 2, None), "budget limit");
+        key.entry(
+            Swatch::Line {
+                colour: PASS,
+                alpha: 1.0,
+                width: 3,
+                pattern: pattern(1),
+                marker: None,
+            },
+            "recommended tail current",
+        );
+        key.verdict_heading = "Recommended design".into();
+        key.verdicts = vec![design_row(r)];
+        key
+    }
+    fn axes(&self) -> Vec<Axis> {
+        let mut axes = vec![self.x.clone(), self.noise_y.clone()];
+        axes.extend(self.distortion_y.clone());
+        axes
+    }
 
     fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> DrawResult {
         let r = &self.record;
         let subtitle = format!(
-            "supply current I_tail against input noise and against {}; guard band {} dB",
+            "supply current against input noise and against {}; guard band {} dB",
             r.distortion_front
                 .as_ref()
-                .map(|f| metric_label(&f.metric))
+                .map(|f| line_label(&f.metric))
                 .unwrap_or_else(|| "distortion".into()),
             num(r.guard_band_db, 1)
         );
         let body = frame(root, &self.title(), &subtitle)?;
-        let currents = r
-            .variables
-            .iter()
-            .position(|v| v == "tail_current")
-            .and_then(|i| r.grid.get(i))
-            .and_then(|g| Some((*g.first()?, *g.last()?)))
-            .unwrap_or((r.tail_current_a / 2.0, r.tail_current_a * 2.0));
-        let (width, _) = body.dim_in_pixel();
-        let (left, right) = body.split_horizontally(width / 2);
-        front_panel(
-            &left,
-            &r.noise_front,
-            1e9,
-            "input noise density (nV/√Hz)",
-            "nV/√Hz",
-            r.noise_front
-                .iter()
-                .find_map(|p| p.margin.map(|m| p.value * 10f64.powf(m / 20.0))),
-            r.tail_current_a,
-            currents,
-            limit_colour("input_noise"),
-            "input noise",
-        )?;
-        if let Some(front) = &r.distortion_front {
+        let (plot, side) = split(&body);
+        draw_key(&side, &self.key())?;
+        let (width, _) = plot.dim_in_pixel();
+        let (left, right) = plot.split_horizontally(width / 2);
+        if !r.noise_front.is_empty() {
+            front_panel(
+                &left,
+                (&self.x, &self.noise_y),
+                &r.noise_front,
+                1e9,
+                "input noise density (nV/√Hz)",
+                noise_limit(r),
+                r.tail_current_a,
+                limit_colour("input_noise"),
+            )?;
+        }
+        if let (Some(front), Some(y)) = (&r.distortion_front, &self.distortion_y) {
             let at = front
                 .at_v
-                .map(|a| format!(" at {}", si(a, "V")))
+                .map(|a| format!(" at {}", si_exact(a, "V")))
                 .unwrap_or_default();
-            let (scale, unit) = if front.unit == "V" {
-                (1e3, "mV")
-            } else {
-                (1.0, front.unit.as_str())
-            };
+            let (scale, unit) = distortion_scale(&front.unit);
             front_panel(
                 &right,
+                (&self.x, y),
                 &front.points,
                 scale,
-                &format!("{}{at} ({unit})", metric_label(&front.metric)),
-                unit,
+                &format!("{}{at} ({unit})", line_label(&front.metric)),
                 Some(front.limit),
                 r.tail_current_a,
-                currents,
                 limit_colour(&front.metric),
-                &metric_label(&front.metric),
             )?;
         }
         Ok(())

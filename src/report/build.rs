@@ -3,13 +3,13 @@
 
 use crate::error::Error;
 use crate::measure::small_signal::STEERING_FRACTION;
-use crate::model::budget::{BudgetLine, Limit};
+use crate::model::budget::{BudgetLine, Limit, Metric};
 use crate::model::corner::TYPICAL;
 use crate::model::plan::{Plan, PlanCaution, SizingSettings, SizingVariable};
 use crate::model::stage::Stage;
 use crate::report::text::celsius;
 use crate::report::{
-    quantity_text, AnalysisRecord, BudgetRecord, DesignVerdictRecord, DistortionFrontRecord,
+    dbm, quantity_text, AnalysisRecord, BudgetRecord, DesignVerdictRecord, DistortionFrontRecord,
     FailingCheckRecord, FitRecord, FitSummaryRecord, FrontRecord, Harmonics, InterceptRecord,
     MonteCarloRecord, PointRecord, RecommendedStageRecord, RecommendedVerdictRecord, Region,
     RegionCellRecord, RegionRecord, RegionRowRecord, RegionSpanRecord, Report, ResidualRecord,
@@ -679,7 +679,7 @@ fn case_records(plan: &Plan, case: CaseEvaluation, derived_from: Option<String>)
             iip3_dbv: iip3.map(|v| 20.0 * v.log10()),
             iip3_dbm: match (iip3, plan.reference_impedance) {
                 // Peak differential volts into R: P = V²/(2R).
-                (Some(v), Some(r)) => Some(10.0 * (v * v / (2.0 * r) / 1e-3).log10()),
+                (Some(v), Some(r)) => Some(dbm(v, r)),
                 _ => None,
             },
             iip3_fit_amplitude_v: intercept.map(|i| i.fit_amplitude_v),
@@ -756,6 +756,8 @@ fn case_records(plan: &Plan, case: CaseEvaluation, derived_from: Option<String>)
                 .into(),
                 region: region(&result.region),
                 collector_base_margin_v: result.region.collector_base_margin_v(),
+                limit_dbm: dbm_of(plan, line.metric, line.limit.value()),
+                value_dbm: result.value.and_then(|v| dbm_of(plan, line.metric, v)),
                 margin_at_least: result.margin_at_least,
                 interval: result.interval.map(|(low, high)| [low, high]),
             }
@@ -781,6 +783,16 @@ fn region(check: &RegionCheck) -> Region {
         OperatingRegion::ForwardActive => Region::ForwardActive,
         OperatingRegion::HighInjection => Region::HighInjection,
         OperatingRegion::Saturating => Region::Saturating,
+    }
+}
+
+/// A volt figure of a power-like metric (IIP3, OIP3, P1dB) in dBm, when the plan gives a
+/// reference impedance.
+fn dbm_of(plan: &Plan, metric: Metric, volts: f64) -> Option<f64> {
+    let power_like = matches!(metric, Metric::Iip3 | Metric::Oip3 | Metric::P1db);
+    match plan.reference_impedance {
+        Some(ohms) if power_like && volts > 0.0 && volts.is_finite() => Some(dbm(volts, ohms)),
+        _ => None,
     }
 }
 

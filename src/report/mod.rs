@@ -758,6 +758,18 @@ pub struct BudgetRecord {
     /// For a yield line: the 95 % Wilson score interval of the pass fraction.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub interval: Option<[f64; 2]>,
+    /// The limit in dBm into the plan's reference impedance (IIP3, OIP3 and P1dB lines of a
+    /// plan that gives `reference_impedance`); `limit` stays in volts.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub limit_dbm: Option<f64>,
+    /// The value in dBm into the plan's reference impedance (as `limit_dbm`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub value_dbm: Option<f64>,
+}
+
+/// Peak volts (a sine) into `ohms` as dBm: `P = V²/(2R)` referred to 1 mW.
+pub fn dbm(peak_v: f64, ohms: f64) -> f64 {
+    10.0 * (peak_v * peak_v / (2.0 * ohms) / 1e-3).log10()
 }
 
 /// Sizing result for one stage and temperature.

@@ -11,7 +11,7 @@ use crate::model::plan::Plan;
 use crate::plan::PlanSource;
 use crate::report::build::rejudge;
 use crate::report::Report;
-use crate::study::evaluate::Progress;
+use crate::study::evaluate::{Phase, Progress};
 use crate::study::verdict::Judged;
 use crate::study::workload::{self, Workload};
 use std::path::{Path, PathBuf};
@@ -67,9 +67,38 @@ pub struct RunOutcome {
     pub folder: PathBuf,
 }
 
+/// What a run is doing: the evaluation's own events, then writing the report folder.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum RunProgress {
+    /// An event of the evaluation.
+    Study(Progress),
+    /// Drawing the figures and writing the report folder.
+    Writing,
+}
+
+/// The name of a counted phase, for a progress bar's label.
+pub fn phase_name(phase: Phase) -> &'static str {
+    match phase {
+        Phase::DrivePoints => "drive points",
+        Phase::MonteCarlo => "Monte Carlo runs",
+        Phase::Sizing => "sizing trials",
+    }
+}
+
+/// A run's progress event in words, for a status line.
+pub fn describe_run(progress: RunProgress) -> String {
+    match progress {
+        RunProgress::Study(event) => describe(event),
+        RunProgress::Writing => "drawing figures and writing the report".into(),
+    }
+}
+
 /// A progress event in words, for a status line.
 pub fn describe(progress: Progress) -> String {
     match progress {
+        Progress::Step { phase, done, total } => {
+            format!("{}: {done} of {total}", phase_name(phase))
+        }
         Progress::DrivePoints {
             stages,
             temperatures,
@@ -142,16 +171,36 @@ fn within_work_limit(source: &PlanSource, plan: &Plan, max_work: f64) -> Result<
 }
 
 /// Evaluates a plan and writes its report folder; nothing is written when anything fails.
-pub fn run(options: &RunOptions, progress: &(dyn Fn(&str) + Sync)) -> Result<RunOutcome, Error> {
+/// `progress` hears typed events (the shell words or draws them, see [`describe_run`]).
+pub fn run(
+    options: &RunOptions,
+    progress: &(dyn Fn(RunProgress) + Sync),
+) -> Result<RunOutcome, Error> {
     let plan = check_with_overrides(&options.plan, &options.overrides, options.max_work)?;
     check_output_dir(&options.out)?;
-    let mut report = plan.evaluate_with(&|event| progress(&describe(event)))?;
+    let mut report = plan.evaluate_with(&|event| progress(RunProgress::Study(event)))?;
     if options.as_planned {
         rejudge(&mut report, Judged::AsPlanned);
     }
-    progress("drawing figures and writing the report");
+    progress(RunProgress::Writing);
     let folder = write_report_folder(&options.out, &plan.name, |staging| {
         write_files(&report, options.figures, staging)
     })?;
     Ok(RunOutcome { report, folder })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Counted progress is worded as a fraction, in the shell, never in the study layer.
+    #[test]
+    fn counted_progress_reads_as_a_fraction() {
+        let text = describe(Progress::Step {
+            phase: Phase::Sizing,
+            done: 12,
+            total: 204,
+        });
+        assert_eq!(text, "sizing trials: 12 of 204");
+    }
 }

@@ -16,6 +16,7 @@ use crate::study::region::{self, RegionOutcome, RegionPoint};
 use crate::study::sizing::{self, Recommendation, SizingOutcome};
 use crate::study::verdict::{DesignVerdict, Judged, Verdict};
 use rayon::prelude::*;
+use std::sync::atomic::{AtomicU64, Ordering};
 use std::sync::Arc;
 
 /// What the evaluation is doing, for a progress display.
@@ -48,6 +49,69 @@ pub enum Progress {
     },
     /// Fitting a stage to its bench data.
     Fitting(FitProgress),
+    /// How far a phase has come: `done` of `total` units (cases, runs or sizing trials). A
+    /// sizing's total is an estimate and grows if the refinement takes longer.
+    Step {
+        /// The phase counted.
+        phase: Phase,
+        /// Units finished.
+        done: u64,
+        /// Units in the phase.
+        total: u64,
+    },
+}
+
+/// The phases of an evaluation that report counted progress.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Phase {
+    /// Drive points: one unit per stage × temperature × corner.
+    DrivePoints,
+    /// Monte Carlo: one unit per run.
+    MonteCarlo,
+    /// Sizing: one unit per trial emitter resistance.
+    Sizing,
+}
+
+/// A thread-safe counter that reports each finished unit of a phase.
+struct Counter<'a> {
+    phase: Phase,
+    done: AtomicU64,
+    total: u64,
+    progress: &'a (dyn Fn(Progress) + Sync),
+}
+
+impl<'a> Counter<'a> {
+    fn new(phase: Phase, total: u64, progress: &'a (dyn Fn(Progress) + Sync)) -> Self {
+        progress(Progress::Step {
+            phase,
+            done: 0,
+            total,
+        });
+        Counter {
+            phase,
+            done: AtomicU64::new(0),
+            total,
+            progress,
+        }
+    }
+
+    fn tick(&self) {
+        let done = self.done.fetch_add(1, Ordering::Relaxed) + 1;
+        (self.progress)(Progress::Step {
+            phase: self.phase,
+            done,
+            total: self.total.max(done),
+        });
+    }
+
+    fn finish(&self) {
+        let done = self.done.load(Ordering::Relaxed);
+        (self.progress)(Progress::Step {
+            phase: self.phase,
+            done,
+            total: done,
+        });
+    }
 }
 
 /// Everything a plan's evaluation found.
@@ -115,6 +179,7 @@ fn evaluate_cases(
     plan: &Plan,
     stages: &[(usize, &Stage)],
     cache: &Arc<FftCache>,
+    progress: &(dyn Fn(Progress) + Sync),
 ) -> Result<Vec<CaseEvaluation>, Error> {
     let cases: Vec<(usize, &Stage, f64, usize)> = stages
         .iter()
@@ -124,18 +189,21 @@ fn evaluate_cases(
                 .flat_map(move |t| (0..plan.corners.len()).map(move |k| (index, stage, *t, k)))
         })
         .collect();
+    let counter = Counter::new(Phase::DrivePoints, cases.len() as u64, progress);
     cases
         .par_iter()
         .map(|&(index, stage, temperature, corner)| {
             let process = &plan.corners[corner];
-            evaluate_case(
+            let case = evaluate_case(
                 plan,
                 index,
                 process.apply(stage),
                 temperature,
                 &process.name,
                 cache,
-            )
+            );
+            counter.tick();
+            case
         })
         .collect()
 }
@@ -418,7 +486,7 @@ pub fn evaluate(
         frequencies: plan.drive.frequencies.len(),
         amplitudes: plan.drive.amplitudes.len(),
     });
-    let mut evaluated = evaluate_cases(plan, &planned, &cache)?;
+    let mut evaluated = evaluate_cases(plan, &planned, &cache, progress)?;
 
     let sizing = match &plan.sizing {
         Some(settings) if settings.is_emitter_only() => {
@@ -429,12 +497,26 @@ pub fn evaluate(
                 .enumerate()
                 .flat_map(|(i, _)| plan.temperatures_c.iter().map(move |t| (i, *t)))
                 .collect();
-            stage_temperatures
+            let counter = Counter::new(
+                Phase::Sizing,
+                (stage_temperatures.len() * sizing::EXPECTED_TRIALS) as u64,
+                progress,
+            );
+            let outcomes = stage_temperatures
                 .par_iter()
                 .map(|(index, temperature)| {
-                    sizing::size_stage(plan, &plan.stages[*index], *temperature, settings, &cache)
+                    sizing::size_stage_observed(
+                        plan,
+                        &plan.stages[*index],
+                        *temperature,
+                        settings,
+                        &cache,
+                        &|| counter.tick(),
+                    )
                 })
-                .collect::<Result<Vec<_>, Error>>()?
+                .collect::<Result<Vec<_>, Error>>()?;
+            counter.finish();
+            outcomes
         }
         _ => Vec::new(),
     };
@@ -500,7 +582,7 @@ pub fn evaluate(
             .iter()
             .map(|r| (r.recommendation.stage_index, &r.stage))
             .collect();
-        let mut derived_cases = evaluate_cases(plan, &derived, &cache)?;
+        let mut derived_cases = evaluate_cases(plan, &derived, &cache, progress)?;
         let per_stage = plan.temperatures_c.len() * plan.corners.len();
         for design in recommended.iter_mut().rev() {
             let start = derived_cases.len() - per_stage;
@@ -519,9 +601,17 @@ pub fn evaluate(
                     .iter()
                     .map(|r| (r.recommendation.stage_index, &r.stage)),
             );
-            Some(montecarlo::evaluate_stages(
-                plan, settings, &stages, &cache,
-            )?)
+            let counter = Counter::new(
+                Phase::MonteCarlo,
+                montecarlo::planned_runs(plan, settings, &stages),
+                progress,
+            );
+            let population =
+                montecarlo::evaluate_stages_observed(plan, settings, &stages, &cache, &|| {
+                    counter.tick()
+                })?;
+            counter.finish();
+            Some(population)
         }
         None => None,
     };

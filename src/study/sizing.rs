@@ -536,18 +536,22 @@ struct Search<'a> {
     cache: &'a Arc<FftCache>,
     /// Absolute resolution below which an edge near 0 Ω is not refined further, Ω.
     floor_ohm: f64,
+    /// Told after every trial (a progress count).
+    trial_done: &'a (dyn Fn() + Sync),
 }
 
 impl Search<'_> {
     fn trial(&self, emitter_resistance: f64) -> Result<Trial, Error> {
-        trial(
+        let outcome = trial(
             self.plan,
             self.stage,
             self.temperature_c,
             emitter_resistance,
             self.target_gain,
             self.cache,
-        )
+        );
+        (self.trial_done)();
+        outcome
     }
 
     /// The edge between a value that holds and one that does not (in either order): bisection
@@ -692,6 +696,22 @@ pub fn size_stage(
     settings: &SizingSettings,
     cache: &Arc<FftCache>,
 ) -> Result<SizingOutcome, Error> {
+    size_stage_observed(plan, stage, temperature_c, settings, cache, &|| {})
+}
+
+/// Trials a sizing is expected to take: the scan and about a dozen refinement steps. For a
+/// progress display; the real count may differ.
+pub const EXPECTED_TRIALS: usize = SCAN_POINTS + 12;
+
+/// [`size_stage`], calling `trial_done` after every trial R_E (for a progress count).
+pub fn size_stage_observed(
+    plan: &Plan,
+    stage: &Stage,
+    temperature_c: f64,
+    settings: &SizingSettings,
+    cache: &Arc<FftCache>,
+    trial_done: &(dyn Fn() + Sync),
+) -> Result<SizingOutcome, Error> {
     let (from, to) = settings.emitter_range();
     let target_gain = if settings.hold_gain {
         Some(planned_gain(plan, stage, temperature_c, cache)?)
@@ -705,6 +725,7 @@ pub fn size_stage(
         target_gain,
         cache,
         floor_ohm: 1e-6 * (to - from),
+        trial_done,
     };
     let grid: Vec<f64> = (0..SCAN_POINTS)
         .map(|i| from + (to - from) * i as f64 / (SCAN_POINTS - 1) as f64)
