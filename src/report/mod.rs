@@ -13,6 +13,7 @@ pub mod csv;
 pub mod datasheet;
 pub mod json;
 pub mod queries;
+pub mod sizing_region;
 pub mod summary;
 pub mod table;
 pub mod text;

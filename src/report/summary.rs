@@ -342,7 +342,7 @@ pub fn summary(report: &Report) -> String {
                     markdown_text(&region.binding_metric)
                 );
             }
-            for (text, table) in super::datasheet::region_tables(region) {
+            for (text, table) in super::sizing_region::region_tables(region) {
                 let _ = writeln!(out, "{}\n\n{}", markdown_text(&text), table.to_markdown());
             }
         } else if let Some(value) = value_to_build(report, name) {
