@@ -127,6 +127,14 @@ fn least_current_where_distortion_meets_noise_matches_a_brute_force_grid() {
     let (grid_current, grid_resistance) = budget.least_tail_current(currents, resistances);
     // The grid's least holding current is at most 0.1 % above the true least one.
     let error = design.tail_current_a / grid_current - 1.0;
+    eprintln!(
+        "least current: tool {:.6e} A at {:.2} Ω, grid {:.6e} A at {:.2} Ω ({:+.3} %)",
+        design.tail_current_a,
+        design.emitter_resistance_ohm,
+        grid_current,
+        grid_resistance,
+        100.0 * error
+    );
     assert!(
         error.abs() < 0.01,
         "tool {} A at {} Ω, brute-force grid {} A at {} Ω ({:+.3} %)",
@@ -178,8 +186,16 @@ fn least_current_where_distortion_meets_gain_at_two_temperatures_matches_a_brute
         .evaluate()
         .unwrap();
     let design = &report.verdict.recommended.as_ref().unwrap().stages[0];
-    let (grid_current, _) = budget.least_tail_current(currents, resistances);
+    let (grid_current, grid_resistance) = budget.least_tail_current(currents, resistances);
     let error = design.tail_current_a / grid_current - 1.0;
+    eprintln!(
+        "least current, two temperatures: tool {:.6e} A at {:.2} Ω, grid {:.6e} A at {:.2} Ω ({:+.3} %)",
+        design.tail_current_a,
+        design.emitter_resistance_ohm,
+        grid_current,
+        grid_resistance,
+        100.0 * error
+    );
     assert!(
         error.abs() < 0.01,
         "tool {} A, brute-force grid {} A ({:+.3} %)",
