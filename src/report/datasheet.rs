@@ -421,7 +421,10 @@ pub fn sizing_table(report: &Report) -> Table {
     let mut table = Table::new(columns);
     let ohms = |v: Option<f64>| v.map(|r| si_short(r, "Ω")).unwrap_or_else(|| "—".into());
     for s in &report.sizing {
-        let windows = if s.window_ohm.is_empty() {
+        let in_region = report.sizing_region.iter().any(|r| r.stage == s.stage);
+        let windows = if in_region {
+            "— (see the region)".to_owned()
+        } else if s.window_ohm.is_empty() {
             "none".to_owned()
         } else {
             s.window_ohm
@@ -602,7 +605,7 @@ pub fn blocks(report: &Report, figures: &[EmbeddedFigure]) -> Vec<Block> {
             .map(|s| s.guard_band_db)
             .unwrap_or(0.0);
         out.push(Block::Paragraph(format!(
-            "Per temperature, the least emitter resistance per side that holds every budget line{} (or the best found when none does), and the usable windows: every value inside holds every line.",
+            "Per temperature, the least emitter resistance per side that holds every budget line{} (or the best found when none does), and the usable windows: every value inside holds every line. A stage whose tail current is sized too shows the design of least current instead (its region follows).",
             if guard > 0.0 { format!(" with {guard} dB of guard band") } else { String::new() }
         )));
         out.push(Block::Table(sizing_table(report)));

@@ -16,9 +16,8 @@ fn fixed(value: Option<f64>, decimals: usize) -> String {
 pub fn line_name(metric: Option<&str>) -> String {
     match metric {
         None => "— (range end)".into(),
-        Some("input_noise") => "input noise".into(),
         Some("collector_base_margin") => "collector-base margin".into(),
-        Some(other) => other.to_uppercase(),
+        Some(other) => super::text::metric_label(other),
     }
 }
 
@@ -133,7 +132,11 @@ pub fn region_tables(region: &RegionRecord) -> Vec<(String, Table)> {
             .at_v
             .map(|a| format!(" at {}", si(a, "V")))
             .unwrap_or_default();
-        let heading = format!("{}{at} ({})", front.metric.to_uppercase(), front.unit);
+        let heading = format!(
+            "{}{at} ({})",
+            super::text::metric_label(&front.metric),
+            front.unit
+        );
         let mut table = Table::new([
             ("I_tail", true),
             ("R_E", true),
@@ -156,7 +159,7 @@ pub fn region_tables(region: &RegionRecord) -> Vec<(String, Table)> {
         out.push((
             format!(
                 "Pareto front of supply current against the binding distortion line ({}{at}): at each grid current, the best design meeting every other line.",
-                front.metric.to_uppercase()
+                super::text::metric_label(&front.metric)
             ),
             table,
         ));
