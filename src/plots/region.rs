@@ -18,6 +18,7 @@ fn limit_colour(metric: &str) -> RGBColor {
     match metric {
         "input_noise" => SERIES[2],
         "collector_base_margin" => RGBColor(0x8a, 0x6d, 0x3b),
+        "tail_compliance" => RGBColor(0x6b, 0x6b, 0x6b),
         "none" => MUTED,
         other => metric_colour(other),
     }

@@ -309,6 +309,16 @@ impl Region<'_> {
                 }
             }
         }
+        // A design whose tail source cannot bias it has no margins: its compliance limits it.
+        if let Some((_, &temperature)) = trials
+            .iter()
+            .zip(&self.plan.temperatures_c)
+            .find(|(t, _)| !t.biases)
+        {
+            excess = f64::NEG_INFINITY;
+            limiting = Binding::TailCompliance;
+            limiting_temperature_c = temperature;
+        }
         let holds = trials.iter().all(|t| t.holds(c));
         let input_noise_v_rthz = trials
             .iter()
