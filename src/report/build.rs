@@ -1197,8 +1197,9 @@ fn region_record(plan: &Plan, region: &RegionOutcome) -> RegionRecord {
                     limiting_line,
                     limiting_temperature_c: p.limiting_temperature_c,
                     excess_db: finite(p.excess),
-                    input_noise_v_rthz: p.input_noise_v_rthz,
-                    gain_db: p.trials.first().map_or(f64::NAN, |t| t.gain_db),
+                    input_noise_v_rthz: finite(p.input_noise_v_rthz)
+                        .filter(|_| p.trials.iter().all(|t| t.biases)),
+                    gain_db: p.trials.first().and_then(|t| finite(t.gain_db)),
                 }
             })
             .collect(),

@@ -954,10 +954,11 @@ pub struct RegionCellRecord {
     pub limiting_temperature_c: f64,
     /// Its margin above the guard band, dB (`null`: unbounded).
     pub excess_db: Option<f64>,
-    /// Largest input noise density across temperatures, V/√Hz.
-    pub input_noise_v_rthz: f64,
-    /// Small-signal gain at the first temperature, dB.
-    pub gain_db: f64,
+    /// Largest input noise density across temperatures, V/√Hz (`null`: the design cannot
+    /// bias, so it was not solved).
+    pub input_noise_v_rthz: Option<f64>,
+    /// Small-signal gain at the first temperature, dB (`null`: not solved).
+    pub gain_db: Option<f64>,
 }
 
 /// One value of the minimised variable: where the other may lie.

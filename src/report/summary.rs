@@ -319,7 +319,13 @@ pub fn summary(report: &Report) -> String {
             }
         }
         if let Some(region) = report.sizing_region.iter().find(|r| r.stage == *name) {
-            if let Some(stage) = recommended_stage(report, name) {
+            let planned = report
+                .verdict
+                .recommended
+                .iter()
+                .flat_map(|r| &r.stages)
+                .find(|s| s.stage == *name);
+            if let Some(stage) = planned {
                 let _ = writeln!(
                     out,
                     "\n**{} for {}: I_tail = {}, R_E = {}** — {}; binding: {}.\n",
@@ -339,7 +345,7 @@ pub fn summary(report: &Report) -> String {
                     } else {
                         "no design in the ranges holds every line".to_owned()
                     },
-                    markdown_text(&region.binding_metric)
+                    markdown_text(&metric_label(&region.binding_metric))
                 );
             }
             for (text, table) in super::sizing_region::region_tables(region) {
