@@ -3,7 +3,8 @@
 
 use clap::{CommandFactory, Parser, Subcommand};
 use linbudget::run::{
-    check_with_overrides, describe_run, phase_name, run, RunOptions, RunProgress, DEFAULT_MAX_WORK,
+    check_with_overrides, describe_run, parse_duration, phase_name, run, RunOptions, RunProgress,
+    DEFAULT_MAX_WORK,
 };
 use linbudget::study::evaluate::{Phase, Progress};
 use std::io::IsTerminal;
@@ -57,9 +58,10 @@ enum Command {
         /// No progress lines on standard error.
         #[arg(long, short)]
         quiet: bool,
-        /// Largest estimated work accepted, in sample solves (default 5e9); raise it
-        /// deliberately for a plan that is refused as too large.
-        #[arg(long, value_name = "SOLVES", default_value_t = DEFAULT_MAX_WORK, value_parser = parse_work)]
+        /// Largest estimated run time accepted (default 10min): a duration such as 90s,
+        /// 10min, 1.5h or 2d, or plain seconds; raise it deliberately for a plan refused as
+        /// too long.
+        #[arg(long, value_name = "DURATION", default_value_t = DEFAULT_MAX_WORK, value_parser = parse_duration)]
         max_work: f64,
         /// Write the tables and reports without drawing figures (fast scripted sweeps).
         #[arg(long)]
@@ -78,8 +80,8 @@ enum Command {
     Check {
         /// The plan (YAML).
         plan: PathBuf,
-        /// Largest estimated work accepted, in sample solves (default 5e9).
-        #[arg(long, value_name = "SOLVES", default_value_t = DEFAULT_MAX_WORK, value_parser = parse_work)]
+        /// Largest estimated run time accepted (default 10min), e.g. 90s, 10min, 1.5h.
+        #[arg(long, value_name = "DURATION", default_value_t = DEFAULT_MAX_WORK, value_parser = parse_duration)]
         max_work: f64,
         /// Override one plan value before validation (repeatable), as for `run`.
         #[arg(long = "set", value_name = "KEY.PATH=VALUE")]
@@ -154,16 +156,6 @@ impl StatusLine {
     }
 }
 
-/// A positive, finite work limit such as `1e12`.
-fn parse_work(text: &str) -> Result<f64, String> {
-    match text.parse::<f64>() {
-        Ok(value) if value.is_finite() && value > 0.0 => Ok(value),
-        _ => Err(format!(
-            "`{text}` is not a positive finite number of sample solves, e.g. 1e12"
-        )),
-    }
-}
-
 fn main() -> ExitCode {
     let cli = match Cli::try_parse() {
         Ok(cli) => cli,
@@ -191,11 +183,14 @@ fn main() -> ExitCode {
                 for warning in linbudget::report::build::plan_warnings(&p) {
                     eprintln!("warning: {warning}");
                 }
+                let work = linbudget::study::workload::estimate(&p);
                 eprintln!(
-                    "{}: valid plan `{}` ({} stage(s))",
+                    "{}: valid plan `{}` ({} stage(s)); estimated run time {} ({} of one core)",
                     plan.display(),
                     p.name,
-                    p.stages.len()
+                    p.stages.len(),
+                    linbudget::study::workload::format_duration(work.wall_seconds),
+                    linbudget::study::workload::format_duration(work.cpu_seconds),
                 );
                 ExitCode::SUCCESS
             }

@@ -195,6 +195,48 @@ pub fn parse_quantity(text: &str, unit: Unit) -> Result<f64, String> {
     ))
 }
 
+/// A number for a message: at most six significant digits, trailing zeros dropped, in
+/// scientific notation outside 1e-4…1e6 (`0.05`, `1.23457e-8`, `-1e-300`, `inf`).
+pub fn short_number(value: f64) -> String {
+    if value.is_nan() {
+        return "NaN".into();
+    }
+    if value.is_infinite() {
+        return if value > 0.0 { "inf" } else { "-inf" }.into();
+    }
+    if value == 0.0 {
+        return "0".into();
+    }
+    let trim = |text: String| -> String {
+        if text.contains('.') {
+            text.trim_end_matches('0').trim_end_matches('.').to_owned()
+        } else {
+            text
+        }
+    };
+    let magnitude = value.abs();
+    if (1e-4..1e6).contains(&magnitude) {
+        let whole_digits = magnitude.log10().floor() as i32 + 1;
+        let decimals = (6 - whole_digits).max(0) as usize;
+        let text = trim(format!("{value:.decimals$}"));
+        // Rounding up to 1e6 (999999.7) would show seven digits: fall through to scientific.
+        if text
+            .trim_start_matches('-')
+            .replace('.', "")
+            .trim_start_matches('0')
+            .len()
+            <= 6
+        {
+            return text;
+        }
+    }
+    let text = format!("{value:.5e}");
+    match text.split_once('e') {
+        Some((mantissa, exponent)) => format!("{}e{exponent}", trim(mantissa.to_owned())),
+        None => text,
+    }
+}
+
 /// Formats a value with an SI prefix and unit symbol, three significant figures.
 pub fn format_si(value: f64, unit: &str) -> String {
     if !value.is_finite() {
@@ -338,6 +380,34 @@ mod tests {
     fn thermal_voltage_at_room_temperature() {
         // kT/q at 300.15 K = 25.865 mV (CODATA 2018 constants; common practice "25.9 mV").
         assert!((thermal_voltage(27.0) - 0.025_865).abs() < 2e-6);
+    }
+
+    #[test]
+    fn message_numbers_have_at_most_six_significant_digits() {
+        let cases = [
+            (0.050000000000000044, "0.05"),
+            (-1e-300, "-1e-300"),
+            (f64::from_bits(1e-8f64.to_bits() + 1), "1e-8"),
+            (1.0833495206231025, "1.08335"),
+            (123456789.0, "1.23457e8"),
+            (999999.7, "1e6"),
+            (0.000123456789, "0.000123457"),
+            (2000.0, "2000"),
+            (-273.15, "-273.15"),
+            (0.0, "0"),
+            (f64::INFINITY, "inf"),
+        ];
+        for (value, text) in cases {
+            assert_eq!(short_number(value), text);
+            let digits: String = text
+                .split('e')
+                .next()
+                .unwrap()
+                .chars()
+                .filter(|c| c.is_ascii_digit())
+                .collect();
+            assert!(digits.trim_start_matches('0').len() <= 6, "{text}");
+        }
     }
 
     #[test]

@@ -62,9 +62,16 @@ impl SizingPlot {
         let y = Axis::linear_step(m_low.max(-80.0) - 5.0, m_high.min(80.0) + 5.0, 10.0);
         let (g_low, g_high) = scans
             .clone()
-            .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), s| {
-                (lo.min(s.gain_db), hi.max(s.gain_db))
+            .filter_map(|s| s.gain_db)
+            .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), g| {
+                (lo.min(g), hi.max(g))
             });
+        // Every value unsolved (none biases): a unit span keeps the axis drawable.
+        let (g_low, g_high) = if g_low <= g_high {
+            (g_low, g_high)
+        } else {
+            (0.0, 1.0)
+        };
         let y2 = Axis::linear(g_low - 1.0, g_high + 1.0, 6);
         let x = Axis::linear_exact(r_low, r_high, 6).in_unit("Ω");
         let line_count = scans.map(|s| s.margins.len()).max().unwrap_or(0);
@@ -114,6 +121,21 @@ impl SizingPlot {
     }
 }
 
+impl SizingPlot {
+    /// The least emitter resistance at which the stage cannot bias at some temperature.
+    fn unbiased_from(&self) -> Option<f64> {
+        self.records
+            .iter()
+            .filter_map(|r| {
+                r.scan
+                    .iter()
+                    .find(|s| s.gain_db.is_none() || s.tail_headroom_v.is_some_and(|t| t < 0.0))
+                    .map(|s| s.emitter_resistance_ohm)
+            })
+            .reduce(f64::min)
+    }
+}
+
 impl Drawing for SizingPlot {
     fn kind(&self) -> PlotKind {
         PlotKind::Sizing
@@ -126,7 +148,7 @@ impl Drawing for SizingPlot {
     }
     fn caption(&self) -> String {
         format!(
-            "Margin of each budget line of “{}” on the stage as planned with R_E swept (left axis, dB, positive passes; the worst corner at each value) and small-signal gain (right axis) versus emitter resistance per side; the vertical lines mark each temperature's least value, and the green band the values usable at every temperature.",
+            "Margin of each budget line of “{}” on the stage as planned with R_E swept (left axis, dB, positive passes; the worst corner at each value) and small-signal gain (right axis) versus emitter resistance per side; the vertical lines mark each temperature's least value, the green band the values usable at every temperature, and a grey band the values at which the stage cannot bias (not solved).",
             self.stage
         )
     }
@@ -150,6 +172,18 @@ impl Drawing for SizingPlot {
                     alpha: 0.08,
                 },
                 "R_E usable at every temperature",
+            );
+        }
+        if let Some(from) = self.unbiased_from() {
+            key.entry(
+                Swatch::Band {
+                    colour: INK,
+                    alpha: 0.07,
+                },
+                format!(
+                    "from {}: the stage cannot bias (tail node below the source's compliance); not solved",
+                    si(from, "Ω")
+                ),
             );
         }
         key.entry(
@@ -267,6 +301,14 @@ impl Drawing for SizingPlot {
         chart.draw_series(self.windows.iter().map(|[low, high]| {
             Rectangle::new([(*low, y_low), (*high, y_high)], PASS.mix(0.08).filled())
         }))?;
+        // Values that cannot bias at some temperature (the tail node below the tail source's
+        // compliance) were not solved: shade them; the key says why the curves stop.
+        if let Some(from) = self.unbiased_from() {
+            chart.draw_series(std::iter::once(Rectangle::new(
+                [(from, y_low), (r_high, y_high)],
+                INK.mix(0.07).filled(),
+            )))?;
+        }
 
         for (ti, record) in self.records.iter().enumerate() {
             for k in 0..self.line_count {
@@ -292,7 +334,7 @@ impl Drawing for SizingPlot {
             let gain: Vec<(f64, f64)> = record
                 .scan
                 .iter()
-                .map(|s| (s.emitter_resistance_ohm, s.gain_db))
+                .filter_map(|s| s.gain_db.map(|g| (s.emitter_resistance_ohm, g)))
                 .collect();
             chart.draw_secondary_series(std::iter::once(dashed(
                 gain,

@@ -545,7 +545,7 @@ pub fn blocks(report: &Report, figures: &[EmbeddedFigure]) -> Vec<Block> {
         format!("Drive amplitudes (peak differential, per tone): {}", list_of(&amplitudes, "V")),
         format!("Two-tone test: {}", if two_tone { "yes (IM3 and IIP3 reported)" } else { "no" }),
         format!(
-            "Analysis: THD over harmonics 2–{}; harmonics below {} dBc are reported as below the floor; FFT refined until every figure moves less than {} dB; linbudget {}",
+            "Analysis: THD over harmonics 2–{}; harmonics below {} dBc (−160 dBc for stages with capacitance, higher at drives small enough to meet the solve's precision: each point's floor_dbc) are reported as below the floor; FFT refined until every figure moves less than {} dB; linbudget {}",
             report.analysis.thd_harmonics, report.analysis.analysis_floor_dbc, report.analysis.convergence_db, report.analysis.version
         ),
     ]));

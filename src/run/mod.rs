@@ -18,7 +18,7 @@ use std::path::{Path, PathBuf};
 
 pub use files::write_files;
 pub use folder::{check_output_dir, write_report_folder, Staging};
-pub use workload::DEFAULT_MAX_WORK;
+pub use workload::{parse_duration, DEFAULT_MAX_WORK};
 
 /// Options of `linbudget run`.
 #[derive(Debug, Clone)]
@@ -31,7 +31,7 @@ pub struct RunOptions {
     pub json: bool,
     /// No progress lines on standard error.
     pub quiet: bool,
-    /// Largest estimated work accepted, sample solves.
+    /// Largest estimated wall time accepted, s.
     pub max_work: f64,
     /// Draw the figures (SVG and PNG); false writes the tables and reports only.
     pub figures: bool,
@@ -129,7 +129,8 @@ pub fn check(plan: &Path) -> Result<Plan, Error> {
     check_within(plan, DEFAULT_MAX_WORK)
 }
 
-/// Validates a plan file and refuses it when its estimated work exceeds `max_work`.
+/// Validates a plan file and refuses it when its estimated wall time exceeds `max_work`
+/// seconds.
 pub fn check_within(plan: &Path, max_work: f64) -> Result<Plan, Error> {
     check_with_overrides(plan, &[], max_work)
 }
@@ -147,24 +148,27 @@ pub fn check_with_overrides(
     Ok(validated)
 }
 
-/// Refuses a plan whose estimated work exceeds `max_work` sample solves, pointing at the key
-/// of its largest factor and saying how to raise the limit deliberately.
+/// Refuses a plan whose estimated wall time exceeds `max_work` seconds, pointing at the key
+/// of its largest factor and giving a `--max-work` value that would admit it.
 fn within_work_limit(source: &PlanSource, plan: &Plan, max_work: f64) -> Result<Workload, Error> {
     let work = workload::estimate(plan);
-    if work.sample_solves <= max_work {
+    if work.wall_seconds <= max_work {
         return Ok(work);
     }
     Err(source
         .error_at_key(
             work.dominant_key,
             format!(
-                "the plan asks for about {:.2e} sample solves ({}), above the work limit of {:.2e}",
-                work.sample_solves, work.breakdown, max_work
+                "the plan would take about {} ({} of one core: {}), above the work limit of {}",
+                workload::format_duration(work.wall_seconds),
+                workload::format_duration(work.cpu_seconds),
+                work.breakdown,
+                workload::format_duration(max_work)
             ),
             format!(
                 "a plan within the limit (fewer points or runs), or raise the limit deliberately \
-                 with `--max-work {:.0e}`",
-                work.sample_solves.max(max_work) * 1.01
+                 with `--max-work {}`",
+                workload::suggested_limit(work.wall_seconds)
             ),
         )
         .into())

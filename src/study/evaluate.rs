@@ -4,7 +4,10 @@
 
 use crate::error::Error;
 use crate::measure::budget::judge;
+use crate::model::bias::{bias_problem, temperature_supported, MODEL_TEMPERATURE_RANGE_C};
+use crate::model::circuit::StageCircuit;
 use crate::model::plan::{MonteCarloSettings, Plan, SizingSettings};
+use crate::model::products::{refused_collision, separating_spacing, PeriodTooLong};
 use crate::model::stage::Stage;
 use crate::solve::spectrum::FftCache;
 use crate::solve::spectrum::ANALYSIS_FLOOR_DBC;
@@ -14,6 +17,7 @@ use crate::study::fit::{self, BenchComparison, FitOutcome, FitProgress};
 use crate::study::montecarlo::{self, Population};
 use crate::study::sizing::{self, Recommendation, SizingOutcome};
 use crate::study::verdict::{DesignVerdict, Judged, Verdict};
+use crate::units::short_number;
 use rayon::prelude::*;
 use std::sync::atomic::{AtomicU64, Ordering};
 use std::sync::Arc;
@@ -344,6 +348,82 @@ fn judge_yield(plan: &Plan, cases: &mut [CaseEvaluation], population: Option<&Po
     }
 }
 
+/// Refuses what the plan alone decides cannot be answered (the plan reader refuses the same
+/// with positions; this covers plans built in code): a temperature outside the device
+/// model's range, a stage that cannot bias, a two-tone spacing whose products collide for a
+/// stage with charge storage.
+fn check_physics(plan: &Plan) -> Result<(), Error> {
+    for &temperature in &plan.temperatures_c {
+        if !temperature_supported(temperature) {
+            let (low, high) = MODEL_TEMPERATURE_RANGE_C;
+            return Err(Error::Argument {
+                name: "temperatures_c".into(),
+                problem: format!(
+                    "{} °C is outside the temperatures the device model supports",
+                    short_number(temperature)
+                ),
+                accepted: format!("temperatures from {low} to {high} °C"),
+            });
+        }
+    }
+    for stage in &plan.stages {
+        for corner in &plan.corners {
+            for &temperature in &plan.temperatures_c {
+                if let Some(problem) = bias_problem(&corner.apply(stage), temperature) {
+                    return Err(Error::Argument {
+                        name: format!(
+                            "stage `{}` ({} corner): {}",
+                            stage.name,
+                            corner.name,
+                            problem.key()
+                        ),
+                        problem: format!("the stage cannot bias: {problem}"),
+                        accepted: problem.remedy(),
+                    });
+                }
+            }
+        }
+    }
+    if let Some(spacing) = plan.drive.two_tone_spacing {
+        let stores_charge = plan.stages.iter().any(|stage| {
+            plan.temperatures_c
+                .iter()
+                .any(|&t| !StageCircuit::new(stage, t).is_memoryless())
+        });
+        if stores_charge {
+            for &frequency in &plan.drive.frequencies {
+                let problem = match refused_collision(frequency, spacing) {
+                    Err(PeriodTooLong) => format!(
+                        "the common period of {} Hz and {} Hz is too long to solve",
+                        short_number(frequency),
+                        short_number(frequency + spacing)
+                    ),
+                    Ok(Some(collision)) => format!(
+                        "at {} Hz the product {} falls on {} (order {})",
+                        short_number(frequency),
+                        collision.reported,
+                        collision.other,
+                        collision.other.order()
+                    ),
+                    Ok(None) => continue,
+                };
+                return Err(Error::Argument {
+                    name: "drive.two_tone_spacing".into(),
+                    problem,
+                    accepted: match separating_spacing(frequency, spacing) {
+                        Some(s) => format!(
+                            "a spacing that separates the products, e.g. {} Hz",
+                            short_number(s)
+                        ),
+                        None => "a spacing that divides the frequency".into(),
+                    },
+                });
+            }
+        }
+    }
+    Ok(())
+}
+
 /// Evaluates the plan. `progress` hears what is being done.
 ///
 /// Stages with bench data are fitted first (when the plan asks for a fit); each fitted stage
@@ -353,6 +433,7 @@ pub fn evaluate(
     plan: &Plan,
     progress: &(dyn Fn(Progress) + Sync),
 ) -> Result<PlanEvaluation, Error> {
+    check_physics(plan)?;
     let cache = Arc::new(FftCache::default());
     let fits = fit::fit_all(plan, &cache, &|event| progress(Progress::Fitting(event)))?;
     let mut comparisons = Vec::new();
