@@ -433,7 +433,8 @@ impl StaticSolver {
     /// the tail voltage, so the 3×3 system is solved by eliminating `u_P`, `u_M` (the Schur
     /// complement on the tail row). Steps are cut to 8 in `ln J` and 8 φT in the tail voltage
     /// (junction limiting). Converged when a full step is at most `4ε·max(|x|, 1)` in every
-    /// unknown, the tolerance of the nested solve; `None` when that does not happen within
+    /// unknown, the tolerance of the nested solve, or at most 64 such tolerances without
+    /// halving the step before (the residuals' rounding); `None` when neither happens within
     /// `max_steps` steps or a value is not finite (the caller falls back to the nested solve).
     fn solve_joint(
         &self,
