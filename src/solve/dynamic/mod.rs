@@ -491,12 +491,7 @@ impl ResponseEngine for DynamicEngine {
     fn direct_floor_v(&self) -> Option<f64> {
         let circuit = self.solver.circuit();
         let phi = circuit.thermal_voltage;
-        let side = &circuit.p;
-        let transconductance = 0.5 * circuit.tail_current / phi;
-        let gain = side.load_resistance * transconductance
-            / (1.0
-                + transconductance
-                    * (side.emitter_resistance + side.base_path_resistance * side.beta_inv));
+        let gain = crate::solve::memoryless::estimated_gain(circuit);
         // The fundamental at half this amplitude stands 10⁷ above the waveform's precision.
         let for_precision = 2.0 * 1e7 * output_precision_v(circuit) / gain.max(f64::MIN_POSITIVE);
         Some((1e-3 * phi).max(for_precision).min(0.3 * phi))
