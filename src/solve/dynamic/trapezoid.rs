@@ -423,8 +423,19 @@ pub fn integrate_guided<S: ChargeSystem>(
                 ),
             });
         }
-        // Charges, currents and Jacobian at the accepted point.
-        work.assemble(system, &candidate, time_s, rate, &q, &i);
+        // Charges and currents at the accepted point: the last Newton step moved it by at
+        // most the tolerance, so its charges are the assembled ones plus Qx·Δx (to Δx², the
+        // order of the accepted point's own error) — no second device evaluation. The
+        // charge moved is still exactly what the currents carry (they are defined from it).
+        // The Jacobians kept for the monodromy are those of the last iterate, Δx away.
+        for k in 0..m {
+            let mut charge = work.q[k];
+            for (d, dx) in work.qx[k * n..k * n + n].iter().zip(&work.delta) {
+                charge += d * dx;
+            }
+            work.q[k] = charge;
+            work.current[k] = rate * (charge - q[k]) - i[k];
+        }
         if let Some(r) = record.as_deref_mut() {
             r.charge_jacobians.extend_from_slice(&work.qx);
             r.step_matrices.extend_from_slice(&work.matrix);
