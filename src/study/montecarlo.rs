@@ -59,7 +59,7 @@ pub fn run_rng(seed: u64, stage_index: usize, temperature_index: usize, run: u64
     rng
 }
 
-/// Draws one set of mismatch fractions (always five normals, in a fixed order, so adding a
+/// Draws one set of mismatch fractions (always nine normals, in a fixed order, so adding a
 /// sigma to one parameter does not shift the others' draws).
 pub fn draw_mismatch(rng: &mut ChaCha8Rng, mean: &Mismatch, sigma: &Mismatch) -> Mismatch {
     let mut one = |m: f64, s: f64| -> f64 {
@@ -77,6 +77,18 @@ pub fn draw_mismatch(rng: &mut ChaCha8Rng, mean: &Mismatch, sigma: &Mismatch) ->
         load_resistance: one(mean.load_resistance, sigma.load_resistance),
         base_resistance: one(mean.base_resistance, sigma.base_resistance),
         beta: one(mean.beta, sigma.beta),
+        // Charge-storage fractions come after the first five, so populations drawn before
+        // they existed keep their dies.
+        load_capacitance: one(mean.load_capacitance, sigma.load_capacitance),
+        emitter_junction_capacitance: one(
+            mean.emitter_junction_capacitance,
+            sigma.emitter_junction_capacitance,
+        ),
+        collector_junction_capacitance: one(
+            mean.collector_junction_capacitance,
+            sigma.collector_junction_capacitance,
+        ),
+        transit_time: one(mean.transit_time, sigma.transit_time),
     }
 }
 

@@ -25,6 +25,8 @@
 //! across each load and `Q_T = C_T·V_T`. The depletion charge follows the junction law
 //! `C(V) = C_j0·(1 − V/V_j)^(−m)` below `F_C·V_j` (`F_C` = 0.5) and its tangent line above, so
 //! it stays finite under forward bias; the charge is the exact integral of that capacitance.
+//! The P side's load and junction capacitances and transit time carry the stage's mismatch
+//! (`StageCircuit::p_charge_scale`); the M side's are nominal.
 
 use super::trapezoid::ChargeSystem;
 use crate::model::circuit::{Side, StageCircuit};
@@ -449,9 +451,11 @@ impl PairSystem<'_> {
         let ch = &c.charge;
         let n = self.unknowns;
         jacobian.fill(0.0);
-        for (s, b, e, col, ci, qbe, qbc, ql) in [
+        let matched = crate::model::circuit::ChargeScale::MATCHED;
+        for (s, scale, b, e, col, ci, qbe, qbc, ql) in [
             (
                 &sides[0],
+                &c.p_charge_scale,
                 B_P,
                 E_P,
                 C_P,
@@ -462,6 +466,7 @@ impl PairSystem<'_> {
             ),
             (
                 &sides[1],
+                &matched,
                 B_M,
                 E_M,
                 C_M,
@@ -473,19 +478,20 @@ impl PairSystem<'_> {
         ] {
             let (junction, capacitance) = depletion_charge(
                 x[b] - x[e],
-                ch.emitter_junction_capacitance,
+                ch.emitter_junction_capacitance * scale.emitter_junction_capacitance,
                 ch.emitter_junction_potential,
                 ch.emitter_grading,
             );
-            q[qbe] = ch.transit_time * s.forward_diffusion + junction;
+            let transit_time = ch.transit_time * scale.transit_time;
+            q[qbe] = transit_time * s.forward_diffusion + junction;
             for (k, &node) in [b, e, ci].iter().enumerate() {
-                jacobian[qbe * n + node] += ch.transit_time * s.d_forward_diffusion[k];
+                jacobian[qbe * n + node] += transit_time * s.d_forward_diffusion[k];
             }
             jacobian[qbe * n + b] += capacitance;
             jacobian[qbe * n + e] -= capacitance;
             let (junction, capacitance) = depletion_charge(
                 x[b] - x[ci],
-                ch.collector_junction_capacitance,
+                ch.collector_junction_capacitance * scale.collector_junction_capacitance,
                 ch.collector_junction_potential,
                 ch.collector_grading,
             );
@@ -493,8 +499,9 @@ impl PairSystem<'_> {
             let reverse_diffusion = ch.reverse_transit_time * s.d_reverse_transport;
             jacobian[qbc * n + b] += capacitance + reverse_diffusion;
             jacobian[qbc * n + ci] -= capacitance + reverse_diffusion;
-            q[ql] = c.load_capacitance * (c.supply - x[col]);
-            jacobian[ql * n + col] = -c.load_capacitance;
+            let load_capacitance = c.load_capacitance * scale.load_capacitance;
+            q[ql] = load_capacitance * (c.supply - x[col]);
+            jacobian[ql * n + col] = -load_capacitance;
         }
         q[Q_T] = c.tail_capacitance * x[TAIL];
         jacobian[Q_T * n + TAIL] = c.tail_capacitance;
