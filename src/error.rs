@@ -50,13 +50,36 @@ impl PlanError {
         }
         self.file = file.to_owned();
         if self.line > 0 {
-            self.source_line = source
-                .lines()
-                .nth((self.line - 1) as usize)
-                .map(|line| line.chars().take(200).collect());
+            self.source_line =
+                nth_line(source, self.line).map(|line| line.chars().take(200).collect());
         }
         self
     }
+}
+
+/// The `number`-th line (1-based) of `text`, where CR, LF and CR LF each end a line.
+pub fn nth_line(text: &str, number: u64) -> Option<&str> {
+    if number == 0 {
+        return None;
+    }
+    let mut current = 1u64;
+    let mut start = 0usize;
+    let bytes = text.as_bytes();
+    let mut i = 0;
+    while i < bytes.len() {
+        if bytes[i] == b'\r' || bytes[i] == b'\n' {
+            if current == number {
+                return Some(&text[start..i]);
+            }
+            if bytes[i] == b'\r' && bytes.get(i + 1) == Some(&b'\n') {
+                i += 1;
+            }
+            current += 1;
+            start = i + 1;
+        }
+        i += 1;
+    }
+    (current == number && start <= text.len()).then(|| &text[start..])
 }
 
 impl fmt::Display for PlanError {

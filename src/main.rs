@@ -1,8 +1,12 @@
 //! The `linbudget` command: parse arguments, call the library, map the outcome to an exit status
 //! (0 met, 1 not met, 2 bad input or a failed solve).
 
-use clap::{Parser, Subcommand};
-use linbudget::run::{check_with_overrides, run, RunOptions, DEFAULT_MAX_WORK};
+use clap::{CommandFactory, Parser, Subcommand};
+use linbudget::run::{
+    check_with_overrides, describe_run, parse_duration, phase_name, run, RunOptions, RunProgress,
+    DEFAULT_MAX_WORK,
+};
+use linbudget::study::evaluate::{Phase, Progress};
 use std::io::IsTerminal;
 use std::path::PathBuf;
 use std::process::ExitCode;
@@ -17,6 +21,11 @@ const RUN_EXAMPLES: &str = "Examples:
 Exit status: 0 the plan is met (with sizing: the recommended design meets every line; with
 --as-planned: the stages as written do), 1 not met, 2 bad input or a failed solve (nothing
 written).";
+
+const COMPLETIONS_EXAMPLES: &str = "Examples:
+  linbudget completions bash > ~/.local/share/bash-completion/completions/linbudget
+  linbudget completions zsh > ~/.zfunc/_linbudget      # with fpath+=~/.zfunc in ~/.zshrc
+  linbudget completions fish > ~/.config/fish/completions/linbudget.fish";
 
 const CHECK_EXAMPLES: &str = "Examples:
   linbudget check specs/sensor-front-end.yaml
@@ -49,9 +58,10 @@ enum Command {
         /// No progress lines on standard error.
         #[arg(long, short)]
         quiet: bool,
-        /// Largest estimated work accepted, in sample solves (default 5e9); raise it
-        /// deliberately for a plan that is refused as too large.
-        #[arg(long, value_name = "SOLVES", default_value_t = DEFAULT_MAX_WORK, value_parser = parse_work)]
+        /// Largest estimated run time accepted (default 10min): a duration such as 90s,
+        /// 10min, 1.5h or 2d, or plain seconds; raise it deliberately for a plan refused as
+        /// too long.
+        #[arg(long, value_name = "DURATION", default_value_t = DEFAULT_MAX_WORK, value_parser = parse_duration)]
         max_work: f64,
         /// Write the tables and reports without drawing figures (fast scripted sweeps).
         #[arg(long)]
@@ -70,22 +80,79 @@ enum Command {
     Check {
         /// The plan (YAML).
         plan: PathBuf,
-        /// Largest estimated work accepted, in sample solves (default 5e9).
-        #[arg(long, value_name = "SOLVES", default_value_t = DEFAULT_MAX_WORK, value_parser = parse_work)]
+        /// Largest estimated run time accepted (default 10min), e.g. 90s, 10min, 1.5h.
+        #[arg(long, value_name = "DURATION", default_value_t = DEFAULT_MAX_WORK, value_parser = parse_duration)]
         max_work: f64,
         /// Override one plan value before validation (repeatable), as for `run`.
         #[arg(long = "set", value_name = "KEY.PATH=VALUE")]
         set: Vec<String>,
     },
+    /// Print a completion script for a shell on standard output.
+    #[command(after_help = COMPLETIONS_EXAMPLES)]
+    Completions {
+        /// The shell: bash, elvish, fish, powershell or zsh.
+        shell: clap_complete::Shell,
+    },
 }
 
-/// A positive, finite work limit such as `1e12`.
-fn parse_work(text: &str) -> Result<f64, String> {
-    match text.parse::<f64>() {
-        Ok(value) if value.is_finite() && value > 0.0 => Ok(value),
-        _ => Err(format!(
-            "`{text}` is not a positive finite number of sample solves, e.g. 1e12"
-        )),
+/// The status line on standard error: a spinner with what is being done, and for a counted
+/// phase a bar with the fraction done and an estimate of the time left.
+struct StatusLine {
+    bar: indicatif::ProgressBar,
+    phase: std::sync::Mutex<Option<Phase>>,
+}
+
+impl StatusLine {
+    fn new(visible: bool) -> Self {
+        let bar = if visible {
+            let bar = indicatif::ProgressBar::with_draw_target(
+                None,
+                indicatif::ProgressDrawTarget::stderr(),
+            );
+            bar.set_style(Self::spinner_style());
+            bar.enable_steady_tick(std::time::Duration::from_millis(120));
+            bar
+        } else {
+            indicatif::ProgressBar::hidden()
+        };
+        StatusLine {
+            bar,
+            phase: std::sync::Mutex::new(None),
+        }
+    }
+
+    fn spinner_style() -> indicatif::ProgressStyle {
+        indicatif::ProgressStyle::with_template("{spinner} {elapsed:>3} {wide_msg}")
+            .unwrap_or_else(|_| indicatif::ProgressStyle::default_spinner())
+    }
+
+    fn bar_style() -> indicatif::ProgressStyle {
+        indicatif::ProgressStyle::with_template(
+            "{spinner} {elapsed:>3} {msg:<17} [{bar:28}] {pos}/{len} ({percent} %) · about {eta} left",
+        )
+        .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar())
+        .progress_chars("=> ")
+    }
+
+    fn show(&self, event: RunProgress) {
+        let mut current = self.phase.lock().unwrap_or_else(|p| p.into_inner());
+        match event {
+            RunProgress::Study(Progress::Step { phase, done, total }) => {
+                if *current != Some(phase) {
+                    *current = Some(phase);
+                    self.bar.reset();
+                    self.bar.set_style(Self::bar_style());
+                    self.bar.set_message(phase_name(phase));
+                }
+                self.bar.set_length(total);
+                self.bar.set_position(done);
+            }
+            other => {
+                *current = None;
+                self.bar.set_style(Self::spinner_style());
+                self.bar.set_message(describe_run(other));
+            }
+        }
     }
 }
 
@@ -102,6 +169,11 @@ fn main() -> ExitCode {
         }
     };
     match cli.command {
+        Command::Completions { shell } => {
+            let mut command = Cli::command();
+            clap_complete::generate(shell, &mut command, "linbudget", &mut std::io::stdout());
+            ExitCode::SUCCESS
+        }
         Command::Check {
             plan,
             max_work,
@@ -111,11 +183,14 @@ fn main() -> ExitCode {
                 for warning in linbudget::report::build::plan_warnings(&p) {
                     eprintln!("warning: {warning}");
                 }
+                let work = linbudget::study::workload::estimate(&p);
                 eprintln!(
-                    "{}: valid plan `{}` ({} stage(s))",
+                    "{}: valid plan `{}` ({} stage(s)); estimated run time {} ({} of one core)",
                     plan.display(),
                     p.name,
-                    p.stages.len()
+                    p.stages.len(),
+                    linbudget::study::workload::format_duration(work.wall_seconds),
+                    linbudget::study::workload::format_duration(work.cpu_seconds),
                 );
                 ExitCode::SUCCESS
             }
@@ -144,27 +219,11 @@ fn main() -> ExitCode {
                 as_planned,
                 overrides: set,
             };
-            // A spinner on standard error, only on a terminal and never with --quiet; standard
+            // Progress on standard error, only on a terminal and never with --quiet; standard
             // output stays reserved for --json.
-            let show_progress = !quiet && std::io::stderr().is_terminal();
-            let spinner = if show_progress {
-                let bar = indicatif::ProgressBar::with_draw_target(
-                    None,
-                    indicatif::ProgressDrawTarget::stderr(),
-                );
-                if let Ok(style) =
-                    indicatif::ProgressStyle::with_template("{spinner} {elapsed:>3} {wide_msg}")
-                {
-                    bar.set_style(style);
-                }
-                bar.enable_steady_tick(std::time::Duration::from_millis(120));
-                bar
-            } else {
-                indicatif::ProgressBar::hidden()
-            };
-            let progress = |line: &str| spinner.set_message(line.to_owned());
-            let outcome = run(&options, &progress);
-            spinner.finish_and_clear();
+            let status = StatusLine::new(!quiet && std::io::stderr().is_terminal());
+            let outcome = run(&options, &|event| status.show(event));
+            status.bar.finish_and_clear();
             match outcome {
                 Ok(outcome) => {
                     for warning in &outcome.report.warnings {

@@ -195,6 +195,48 @@ pub fn parse_quantity(text: &str, unit: Unit) -> Result<f64, String> {
     ))
 }
 
+/// A number for a message: at most six significant digits, trailing zeros dropped, in
+/// scientific notation outside 1e-4…1e6 (`0.05`, `1.23457e-8`, `-1e-300`, `inf`).
+pub fn short_number(value: f64) -> String {
+    if value.is_nan() {
+        return "NaN".into();
+    }
+    if value.is_infinite() {
+        return if value > 0.0 { "inf" } else { "-inf" }.into();
+    }
+    if value == 0.0 {
+        return "0".into();
+    }
+    let trim = |text: String| -> String {
+        if text.contains('.') {
+            text.trim_end_matches('0').trim_end_matches('.').to_owned()
+        } else {
+            text
+        }
+    };
+    let magnitude = value.abs();
+    if (1e-4..1e6).contains(&magnitude) {
+        let whole_digits = magnitude.log10().floor() as i32 + 1;
+        let decimals = (6 - whole_digits).max(0) as usize;
+        let text = trim(format!("{value:.decimals$}"));
+        // Rounding up to 1e6 (999999.7) would show seven digits: fall through to scientific.
+        if text
+            .trim_start_matches('-')
+            .replace('.', "")
+            .trim_start_matches('0')
+            .len()
+            <= 6
+        {
+            return text;
+        }
+    }
+    let text = format!("{value:.5e}");
+    match text.split_once('e') {
+        Some((mantissa, exponent)) => format!("{}e{exponent}", trim(mantissa.to_owned())),
+        None => text,
+    }
+}
+
 /// Formats a value with an SI prefix and unit symbol, three significant figures.
 pub fn format_si(value: f64, unit: &str) -> String {
     if !value.is_finite() {
@@ -233,9 +275,63 @@ pub fn format_si(value: f64, unit: &str) -> String {
     format!("{scaled:.digits$} {prefix}{unit}")
 }
 
+/// Formats a value with an SI prefix and unit symbol, up to `significant` significant figures
+/// with trailing zeros dropped: `1 MHz`, `2.2 kΩ`, `455 kHz`. For values a person wrote (plan
+/// settings), where "1.00 MHz" would suggest a precision nobody stated.
+pub fn format_si_trimmed(value: f64, unit: &str, significant: usize) -> String {
+    if !value.is_finite() || value == 0.0 {
+        return format_si(value, unit);
+    }
+    let prefixes = [
+        (1e12, "T"),
+        (1e9, "G"),
+        (1e6, "M"),
+        (1e3, "k"),
+        (1.0, ""),
+        (1e-3, "m"),
+        (1e-6, "µ"),
+        (1e-9, "n"),
+        (1e-12, "p"),
+        (1e-15, "f"),
+        (1e-18, "a"),
+    ];
+    let significant = significant.max(1) as i32;
+    // Round to the significant figures first, so 999.96 becomes 1 k rather than 1000.
+    let exponent = value.abs().log10().floor() as i32;
+    let quantum = 10f64.powi(exponent - significant + 1);
+    let rounded = (value / quantum).round() * quantum;
+    let magnitude = rounded.abs();
+    let (scale, prefix) = prefixes
+        .iter()
+        .copied()
+        .find(|(scale, _)| magnitude >= *scale * (1.0 - 1e-12))
+        .unwrap_or((1e-18, "a"));
+    let scaled = rounded / scale;
+    let integer_digits = (scaled.abs().log10().floor() as i32 + 1).max(1);
+    let decimals = (significant - integer_digits).max(0) as usize;
+    let mut text = format!("{scaled:.decimals$}");
+    if text.contains('.') {
+        text = text.trim_end_matches('0').trim_end_matches('.').to_owned();
+    }
+    format!("{text} {prefix}{unit}")
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn trimmed_formatting_drops_zeros_nobody_wrote() {
+        assert_eq!(format_si_trimmed(1e6, "Hz", 4), "1 MHz");
+        assert_eq!(format_si_trimmed(10e3, "Ω", 4), "10 kΩ");
+        assert_eq!(format_si_trimmed(2200.0, "Ω", 4), "2.2 kΩ");
+        assert_eq!(format_si_trimmed(455e3, "Hz", 4), "455 kHz");
+        assert_eq!(format_si_trimmed(0.02, "V", 4), "20 mV");
+        assert_eq!(format_si_trimmed(0.0020409, "V", 4), "2.041 mV");
+        assert_eq!(format_si_trimmed(999.96, "Hz", 4), "1 kHz");
+        assert_eq!(format_si_trimmed(-0.5e-3, "V", 3), "-500 µV");
+        assert_eq!(format_si_trimmed(12e-9, "V/√Hz", 3), "12 nV/√Hz");
+    }
 
     #[test]
     fn reads_prefixes_and_units() {
@@ -284,6 +380,34 @@ mod tests {
     fn thermal_voltage_at_room_temperature() {
         // kT/q at 300.15 K = 25.865 mV (CODATA 2018 constants; common practice "25.9 mV").
         assert!((thermal_voltage(27.0) - 0.025_865).abs() < 2e-6);
+    }
+
+    #[test]
+    fn message_numbers_have_at_most_six_significant_digits() {
+        let cases = [
+            (0.050000000000000044, "0.05"),
+            (-1e-300, "-1e-300"),
+            (f64::from_bits(1e-8f64.to_bits() + 1), "1e-8"),
+            (1.0833495206231025, "1.08335"),
+            (123456789.0, "1.23457e8"),
+            (999999.7, "1e6"),
+            (0.000123456789, "0.000123457"),
+            (2000.0, "2000"),
+            (-273.15, "-273.15"),
+            (0.0, "0"),
+            (f64::INFINITY, "inf"),
+        ];
+        for (value, text) in cases {
+            assert_eq!(short_number(value), text);
+            let digits: String = text
+                .split('e')
+                .next()
+                .unwrap()
+                .chars()
+                .filter(|c| c.is_ascii_digit())
+                .collect();
+            assert!(digits.trim_start_matches('0').len() <= 6, "{text}");
+        }
     }
 
     #[test]

@@ -157,7 +157,7 @@ sizing:
     assert!(!svgs.contains("two-tone-pair") && !svgs.contains("sizing-pair-sized"));
     let markdown = fs::read_to_string(folder.join("report.md")).unwrap();
     let sizing = &report.sizing[0];
-    let chosen = format!("{:.1}", sizing.emitter_resistance_ohm.unwrap());
+    let chosen = linbudget::report::text::si_short(sizing.emitter_resistance_ohm.unwrap(), "Ω");
     assert!(markdown.contains("## Degeneration sizing"));
     assert!(
         markdown
@@ -331,7 +331,7 @@ fn markdown_datasheet_and_budget_tables_match_the_json() {
             .filter_map(|p| p.harmonic(3))
             .collect();
         let cells = row_cells(sheet, "third harmonic", "dBc");
-        assert_eq!(cells[2], "v_d = 100 mV peak, f = 1.00 kHz");
+        assert_eq!(cells[2], "v_d = 100 mV peak, f = 1 kHz");
         assert_eq!(
             cells[3],
             format!("{:.2}", hd3.iter().copied().fold(f64::INFINITY, f64::min))
@@ -371,7 +371,7 @@ fn markdown_datasheet_and_budget_tables_match_the_json() {
     let header = budget.lines().find(|l| l.starts_with("| stage")).unwrap();
     assert_eq!(
         header,
-        "| stage | T (°C) | metric | at | limit | value | margin (dB) | verdict | operating region |"
+        "| stage | T (°C) | metric | at | f | limit | value | margin (dB) | verdict | operating region |"
     );
     let rows: Vec<Vec<&str>> = budget
         .lines()
@@ -381,9 +381,9 @@ fn markdown_datasheet_and_budget_tables_match_the_json() {
     assert_eq!(rows.len(), report.budget.len());
     for (row, line) in rows.iter().zip(&report.budget) {
         assert_eq!(row[0], line.stage);
-        assert_eq!(row[2], line.metric.to_uppercase());
-        assert_eq!(row[6], format!("{:.2}", line.margin.unwrap()));
-        assert_eq!(row[7], if line.pass { "pass" } else { "**FAIL**" });
+        assert_eq!(row[2], linbudget::report::text::metric_label(&line.metric));
+        assert_eq!(row[7], format!("{:.2}", line.margin.unwrap()));
+        assert_eq!(row[8], if line.pass { "pass" } else { "**FAIL**" });
     }
     let passed = report.budget.iter().filter(|b| b.pass).count();
     assert!(budget.contains(&format!("{passed} of {} checks pass", report.budget.len())));

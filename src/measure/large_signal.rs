@@ -3,7 +3,6 @@
 
 use crate::error::SolveFailure;
 use crate::solve::response::{RegionCheck, ResponseEngine, TwoToneResult};
-use crate::solve::spectrum::ANALYSIS_FLOOR_DBC;
 
 /// The input 1 dB compression point and the operating region there.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -152,14 +151,15 @@ pub fn third_order_intercept(
     let mut upper = engine.two_tone(amplitude, frequency_hz, spacing_hz)?;
     for _ in 0..30 {
         let lower = engine.two_tone(0.5 * amplitude, frequency_hz, spacing_hz)?;
-        if lower.im3_dbc().is_nan() || lower.im3_dbc() <= ANALYSIS_FLOOR_DBC {
+        if lower.im3_resolved_dbc().is_none() {
             return Ok(None);
         }
         let (e_upper, e_lower) = (effective(&upper), effective(&lower));
         let slope = 20.0 * (upper.im3_v / lower.im3_v).log10() / (20.0 * 2f64.log10());
         if (20.0 * (e_upper / e_lower).log10()).abs() < 0.01 {
-            let iip2 = (lower.im2_dbc() > ANALYSIS_FLOOR_DBC)
-                .then(|| lower.amplitude_v * 10f64.powf(-lower.im2_dbc() / 20.0));
+            let iip2 = lower
+                .im2_resolved_dbc()
+                .map(|im2| lower.amplitude_v * 10f64.powf(-im2 / 20.0));
             return Ok(Some(Intercept {
                 iip3_v: e_lower,
                 fit_amplitude_v: lower.amplitude_v,

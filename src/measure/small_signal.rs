@@ -29,7 +29,7 @@ pub fn steering_points(solver: &StaticSolver) -> Result<(f64, f64), SolveFailure
     let solve_for = |target: f64, start: f64| -> Result<f64, SolveFailure> {
         let fraction = |v: f64| solver.solve_cold(v).map(|p| p.p_fraction() - target);
         let wrap = |e: crate::solve::roots::RootFailure| SolveFailure {
-            point: format!("steering fraction {target}"),
+            point: format!("steering fraction {}", crate::units::short_number(target)),
             reason: e.reason,
         };
         let (low, high) = bracket_increasing(

@@ -3,9 +3,11 @@
 
 use crate::error::{Error, SolveFailure};
 use crate::measure::stage::{DriveSettings, StageMeasurements};
+use crate::model::bias::{bias_problem, temperature_supported, MODEL_TEMPERATURE_RANGE_C};
 use crate::model::stage::Stage;
 use crate::solve::response::{ToneResult, TwoToneResult};
-use crate::solve::spectrum::{FftCache, ANALYSIS_FLOOR_DBC};
+use crate::solve::spectrum::FftCache;
+use crate::units::short_number;
 use std::sync::Arc;
 
 impl Stage {
@@ -27,11 +29,22 @@ impl Stage {
     /// ```
     pub fn at(&self, temperature_c: f64) -> Result<SolvedStage, Error> {
         self.check()?;
-        if !(temperature_c.is_finite() && temperature_c > -273.15) {
+        if !(temperature_c.is_finite() && temperature_supported(temperature_c)) {
+            let (low, high) = MODEL_TEMPERATURE_RANGE_C;
             return Err(Error::Argument {
                 name: "temperature_c".into(),
-                problem: format!("{temperature_c} °C is not a temperature"),
-                accepted: "a finite temperature above −273.15 °C".into(),
+                problem: format!(
+                    "{} °C is outside the temperatures the device model supports",
+                    short_number(temperature_c)
+                ),
+                accepted: format!("a temperature from {low} to {high} °C"),
+            });
+        }
+        if let Some(problem) = bias_problem(self, temperature_c) {
+            return Err(Error::Argument {
+                name: format!("stage `{}`: {}", self.name, problem.key()),
+                problem: format!("the stage cannot bias: {problem}"),
+                accepted: problem.remedy(),
             });
         }
         let measurements = StageMeasurements::of_stage(
@@ -136,7 +149,7 @@ impl Stage {
     fn invalid(&self, name: &str, value: f64, accepted: &str) -> Error {
         Error::Argument {
             name: format!("stage `{}`: {name}", self.name),
-            problem: format!("{value:e} is out of range"),
+            problem: format!("{} is out of range", short_number(value)),
             accepted: accepted.into(),
         }
     }
@@ -214,14 +227,14 @@ impl SolvedStage {
         if !(amplitude_v.is_finite() && amplitude_v > 0.0) {
             return Err(Error::Argument {
                 name: "amplitude_v".into(),
-                problem: format!("{amplitude_v:e} V is not a drive amplitude"),
+                problem: format!("{} V is not a drive amplitude", short_number(amplitude_v)),
                 accepted: "a peak differential amplitude greater than zero and finite, V".into(),
             });
         }
         if !(frequency_hz.is_finite() && frequency_hz > 0.0) {
             return Err(Error::Argument {
                 name: "frequency_hz".into(),
-                problem: format!("{frequency_hz:e} Hz is not a frequency"),
+                problem: format!("{} Hz is not a frequency", short_number(frequency_hz)),
                 accepted: "a frequency greater than zero and finite, Hz".into(),
             });
         }
@@ -403,14 +416,12 @@ impl TwoTone {
     /// The larger third-order product (2f1 − f2 or 2f2 − f1) relative to one tone's output
     /// fundamental, dBc; `None` below the analysis floor.
     pub fn im3_dbc(&self) -> Option<f64> {
-        let im3 = self.result.im3_dbc();
-        (im3 >= ANALYSIS_FLOOR_DBC).then_some(im3)
+        self.result.im3_resolved_dbc()
     }
 
     /// The larger second-order product (f2 − f1 or f1 + f2), dBc; `None` below the floor.
     pub fn im2_dbc(&self) -> Option<f64> {
-        let im2 = self.result.im2_dbc();
-        (im2 >= ANALYSIS_FLOOR_DBC).then_some(im2)
+        self.result.im2_resolved_dbc()
     }
 
     /// The engine's raw result.

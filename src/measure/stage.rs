@@ -13,7 +13,7 @@ use crate::model::drive::{Drive, DEFAULT_THD_HARMONICS};
 use crate::model::stage::Stage;
 use crate::solve::engine::engine_for;
 use crate::solve::response::{RegionCheck, ResponseEngine};
-use crate::solve::spectrum::{FftCache, ANALYSIS_FLOOR_DBC};
+use crate::solve::spectrum::FftCache;
 use crate::solve::transfer::junctions_reverse_biased;
 use std::collections::HashMap;
 use std::sync::{Arc, Mutex, OnceLock};
@@ -331,8 +331,7 @@ impl StageMeasurements {
                     frequency,
                     self.settings.spacing_at(frequency),
                 )?;
-                let im3 = result.im3_dbc();
-                ((im3 >= ANALYSIS_FLOOR_DBC).then_some(im3), result.region)
+                (result.im3_resolved_dbc(), result.region)
             }
             Metric::Iip3 | Metric::Oip3 => {
                 let scale = if line.metric == Metric::Oip3 {

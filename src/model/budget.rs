@@ -57,6 +57,7 @@ impl Metric {
     /// assert_eq!(Metric::from_name("hd3"), Some(Metric::Harmonic(3)));
     /// assert_eq!(Metric::from_name("iip3"), Some(Metric::Iip3));
     /// assert_eq!(Metric::from_name("hd1"), None);
+    /// assert_eq!(Metric::from_name("hd+3"), None);
     /// ```
     pub fn from_name(text: &str) -> Option<Metric> {
         Some(match text {
@@ -71,7 +72,15 @@ impl Metric {
             "collector_base_margin" => Metric::CollectorBaseMargin,
             "yield" => Metric::Yield,
             other => {
-                let order: usize = other.strip_prefix("hd")?.parse().ok()?;
+                // Digits only: `parse` alone would also take `hd+3`.
+                let digits = other.strip_prefix("hd")?;
+                if digits.is_empty()
+                    || digits.starts_with('0')
+                    || !digits.bytes().all(|b| b.is_ascii_digit())
+                {
+                    return None;
+                }
+                let order: usize = digits.parse().ok()?;
                 if order < 2 {
                     return None;
                 }

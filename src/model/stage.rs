@@ -4,6 +4,10 @@
 use super::tail::TailCurrentLaw;
 use super::transistor::Transistor;
 
+/// Least voltage across the tail current source when a stage gives no `tail_compliance`, V:
+/// the collector-emitter saturation voltage of a bipolar current source (common practice).
+pub const DEFAULT_TAIL_COMPLIANCE_V: f64 = 0.2;
+
 /// Supply used when a stage gives none, V.
 pub const DEFAULT_SUPPLY_V: f64 = 5.0;
 
@@ -47,6 +51,9 @@ pub struct Stage {
     pub supply: Option<f64>,
     /// Input common-mode voltage, V (`None`: half the supply).
     pub input_common_mode: Option<f64>,
+    /// Least voltage the tail current source needs across it, V (`None`:
+    /// [`DEFAULT_TAIL_COMPLIANCE_V`]); the tail node must sit above it.
+    pub tail_compliance: Option<f64>,
     /// Transistor parameters (both sides).
     pub transistor: Transistor,
     /// Fractional excess of the P side over the M side (P = M·(1+δ)).
@@ -73,6 +80,7 @@ impl Stage {
             tail_capacitance: 0.0,
             supply: None,
             input_common_mode: None,
+            tail_compliance: None,
             transistor: Transistor::default(),
             mismatch: Mismatch::default(),
             mismatch_sigma: Mismatch::default(),
@@ -88,6 +96,11 @@ impl Stage {
     /// The input common mode in use, V.
     pub fn input_common_mode_v(&self) -> f64 {
         self.input_common_mode.unwrap_or(0.5 * self.supply_v())
+    }
+
+    /// The tail source's compliance in use, V.
+    pub fn tail_compliance_v(&self) -> f64 {
+        self.tail_compliance.unwrap_or(DEFAULT_TAIL_COMPLIANCE_V)
     }
 
     /// Whether the supply or the input common mode is left to its default.
@@ -113,6 +126,13 @@ impl Stage {
     #[must_use]
     pub fn input_common_mode(mut self, volts: f64) -> Self {
         self.input_common_mode = Some(volts);
+        self
+    }
+
+    /// Sets the least voltage the tail current source needs across it, V.
+    #[must_use]
+    pub fn tail_compliance(mut self, volts: f64) -> Self {
+        self.tail_compliance = Some(volts);
         self
     }
 

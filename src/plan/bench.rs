@@ -332,7 +332,7 @@ pub fn read_bench_csv(text: &str, corners: &[Corner]) -> Result<Vec<BenchPoint>,
                     if !range.accepts(value) {
                         return Err(fail(
                             format!("{cell} is out of range"),
-                            format!("{} {}", unit.describe(), range.phrase(unit)),
+                            super::reader::accepted_phrase(unit, range),
                         ));
                     }
                     match column {

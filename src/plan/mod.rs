@@ -6,27 +6,27 @@
 //!    path, what is wrong and what is accepted.
 
 pub(crate) mod bench;
+pub(crate) mod input;
 pub(crate) mod overrides;
 pub(crate) mod reader;
 pub(crate) mod tree;
 
 mod corners;
+mod physics;
 mod plausibility;
 mod tail;
 
 use crate::error::{Error, PlanError};
+use crate::model::bias::{temperature_supported, MODEL_TEMPERATURE_RANGE_C};
 use crate::model::budget::{BudgetLine, Limit, Metric, METRIC_NAMES};
 use crate::model::drive::{Drive, DEFAULT_THD_HARMONICS};
 use crate::model::plan::{MonteCarloSettings, NoiseBand, Plan, SizingSettings};
 use crate::model::stage::{Mismatch, Stage};
 use crate::model::transistor::Transistor;
-use crate::units::Unit;
+use crate::units::{short_number, Unit};
 use overrides::{override_location, parse_override, Override};
 use reader::{At, MapAt, Range};
 use std::path::Path;
-
-/// Largest plan file read, bytes (a plan is a page of text, not a data set).
-pub const MAX_PLAN_BYTES: u64 = 4 * 1024 * 1024;
 
 const TOP_KEYS: &[&str] = &[
     "name",
@@ -53,6 +53,7 @@ const STAGE_KEYS: &[&str] = &[
     "tail_capacitance",
     "supply",
     "input_common_mode",
+    "tail_compliance",
     "transistor",
     "mismatch",
     "mismatch_sigma",
@@ -103,9 +104,6 @@ const SWEEP_KEYS: &[&str] = &["from", "to", "points", "spacing"];
 const BUDGET_KEYS: &[&str] = &["metric", "at", "frequency", "max", "min"];
 const SIZING_KEYS: &[&str] = &["emitter_resistance", "hold_gain", "guard_band_db"];
 
-/// Temperatures a plan may name, °C: refused outside (−273 °C is a kelvin above absolute zero;
-/// above 500 °C no silicon junction is a transistor any more).
-pub const TEMPERATURE_RANGE_C: (f64, f64) = (-273.0, 500.0);
 /// Tail currents a plan may name, A: refused outside (no single bipolar pair runs amperes, and
 /// below a picoampere the junction leakage the model leaves out dominates).
 pub const TAIL_CURRENT_RANGE_A: (f64, f64) = (1e-12, 1.0);
@@ -130,28 +128,11 @@ pub struct PlanSource {
 }
 
 impl PlanSource {
-    /// Reads a plan file of at most [`MAX_PLAN_BYTES`].
+    /// Reads a plan file of at most [`input::MAX_PLAN_BYTES`] (a bounded read from a regular file
+    /// only; see [`input`]).
     pub fn read(path: &Path) -> Result<PlanSource, Error> {
         let shown = path.display().to_string();
-        let meta = std::fs::metadata(path).map_err(|source| Error::ReadPlan {
-            path: path.to_owned(),
-            source,
-        })?;
-        if meta.len() > MAX_PLAN_BYTES {
-            return Err(PlanError::at(
-                0,
-                0,
-                "",
-                format!("the plan file is {} bytes", meta.len()),
-                format!("a plan of at most {MAX_PLAN_BYTES} bytes"),
-            )
-            .in_file(&shown, "")
-            .into());
-        }
-        let text = std::fs::read_to_string(path).map_err(|source| Error::ReadPlan {
-            path: path.to_owned(),
-            source,
-        })?;
+        let text = input::read_plan_text(path, &shown)?;
         Ok(PlanSource::from_text(text, shown))
     }
 
@@ -317,12 +298,7 @@ impl Plan {
                 check_list_len(&at, items.len(), "temperature")?;
                 items
                     .iter()
-                    .map(|item| {
-                        item.quantity_where(
-                            Unit::Celsius,
-                            Range::Within(TEMPERATURE_RANGE_C.0, TEMPERATURE_RANGE_C.1),
-                        )
-                    })
+                    .map(read_temperature)
                     .collect::<Result<Vec<_>, _>>()?
             }
             None => vec![27.0],
@@ -355,11 +331,22 @@ impl Plan {
             .get("monte_carlo")
             .map(|at| read_monte_carlo(&at))
             .transpose()?;
+        let reference_impedance = top
+            .get("reference_impedance")
+            .map(|at| at.quantity_where(Unit::Ohm, Range::Positive))
+            .transpose()?;
         let budget = match top.get("budget") {
             Some(at) => at
                 .seq("budget lines")?
                 .iter()
-                .map(|line| read_budget_line(line, &drive, top.get("monte_carlo").is_some()))
+                .map(|line| {
+                    read_budget_line(
+                        line,
+                        &drive,
+                        top.get("monte_carlo").is_some(),
+                        reference_impedance,
+                    )
+                })
                 .collect::<Result<Vec<_>, _>>()?,
             None => Vec::new(),
         };
@@ -383,10 +370,6 @@ impl Plan {
                 }
                 Ok(NoiseBand { from, to })
             })
-            .transpose()?;
-        let reference_impedance = top
-            .get("reference_impedance")
-            .map(|at| at.quantity_where(Unit::Ohm, Range::Positive))
             .transpose()?;
 
         let corners = corners::read_corners(top.get("corners").as_ref())?;
@@ -415,7 +398,7 @@ impl Plan {
             .map(|at| bench::read_fit(&at, &measurements, &stages))
             .transpose()?;
 
-        Ok(Plan {
+        let plan = Plan {
             measurements,
             fit,
             cautions,
@@ -429,8 +412,34 @@ impl Plan {
             sizing,
             noise_band,
             reference_impedance,
-        })
+        };
+        physics::check_bias(&stage_items, STAGE_KEYS, &plan, &plan.corners)?;
+        let drive_map = top
+            .required("drive", "a mapping with amplitudes and frequencies")?
+            .map(DRIVE_KEYS)?;
+        physics::check_two_tone(drive_map.get("two_tone_spacing").as_ref(), &plan)?;
+        Ok(plan)
     }
+}
+
+/// A temperature the device model supports, °C (see [`MODEL_TEMPERATURE_RANGE_C`]).
+fn read_temperature(at: &At) -> Result<f64, PlanError> {
+    let value = at.quantity_where(Unit::Celsius, Range::Finite)?;
+    if temperature_supported(value) {
+        return Ok(value);
+    }
+    let (low, high) = MODEL_TEMPERATURE_RANGE_C;
+    Err(at.error(
+        format!(
+            "{} °C is outside the temperatures the device model supports",
+            short_number(value)
+        ),
+        format!(
+            "a temperature from {} to {} °C: below, carriers freeze out and the exponential junction law and the band-gap law of the saturation current no longer hold (near −255 °C the saturation current is no longer a number a solver can use); above, silicon turns intrinsic",
+            short_number(low),
+            short_number(high)
+        ),
+    ))
 }
 
 /// Refuses a tail-current law that would turn the tail current off at a plan temperature.
@@ -452,7 +461,11 @@ fn check_tail_laws(
                     .get("tail_current_law")
                     .unwrap_or_else(|| item.clone());
                 return Err(at.error(
-                    format!("the tail current would be {current:e} A at {t} °C"),
+                    format!(
+                        "the tail current would be {} A at {} °C",
+                        short_number(current),
+                        short_number(t)
+                    ),
                     "a temperature coefficient that keeps the tail current positive at every plan temperature",
                 ));
             }
@@ -535,9 +548,13 @@ fn read_stage(at: &At) -> Result<Stage, PlanError> {
             .get("input_common_mode")
             .map(|at| at.quantity_where(Unit::Volt, Range::Finite))
             .transpose()?,
+        tail_compliance: map
+            .get("tail_compliance")
+            .map(|at| at.quantity_where(Unit::Volt, Range::NonNegative))
+            .transpose()?,
         transistor,
         mismatch: read_mismatch(&map, "mismatch", Range::Between(-0.9, 9.0))?,
-        mismatch_sigma: read_mismatch(&map, "mismatch_sigma", Range::Between(-1e-300, 0.5))?,
+        mismatch_sigma: read_mismatch(&map, "mismatch_sigma", Range::FromUpTo(0.0, 0.5))?,
         tail_current_law: map
             .get("tail_current_law")
             .map(|law| tail::read_tail_law(&law))
@@ -612,12 +629,10 @@ fn read_transistor(at: &At) -> Result<Transistor, PlanError> {
             Range::Between(0.0, 0.9),
             d.collector_grading,
         )?,
-        nominal_temperature_c: map.quantity_or(
-            "nominal_temperature_c",
-            Unit::Celsius,
-            Range::Within(TEMPERATURE_RANGE_C.0, TEMPERATURE_RANGE_C.1),
-            d.nominal_temperature_c,
-        )?,
+        nominal_temperature_c: match map.get("nominal_temperature_c") {
+            Some(at) => read_temperature(&at)?,
+            None => d.nominal_temperature_c,
+        },
         bandgap_ev: map.quantity_or(
             "bandgap_ev",
             Unit::ElectronVolt,
@@ -820,7 +835,30 @@ fn read_monte_carlo(at: &At) -> Result<MonteCarloSettings, PlanError> {
     })
 }
 
-fn read_budget_line(at: &At, drive: &Drive, monte_carlo: bool) -> Result<BudgetLine, PlanError> {
+/// The number of a limit written in dBm (`"-10 dBm"`), if it is written so.
+fn dbm_number(at: &At) -> Option<Result<f64, PlanError>> {
+    let text = at.text("").ok()?.trim();
+    let number = text.strip_suffix("dBm")?.trim();
+    Some(
+        number
+            .parse::<f64>()
+            .ok()
+            .filter(|v| v.is_finite())
+            .ok_or_else(|| {
+                at.error(
+                    format!("\"{text}\" is not a level in dBm"),
+                    "a number followed by dBm, e.g. \"-10 dBm\"",
+                )
+            }),
+    )
+}
+
+fn read_budget_line(
+    at: &At,
+    drive: &Drive,
+    monte_carlo: bool,
+    reference_impedance: Option<f64>,
+) -> Result<BudgetLine, PlanError> {
     let map = at.map(BUDGET_KEYS)?;
     let metric_at = map.required("metric", METRIC_NAMES)?;
     let metric_name = metric_at.text(METRIC_NAMES)?;
@@ -877,6 +915,22 @@ fn read_budget_line(at: &At, drive: &Drive, monte_carlo: bool) -> Result<BudgetL
         let Some(limit_at) = map.get(key) else {
             return Ok(None);
         };
+        if let Some(dbm) = dbm_number(&limit_at) {
+            let dbm = dbm?;
+            let power_like = matches!(metric, Metric::Iip3 | Metric::Oip3 | Metric::P1db);
+            return match (power_like, reference_impedance) {
+                // P = V²/(2R) of a sine of peak V into R, referred to 1 mW.
+                (true, Some(ohms)) => Ok(Some((2.0 * ohms * 1e-3 * 10f64.powf(dbm / 10.0)).sqrt())),
+                (true, None) => Err(limit_at.error(
+                    "a limit in dBm needs the plan's `reference_impedance`",
+                    "reference_impedance: 50 (ohms) at the top of the plan, or the limit in volts, e.g. 300 mV",
+                )),
+                (false, _) => Err(limit_at.error(
+                    format!("{} is not a power: dBm does not apply", metric.name()),
+                    "dBm limits on iip3, oip3 and p1db lines only",
+                )),
+            };
+        }
         let value = if metric == Metric::Yield {
             if key == "max" {
                 return Err(limit_at.error(
@@ -909,10 +963,11 @@ fn read_budget_line(at: &At, drive: &Drive, monte_carlo: bool) -> Result<BudgetL
             if value > 0.0 {
                 return Err(limit_at.error(
                     format!(
-                        "a limit of {value} dBc would allow {} above the fundamental itself; dBc counts down from the fundamental",
+                        "a limit of {} dBc would allow {} above the fundamental itself; dBc counts down from the fundamental",
+                        short_number(value),
                         metric.name()
                     ),
-                    "a negative dBc figure, e.g. max: -60 (60 dB below the fundamental)",
+                    "a negative dBc figure (decibels below the fundamental), e.g. -60",
                 ));
             }
             value
@@ -1045,6 +1100,40 @@ mod tests {
             "name: p\nstages:\n  - {{name: a, tail_current: 1 mA, load_resistance: 2k, {keys}}}\ndrive: {{amplitudes: [1 mV]}}\n"
         );
         read(&text).stages.remove(0)
+    }
+
+    /// A limit in dBm is read into peak volts with P = V²/(2R): 10 dBm into 50 Ω is 1 V
+    /// peak (common practice); without `reference_impedance`, or on a dB metric, it is refused.
+    #[test]
+    fn dbm_limits_need_a_reference_impedance() {
+        let with = |top: &str, line: &str| {
+            format!("{MINIMAL}{top}budget:\n  - {line}\n").replace(
+                "drive: {amplitudes: [100 mV]}",
+                "drive: {amplitudes: [100 mV], two_tone_spacing: 1 kHz}",
+            )
+        };
+        let plan = read(&with(
+            "reference_impedance: 50\n",
+            "{metric: iip3, min: \"10 dBm\"}",
+        ));
+        match plan.budget[0].limit {
+            Limit::Min(v) => assert!((v - 1.0).abs() < 1e-12, "{v}"),
+            other => panic!("{other:?}"),
+        }
+        let error = Plan::from_yaml(&with("", "{metric: iip3, min: \"10 dBm\"}"), "p.yaml")
+            .unwrap_err()
+            .to_string();
+        assert!(error.contains("reference_impedance"), "{error}");
+        let error = Plan::from_yaml(
+            &with(
+                "reference_impedance: 50\n",
+                "{metric: hd3, max: \"-10 dBm\"}",
+            ),
+            "p.yaml",
+        )
+        .unwrap_err()
+        .to_string();
+        assert!(error.contains("dBm does not apply"), "{error}");
     }
 
     #[test]

@@ -2,7 +2,7 @@
 
 use super::tree::{Node, NodeValue};
 use crate::error::PlanError;
-use crate::units::{parse_quantity, Unit};
+use crate::units::{parse_quantity, short_number, Unit};
 
 /// Where a node sits in the plan: its key path plus position, for error messages.
 #[derive(Debug, Clone)]
@@ -132,7 +132,12 @@ impl<'a> At<'a> {
 
     /// A finite quantity satisfying `check`, which names the accepted range.
     pub fn quantity_where(&self, unit: Unit, range: Range) -> Result<f64, PlanError> {
-        let value = self.quantity(unit)?;
+        // Whatever is wrong (not a number, NaN, out of range), the examples offered are ones
+        // the key accepts.
+        let value = self.quantity(unit).map_err(|mut err| {
+            err.accepted = accepted_phrase(unit, range);
+            err
+        })?;
         range.check(value).map_err(|why| {
             self.error(
                 format!("{} {}", describe_value(value, unit), why),
@@ -152,13 +157,27 @@ impl<'a> At<'a> {
 
     /// Reads a whole number within `min..=max`.
     pub fn count(&self, min: u64, max: u64) -> Result<u64, PlanError> {
-        let accepted = format!("a whole number from {min} to {max}");
+        let accepted = format!(
+            "a whole number from {} to {}",
+            whole_number(min),
+            whole_number(max)
+        );
         match &self.node.value {
             NodeValue::Integer(i) if *i >= min as i128 && *i <= max as i128 => Ok(*i as u64),
-            NodeValue::Integer(i) => Err(self.error(format!("{i} is out of range"), accepted)),
+            NodeValue::Integer(i) => Err(self.error(
+                format!("{} is out of range", short_number(*i as f64)),
+                accepted,
+            )),
             NodeValue::Float(f) if f.fract() == 0.0 && *f >= min as f64 && *f <= max as f64 => {
                 Ok(*f as u64)
             }
+            NodeValue::Float(f) if f.is_finite() && f.fract() == 0.0 => {
+                Err(self.error(format!("{} is out of range", short_number(*f)), accepted))
+            }
+            NodeValue::Float(f) if f.is_finite() => Err(self.error(
+                format!("{} is not a whole number", short_number(*f)),
+                accepted,
+            )),
             other => Err(self.error(
                 format!("expected a whole number, found {}", other.kind()),
                 accepted,
@@ -179,20 +198,34 @@ impl<'a> At<'a> {
 }
 
 /// "a resistance in ohms greater than zero and finite, e.g. 2000, "2k"…": the range sits
-/// between the kind of quantity and its examples.
-fn accepted_phrase(unit: Unit, range: Range) -> String {
+/// between the kind of quantity and its examples, and only examples inside the range are
+/// shown (one is made up from the range when none of the unit's own fits).
+pub fn accepted_phrase(unit: Unit, range: Range) -> String {
     let description = unit.describe();
-    match description.split_once(", e.g.") {
-        Some((kind, examples)) => format!("{kind} {}, e.g.{examples}", range.phrase(unit)),
-        None => format!("{description} {}", range.phrase(unit)),
-    }
+    let (kind, examples) = description
+        .split_once(", e.g. ")
+        .unwrap_or((description, ""));
+    let fitting: Vec<&str> = examples
+        .split(", ")
+        .filter(|example| {
+            let text = example.trim_matches('"');
+            !text.is_empty()
+                && parse_quantity(text, unit).is_ok_and(|value| range.check(value).is_ok())
+        })
+        .collect();
+    let examples = if fitting.is_empty() {
+        range.example()
+    } else {
+        fitting.join(", ")
+    };
+    format!("{kind} {}, e.g. {examples}", range.phrase(unit))
 }
 
 fn describe_value(value: f64, unit: Unit) -> String {
     if unit.symbol().is_empty() {
-        format!("{value}")
+        short_number(value)
     } else {
-        format!("{value} {}", unit.symbol())
+        format!("{} {}", short_number(value), unit.symbol())
     }
 }
 
@@ -209,6 +242,8 @@ pub enum Range {
     Finite,
     /// Finite, strictly between the bounds.
     Between(f64, f64),
+    /// Finite, at least the first bound and below the second.
+    FromUpTo(f64, f64),
     /// Finite, from the first bound to the second, both included (bounds shown with SI
     /// prefixes in the unit of the key).
     Within(f64, f64),
@@ -220,13 +255,15 @@ impl Range {
         self.check(value).is_ok()
     }
 
-    fn check(self, value: f64) -> Result<(), &'static str> {
+    /// Whether `value` is inside, or why not.
+    pub fn check(self, value: f64) -> Result<(), &'static str> {
         let ok = match self {
             Range::Positive => value.is_finite() && value > 0.0,
             Range::PositiveOrInfinite => value > 0.0,
             Range::NonNegative => value.is_finite() && value >= 0.0,
             Range::Finite => value.is_finite(),
             Range::Between(low, high) => value.is_finite() && value > low && value < high,
+            Range::FromUpTo(low, high) => value.is_finite() && value >= low && value < high,
             Range::Within(low, high) => value.is_finite() && value >= low && value <= high,
         };
         if ok {
@@ -238,7 +275,8 @@ impl Range {
         }
     }
 
-    pub(crate) fn phrase(self, unit: Unit) -> String {
+    /// The range in words, numbers with at most six significant digits.
+    pub fn phrase(self, unit: Unit) -> String {
         match self {
             Range::Within(low, high) => format!(
                 "from {} to {}",
@@ -249,8 +287,39 @@ impl Range {
             Range::PositiveOrInfinite => "greater than zero (.inf means ideal)".into(),
             Range::NonNegative => "zero or more, finite".into(),
             Range::Finite => "finite".into(),
-            Range::Between(low, high) => format!("strictly between {low} and {high}"),
+            Range::Between(low, high) => format!(
+                "strictly between {} and {}",
+                short_number(low),
+                short_number(high)
+            ),
+            Range::FromUpTo(low, high) => format!(
+                "from {} up to (not including) {}",
+                short_number(low),
+                short_number(high)
+            ),
         }
+    }
+
+    /// A plain number inside the range, for an example when none of the unit's fits.
+    fn example(self) -> String {
+        let inside = |value: f64| self.check(value).is_ok();
+        let value = match self {
+            Range::Positive | Range::PositiveOrInfinite => 1.0,
+            Range::NonNegative | Range::Finite => 0.0,
+            Range::FromUpTo(low, _) => low,
+            Range::Between(low, high) | Range::Within(low, high) => {
+                let middle = 0.5 * (low + high);
+                // The middle rounded to one, then two, … significant digits, while inside.
+                (0..6)
+                    .map(|digits| {
+                        let scale = 10f64.powi(middle.abs().log10().floor() as i32 - digits);
+                        (middle / scale).round() * scale
+                    })
+                    .find(|candidate| inside(*candidate))
+                    .unwrap_or(middle)
+            }
+        };
+        short_number(value)
     }
 }
 
@@ -307,8 +376,17 @@ impl<'a> MapAt<'a> {
 
     /// A required quantity.
     pub fn quantity(&self, key: &str, unit: Unit, range: Range) -> Result<f64, PlanError> {
-        self.required(key, unit.describe())?
+        self.required(key, &accepted_phrase(unit, range))?
             .quantity_where(unit, range)
+    }
+}
+
+/// A whole number for a message: exact up to six digits, else six significant digits.
+fn whole_number(value: u64) -> String {
+    if value < 1_000_000 {
+        value.to_string()
+    } else {
+        short_number(value as f64)
     }
 }
 

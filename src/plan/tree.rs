@@ -128,34 +128,117 @@ impl<'de> Deserialize<'de> for NodeValue {
     }
 }
 
-/// Parses YAML text into a positioned tree. Errors carry the parser's line and column.
+/// Parses YAML text into a positioned tree. Errors carry the parser's line and column and
+/// are worded for a plan's author (see [`plain_words`]).
 pub fn parse_tree(text: &str) -> Result<Node, (String, u64, u64)> {
     // Non-finite floats pass through so `.inf` can mean "ideal" and `.nan` is rejected by
-    // validation with its key path; the default alias and nesting budgets stay in force.
+    // validation with its key path; repeated keys pass through so validation names them with
+    // their key path; the default alias and nesting budgets stay in force.
     let mut options = serde_saphyr::Options::default();
     options.non_finite_float_policy = serde_saphyr::NonFiniteFloatPolicy::PassThrough;
+    options.duplicate_keys = serde_saphyr::DuplicateKeyPolicy::PassThrough;
     serde_saphyr::from_str_with_options::<Node>(text, options).map_err(|err| {
         let (line, column) = err
             .location()
             .map(|loc| (loc.line(), loc.column()))
             .unwrap_or((0, 0));
-        let raw = err.without_snippet().to_string();
-        // The parser's resource budgets speak in its own terms; say what they mean for a plan.
-        let message = if raw.contains("budget breached") {
-            let detail = raw
-                .split("budget breached:")
-                .nth(1)
-                .unwrap_or("")
-                .trim()
-                .replace(['{', '}'], "")
-                .to_lowercase();
-            format!(
-                "the document is larger or more deeply nested than any plan needs (parser limit reached: {})",
-                detail.split_whitespace().collect::<Vec<_>>().join(" ")
-            )
-        } else {
-            raw
-        };
-        (message, line, column)
+        (
+            plain_words(&err.without_snippet().to_string()),
+            line,
+            column,
+        )
     })
+}
+
+/// The parser's message in the plan's words: its own position suffix dropped (the plan error
+/// carries line and column), and messages that speak of the parser's API, options or Rust
+/// types replaced by what they mean for a plan.
+pub fn plain_words(raw: &str) -> String {
+    let raw = strip_position(raw.trim());
+    if raw.contains("budget breached") {
+        let detail = raw
+            .split("budget breached:")
+            .nth(1)
+            .unwrap_or("")
+            .trim()
+            .replace(['{', '}'], "")
+            .to_lowercase();
+        return format!(
+            "the document is larger or more deeply nested than any plan needs (parser limit reached: {})",
+            detail.split_whitespace().collect::<Vec<_>>().join(" ")
+        );
+    }
+    if raw.contains("multiple YAML documents") {
+        return "the file holds more than one YAML document (a second `---` starts another); a plan is one document".into();
+    }
+    if let Some(rest) = raw.strip_prefix("duplicate mapping key:") {
+        let key = rest.split(',').next().unwrap_or("").trim();
+        return format!("the key `{key}` is given twice in the same mapping");
+    }
+    if let Some(kind) = raw.strip_prefix("invalid ") {
+        let kind = kind.trim();
+        let integer = [
+            "u8", "u16", "u32", "u64", "u128", "i8", "i16", "i32", "i64", "i128",
+        ];
+        if integer.contains(&kind) {
+            return "a value tagged as a whole number (`!!int`) is not a whole number in range"
+                .into();
+        }
+        if kind == "f32" || kind == "f64" || kind.starts_with("floating") {
+            return "a value tagged as a number (`!!float`) is not a number".into();
+        }
+        if kind == "bool" || kind == "boolean" {
+            return "a value tagged as a boolean (`!!bool`) is not true or false".into();
+        }
+    }
+    // Anything else that names the parser's options or calls is internal: say it plainly.
+    if raw.contains("Options") || raw.contains("from_str") || raw.contains("Policy") {
+        return "the YAML uses a construct plans do not accept".into();
+    }
+    raw.to_owned()
+}
+
+/// `message at line 3, column 7` → `message`.
+fn strip_position(message: &str) -> &str {
+    if let Some(index) = message.rfind(" at line ") {
+        let tail = &message[index + " at line ".len()..];
+        let is_position = tail
+            .chars()
+            .all(|c| c.is_ascii_digit() || c == ',' || c == ' ' || c.is_ascii_alphabetic());
+        if is_position && tail.contains("column") {
+            return &message[..index];
+        }
+    }
+    message
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn error_of(text: &str) -> String {
+        parse_tree(text).unwrap_err().0
+    }
+
+    #[test]
+    fn parser_internals_are_worded_for_the_plan() {
+        let multiple = error_of("name: a\n---\nname: b\n");
+        assert!(
+            multiple.contains("more than one YAML document"),
+            "{multiple}"
+        );
+        let tagged = error_of("runs: !!int -5x\n");
+        for internal in ["u64", "i64", "Options", "from_str", "Policy", " at line "] {
+            assert!(
+                !multiple.contains(internal) && !tagged.contains(internal),
+                "{multiple} / {tagged}"
+            );
+        }
+        // Repeated keys reach validation, which names them with their key path.
+        let tree = parse_tree("name: a\nname: b\n").unwrap();
+        let NodeValue::Map(entries) = tree.value else {
+            panic!("a mapping")
+        };
+        assert_eq!(entries.len(), 2);
+    }
 }

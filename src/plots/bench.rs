@@ -2,10 +2,10 @@
 //! residual records) as open markers over the model's lines, with legend entries naming the
 //! lines "model" and the markers "bench".
 
-use super::style::*;
-use super::DrawResult;
+use crate::plots::canvas::DrawResult;
+use crate::plots::key::{open_marker, Key, Swatch};
+use crate::plots::style::*;
 use crate::report::{Report, ResidualRecord};
-use plotters::coord::types::RangedCoordf64;
 use plotters::prelude::*;
 
 /// One measured value to draw.
@@ -54,42 +54,15 @@ pub(crate) fn bench_marks(report: &Report, stage: Option<&str>) -> Vec<BenchMark
         .collect()
 }
 
-/// The open marker of the `index`-th temperature: ring, square, triangle, diamond outlines.
-fn outline(index: usize, centre: (i32, i32), colour: RGBColor) -> PathElement<(i32, i32)> {
-    let (x, y) = centre;
-    let points: Vec<(i32, i32)> = match index % 4 {
-        0 => (0..=20)
-            .map(|k| {
-                let a = k as f64 * std::f64::consts::TAU / 20.0;
-                (
-                    x + (9.0 * a.cos()).round() as i32,
-                    y + (9.0 * a.sin()).round() as i32,
-                )
-            })
-            .collect(),
-        1 => vec![
-            (x - 8, y - 8),
-            (x + 8, y - 8),
-            (x + 8, y + 8),
-            (x - 8, y + 8),
-            (x - 8, y - 8),
-        ],
-        2 => vec![(x, y - 10), (x + 9, y + 7), (x - 9, y + 7), (x, y - 10)],
-        _ => vec![
-            (x, y - 10),
-            (x + 10, y),
-            (x, y + 10),
-            (x - 10, y),
-            (x, y - 10),
-        ],
-    };
-    PathElement::new(points, colour.stroke_width(3))
-}
-
 /// Draws bench values as open markers (the shape names the temperature, the colour the
 /// metric), each on a white ring so it stands off the model's line beneath.
-pub(crate) fn draw_bench<'a, DB: DrawingBackend + 'a, X: Ranged<ValueType = f64>>(
-    chart: &mut ChartContext<'a, DB, Cartesian2d<X, RangedCoordf64>>,
+pub(crate) fn draw_bench<
+    'a,
+    DB: DrawingBackend + 'a,
+    X: Ranged<ValueType = f64>,
+    Y: Ranged<ValueType = f64>,
+>(
+    chart: &mut ChartContext<'a, DB, Cartesian2d<X, Y>>,
     points: &[(f64, f64)],
     y_range: (f64, f64),
     temperature_index: usize,
@@ -105,42 +78,33 @@ pub(crate) fn draw_bench<'a, DB: DrawingBackend + 'a, X: Ranged<ValueType = f64>
             .map(move |&coord| {
                 EmptyElement::at(coord)
                     + Circle::new((0, 0), 11, PAPER.mix(0.7).filled())
-                    + outline(temperature_index, (0, 0), colour)
+                    + open_marker(temperature_index, (0, 0), colour)
             }),
     )?;
     Ok(())
 }
 
-/// Legend entries for the overlay: "model" (a line) and "bench" (an open marker; with
-/// several temperatures, one entry per temperature's shape).
-pub(crate) fn bench_legend<'a, DB: DrawingBackend + 'a, X: Ranged<ValueType = f64>>(
-    chart: &mut ChartContext<'a, DB, Cartesian2d<X, RangedCoordf64>>,
-    temps: &[f64],
-) -> DrawResult {
-    let entries: Vec<(String, usize)> = if temps.len() > 1 {
-        temps
-            .iter()
-            .enumerate()
-            .map(|(i, t)| (format!("bench, {}", celsius(*t)), i))
-            .collect()
+/// Key entries for the overlay: "model" (a line) and "bench" (an open marker; with several
+/// temperatures, one entry per temperature's shape).
+pub(crate) fn bench_key(key: &mut Key, temps: &[f64]) {
+    key.entry(Swatch::line(INK, 3, None), "model (lines)");
+    if temps.len() > 1 {
+        for (i, t) in temps.iter().enumerate() {
+            key.entry(
+                Swatch::Open {
+                    index: i,
+                    colour: INK,
+                },
+                format!("bench, {}", celsius(*t)),
+            );
+        }
     } else {
-        vec![("bench".to_owned(), 0)]
-    };
-    legend_entry(chart, "model", pattern(0), INK.stroke_width(3), None)?;
-    bench_entries(chart, &entries)
-}
-
-/// Legend entries of open markers: `(label, shape index)`.
-pub(crate) fn bench_entries<'a, DB: DrawingBackend + 'a, X: Ranged<ValueType = f64>>(
-    chart: &mut ChartContext<'a, DB, Cartesian2d<X, RangedCoordf64>>,
-    entries: &[(String, usize)],
-) -> DrawResult {
-    for (label, index) in entries {
-        let index = *index;
-        chart
-            .draw_series(std::iter::empty::<Circle<(f64, f64), i32>>())?
-            .label(label.clone())
-            .legend(move |(x, y)| outline(index, (x + 14, y), INK));
+        key.entry(
+            Swatch::Open {
+                index: 0,
+                colour: INK,
+            },
+            "bench",
+        );
     }
-    Ok(())
 }

@@ -1,7 +1,9 @@
 //! Stage comparison: the stages of the plan overlaid at the typical temperature, transfer
 //! curves on the left, HD3 and THD versus amplitude on the right.
 
-use super::bench::{bench_entries, bench_marks, draw_bench, same, BenchMark};
+use super::axis::{nice_step, Axis};
+use super::bench::{bench_marks, draw_bench, same, BenchMark};
+use super::key::{draw_key, split, Key, Swatch};
 use super::style::*;
 use super::{DrawResult, Drawing, PlotKind};
 use crate::report::{PointRecord, Report, StageRecord};
@@ -14,8 +16,13 @@ pub struct ComparisonPlot {
     stages: Vec<String>,
     transfers: Vec<StageRecord>,
     points: Vec<PointRecord>,
-    /// Bench HD3 and THD of the measured stages at this temperature and frequency.
+    corners: bool,
+    /// Bench HD3 and THD of the plan's stages at the drawn temperature and frequency.
     bench: Vec<BenchMark>,
+    x_left: Axis,
+    y_left: Axis,
+    x_right: Axis,
+    y_right: Axis,
 }
 
 impl ComparisonPlot {
@@ -27,19 +34,29 @@ impl ComparisonPlot {
         }
         let temperature_c = typical_temperature(&temperatures(report))?;
         let frequency_hz = report.points.first().map(|p| p.frequency_hz);
+        let corners = report.points.iter().any(|p| !is_typical(&p.corner));
         let transfers: Vec<StageRecord> = report
             .stages
             .iter()
-            .filter(|s| s.temperature_c == temperature_c && s.transfer.len() > 1)
+            .filter(|s| {
+                s.temperature_c == temperature_c && s.transfer.len() > 1 && is_typical(&s.corner)
+            })
             .cloned()
             .collect();
         let points: Vec<PointRecord> = report
             .points
             .iter()
-            .filter(|p| p.temperature_c == temperature_c && Some(p.frequency_hz) == frequency_hz)
+            .filter(|p| {
+                p.temperature_c == temperature_c
+                    && Some(p.frequency_hz) == frequency_hz
+                    && is_typical(&p.corner)
+            })
             .cloned()
             .collect();
-        let bench = bench_marks(report, None)
+        if transfers.len() < 2 && points.is_empty() {
+            return None;
+        }
+        let bench: Vec<BenchMark> = bench_marks(report, None)
             .into_iter()
             .filter(|b| {
                 b.temperature_c == temperature_c
@@ -47,12 +64,55 @@ impl ComparisonPlot {
                     && (b.metric == "hd3" || b.metric == "thd")
             })
             .collect();
-        (transfers.len() >= 2 || !points.is_empty()).then_some(ComparisonPlot {
-            bench,
+        // Every curve spans the left axis: its end is the least of the curves' reaches.
+        let reach = transfers
+            .iter()
+            .map(|r| {
+                r.transfer
+                    .iter()
+                    .map(|t| t.input_v.abs() * 1e3)
+                    .fold(0.0, f64::max)
+            })
+            .fold(f64::INFINITY, f64::min);
+        let reach = if reach.is_finite() && reach > 0.0 {
+            reach
+        } else {
+            1.0
+        };
+        let step = nice_step(reach / 3.0);
+        let end = ((reach / step).floor() * step).max(step.min(reach));
+        let x_left = Axis::linear_exact(-end, end, 4);
+        let y_left = Axis::linear_step(-1.2, 1.2, 0.4);
+        let values = points
+            .iter()
+            .flat_map(|p| [p.harmonic(3), p.thd_dbc])
+            .flatten();
+        let (low, high) = values.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), v| {
+            (lo.min(v), hi.max(v))
+        });
+        let (low, high) = if low.is_finite() {
+            (low, high)
+        } else {
+            (-100.0, 0.0)
+        };
+        let y_right = Axis::linear_step(
+            (low - 8.0).max(report.analysis.analysis_floor_dbc),
+            high + 8.0,
+            20.0,
+        );
+        let amplitudes: Vec<f64> = points.iter().map(|p| p.amplitude_v).collect();
+        let x_right = Axis::log(&amplitudes, "V");
+        Some(ComparisonPlot {
             temperature_c,
             stages,
             transfers,
             points,
+            corners,
+            bench,
+            x_left,
+            y_left,
+            x_right,
+            y_right,
         })
     }
 
@@ -76,7 +136,51 @@ impl Drawing for ComparisonPlot {
         format!(
             "The plan's stages side by side at {}: normalised transfer curves (left) and HD3 (solid) and THD (dashed) versus amplitude (right).",
             celsius(self.temperature_c)
-        )
+        ) + if self.corners { " Typical process corner." } else { "" }
+    }
+    fn key(&self) -> Key {
+        let mut key = Key::default();
+        for stage in &self.stages {
+            let colour = self.colour(stage);
+            key.entry(
+                Swatch::line(colour, 3, None),
+                format!("{stage}: transfer (left)"),
+            );
+            key.entry(
+                Swatch::line(colour, 3, Some(Marker::Circle)),
+                format!("{stage}: HD3 (right)"),
+            );
+            key.entry(
+                Swatch::Line {
+                    colour,
+                    alpha: 1.0,
+                    width: 3,
+                    pattern: pattern(1),
+                    marker: Some(Marker::Square),
+                },
+                format!("{stage}: THD (right)"),
+            );
+        }
+        for (shape, metric) in ["hd3", "thd"].iter().enumerate() {
+            if self.bench.iter().any(|b| b.metric == *metric) {
+                key.entry(
+                    Swatch::Open {
+                        index: shape,
+                        colour: INK,
+                    },
+                    format!("bench {} (lines: model)", metric_label(metric)),
+                );
+            }
+        }
+        key
+    }
+    fn axes(&self) -> Vec<Axis> {
+        vec![
+            self.x_left.clone(),
+            self.y_left.clone(),
+            self.x_right.clone(),
+            self.y_right.clone(),
+        ]
     }
 
     fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> DrawResult {
@@ -86,31 +190,35 @@ impl Drawing for ComparisonPlot {
             celsius(self.temperature_c)
         );
         let body = frame(root, &self.title(), &subtitle)?;
-        let (width, _) = body.dim_in_pixel();
-        let (left, right) = body.split_horizontally(width / 2);
+        let (plots, side) = split(&body);
+        draw_key(&side, &self.key())?;
+        let (width, _) = plots.dim_in_pixel();
+        let (left, right) = plots.split_horizontally(width / 2);
 
-        let x_max = self
-            .transfers
-            .iter()
-            .flat_map(|r| r.transfer.iter().map(|t| t.input_v.abs() * 1e3))
-            .fold(1.0, f64::max);
-        let y_range = (-1.1, 1.1);
+        let (x, y) = (&self.x_left, &self.y_left);
+        let y_range = (y.low, y.high);
         let mut chart =
-            house_chart(&left, 24, 90).build_cartesian_2d(-x_max..x_max, y_range.0..y_range.1)?;
+            house_chart(&left, 24, 80).build_cartesian_2d(x.linear_range(), y.linear_range())?;
         mesh_style(&mut chart.configure_mesh())
             .x_desc("differential input (mV)")
             .y_desc("(I_CP − I_CM) / I_tail")
-            .x_labels(7)
-            .x_label_formatter(&|v| num(*v, 0))
-            .y_label_formatter(&|v| num(*v, 1))
+            .x_label_formatter(&|v| x.label(*v))
+            .y_label_formatter(&|v| y.label(*v))
             .draw()?;
         for record in &self.transfers {
             let colour = self.colour(&record.stage);
-            let data: Vec<(f64, Option<f64>)> = record
-                .transfer
-                .iter()
-                .map(|t| (t.input_v * 1e3, Some(t.normalised_current)))
-                .collect();
+            let data: Vec<(f64, Option<f64>)> = super::transfer::trim_x(
+                &record
+                    .transfer
+                    .iter()
+                    .map(|t| (t.input_v * 1e3, t.normalised_current))
+                    .collect::<Vec<_>>(),
+                x.low,
+                x.high,
+            )
+            .into_iter()
+            .map(|(a, b)| (a, Some(b)))
+            .collect();
             draw_runs(
                 &mut chart,
                 &data,
@@ -119,43 +227,17 @@ impl Drawing for ComparisonPlot {
                 pattern(0),
                 colour.stroke_width(3),
             )?;
-            legend_entry(
-                &mut chart,
-                &record.stage,
-                pattern(0),
-                colour.stroke_width(3),
-                None,
-            )?;
         }
-        legend(&mut chart, SeriesLabelPosition::UpperLeft)?;
 
-        let values = self
-            .points
-            .iter()
-            .flat_map(|p| [p.harmonic(3), p.thd_dbc])
-            .flatten()
-            .chain(self.bench.iter().map(|b| b.bench));
-        let (low, high) = values.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), v| {
-            (lo.min(v), hi.max(v))
-        });
-        if !low.is_finite() {
-            return Ok(());
-        }
-        let (y_low, y_high) = db_span(low - 8.0, high + 8.0, 20.0);
-        let (a_low, a_high) = self
-            .points
-            .iter()
-            .fold((f64::INFINITY, 0.0f64), |(lo, hi), p| {
-                (lo.min(p.amplitude_v), hi.max(p.amplitude_v))
-            });
-        let (x_low, x_high) = log_span(a_low, a_high, 1.5);
-        let mut chart = house_chart(&right, 40, 90)
-            .build_cartesian_2d((x_low..x_high).log_scale(), y_low..y_high)?;
+        let (x, y) = (&self.x_right, &self.y_right);
+        let (y_low, y_high) = (y.low, y.high);
+        let mut chart =
+            house_chart(&right, 36, 80).build_cartesian_2d(x.log_range(), y.linear_range())?;
         mesh_style(&mut chart.configure_mesh())
             .x_desc("peak differential input (log)")
             .y_desc("distortion (dBc)")
-            .x_label_formatter(&|v| log_tick(*v, "V"))
-            .y_label_formatter(&|v| num(*v, 0))
+            .x_label_formatter(&|v| x.label(*v))
+            .y_label_formatter(&|v| y.label(*v))
             .draw()?;
         for stage in &self.stages {
             let colour = self.colour(stage);
@@ -185,20 +267,6 @@ impl Drawing for ComparisonPlot {
                 colour.stroke_width(3),
             )?;
             draw_markers(&mut chart, &thd, (y_low, y_high), Marker::Square, colour)?;
-            legend_entry(
-                &mut chart,
-                &format!("{stage} HD3"),
-                pattern(0),
-                colour.stroke_width(3),
-                Some(Marker::Circle),
-            )?;
-            legend_entry(
-                &mut chart,
-                &format!("{stage} THD"),
-                pattern(1),
-                colour.stroke_width(3),
-                Some(Marker::Square),
-            )?;
         }
         for (shape, metric) in ["hd3", "thd"].iter().enumerate() {
             let measured: Vec<(f64, f64)> = self
@@ -209,16 +277,8 @@ impl Drawing for ComparisonPlot {
                 .collect();
             if !measured.is_empty() {
                 draw_bench(&mut chart, &measured, (y_low, y_high), shape, INK)?;
-                bench_entries(
-                    &mut chart,
-                    &[(
-                        format!("bench {} (lines: model)", metric.to_uppercase()),
-                        shape,
-                    )],
-                )?;
             }
         }
-        legend(&mut chart, SeriesLabelPosition::LowerRight)?;
         Ok(())
     }
 }

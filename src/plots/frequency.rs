@@ -1,24 +1,60 @@
-//! Versus frequency: HD2, HD3 and THD at one amplitude, and IIP3 on a second axis, against
-//! signal frequency (plans with several frequencies).
+//! Versus frequency: HD2, HD3 and THD at the budget's (or the largest) amplitude, each
+//! distortion budget line's metric at its own amplitude, and IIP3 on a second axis, against
+//! signal frequency (plans with several frequencies). Each budget line is drawn as a hatched
+//! limit bar at its frequency, its worst case as a pass/fail marker.
 
-use super::bench::{bench_legend, bench_marks, draw_bench, same, BenchMark};
+use super::axis::Axis;
+use super::bench::{bench_key, bench_marks, draw_bench, same, BenchMark};
+use super::key::{draw_key, hatch_pixels, split, verdict_marker, Key, Swatch};
 use super::style::*;
 use super::two_tone::dbv;
+use super::verdicts::{lines_of, LineChecks};
 use super::{DrawResult, Drawing, PlotKind};
 use crate::report::{InterceptRecord, PointRecord, Report};
 use plotters::coord::Shift;
 use plotters::prelude::*;
 
+/// One curve: a metric at one amplitude, per temperature.
+struct Curve {
+    metric: String,
+    amplitude_v: f64,
+    marker: Marker,
+}
+
+impl Curve {
+    fn value(&self, p: &PointRecord) -> Option<f64> {
+        match self.metric.as_str() {
+            "thd" => p.thd_dbc,
+            "im3" => p.im3_dbc.flatten(),
+            other => other
+                .strip_prefix("hd")
+                .and_then(|n| n.parse().ok())
+                .and_then(|n| p.harmonic(n)),
+        }
+    }
+}
+
 /// The frequency figure of one stage.
 pub struct FrequencyPlot {
     stage: String,
     slug: String,
-    amplitude_v: f64,
     temps: Vec<f64>,
+    /// Typical-corner points of every drawn amplitude.
     points: Vec<PointRecord>,
     intercepts: Vec<InterceptRecord>,
-    /// Bench HD2, HD3 and THD at the figure's amplitude.
+    curves: Vec<Curve>,
+    /// Distortion lines (dB axis) and intercept lines (right axis, dBV).
+    lines: Vec<LineChecks>,
+    corners: bool,
+    /// Bench values of the drawn curves' metrics and amplitudes.
     bench: Vec<BenchMark>,
+    x: Axis,
+    y: Axis,
+    y2: Axis,
+}
+
+fn is_left_line(metric: &str) -> bool {
+    metric == "thd" || metric == "im3" || metric.starts_with("hd")
 }
 
 impl FrequencyPlot {
@@ -31,28 +67,68 @@ impl FrequencyPlot {
         if freqs.len() < 2 {
             return None;
         }
-        let target = report
-            .budget
-            .iter()
-            .find(|b| b.stage == stage && b.unit == "dBc" && b.at_v.is_some())
-            .and_then(|b| b.at_v);
-        let amplitude_v = match target {
-            Some(at) => mine
-                .iter()
-                .map(|p| p.amplitude_v)
-                .min_by(|a, b| (a / at).ln().abs().total_cmp(&(b / at).ln().abs()))?,
-            None => mine.iter().map(|p| p.amplitude_v).fold(0.0, f64::max),
-        };
-        let mut points: Vec<PointRecord> = mine
+        let lines: Vec<LineChecks> = lines_of(report, stage)
             .into_iter()
-            .filter(|p| p.amplitude_v == amplitude_v)
-            .cloned()
+            .filter(|l| {
+                let m = l.line().metric.as_str();
+                (is_left_line(m) && l.line().at_v.is_some()) || m == "iip3"
+            })
+            .collect();
+        let nearest = |at: f64| {
+            mine.iter()
+                .map(|p| p.amplitude_v)
+                .min_by(|a, b| (a / at).ln().abs().total_cmp(&(b / at).ln().abs()))
+        };
+        // The main amplitude: the largest a distortion line names, else the largest drive.
+        let main = lines
+            .iter()
+            .filter_map(|l| l.line().at_v)
+            .reduce(f64::max)
+            .and_then(nearest)
+            .unwrap_or_else(|| mine.iter().map(|p| p.amplitude_v).fold(0.0, f64::max));
+        let mut curves: Vec<Curve> = Vec::new();
+        let mut add = |metric: &str, amplitude_v: f64| {
+            if !curves
+                .iter()
+                .any(|c| c.metric == metric && c.amplitude_v == amplitude_v)
+            {
+                let marker = Marker::nth(curves.len());
+                curves.push(Curve {
+                    metric: metric.to_owned(),
+                    amplitude_v,
+                    marker,
+                });
+            }
+        };
+        for metric in ["hd2", "hd3", "thd"] {
+            add(metric, main);
+        }
+        for l in &lines {
+            if let (true, Some(at)) = (is_left_line(&l.line().metric), l.line().at_v) {
+                if let Some(a) = nearest(at) {
+                    add(&l.line().metric, a);
+                }
+            }
+        }
+        let amplitudes: Vec<f64> = curves.iter().map(|c| c.amplitude_v).collect();
+        let mut points: Vec<PointRecord> = mine
+            .iter()
+            .filter(|p| is_typical(&p.corner) && amplitudes.contains(&p.amplitude_v))
+            .map(|p| (*p).clone())
             .collect();
         points.sort_by(|a, b| a.frequency_hz.total_cmp(&b.frequency_hz));
+        let curves: Vec<Curve> = curves
+            .into_iter()
+            .filter(|c| {
+                points
+                    .iter()
+                    .any(|p| p.amplitude_v == c.amplitude_v && c.value(p).is_some())
+            })
+            .collect();
         let mut intercepts: Vec<InterceptRecord> = report
             .intercepts
             .iter()
-            .filter(|i| i.stage == stage)
+            .filter(|i| i.stage == stage && is_typical(&i.corner))
             .cloned()
             .collect();
         intercepts.sort_by(|a, b| a.frequency_hz.total_cmp(&b.frequency_hz));
@@ -60,23 +136,80 @@ impl FrequencyPlot {
             .into_iter()
             .filter(|t| points.iter().any(|p| p.temperature_c == *t))
             .collect();
-        let bench = bench_marks(report, Some(stage))
+        let corners = mine.iter().any(|p| !is_typical(&p.corner));
+        let bench: Vec<BenchMark> = bench_marks(report, Some(stage))
             .into_iter()
             .filter(|b| {
-                same(b.amplitude_v, amplitude_v)
-                    && temps.contains(&b.temperature_c)
-                    && ["hd2", "hd3", "thd"].contains(&b.metric.as_str())
+                temps.contains(&b.temperature_c)
+                    && curves
+                        .iter()
+                        .any(|c| c.metric == b.metric && same(c.amplitude_v, b.amplitude_v))
             })
             .collect();
+
+        let values = points
+            .iter()
+            .flat_map(|p| curves.iter().map(move |c| c.value(p)))
+            .flatten()
+            .chain(
+                lines
+                    .iter()
+                    .filter(|l| is_left_line(&l.line().metric))
+                    .flat_map(|l| &l.records)
+                    .flat_map(|b| [Some(b.limit), b.value])
+                    .flatten(),
+            )
+            .chain(bench.iter().map(|b| b.bench));
+        let (low, high) = values.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), v| {
+            (lo.min(v), hi.max(v))
+        });
+        let (low, high) = if low.is_finite() {
+            (low, high)
+        } else {
+            (-100.0, 0.0)
+        };
+        let y = Axis::linear_step(
+            (low - 6.0).max(report.analysis.analysis_floor_dbc),
+            high + 6.0,
+            if high - low > 60.0 { 20.0 } else { 10.0 },
+        );
+        let iip3 = intercepts.iter().filter_map(|i| i.iip3_v.map(dbv)).chain(
+            lines
+                .iter()
+                .filter(|l| l.line().metric == "iip3")
+                .map(|l| dbv(l.line().limit)),
+        );
+        let (i_low, i_high) = iip3.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), v| {
+            (lo.min(v), hi.max(v))
+        });
+        let y2 = if i_low.is_finite() {
+            Axis::linear_step(i_low - 4.0, i_high + 4.0, 5.0)
+        } else {
+            Axis::linear_step(-40.0, 20.0, 10.0)
+        };
+        let x = Axis::log(&freqs, "Hz");
         Some(FrequencyPlot {
-            bench,
             stage: stage.to_owned(),
             slug: slug.to_owned(),
-            amplitude_v,
             temps,
             points,
             intercepts,
+            curves,
+            lines,
+            corners,
+            bench,
+            x,
+            y,
+            y2,
         })
+    }
+
+    fn curve_label(&self, curve: &Curve) -> String {
+        format!(
+            "{} at {}",
+            metric_label(&curve.metric),
+            si_exact(curve.amplitude_v, "V")
+        )
     }
 }
 
@@ -92,69 +225,99 @@ impl Drawing for FrequencyPlot {
     }
     fn caption(&self) -> String {
         format!(
-            "HD2, HD3 and THD of “{}” at {} peak differential input (left axis) and IIP3 (right axis, dBV) versus signal frequency.",
+            "Distortion of “{}” at the stated peak differential inputs (left axis, dBc) and IIP3 (right axis, dBV) versus signal frequency{}; each budget line is a hatched limit bar at its frequency with its worst case marked.",
             self.stage,
-            si(self.amplitude_v, "V")
+            if self.corners { ", typical corner" } else { "" }
         )
+    }
+    fn key(&self) -> Key {
+        let mut key = Key::default();
+        for curve in &self.curves {
+            key.entry(
+                Swatch::line(metric_colour(&curve.metric), 3, Some(curve.marker)),
+                self.curve_label(curve),
+            );
+        }
+        if self.intercepts.iter().any(|i| i.iip3_v.is_some()) {
+            key.entry(
+                Swatch::Line {
+                    colour: metric_colour("iip3"),
+                    alpha: 1.0,
+                    width: 3,
+                    pattern: pattern(0),
+                    marker: Some(Marker::Diamond),
+                },
+                "IIP3 (right axis)",
+            );
+        }
+        key.temperatures(&self.temps);
+        if !self.bench.is_empty() {
+            bench_key(&mut key, &self.temps);
+        }
+        if !self.lines.is_empty() {
+            key.verdict_heading = "Budget lines".into();
+            key.verdicts = self
+                .lines
+                .iter()
+                .map(|l| {
+                    l.row(
+                        Swatch::Mask {
+                            colour: metric_colour(&l.line().metric),
+                        },
+                        true,
+                    )
+                })
+                .collect();
+        }
+        if self.corners {
+            key.notes.push(
+                "Lines are the typical process corner; the table gives each line's worst corner."
+                    .into(),
+            );
+        }
+        key
+    }
+    fn axes(&self) -> Vec<Axis> {
+        vec![self.x.clone(), self.y.clone(), self.y2.clone()]
     }
 
     fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> DrawResult {
+        let mut amplitudes: Vec<f64> = self.curves.iter().map(|c| c.amplitude_v).collect();
+        amplitudes.sort_by(f64::total_cmp);
+        amplitudes.dedup();
+        let failing = self.lines.iter().filter(|l| !l.pass()).count();
         let subtitle = format!(
-            "input {} peak differential per tone",
-            si(self.amplitude_v, "V")
+            "input {} peak differential per tone · {}",
+            amplitudes
+                .iter()
+                .map(|a| si_exact(*a, "V"))
+                .collect::<Vec<_>>()
+                .join(" and "),
+            if self.lines.is_empty() {
+                "no budget line drawn here".to_owned()
+            } else {
+                format!(
+                    "{} of {} budget lines pass",
+                    self.lines.len() - failing,
+                    self.lines.len()
+                )
+            }
         );
         let body = frame(root, &self.title(), &subtitle)?;
-        let metrics = ["hd2", "hd3", "thd"];
-        let value = |p: &PointRecord, m: &str| match m {
-            "thd" => p.thd_dbc,
-            "hd2" => p.harmonic(2),
-            _ => p.harmonic(3),
-        };
-        let values = self
-            .points
-            .iter()
-            .flat_map(|p| metrics.map(|m| value(p, m)))
-            .flatten()
-            .chain(self.bench.iter().map(|b| b.bench));
-        let (low, high) = values.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), v| {
-            (lo.min(v), hi.max(v))
-        });
-        if !low.is_finite() {
-            return Ok(());
-        }
-        let (y_low, y_high) = db_span(low - 8.0, high + 8.0, 10.0);
-        let (f_low, f_high) = self
-            .points
-            .iter()
-            .fold((f64::INFINITY, 0.0f64), |(lo, hi), p| {
-                (lo.min(p.frequency_hz), hi.max(p.frequency_hz))
-            });
-        let (x_low, x_high) = log_span(f_low, f_high, 1.3);
-        let iip3: Vec<f64> = self
-            .intercepts
-            .iter()
-            .filter_map(|i| i.iip3_v.map(dbv))
-            .collect();
-        let (i_low, i_high) = iip3
-            .iter()
-            .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), v| {
-                (lo.min(*v), hi.max(*v))
-            });
-        let (i_low, i_high) = if i_low.is_finite() {
-            db_span(i_low - 5.0, i_high + 5.0, 5.0)
-        } else {
-            (-40.0, 20.0)
-        };
+        let (plot, side) = split(&body);
+        draw_key(&side, &self.key())?;
+        let (x, y, y2) = (&self.x, &self.y, &self.y2);
+        let (y_low, y_high) = (y.low, y.high);
 
-        let mut chart = house_chart(&body, 24, 96)
+        let mut chart = house_chart(&plot, 24, 96)
             .right_y_label_area_size(100)
-            .build_cartesian_2d((x_low..x_high).log_scale(), y_low..y_high)?
-            .set_secondary_coord((x_low..x_high).log_scale(), i_low..i_high);
+            .build_cartesian_2d(x.log_range(), y.linear_range())?
+            .set_secondary_coord(x.log_range(), y2.linear_range());
         mesh_style(&mut chart.configure_mesh())
             .x_desc("signal frequency (log)")
             .y_desc("distortion (dBc)")
-            .x_label_formatter(&|v| log_tick(*v, "Hz"))
-            .y_label_formatter(&|v| num(*v, 0))
+            .x_label_formatter(&|v| x.label(*v))
+            .y_label_formatter(&|v| y.label(*v))
             .draw()?;
         chart
             .configure_secondary_axes()
@@ -162,18 +325,58 @@ impl Drawing for FrequencyPlot {
             .label_style(text(TICK_PX, INK))
             .axis_desc_style(bold(AXIS_PX).color(&INK))
             .y_desc("IIP3 (dBV, peak per tone)")
-            .y_label_formatter(&|v| num(*v, 0))
+            .y_label_formatter(&|v| y2.label(*v))
             .draw()?;
-        for (ti, t) in self.temps.iter().enumerate() {
-            let at_t: Vec<&PointRecord> = self
-                .points
-                .iter()
-                .filter(|p| p.temperature_c == *t)
+
+        // Limit bars: a budget line applies at its own frequency only; lines sharing a
+        // frequency share its bar side by side.
+        for (index, line) in self.lines.iter().enumerate() {
+            let l = line.line();
+            let colour = metric_colour(&l.metric);
+            let sharing: Vec<usize> = (0..self.lines.len())
+                .filter(|k| self.lines[*k].line().frequency_hz == l.frequency_hz)
                 .collect();
-            for (k, m) in metrics.iter().enumerate() {
-                let colour = metric_colour(m);
-                let data: Vec<(f64, Option<f64>)> =
-                    at_t.iter().map(|p| (p.frequency_hz, value(p, m))).collect();
+            let slot = sharing.iter().position(|k| *k == index).unwrap_or(0) as f64;
+            let width = 1.25f64.ln() / sharing.len() as f64;
+            let start = l.frequency_hz.ln() - 0.5 * 1.25f64.ln() + slot * width;
+            let (from, to) = (start.exp().max(x.low), (start + width).exp().min(x.high));
+            let left_axis = is_left_line(&l.metric);
+            let (limit, beyond) = if left_axis {
+                (
+                    l.limit.clamp(y_low, y_high),
+                    if l.kind == "max" { y_high } else { y_low },
+                )
+            } else {
+                let limit = dbv(l.limit).clamp(y2.low, y2.high);
+                (limit, if l.kind == "max" { y2.high } else { y2.low })
+            };
+            let (corner_a, corner_b) = if left_axis {
+                (
+                    chart.backend_coord(&(from, limit)),
+                    chart.backend_coord(&(to, beyond)),
+                )
+            } else {
+                (
+                    chart.borrow_secondary().backend_coord(&(from, limit)),
+                    chart.borrow_secondary().backend_coord(&(to, beyond)),
+                )
+            };
+            hatch_pixels(root, corner_a, corner_b, colour)?;
+            root.draw(&PathElement::new(
+                vec![corner_a, (corner_b.0, corner_a.1)],
+                colour.stroke_width(3),
+            ))?;
+        }
+
+        for (ti, t) in self.temps.iter().enumerate() {
+            for curve in &self.curves {
+                let colour = metric_colour(&curve.metric);
+                let data: Vec<(f64, Option<f64>)> = self
+                    .points
+                    .iter()
+                    .filter(|p| p.temperature_c == *t && p.amplitude_v == curve.amplitude_v)
+                    .map(|p| (p.frequency_hz, curve.value(p)))
+                    .collect();
                 draw_runs(
                     &mut chart,
                     &data,
@@ -182,7 +385,20 @@ impl Drawing for FrequencyPlot {
                     pattern(ti),
                     colour.stroke_width(3),
                 )?;
-                draw_markers(&mut chart, &data, (y_low, y_high), Marker::nth(k), colour)?;
+                draw_markers(&mut chart, &data, (y_low, y_high), curve.marker, colour)?;
+                let measured: Vec<(f64, f64)> = self
+                    .bench
+                    .iter()
+                    .filter(|b| {
+                        b.temperature_c == *t
+                            && b.metric == curve.metric
+                            && same(b.amplitude_v, curve.amplitude_v)
+                    })
+                    .map(|b| (b.frequency_hz, b.bench))
+                    .collect();
+                if !measured.is_empty() {
+                    draw_bench(&mut chart, &measured, (y_low, y_high), ti, colour)?;
+                }
             }
             let iip3: Vec<(f64, f64)> = self
                 .intercepts
@@ -190,48 +406,39 @@ impl Drawing for FrequencyPlot {
                 .filter(|i| i.temperature_c == *t)
                 .filter_map(|i| i.iip3_v.map(|v| (i.frequency_hz, dbv(v))))
                 .collect();
+            let colour = metric_colour("iip3");
             if iip3.len() > 1 {
                 chart.draw_secondary_series(std::iter::once(dashed(
-                    iip3,
+                    iip3.clone(),
                     pattern(ti),
-                    metric_colour("iip3").stroke_width(3),
+                    colour.stroke_width(3),
                 )))?;
             }
+            chart.draw_secondary_series(iip3.into_iter().map(|c| {
+                EmptyElement::at(c)
+                    + Marker::Diamond.element((0, 0), colour.mix(1.0))
+                    + Circle::new((0, 0), 2, PAPER.filled())
+            }))?;
         }
-        for (ti, t) in self.temps.iter().enumerate() {
-            for m in metrics {
-                let measured: Vec<(f64, f64)> = self
-                    .bench
-                    .iter()
-                    .filter(|b| b.temperature_c == *t && b.metric == m)
-                    .map(|b| (b.frequency_hz, b.bench))
-                    .collect();
-                if !measured.is_empty() {
-                    draw_bench(&mut chart, &measured, (y_low, y_high), ti, metric_colour(m))?;
-                }
-            }
+
+        for line in &self.lines {
+            let l = line.line();
+            let worst = line.worst();
+            let position = if is_left_line(&l.metric) {
+                chart.backend_coord(&(
+                    l.frequency_hz,
+                    worst.value.unwrap_or(y_low).clamp(y_low, y_high),
+                ))
+            } else {
+                let v = worst
+                    .value
+                    .map(dbv)
+                    .unwrap_or(y2.high)
+                    .clamp(y2.low, y2.high);
+                chart.borrow_secondary().backend_coord(&(l.frequency_hz, v))
+            };
+            verdict_marker(root, position, line.pass())?;
         }
-        for (k, m) in metrics.iter().enumerate() {
-            legend_entry(
-                &mut chart,
-                &m.to_uppercase(),
-                pattern(0),
-                metric_colour(m).stroke_width(3),
-                Some(Marker::nth(k)),
-            )?;
-        }
-        legend_entry(
-            &mut chart,
-            "IIP3 (right)",
-            pattern(0),
-            metric_colour("iip3").stroke_width(3),
-            None,
-        )?;
-        temperature_key(&mut chart, &self.temps)?;
-        if !self.bench.is_empty() {
-            bench_legend(&mut chart, &self.temps)?;
-        }
-        legend(&mut chart, SeriesLabelPosition::UpperLeft)?;
         Ok(())
     }
 }

@@ -1,14 +1,21 @@
-//! Harmonics versus amplitude: HD2, HD3, HD5 and THD in dBc against the input amplitude on a
-//! log axis, every distortion budget line drawn as a limit mask, and the budget verdicts as
-//! pass/fail markers.
+//! Harmonics versus amplitude: HD2, HD3, HD5, THD (and IM3 or any harmonic the budget names)
+//! in dBc against the input amplitude on a log axis, at the first drive frequency and at every
+//! frequency a distortion budget line names. Each budget line is drawn as a hatched limit mask
+//! and its worst case as a pass/fail marker; the verdicts are a compact table beside the plot.
+//!
+//! With process corners, the lines are the typical corner at every temperature and a light
+//! band per metric spans every corner and temperature, so the corner that binds is never out
+//! of the picture: the verdict table names it.
 
-use super::bench::{bench_legend, bench_marks, draw_bench, same, BenchMark};
+use super::axis::Axis;
+use super::bench::{bench_key, bench_marks, draw_bench, same, BenchMark};
+use super::key::{draw_key, hatch_pixels, split, verdict_marker, Key, Swatch};
 use super::style::*;
+use super::verdicts::{is_amplitude_line, lines_of, LineChecks};
 use super::{DrawResult, Drawing, PlotKind};
-use crate::report::{BudgetRecord, PointRecord, Region, Report};
+use crate::report::{PointRecord, Region, Report};
 use plotters::coord::Shift;
 use plotters::prelude::*;
-use plotters::style::text_anchor::{HPos, Pos, VPos};
 
 /// One plotted metric: its key and how to read it from a point.
 #[derive(Debug, Clone)]
@@ -42,7 +49,7 @@ impl Series {
                 .map_or(Field::Other, Field::Harmonic),
         };
         Series {
-            label: metric.to_uppercase(),
+            label: metric_label(&metric),
             metric,
             field,
         }
@@ -57,25 +64,50 @@ impl Series {
             Field::Other => None,
         }
     }
+
+    fn style(&self) -> (RGBColor, f64, u32) {
+        let colour = metric_colour(&self.metric);
+        if self.metric == "thd" {
+            (colour, 0.45, 9)
+        } else {
+            (colour, 1.0, 3)
+        }
+    }
+
+    fn swatch(&self) -> Swatch {
+        let (colour, alpha, width) = self.style();
+        Swatch::Line {
+            colour,
+            alpha,
+            width,
+            pattern: pattern(0),
+            marker: Some(metric_marker(&self.metric)),
+        }
+    }
 }
 
-/// Whether a budget line is drawn against amplitude in dBc.
-pub(crate) fn is_amplitude_line(line: &BudgetRecord) -> bool {
-    line.at_v.is_some() && line.unit == "dBc"
-}
-
-/// The harmonics figure of one stage.
+/// The harmonics figure of one stage at one frequency.
 pub struct HarmonicsPlot {
     stage: String,
     slug: String,
     frequency_hz: f64,
     temps: Vec<f64>,
+    /// Typical-corner rows.
     points: Vec<Row>,
-    budget: Vec<BudgetRecord>,
+    /// Per series, per amplitude: least and greatest over every corner and temperature
+    /// (plans with corners only).
+    bands: Vec<Vec<(f64, f64, f64)>>,
+    corners: Vec<String>,
+    lines: Vec<LineChecks>,
+    /// Frequencies of distortion lines drawn in the stage's other harmonics figures.
+    elsewhere: Vec<f64>,
     series: Vec<Series>,
+    missing: Vec<String>,
     floor_dbc: f64,
     /// Bench values of the series' metrics at this frequency and the figure's temperatures.
     bench: Vec<BenchMark>,
+    x: Axis,
+    y: Axis,
 }
 
 /// What the figure reads of one drive point (a dense sweep has thousands: copying whole
@@ -89,31 +121,94 @@ struct Row {
     values: Vec<Option<f64>>,
 }
 
-impl HarmonicsPlot {
-    /// The figure, if the stage has at least two drive points at its first frequency.
-    pub fn new(report: &Report, stage: &str, slug: &str) -> Option<Self> {
-        let frequency_hz = report
+/// The file-name suffix of a frequency: `20MHz`.
+pub fn frequency_slug(frequency_hz: f64) -> String {
+    si_exact(frequency_hz, "Hz").replace(' ', "")
+}
+
+/// The frequencies a family of per-frequency figures is drawn at: the stage's first drive
+/// frequency, then each frequency a matching budget line names.
+pub fn figure_frequencies(
+    report: &Report,
+    stage: &str,
+    wanted: impl Fn(&crate::report::BudgetRecord) -> bool,
+) -> Vec<f64> {
+    let Some(first) = report.points.iter().find(|p| p.stage == stage) else {
+        return Vec::new();
+    };
+    let mut list = vec![first.frequency_hz];
+    for b in report
+        .budget
+        .iter()
+        .filter(|b| b.stage == stage && wanted(b))
+    {
+        let driven = report
             .points
             .iter()
-            .find(|p| p.stage == stage)?
-            .frequency_hz;
-        let budget: Vec<BudgetRecord> = report
-            .budget
+            .any(|p| p.stage == stage && p.frequency_hz == b.frequency_hz);
+        if driven && !list.contains(&b.frequency_hz) {
+            list.push(b.frequency_hz);
+        }
+    }
+    list
+}
+
+impl HarmonicsPlot {
+    /// The figures of a stage: one at its first frequency and one at each frequency a
+    /// distortion budget line names.
+    pub fn all(report: &Report, stage: &str, slug: &str) -> Vec<Self> {
+        let frequencies = figure_frequencies(report, stage, is_amplitude_line);
+        frequencies
             .iter()
-            .filter(|b| b.stage == stage && is_amplitude_line(b) && b.frequency_hz == frequency_hz)
-            .cloned()
+            .enumerate()
+            .filter_map(|(i, f)| {
+                let slug = if i == 0 {
+                    slug.to_owned()
+                } else {
+                    format!("{slug}-{}", frequency_slug(*f))
+                };
+                let others: Vec<f64> = frequencies.iter().copied().filter(|g| g != f).collect();
+                HarmonicsPlot::at(report, stage, &slug, *f, others)
+            })
+            .collect()
+    }
+
+    /// The figure at one frequency, if the stage has at least two drive points there.
+    fn at(
+        report: &Report,
+        stage: &str,
+        slug: &str,
+        frequency_hz: f64,
+        other_frequencies: Vec<f64>,
+    ) -> Option<Self> {
+        let lines: Vec<LineChecks> = lines_of(report, stage)
+            .into_iter()
+            .filter(|l| is_amplitude_line(l.line()) && l.line().frequency_hz == frequency_hz)
+            .collect();
+        let elsewhere: Vec<f64> = other_frequencies
+            .into_iter()
+            .filter(|f| {
+                report
+                    .budget
+                    .iter()
+                    .any(|b| b.stage == stage && is_amplitude_line(b) && b.frequency_hz == *f)
+            })
             .collect();
         let mut metrics: Vec<String> = ["hd2", "hd3", "hd5", "thd"].map(String::from).to_vec();
-        for line in &budget {
-            if !metrics.contains(&line.metric) {
-                metrics.push(line.metric.clone());
+        for line in &lines {
+            if !metrics.contains(&line.line().metric) {
+                metrics.push(line.line().metric.clone());
             }
         }
         let series: Vec<Series> = metrics.into_iter().map(Series::new).collect();
-        let points: Vec<Row> = report
+        let here: Vec<&PointRecord> = report
             .points
             .iter()
             .filter(|p| p.stage == stage && p.frequency_hz == frequency_hz)
+            .collect();
+        let points: Vec<Row> = here
+            .iter()
+            .filter(|p| is_typical(&p.corner))
             .map(|p| Row {
                 temperature_c: p.temperature_c,
                 amplitude_v: p.amplitude_v,
@@ -121,6 +216,37 @@ impl HarmonicsPlot {
                 values: series.iter().map(|s| s.value(p)).collect(),
             })
             .collect();
+        let mut corners: Vec<String> = Vec::new();
+        for p in &here {
+            if !corners.contains(&p.corner) {
+                corners.push(p.corner.clone());
+            }
+        }
+        let bands: Vec<Vec<(f64, f64, f64)>> = if corners.len() > 1 {
+            series
+                .iter()
+                .map(|s| {
+                    let mut amplitudes: Vec<f64> = here.iter().map(|p| p.amplitude_v).collect();
+                    amplitudes.sort_by(f64::total_cmp);
+                    amplitudes.dedup();
+                    amplitudes
+                        .into_iter()
+                        .filter_map(|a| {
+                            let values: Vec<f64> = here
+                                .iter()
+                                .filter(|p| p.amplitude_v == a)
+                                .filter_map(|p| s.value(p))
+                                .collect();
+                            let lo = values.iter().copied().reduce(f64::min)?;
+                            let hi = values.iter().copied().reduce(f64::max)?;
+                            Some((a, lo, hi))
+                        })
+                        .collect()
+                })
+                .collect()
+        } else {
+            Vec::new()
+        };
         let temps: Vec<f64> = temperatures(report)
             .into_iter()
             .filter(|t| points.iter().any(|p| p.temperature_c == *t))
@@ -128,7 +254,17 @@ impl HarmonicsPlot {
         let enough = temps
             .iter()
             .any(|t| points.iter().filter(|p| p.temperature_c == *t).count() >= 2);
-        let bench = bench_marks(report, Some(stage))
+        if !enough {
+            return None;
+        }
+        let missing: Vec<String> = series
+            .iter()
+            .enumerate()
+            .filter(|(k, _)| points.iter().all(|p| p.values[*k].is_none()))
+            .map(|(_, s)| s.label.clone())
+            .collect();
+        let floor_dbc = report.analysis.analysis_floor_dbc;
+        let bench: Vec<BenchMark> = bench_marks(report, Some(stage))
             .into_iter()
             .filter(|b| {
                 same(b.frequency_hz, frequency_hz)
@@ -136,173 +272,101 @@ impl HarmonicsPlot {
                     && series.iter().any(|s| s.metric == b.metric)
             })
             .collect();
-        enough.then(|| HarmonicsPlot {
-            bench,
+        let values = points
+            .iter()
+            .flat_map(|p| p.values.iter().flatten().copied())
+            .chain(
+                bands
+                    .iter()
+                    .flatten()
+                    .flat_map(|b: &(f64, f64, f64)| [b.1, b.2]),
+            )
+            .chain(
+                lines
+                    .iter()
+                    .flat_map(|l| &l.records)
+                    .flat_map(|b| [Some(b.limit), b.value])
+                    .flatten(),
+            )
+            .chain(bench.iter().map(|b| b.bench));
+        let (low, high) = values.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), v| {
+            (lo.min(v), hi.max(v))
+        });
+        let (low, high) = if low.is_finite() {
+            (low, high)
+        } else {
+            (floor_dbc, 0.0)
+        };
+        let y_low = (low - 8.0).max(floor_dbc);
+        let y_high = (high + 10.0).min(20.0).max(y_low + 20.0);
+        let y = Axis::linear_step(
+            y_low,
+            y_high,
+            if y_high - y_low > 100.0 { 20.0 } else { 10.0 },
+        );
+        let amplitudes: Vec<f64> = points
+            .iter()
+            .map(|p| p.amplitude_v)
+            .chain(lines.iter().filter_map(|l| l.line().at_v))
+            .chain(bench.iter().map(|b| b.amplitude_v))
+            .collect();
+        let x = Axis::log(&amplitudes, "V");
+        Some(HarmonicsPlot {
             stage: stage.to_owned(),
             slug: slug.to_owned(),
             frequency_hz,
             temps,
             points,
-            budget,
+            bands,
+            corners,
+            lines,
+            elsewhere,
             series,
-            floor_dbc: report.analysis.analysis_floor_dbc,
+            missing,
+            floor_dbc,
+            bench,
+            x,
+            y,
         })
+    }
+
+    fn has_corners(&self) -> bool {
+        self.corners.len() > 1
     }
 }
 
-impl Drawing for HarmonicsPlot {
-    fn kind(&self) -> PlotKind {
-        PlotKind::Harmonics
-    }
-    fn slug(&self) -> Option<&str> {
-        Some(&self.slug)
-    }
-    fn title(&self) -> String {
-        format!("Harmonic distortion vs amplitude · {}", self.stage)
-    }
-    fn caption(&self) -> String {
-        format!(
-            "HDn and THD of the differential output of “{}” in dBc versus peak differential input at {}; shaded boxes are the budget's forbidden regions (a line applies up to its amplitude), round green markers pass, red crosses fail; a grey band (dashed edge per temperature) marks drives that forward-bias a collector-base junction (saturation), an amber band drives in high-level injection — the figures there include it.{}",
-            self.stage,
-            si(self.frequency_hz, "Hz"),
-            if self.bench.is_empty() {
-                ""
-            } else {
-                " Open markers are bench measurements, drawn over the model's lines in the metric's colour."
-            }
-        )
-    }
+/// Opacity of an operating-region band.
+const REGION_ALPHA: f64 = 0.10;
 
-    fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> DrawResult {
-        let missing: Vec<String> = self
-            .series
-            .iter()
-            .enumerate()
-            .filter(|(k, _)| self.points.iter().all(|p| p.values[*k].is_none()))
-            .map(|(_, s)| s.label.clone())
-            .collect();
-        let verdict = if self.budget.is_empty() {
-            "no distortion budget lines".to_owned()
-        } else {
-            let failed = self.budget.iter().filter(|b| !b.pass).count();
-            format!(
-                "{} of {} budget checks pass",
-                self.budget.len() - failed,
-                self.budget.len()
-            )
-        };
-        let mut subtitle = format!("f = {} · {}", si(self.frequency_hz, "Hz"), verdict);
-        if !missing.is_empty() {
-            subtitle.push_str(&format!(
-                " · {} below the analysis floor ({} dBc) at every point",
-                missing.join(", "),
-                num(self.floor_dbc, 0)
-            ));
-        }
-        let body = frame(root, &self.title(), &subtitle)?;
+/// Drives of one operating region beyond forward-active operation, as drawn.
+struct RegionBand {
+    label: &'static str,
+    colour: RGBColor,
+    /// Least amplitude in the region at any temperature, V.
+    first: f64,
+    /// Right end of the band, V.
+    end: f64,
+    /// (temperature index, least amplitude in the region at that temperature).
+    onsets: Vec<(usize, f64)>,
+}
 
-        let values = self
-            .points
-            .iter()
-            .flat_map(|p| p.values.iter().flatten().copied())
-            .chain(
-                self.budget
-                    .iter()
-                    .flat_map(|b| [Some(b.limit), b.value])
-                    .flatten(),
-            )
-            .chain(self.bench.iter().map(|b| b.bench));
-        let (low, high) = values.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), v| {
-            (lo.min(v), hi.max(v))
-        });
-        if !low.is_finite() {
-            return Ok(());
-        }
-        let (y_low, y_high) = db_span(
-            (low - 8.0).max(self.floor_dbc),
-            (high + 12.0).min(20.0).max(low + 20.0),
-            20.0,
-        );
-        let amplitudes = self
-            .points
-            .iter()
-            .map(|p| p.amplitude_v)
-            .chain(self.budget.iter().filter_map(|b| b.at_v))
-            .chain(self.bench.iter().map(|b| b.amplitude_v));
-        let (a_low, a_high) = amplitudes.fold((f64::INFINITY, 0.0f64), |(lo, hi), a| {
-            (lo.min(a), hi.max(a))
-        });
-        let (x_low, x_high) = log_span(a_low, a_high, 1.5);
-
-        let mut chart = house_chart(&body, 48, 96)
-            .build_cartesian_2d((x_low..x_high).log_scale(), y_low..y_high)?;
-        mesh_style(&mut chart.configure_mesh())
-            .x_desc("peak differential input per tone (log)")
-            .y_desc("distortion (dBc)")
-            .x_label_formatter(&|v| log_tick(*v, "V"))
-            .y_label_formatter(&|v| num(*v, 0))
-            .draw()?;
-
-        // Limit masks: a `max` line forbids the region above its limit for every amplitude up
-        // to its own; a `min` line forbids the region below.
-        let mut drawn: Vec<(String, u64, u64, String)> = Vec::new();
-        let mut mask_labels: Vec<(String, (i32, i32), RGBColor, bool)> = Vec::new();
-        for line in &self.budget {
-            let at = line.at_v.unwrap_or(x_high);
-            let key = (
-                line.metric.clone(),
-                at.to_bits(),
-                line.limit.to_bits(),
-                line.kind.clone(),
-            );
-            if drawn.contains(&key) {
-                continue;
-            }
-            drawn.push(key);
-            let colour = metric_colour(&line.metric);
-            let (from, to) = if line.kind == "max" {
-                (line.limit, y_high)
-            } else {
-                (y_low, line.limit)
-            };
-            chart.draw_series(std::iter::once(Rectangle::new(
-                [(x_low, from), (at, to)],
-                colour.mix(0.10).filled(),
-            )))?;
-            chart.draw_series(std::iter::once(PathElement::new(
-                vec![
-                    (x_low, line.limit),
-                    (at, line.limit),
-                    (at, if line.kind == "max" { y_high } else { y_low }),
-                ],
-                colour.stroke_width(2),
-            )))?;
-            let sign = if line.kind == "max" { "≤" } else { "≥" };
-            mask_labels.push((
-                format!(
-                    "{} {} {} dBc up to {}",
-                    line.metric.to_uppercase(),
-                    sign,
-                    num(line.limit, 1),
-                    si(at, "V")
-                ),
-                chart.backend_coord(&(x_low, line.limit)),
-                colour,
-                line.kind == "max",
-            ));
-        }
-
-        // Operating-region bands: from the least amplitude in the region to the right edge
-        // (high injection stops where saturation starts), with a dashed onset per temperature.
+impl HarmonicsPlot {
+    /// The high-injection and saturation bands; high injection ends where saturation starts.
+    fn region_bands(&self, x_high: f64) -> Vec<RegionBand> {
         let saturation_onset = self
             .points
             .iter()
             .filter(|p| p.region == Region::Saturating)
             .map(|p| p.amplitude_v)
             .reduce(f64::min);
-        for (region, colour, label, lift) in [
-            (Region::HighInjection, SERIES[3], "high injection", 0.06),
-            (Region::Saturating, MUTED, "saturating", 0.0),
+        let mut bands = Vec::new();
+        for (region, colour, label) in [
+            (Region::HighInjection, SERIES[3], "high-level injection"),
+            (
+                Region::Saturating,
+                MUTED,
+                "saturating (collector-base junction forward-biased)",
+            ),
         ] {
             let onsets: Vec<(usize, f64)> = self
                 .temps
@@ -324,22 +388,226 @@ impl Drawing for HarmonicsPlot {
                 (Region::HighInjection, Some(onset)) => onset,
                 _ => x_high,
             };
-            chart.draw_series(std::iter::once(Rectangle::new(
-                [(first, y_low), (end, y_high)],
-                colour.mix(0.10).filled(),
+            bands.push(RegionBand {
+                label,
+                colour,
+                first,
+                end,
+                onsets,
+            });
+        }
+        bands
+    }
+}
+
+impl Drawing for HarmonicsPlot {
+    fn kind(&self) -> PlotKind {
+        PlotKind::Harmonics
+    }
+    fn slug(&self) -> Option<&str> {
+        Some(&self.slug)
+    }
+    fn title(&self) -> String {
+        format!(
+            "Harmonic distortion vs amplitude · {} at {}",
+            self.stage,
+            si_exact(self.frequency_hz, "Hz")
+        )
+    }
+    fn caption(&self) -> String {
+        let mut caption = format!(
+            "HDn and THD of the differential output of “{}” in dBc versus peak differential input at {}",
+            self.stage,
+            si_exact(self.frequency_hz, "Hz")
+        );
+        if self.has_corners() {
+            caption.push_str(
+                "; lines are the typical process corner, the light band of each metric spans every corner and temperature",
+            );
+        }
+        if !self.bench.is_empty() {
+            caption.push_str("; open markers are bench measurements over the model's lines");
+        }
+        if self.lines.is_empty() {
+            caption.push_str("; no distortion budget line applies at this frequency.");
+        } else {
+            caption.push_str("; hatched regions are forbidden by the budget (a line applies up to its amplitude), a green disc marks a line's worst case passing, a red cross failing; the table beside the plot names each worst case.");
+        }
+        caption
+    }
+    fn key(&self) -> Key {
+        let mut key = Key::default();
+        for (k, series) in self.series.iter().enumerate() {
+            if self.missing.contains(&series.label) {
+                continue;
+            }
+            let label = if self.has_corners() {
+                format!("{} (typical corner)", series.label)
+            } else {
+                series.label.clone()
+            };
+            key.entry(series.swatch(), label);
+            if self.bands.get(k).is_some_and(|b| !b.is_empty()) {
+                let others: Vec<&str> = self
+                    .corners
+                    .iter()
+                    .filter(|c| !is_typical(c))
+                    .map(String::as_str)
+                    .collect();
+                key.entry(
+                    Swatch::Band {
+                        colour: metric_colour(&series.metric),
+                        alpha: 0.16,
+                    },
+                    format!(
+                        "{} over every corner ({}, typical) and temperature",
+                        series.label,
+                        others.join(", ")
+                    ),
+                );
+            }
+        }
+        for band in self.region_bands(self.x.high) {
+            key.entry(
+                Swatch::Band {
+                    colour: band.colour,
+                    alpha: REGION_ALPHA,
+                },
+                format!(
+                    "{} from {} (dashed: onset per temperature); figures there include it",
+                    band.label,
+                    si(band.first, "V")
+                ),
+            );
+        }
+        key.temperatures(&self.temps);
+        if !self.bench.is_empty() {
+            bench_key(&mut key, &self.temps);
+        }
+        if !self.lines.is_empty() {
+            key.verdict_heading = format!("Budget at {}", si_exact(self.frequency_hz, "Hz"));
+            key.verdicts = self
+                .lines
+                .iter()
+                .map(|l| {
+                    l.row(
+                        Swatch::Mask {
+                            colour: metric_colour(&l.line().metric),
+                        },
+                        false,
+                    )
+                })
+                .collect();
+        }
+        if !self.missing.is_empty() {
+            key.notes.push(format!(
+                "{} below the analysis floor ({} dBc) at every point.",
+                self.missing.join(", "),
+                num(self.floor_dbc, 0)
+            ));
+        }
+        if !self.elsewhere.is_empty() {
+            key.notes.push(format!(
+                "Distortion budget lines at {} are drawn in the figures at those frequencies.",
+                self.elsewhere
+                    .iter()
+                    .map(|f| si_exact(*f, "Hz"))
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            ));
+        }
+        key
+    }
+    fn axes(&self) -> Vec<Axis> {
+        vec![self.x.clone(), self.y.clone()]
+    }
+
+    fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> DrawResult {
+        let verdict = if self.lines.is_empty() {
+            "no distortion budget line at this frequency".to_owned()
+        } else {
+            let failed = self.lines.iter().filter(|l| !l.pass()).count();
+            format!(
+                "{} of {} budget lines pass",
+                self.lines.len() - failed,
+                self.lines.len()
+            )
+        };
+        let mut subtitle = format!("f = {} · {verdict}", si_exact(self.frequency_hz, "Hz"));
+        if self.has_corners() {
+            subtitle.push_str(" · lines: typical corner; bands: every corner");
+        }
+        let body = frame(root, &self.title(), &subtitle)?;
+        let (plot, side) = split(&body);
+        draw_key(&side, &self.key())?;
+        let (x, y) = (&self.x, &self.y);
+        let (y_low, y_high) = (y.low, y.high);
+
+        let mut chart =
+            house_chart(&plot, 36, 96).build_cartesian_2d(x.log_range(), y.linear_range())?;
+        mesh_style(&mut chart.configure_mesh())
+            .x_desc("peak differential input per tone (log)")
+            .y_desc("distortion (dBc)")
+            .x_label_formatter(&|v| x.label(*v))
+            .y_label_formatter(&|v| y.label(*v))
+            .draw()?;
+
+        // Corner bands under everything else.
+        for (k, band) in self.bands.iter().enumerate() {
+            if band.len() < 2 {
+                continue;
+            }
+            let colour = metric_colour(&self.series[k].metric);
+            let mut outline: Vec<(f64, f64)> = band
+                .iter()
+                .map(|(a, _, hi)| (*a, hi.clamp(y_low, y_high)))
+                .collect();
+            outline.extend(
+                band.iter()
+                    .rev()
+                    .map(|(a, lo, _)| (*a, lo.clamp(y_low, y_high))),
+            );
+            chart.draw_series(std::iter::once(Polygon::new(
+                outline,
+                colour.mix(0.16).filled(),
             )))?;
-            for (ti, onset) in &onsets {
+        }
+
+        // Limit masks: a `max` line forbids the region above its limit for every amplitude up
+        // to its own; a `min` line forbids the region below.
+        for line in &self.lines {
+            let l = line.line();
+            let at = l.at_v.unwrap_or(x.high);
+            let colour = metric_colour(&l.metric);
+            let limit = l.limit.clamp(y_low, y_high);
+            let beyond = if l.kind == "max" { y_high } else { y_low };
+            hatch_pixels(
+                root,
+                chart.backend_coord(&(x.low, limit)),
+                chart.backend_coord(&(at, beyond)),
+                colour,
+            )?;
+            chart.draw_series(std::iter::once(PathElement::new(
+                vec![(x.low, limit), (at, limit), (at, beyond)],
+                colour.stroke_width(2),
+            )))?;
+        }
+
+        // Operating-region bands: from the least amplitude in the region to the right edge
+        // (high injection stops where saturation starts), with a dashed onset per temperature;
+        // the key names them.
+        for band in self.region_bands(x.high) {
+            chart.draw_series(std::iter::once(Rectangle::new(
+                [(band.first, y_low), (band.end, y_high)],
+                band.colour.mix(REGION_ALPHA).filled(),
+            )))?;
+            for (ti, onset) in &band.onsets {
                 chart.draw_series(std::iter::once(dashed(
                     vec![(*onset, y_low), (*onset, y_high)],
                     pattern(*ti),
-                    colour.mix(0.8).stroke_width(2),
+                    band.colour.mix(0.8).stroke_width(2),
                 )))?;
             }
-            chart.draw_series(std::iter::once(Text::new(
-                format!("{label} from {} →", si(first, "V")),
-                (first * 1.04, y_low + lift * (y_high - y_low)),
-                text(LEGEND_PX, colour).pos(Pos::new(HPos::Left, VPos::Bottom)),
-            )))?;
         }
 
         for (ti, t) in self.temps.iter().enumerate() {
@@ -351,23 +619,30 @@ impl Drawing for HarmonicsPlot {
             // THD first and wide, so the harmonic that dominates it stays visible on top.
             let mut order: Vec<usize> = (0..self.series.len()).collect();
             order.sort_by_key(|&k| self.series[k].metric != "thd");
-            for si_ in order {
-                let series = &self.series[si_];
-                let colour = metric_colour(&series.metric);
-                let data: Vec<(f64, Option<f64>)> = at_t
-                    .iter()
-                    .map(|p| (p.amplitude_v, p.values[si_]))
-                    .collect();
-                let style = if series.metric == "thd" {
-                    colour.mix(0.45).stroke_width(9)
-                } else {
-                    colour.stroke_width(3)
-                };
-                draw_runs(&mut chart, &data, (y_low, y_high), true, pattern(ti), style)?;
-                draw_markers(&mut chart, &data, (y_low, y_high), Marker::nth(si_), colour)?;
+            for k in order {
+                let series = &self.series[k];
+                let (colour, alpha, width) = series.style();
+                let data: Vec<(f64, Option<f64>)> =
+                    at_t.iter().map(|p| (p.amplitude_v, p.values[k])).collect();
+                draw_runs(
+                    &mut chart,
+                    &data,
+                    (y_low, y_high),
+                    true,
+                    pattern(ti),
+                    colour.mix(alpha).stroke_width(width),
+                )?;
+                draw_markers(
+                    &mut chart,
+                    &data,
+                    (y_low, y_high),
+                    metric_marker(&series.metric),
+                    colour,
+                )?;
             }
         }
 
+        // Bench values over the model's lines: the shape names the temperature.
         for (ti, t) in self.temps.iter().enumerate() {
             for series in &self.series {
                 let measured: Vec<(f64, f64)> = self
@@ -388,105 +663,16 @@ impl Drawing for HarmonicsPlot {
             }
         }
 
-        // Verdicts: one marker per budget check, its margin in a label beside it.
-        let mut verdict_labels: Vec<(String, (i32, i32), RGBColor)> = Vec::new();
-        for line in &self.budget {
-            let (Some(at), Some(value)) = (line.at_v, line.value) else {
+        // One verdict marker per line, at its worst case.
+        for line in &self.lines {
+            let worst = line.worst();
+            // A value below the analysis floor has no place on the axis: the table says so.
+            let (Some(at), Some(value)) = (worst.at_v, worst.value) else {
                 continue;
             };
-            let y = value.clamp(y_low, y_high);
-            let label = format!(
-                "{} {} at {}{}",
-                line.metric.to_uppercase(),
-                if line.pass { "pass" } else { "FAIL" },
-                celsius(line.temperature_c),
-                line.margin
-                    .map(|m| format!(", margin {} dB", num(m, 1)))
-                    .unwrap_or_default()
-            );
-            if line.pass {
-                chart.draw_series(std::iter::once(
-                    EmptyElement::at((at, y))
-                        + Circle::new((0, 0), 11, PAPER.filled())
-                        + Circle::new((0, 0), 9, PASS.filled()),
-                ))?;
-            } else {
-                chart.draw_series(std::iter::once(
-                    EmptyElement::at((at, y))
-                        + Circle::new((0, 0), 12, PAPER.filled())
-                        + PathElement::new(vec![(-8, -8), (8, 8)], FAIL.stroke_width(4))
-                        + PathElement::new(vec![(-8, 8), (8, -8)], FAIL.stroke_width(4)),
-                ))?;
-            }
-            verdict_labels.push((
-                label,
-                chart.backend_coord(&(at, y)),
-                if line.pass { PASS } else { FAIL },
-            ));
+            let value = value.clamp(y_low, y_high);
+            verdict_marker(root, chart.backend_coord(&(at, value)), line.pass())?;
         }
-        let (top, bottom) = (
-            chart.backend_coord(&(x_low, y_high)).1,
-            chart.backend_coord(&(x_low, y_low)).1,
-        );
-        let wanted: Vec<i32> = mask_labels
-            .iter()
-            .map(|(_, p, _, above)| if *above { p.1 - 14 } else { p.1 + 14 })
-            .collect();
-        for ((label, pos, colour, _), y) in
-            mask_labels
-                .iter()
-                .zip(spread_labels(&wanted, 24, top + 12, bottom - 12))
-        {
-            backed_label(
-                root,
-                label,
-                (pos.0 + 12, y),
-                bold(LEGEND_PX).color(colour),
-                false,
-            )?;
-        }
-        let wanted: Vec<i32> = verdict_labels.iter().map(|(_, p, _)| p.1).collect();
-        for ((label, pos, colour), y) in
-            verdict_labels
-                .iter()
-                .zip(spread_labels(&wanted, 24, top + 12, bottom - 12))
-        {
-            backed_label(
-                root,
-                label,
-                (pos.0 - 20, y),
-                bold(LEGEND_PX).color(colour),
-                true,
-            )?;
-        }
-
-        for (si_, series) in self.series.iter().enumerate() {
-            if !missing.contains(&series.label) {
-                let colour = metric_colour(&series.metric);
-                let style = if series.metric == "thd" {
-                    colour.mix(0.6).stroke_width(7)
-                } else {
-                    colour.stroke_width(3)
-                };
-                legend_entry(
-                    &mut chart,
-                    &series.label,
-                    (1_000_000, 1),
-                    style,
-                    Some(Marker::nth(si_)),
-                )?;
-            }
-        }
-        temperature_key(&mut chart, &self.temps)?;
-        if !self.bench.is_empty() {
-            bench_legend(&mut chart, &self.temps)?;
-        }
-        legend(&mut chart, SeriesLabelPosition::LowerRight)?;
-        chart.draw_series(std::iter::once(Text::new(
-            "shaded: forbidden by the budget".to_owned(),
-            (x_high / 1.05, y_high),
-            text(LEGEND_PX, MUTED).pos(Pos::new(HPos::Right, VPos::Top)),
-        )))?;
         Ok(())
     }
 }

@@ -3,24 +3,36 @@
 //! Every figure reads only [`Report`]: what the JSON says is what the figure shows. A figure
 //! whose data is absent (no budget, no sizing, one frequency, no Monte Carlo) is skipped, not
 //! drawn empty. Text in the PNG is rasterised from the DejaVu Sans font compiled into the
-//! binary, so no system font or fontconfig is needed.
+//! binary, so no system font or fontconfig is needed; the SVG names the same family
+//! ([`canvas::FAMILY`]), so both forms look alike wherever DejaVu Sans is installed.
+//!
+//! Every figure is prepared before it is drawn: its axes ([`axis::Axis`], ticks at both ends)
+//! and its key ([`key::Key`]: legend entries and the compact verdict table, drawn in a panel
+//! beside the plot so no label covers data) are plain data a test can read.
 //!
 //! Conventions shared by all figures: colour names the metric (or the stage, where stages are
 //! compared), the line pattern names the temperature (solid for the first one in the plan),
 //! green round markers pass a budget line and red crosses fail it.
 
+pub mod axis;
 mod bench;
+pub mod canvas;
 mod compare;
 mod frequency;
 mod harmonics;
+pub mod key;
 mod monte_carlo;
 mod sizing;
 mod spectrum;
 pub(crate) mod style;
 mod transfer;
 mod two_tone;
+pub mod verdicts;
 
 use crate::error::Error;
+use crate::plots::axis::Axis;
+pub use crate::plots::canvas::{DrawResult, PlotError, HEIGHT_PX, WIDTH_PX};
+use crate::plots::key::Key;
 use crate::report::datasheet::EmbeddedFigure;
 use crate::report::queries::stage_names;
 use crate::report::Report;
@@ -28,11 +40,6 @@ use plotters::coord::Shift;
 use plotters::prelude::*;
 use rayon::prelude::*;
 use std::sync::Once;
-
-/// Width of every figure, pixels.
-pub const WIDTH_PX: u32 = 1500;
-/// Height of every figure, pixels.
-pub const HEIGHT_PX: u32 = 1000;
 
 /// The families of figures.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord)]
@@ -53,6 +60,8 @@ pub enum PlotKind {
     Frequency,
     /// Monte Carlo spread of each metric.
     MonteCarlo,
+    /// Every budget line's worst-case margin, whatever its metric and frequency.
+    Margins,
 }
 
 impl PlotKind {
@@ -67,6 +76,7 @@ impl PlotKind {
             PlotKind::StageComparison => "stage-comparison",
             PlotKind::Frequency => "frequency",
             PlotKind::MonteCarlo => "monte-carlo",
+            PlotKind::Margins => "margins",
         }
     }
 }
@@ -88,27 +98,6 @@ pub struct Figure {
     pub png: Vec<u8>,
 }
 
-/// A drawing failure, kept as text (the backends' error types differ).
-#[derive(Debug)]
-pub struct PlotError(pub String);
-
-impl std::fmt::Display for PlotError {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.write_str(&self.0)
-    }
-}
-
-impl std::error::Error for PlotError {}
-
-impl<E: std::error::Error + Send + Sync> From<DrawingAreaErrorKind<E>> for PlotError {
-    fn from(error: DrawingAreaErrorKind<E>) -> Self {
-        PlotError(error.to_string())
-    }
-}
-
-/// Result of drawing one figure.
-pub type DrawResult = Result<(), PlotError>;
-
 /// A figure that can draw itself on any plotters backend.
 pub(crate) trait Drawing: Send + Sync {
     /// Family.
@@ -126,8 +115,17 @@ pub(crate) trait Drawing: Send + Sync {
     fn title(&self) -> String;
     /// Reading guide.
     fn caption(&self) -> String;
+    /// The legend, verdict table and notes drawn beside the plot.
+    fn key(&self) -> Key;
+    /// Every axis, as drawn.
+    fn axes(&self) -> Vec<Axis>;
     /// Draws the whole figure on `root`.
     fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> DrawResult;
+}
+
+/// The font family every figure names (SVG) and embeds (PNG): DejaVu Sans first.
+pub fn style_family() -> &'static str {
+    canvas::FAMILY
 }
 
 static FONTS: Once = Once::new();
@@ -136,15 +134,17 @@ static FONTS: Once = Once::new();
 pub fn register_fonts() {
     FONTS.call_once(|| {
         // The embedded faces are valid TrueType; a failure here would be a build defect and
-        // surfaces later as a `FontUnavailable` drawing error naming the figure.
+        // surfaces later as a `FontUnavailable` drawing error naming the figure. They are
+        // registered under the family name the SVG writes, so both forms name one face.
         let _ = plotters::style::register_font(
-            "sans-serif",
+            canvas::FAMILY,
             FontStyle::Normal,
             dejavu::sans::regular(),
         );
-        let _ = plotters::style::register_font("sans-serif", FontStyle::Bold, dejavu::sans::bold());
+        let _ =
+            plotters::style::register_font(canvas::FAMILY, FontStyle::Bold, dejavu::sans::bold());
         let _ = plotters::style::register_font(
-            "sans-serif",
+            canvas::FAMILY,
             FontStyle::Oblique,
             dejavu::sans::oblique(),
         );
@@ -158,6 +158,8 @@ pub struct Sketch {
     stem: String,
     title: String,
     caption: String,
+    key: Key,
+    axes: Vec<Axis>,
     svg: Box<dyn Fn() -> Result<String, Error> + Send + Sync>,
     png: Box<dyn Fn() -> Result<Vec<u8>, Error> + Send + Sync>,
 }
@@ -171,6 +173,8 @@ impl Sketch {
             stem: drawing.stem(),
             title: drawing.title(),
             caption: drawing.caption(),
+            key: drawing.key(),
+            axes: drawing.axes(),
             png: Box::new(move || {
                 CANVAS.with(|canvas| raster(&*for_png, &mut canvas.borrow_mut()))
             }),
@@ -186,6 +190,26 @@ impl Sketch {
     /// File stem: the figure is written as `<stem>.svg` and `<stem>.png`.
     pub fn stem(&self) -> &str {
         &self.stem
+    }
+
+    /// Title as drawn.
+    pub fn title(&self) -> &str {
+        &self.title
+    }
+
+    /// Reading guide.
+    pub fn caption(&self) -> &str {
+        &self.caption
+    }
+
+    /// The key drawn beside the plot: legend entries, verdict rows and notes.
+    pub fn key(&self) -> &Key {
+        &self.key
+    }
+
+    /// Every axis of the figure, as drawn (range, ticks and their labels).
+    pub fn axes(&self) -> &[Axis] {
+        &self.axes
     }
 
     /// The SVG document.
@@ -232,7 +256,10 @@ impl Sketch {
         match self.kind {
             PlotKind::Harmonics | PlotKind::TwoTone => 8,
             PlotKind::Transfer => 6,
-            PlotKind::StageComparison | PlotKind::Frequency | PlotKind::Sizing => 5,
+            PlotKind::StageComparison
+            | PlotKind::Frequency
+            | PlotKind::Sizing
+            | PlotKind::Margins => 5,
             PlotKind::MonteCarlo => 4,
             PlotKind::Spectrum => 3,
         }
@@ -296,12 +323,12 @@ pub fn render_all(report: &Report) -> Result<Vec<Figure>, Error> {
     sketches(report).par_iter().map(Sketch::draw).collect()
 }
 
-type Maker<'a> = Box<dyn Fn() -> Option<Sketch> + Send + Sync + 'a>;
+type Maker<'a> = Box<dyn Fn() -> Vec<Sketch> + Send + Sync + 'a>;
 
-fn maker<'a, D: Drawing + Send + Sync + 'static>(
-    make: impl Fn() -> Option<D> + Send + Sync + 'a,
+fn maker<'a, D: Drawing + Send + Sync + 'static, I: IntoIterator<Item = D>>(
+    make: impl Fn() -> I + Send + Sync + 'a,
 ) -> Maker<'a> {
-    Box::new(move || make().map(Sketch::new))
+    Box::new(move || make().into_iter().map(Sketch::new).collect())
 }
 
 /// Every figure the report has data for, prepared (in parallel) but not drawn, in the fixed
@@ -318,9 +345,10 @@ pub fn sketches(report: &Report) -> Vec<Sketch> {
                 makers.push(maker(move || $plot(report, &stage, &slug)));
             }};
         }
+        per_stage!(verdicts::MarginsPlot::new);
         per_stage!(transfer::TransferPlot::new);
-        per_stage!(harmonics::HarmonicsPlot::new);
-        per_stage!(two_tone::TwoTonePlot::new);
+        per_stage!(harmonics::HarmonicsPlot::all);
+        per_stage!(two_tone::TwoTonePlot::all);
         per_stage!(spectrum::SpectrumPlot::new);
         per_stage!(sizing::SizingPlot::new);
         per_stage!(frequency::FrequencyPlot::new);

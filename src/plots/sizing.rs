@@ -1,8 +1,9 @@
 //! Sizing: the margin of each budget line versus emitter resistance, the chosen value marked,
 //! and the small-signal gain it costs on a second axis.
 
+use super::axis::Axis;
+use super::key::{draw_key, split, Key, Swatch, VerdictRow};
 use super::style::*;
-use super::transfer::nice_ceiling;
 use super::{DrawResult, Drawing, PlotKind};
 use crate::report::{BudgetRecord, Report, SizingRecord};
 use plotters::coord::Shift;
@@ -15,9 +16,15 @@ pub struct SizingPlot {
     records: Vec<SizingRecord>,
     /// Budget lines in plan order (from the first temperature): labels of the margins.
     lines: Vec<BudgetRecord>,
+    line_count: usize,
+    x: Axis,
+    y: Axis,
+    y2: Axis,
     /// Ranges of R_E usable at every temperature, Ω (shaded).
     windows: Vec<[f64; 2]>,
 }
+
+const GAIN_COLOUR: RGBColor = RGBColor(0x7a, 0x80, 0x8a);
 
 impl SizingPlot {
     /// The figure, if the stage was sized and its scan kept.
@@ -32,9 +39,42 @@ impl SizingPlot {
         let lines: Vec<BudgetRecord> = report
             .budget
             .iter()
-            .filter(|b| b.stage == stage && b.temperature_c == first.temperature_c)
+            .filter(|b| {
+                b.stage == stage && b.temperature_c == first.temperature_c && is_typical(&b.corner)
+            })
             .cloned()
             .collect();
+        let scans = records.iter().flat_map(|r| r.scan.iter());
+        let (r_low, r_high) =
+            scans
+                .clone()
+                .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), s| {
+                    (
+                        lo.min(s.emitter_resistance_ohm),
+                        hi.max(s.emitter_resistance_ohm),
+                    )
+                });
+        let margins = scans
+            .clone()
+            .flat_map(|s| s.margins.iter().flatten().copied())
+            .filter(|m| m.is_finite());
+        let (m_low, m_high) = margins.fold((0.0f64, 0.0f64), |(lo, hi), m| (lo.min(m), hi.max(m)));
+        let y = Axis::linear_step(m_low.max(-80.0) - 5.0, m_high.min(80.0) + 5.0, 10.0);
+        let (g_low, g_high) = scans
+            .clone()
+            .filter_map(|s| s.gain_db)
+            .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), g| {
+                (lo.min(g), hi.max(g))
+            });
+        // Every value unsolved (none biases): a unit span keeps the axis drawable.
+        let (g_low, g_high) = if g_low <= g_high {
+            (g_low, g_high)
+        } else {
+            (0.0, 1.0)
+        };
+        let y2 = Axis::linear(g_low - 1.0, g_high + 1.0, 6);
+        let x = Axis::linear_exact(r_low, r_high, 6).in_unit("Ω");
+        let line_count = scans.map(|s| s.margins.len()).max().unwrap_or(0);
         let windows = report
             .verdict
             .recommended
@@ -48,8 +88,19 @@ impl SizingPlot {
             slug: slug.to_owned(),
             records,
             lines,
+            line_count,
+            x,
+            y,
+            y2,
             windows,
         })
+    }
+
+    fn line_colour(&self, index: usize) -> RGBColor {
+        self.lines
+            .get(index)
+            .map(|l| metric_colour(&l.metric))
+            .unwrap_or(SERIES[index % SERIES.len()])
     }
 
     fn line_label(&self, index: usize) -> String {
@@ -57,14 +108,12 @@ impl SizingPlot {
             Some(line) => {
                 let at = line
                     .at_v
-                    .map(|a| format!(" at {}", si(a, "V")))
+                    .map(|a| format!(" at {}", si_exact(a, "V")))
                     .unwrap_or_default();
                 format!(
-                    "{}{} ({} {})",
-                    line.metric.to_uppercase(),
-                    at,
-                    line.kind,
-                    limit_text(line)
+                    "{} margin ({}{at})",
+                    metric_label(&line.metric),
+                    limit_text(&line.kind, line.limit, &line.unit),
                 )
             }
             None => format!("line {}", index + 1),
@@ -72,11 +121,18 @@ impl SizingPlot {
     }
 }
 
-fn limit_text(line: &BudgetRecord) -> String {
-    if line.unit == "V" {
-        si(line.limit, "V")
-    } else {
-        format!("{} {}", num(line.limit, 1), line.unit)
+impl SizingPlot {
+    /// The least emitter resistance at which the stage cannot bias at some temperature.
+    fn unbiased_from(&self) -> Option<f64> {
+        self.records
+            .iter()
+            .filter_map(|r| {
+                r.scan
+                    .iter()
+                    .find(|s| s.gain_db.is_none() || s.tail_headroom_v.is_some_and(|t| t < 0.0))
+                    .map(|s| s.emitter_resistance_ohm)
+            })
+            .reduce(f64::min)
     }
 }
 
@@ -92,13 +148,104 @@ impl Drawing for SizingPlot {
     }
     fn caption(&self) -> String {
         format!(
-            "Margin of each budget line of “{}” (left axis, dB, positive passes) and small-signal gain (right axis) versus emitter resistance per side; the vertical lines mark each temperature's least value, and the green band the values usable at every temperature.",
+            "Margin of each budget line of “{}” on the stage as planned with R_E swept (left axis, dB, positive passes; the worst corner at each value) and small-signal gain (right axis) versus emitter resistance per side; the vertical lines mark each temperature's least value, the green band the values usable at every temperature, and a grey band the values at which the stage cannot bias (not solved).",
             self.stage
         )
     }
+    fn key(&self) -> Key {
+        let temps: Vec<f64> = self.records.iter().map(|r| r.temperature_c).collect();
+        let mut key = Key::default();
+        for k in 0..self.line_count {
+            // A yield line has no margin per trial value: nothing drawn, nothing to label.
+            if self.lines.get(k).is_some_and(|l| l.metric == "yield") {
+                continue;
+            }
+            key.entry(
+                Swatch::line(self.line_colour(k), 3, None),
+                self.line_label(k),
+            );
+        }
+        if !self.windows.is_empty() {
+            key.entry(
+                Swatch::Band {
+                    colour: PASS,
+                    alpha: 0.08,
+                },
+                "R_E usable at every temperature",
+            );
+        }
+        if let Some(from) = self.unbiased_from() {
+            key.entry(
+                Swatch::Band {
+                    colour: INK,
+                    alpha: 0.07,
+                },
+                format!(
+                    "from {}: the stage cannot bias (tail node below the source's compliance); not solved",
+                    si(from, "Ω")
+                ),
+            );
+        }
+        key.entry(
+            Swatch::Line {
+                colour: GAIN_COLOUR,
+                alpha: 0.7,
+                width: 2,
+                pattern: pattern(0),
+                marker: Some(Marker::Circle),
+            },
+            "small-signal gain (right axis)",
+        );
+        key.temperatures(&temps);
+        key.verdict_heading = "Least R_E per temperature".into();
+        key.verdicts = self
+            .records
+            .iter()
+            .enumerate()
+            .map(|(ti, r)| {
+                let colour = if r.met { PASS } else { FAIL };
+                let binding = if r.binding_corner.is_empty() || is_typical(&r.binding_corner) {
+                    metric_label(&r.binding_metric)
+                } else {
+                    format!(
+                        "{} in the {} corner",
+                        metric_label(&r.binding_metric),
+                        r.binding_corner
+                    )
+                };
+                VerdictRow {
+                    swatch: Swatch::Line {
+                        colour,
+                        alpha: 1.0,
+                        width: 3,
+                        pattern: pattern(ti),
+                        marker: None,
+                    },
+                    line: match r.emitter_resistance_ohm {
+                        Some(re) => {
+                            format!("{}: R_E = {}", celsius(r.temperature_c), si_short(re, "Ω"))
+                        }
+                        None => format!("{}: no value", celsius(r.temperature_c)),
+                    },
+                    detail: format!(
+                        "binding {binding} · worst margin {} dB{}",
+                        num(r.best_margin, 1),
+                        r.gain_db
+                            .map(|g| format!(" · gain {} dB", num(g, 1)))
+                            .unwrap_or_default()
+                    ),
+                    verdict: if r.met { "met" } else { "not met" }.into(),
+                    pass: r.met,
+                }
+            })
+            .collect();
+        key
+    }
+    fn axes(&self) -> Vec<Axis> {
+        vec![self.x.clone(), self.y.clone(), self.y2.clone()]
+    }
 
     fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> DrawResult {
-        let temps: Vec<f64> = self.records.iter().map(|r| r.temperature_c).collect();
         let subtitle = self
             .records
             .iter()
@@ -119,38 +266,20 @@ impl Drawing for SizingPlot {
             .collect::<Vec<_>>()
             .join(" · ");
         let body = frame(root, &self.title(), &subtitle)?;
+        let (plot, side) = split(&body);
+        draw_key(&side, &self.key())?;
+        let (x, y, y2) = (&self.x, &self.y, &self.y2);
+        let (r_low, r_high, y_low, y_high) = (x.low, x.high, y.low, y.high);
 
-        let scans = self.records.iter().flat_map(|r| r.scan.iter());
-        let (r_low, r_high) =
-            scans
-                .clone()
-                .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), s| {
-                    (
-                        lo.min(s.emitter_resistance_ohm),
-                        hi.max(s.emitter_resistance_ohm),
-                    )
-                });
-        let margins = scans
-            .clone()
-            .flat_map(|s| s.margins.iter().flatten().copied())
-            .filter(|m| m.is_finite());
-        let (m_low, m_high) = margins.fold((0.0f64, 0.0f64), |(lo, hi), m| (lo.min(m), hi.max(m)));
-        let (y_low, y_high) = db_span(m_low.max(-80.0) - 5.0, m_high.min(80.0) + 5.0, 10.0);
-        let (g_low, g_high) = scans.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), s| {
-            (lo.min(s.gain_db), hi.max(s.gain_db))
-        });
-        let g_pad = nice_ceiling(((g_high - g_low) * 0.1).max(1.0));
-        let (g_low, g_high) = db_span(g_low - g_pad, g_high + g_pad, g_pad);
-
-        let mut chart = house_chart(&body, 24, 96)
+        let mut chart = house_chart(&plot, 24, 96)
             .right_y_label_area_size(100)
-            .build_cartesian_2d(r_low..r_high, y_low..y_high)?
-            .set_secondary_coord(r_low..r_high, g_low..g_high);
+            .build_cartesian_2d(x.linear_range(), y.linear_range())?
+            .set_secondary_coord(x.linear_range(), y2.linear_range());
         mesh_style(&mut chart.configure_mesh())
-            .x_desc("emitter resistance per side R_E (Ω)")
+            .x_desc("emitter resistance per side R_E")
             .y_desc("budget margin (dB)")
-            .x_label_formatter(&|v| si(*v, "").trim().to_owned())
-            .y_label_formatter(&|v| num(*v, 0))
+            .x_label_formatter(&|v| x.label(*v))
+            .y_label_formatter(&|v| y.label(*v))
             .draw()?;
         chart
             .configure_secondary_axes()
@@ -158,7 +287,7 @@ impl Drawing for SizingPlot {
             .label_style(text(TICK_PX, INK))
             .axis_desc_style(bold(AXIS_PX).color(&INK))
             .y_desc("small-signal gain (dB)")
-            .y_label_formatter(&|v| num(*v, 0))
+            .y_label_formatter(&|v| y2.label(*v))
             .draw()?;
 
         chart.draw_series(std::iter::once(Rectangle::new(
@@ -172,21 +301,17 @@ impl Drawing for SizingPlot {
         chart.draw_series(self.windows.iter().map(|[low, high]| {
             Rectangle::new([(*low, y_low), (*high, y_high)], PASS.mix(0.08).filled())
         }))?;
+        // Values that cannot bias at some temperature (the tail node below the tail source's
+        // compliance) were not solved: shade them; the key says why the curves stop.
+        if let Some(from) = self.unbiased_from() {
+            chart.draw_series(std::iter::once(Rectangle::new(
+                [(from, y_low), (r_high, y_high)],
+                INK.mix(0.07).filled(),
+            )))?;
+        }
 
-        let line_count = self
-            .records
-            .iter()
-            .flat_map(|r| r.scan.iter().map(|s| s.margins.len()))
-            .max()
-            .unwrap_or(0);
-        let gain_colour = RGBColor(0x7a, 0x80, 0x8a);
         for (ti, record) in self.records.iter().enumerate() {
-            for k in 0..line_count {
-                let colour = self
-                    .lines
-                    .get(k)
-                    .map(|l| metric_colour(&l.metric))
-                    .unwrap_or(SERIES[k % SERIES.len()]);
+            for k in 0..self.line_count {
                 let data: Vec<(f64, Option<f64>)> = record
                     .scan
                     .iter()
@@ -203,69 +328,35 @@ impl Drawing for SizingPlot {
                     (y_low, y_high),
                     false,
                     pattern(ti),
-                    colour.stroke_width(3),
+                    self.line_colour(k).stroke_width(3),
                 )?;
             }
             let gain: Vec<(f64, f64)> = record
                 .scan
                 .iter()
-                .map(|s| (s.emitter_resistance_ohm, s.gain_db))
+                .filter_map(|s| s.gain_db.map(|g| (s.emitter_resistance_ohm, g)))
                 .collect();
             chart.draw_secondary_series(std::iter::once(dashed(
                 gain,
                 pattern(ti),
-                gain_colour.mix(0.7).stroke_width(2),
+                GAIN_COLOUR.mix(0.7).stroke_width(2),
             )))?;
             if let Some(re) = record.emitter_resistance_ohm {
                 let colour = if record.met { PASS } else { FAIL };
-                chart.draw_series(std::iter::once(PathElement::new(
+                chart.draw_series(std::iter::once(dashed(
                     vec![(re, y_low), (re, y_high)],
+                    pattern(ti),
                     colour.stroke_width(3),
                 )))?;
                 if let Some(g) = record.gain_db {
                     chart.draw_secondary_series(std::iter::once(
                         EmptyElement::at((re, g))
                             + Circle::new((0, 0), 8, PAPER.filled())
-                            + Circle::new((0, 0), 6, gain_colour.filled()),
+                            + Circle::new((0, 0), 6, GAIN_COLOUR.filled()),
                     ))?;
                 }
-                let top = chart.backend_coord(&(re, y_high));
-                backed_label(
-                    root,
-                    &format!("R_E = {} at {}", si(re, "Ω"), celsius(record.temperature_c)),
-                    (top.0 + 10, top.1 + 18 + 26 * ti as i32),
-                    bold(LEGEND_PX).color(&colour),
-                    false,
-                )?;
             }
         }
-        for k in 0..line_count {
-            // A yield line has no margin per trial value: nothing drawn, nothing to label.
-            if self.lines.get(k).is_some_and(|l| l.metric == "yield") {
-                continue;
-            }
-            let colour = self
-                .lines
-                .get(k)
-                .map(|l| metric_colour(&l.metric))
-                .unwrap_or(SERIES[k % SERIES.len()]);
-            legend_entry(
-                &mut chart,
-                &self.line_label(k),
-                pattern(0),
-                colour.stroke_width(3),
-                None,
-            )?;
-        }
-        legend_entry(
-            &mut chart,
-            "small-signal gain (right)",
-            pattern(0),
-            gain_colour.mix(0.7).stroke_width(2),
-            Some(Marker::Circle),
-        )?;
-        temperature_key(&mut chart, &temps)?;
-        legend(&mut chart, SeriesLabelPosition::LowerRight)?;
         Ok(())
     }
 }

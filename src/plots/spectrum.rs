@@ -1,5 +1,7 @@
 //! Output spectrum at one drive point: the fundamental and each harmonic as a stem in dBc.
 
+use super::axis::Axis;
+use super::key::{draw_key, split, Key, Swatch};
 use super::style::*;
 use super::{DrawResult, Drawing, PlotKind};
 use crate::report::{PointRecord, Report};
@@ -17,6 +19,21 @@ pub struct SpectrumPlot {
     points: Vec<PointRecord>,
     highest_order: usize,
     floor_dbc: f64,
+    corners: bool,
+    y: Axis,
+}
+
+fn temperature_colour(index: usize) -> RGBColor {
+    SERIES[(index * 2) % SERIES.len()]
+}
+
+/// A hollow triangle (outline only) centred at a pixel position.
+fn hollow_triangle(centre: (i32, i32), colour: RGBColor) -> PathElement<(i32, i32)> {
+    let (x, y) = centre;
+    PathElement::new(
+        vec![(x, y - 8), (x + 7, y + 5), (x - 7, y + 5), (x, y - 8)],
+        colour.stroke_width(2),
+    )
 }
 
 impl SpectrumPlot {
@@ -41,19 +58,28 @@ impl SpectrumPlot {
                 .min_by(|a, b| (a / at).ln().abs().total_cmp(&(b / at).ln().abs()))?,
             None => candidates.iter().map(|p| p.amplitude_v).fold(0.0, f64::max),
         };
+        let corners = candidates.iter().any(|p| !is_typical(&p.corner));
         let points: Vec<PointRecord> = candidates
             .into_iter()
-            .filter(|p| p.amplitude_v == amplitude_v)
+            .filter(|p| p.amplitude_v == amplitude_v && is_typical(&p.corner))
             .cloned()
             .collect();
         let highest_order = points.iter().map(|p| p.harmonics.highest_order()).max()?;
+        let floor_dbc = report.analysis.analysis_floor_dbc;
+        let lowest = points
+            .iter()
+            .flat_map(|p| (2..=highest_order).filter_map(|k| p.harmonic(k)))
+            .fold(0.0f64, f64::min);
+        let y = Axis::linear_step((lowest - 10.0).max(floor_dbc), 10.0, 20.0);
         (highest_order >= 2).then(|| SpectrumPlot {
             stage: stage.to_owned(),
             slug: slug.to_owned(),
             amplitude_v,
             points,
             highest_order,
-            floor_dbc: report.analysis.analysis_floor_dbc,
+            floor_dbc,
+            corners,
+            y,
         })
     }
 }
@@ -69,15 +95,55 @@ impl Drawing for SpectrumPlot {
         format!(
             "Output spectrum · {} at {}",
             self.stage,
-            si(self.amplitude_v, "V")
+            si_exact(self.amplitude_v, "V")
         )
     }
     fn caption(&self) -> String {
         format!(
-            "Harmonics of the differential output of “{}” in dBc at {} peak differential input; a hollow marker on the bottom axis is a harmonic below the analysis floor.",
+            "Harmonics of the differential output of “{}” in dBc at {} peak differential input{}; a hollow triangle on the bottom axis is a harmonic below the analysis floor.",
             self.stage,
-            si(self.amplitude_v, "V")
+            si_exact(self.amplitude_v, "V"),
+            if self.corners { ", typical process corner" } else { "" }
         )
+    }
+    fn key(&self) -> Key {
+        let mut key = Key::default();
+        for (ti, p) in self.points.iter().enumerate() {
+            key.entry(
+                Swatch::Dot {
+                    colour: temperature_colour(ti),
+                    marker: Marker::Circle,
+                },
+                format!("{} (stem and level)", celsius(p.temperature_c)),
+            );
+        }
+        key.entry(
+            Swatch::Hollow { colour: MUTED },
+            format!("below the analysis floor ({} dBc)", num(self.floor_dbc, 0)),
+        );
+        if self.points.len() > 1 {
+            let temps: Vec<String> = self
+                .points
+                .iter()
+                .map(|p| celsius(p.temperature_c))
+                .collect();
+            for order in 2..=self.highest_order.min(7) {
+                let levels: Vec<String> = self
+                    .points
+                    .iter()
+                    .map(|p| p.harmonic(order).map(|v| num(v, 1)).unwrap_or("—".into()))
+                    .collect();
+                if levels.iter().any(|l| l != "—") {
+                    key.notes
+                        .push(format!("HD{order}: {} dBc", levels.join(" / ")));
+                }
+            }
+            key.notes.push(format!("(levels at {})", temps.join(" / ")));
+        }
+        key
+    }
+    fn axes(&self) -> Vec<Axis> {
+        vec![self.y.clone()]
     }
 
     fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> DrawResult {
@@ -93,19 +159,15 @@ impl Drawing for SpectrumPlot {
                 )
             })
             .collect();
-        let subtitle = format!("fundamental {} · {}", si(f, "Hz"), thd.join(" · "));
+        let subtitle = format!("fundamental {} · {}", si_exact(f, "Hz"), thd.join(" · "));
         let body = frame(root, &self.title(), &subtitle)?;
-
-        let lowest = self
-            .points
-            .iter()
-            .flat_map(|p| (2..=self.highest_order).filter_map(|k| p.harmonic(k)))
-            .fold(0.0f64, f64::min);
-        let (y_low, _) = db_span((lowest - 10.0).max(self.floor_dbc), 0.0, 20.0);
-        let y_high = 10.0;
+        let (plot, side) = split(&body);
+        draw_key(&side, &self.key())?;
+        let y = &self.y;
+        let y_low = y.low;
         let x_high = self.highest_order as f64 + 0.6;
         let mut chart =
-            house_chart(&body, 48, 96).build_cartesian_2d(0.4..x_high, y_low..y_high)?;
+            house_chart(&plot, 36, 96).build_cartesian_2d(0.4..x_high, y.linear_range())?;
         mesh_style(&mut chart.configure_mesh())
             .disable_x_mesh()
             .x_labels(self.highest_order)
@@ -118,13 +180,13 @@ impl Drawing for SpectrumPlot {
                     String::new()
                 }
             })
-            .y_label_formatter(&|v| num(*v, 0))
+            .y_label_formatter(&|v| y.label(*v))
             .draw()?;
 
         let n = self.points.len();
         let width = 0.5 / n.max(1) as f64;
         for (ti, p) in self.points.iter().enumerate() {
-            let colour = SERIES[(ti * 2) % SERIES.len()];
+            let colour = temperature_colour(ti);
             let shift = (ti as f64 - (n as f64 - 1.0) / 2.0) * width;
             for order in 1..=self.highest_order {
                 let x = order as f64 + shift;
@@ -142,7 +204,9 @@ impl Drawing for SpectrumPlot {
                         chart.draw_series(std::iter::once(
                             EmptyElement::at((x, v)) + Circle::new((0, 0), 7, colour.filled()),
                         ))?;
-                        if ti == 0 || n == 1 {
+                        // Levels are written only when one temperature is drawn: with
+                        // several, neighbouring stems would crowd them (the key lists them).
+                        if n == 1 {
                             chart.draw_series(std::iter::once(Text::new(
                                 num(v, 1),
                                 (x, v),
@@ -151,28 +215,12 @@ impl Drawing for SpectrumPlot {
                         }
                     }
                     _ => {
-                        chart.draw_series(std::iter::once(
-                            EmptyElement::at((x, y_low))
-                                + TriangleMarker::new((0, -8), 7, colour.stroke_width(2)),
-                        ))?;
+                        let at = chart.backend_coord(&(x, y_low));
+                        root.draw(&hollow_triangle((at.0, at.1 - 10), colour))?;
                     }
                 }
             }
-            chart
-                .draw_series(std::iter::empty::<Circle<(f64, f64), i32>>())?
-                .label(celsius(p.temperature_c))
-                .legend(move |(x, y)| {
-                    EmptyElement::at((x + 14, y)) + Circle::new((0, 0), 7, colour.filled())
-                });
         }
-        chart
-            .draw_series(std::iter::empty::<Circle<(f64, f64), i32>>())?
-            .label(format!("below the floor ({} dBc)", num(self.floor_dbc, 0)))
-            .legend(|(x, y)| {
-                EmptyElement::at((x + 14, y))
-                    + TriangleMarker::new((0, 0), 7, MUTED.stroke_width(2))
-            });
-        legend(&mut chart, SeriesLabelPosition::UpperRight)?;
         Ok(())
     }
 }

@@ -1,11 +1,12 @@
 //! The house style: palette, type sizes, the figure frame and the drawing helpers every
 //! figure shares.
 
-use super::{DrawResult, PlotError, HEIGHT_PX};
+use crate::plots::canvas::{DrawResult, PlotError, HEIGHT_PX};
 pub use crate::report::queries::{stage_names, temperatures, typical_temperature};
-pub use crate::report::text::{celsius, num, si};
+pub use crate::report::text::{
+    celsius, level, limit_text, metric_label, num, si, si_exact, si_short,
+};
 use plotters::chart::MeshStyle;
-use plotters::coord::types::RangedCoordf64;
 use plotters::coord::Shift;
 use plotters::element::DashedPathElement;
 use plotters::prelude::*;
@@ -47,8 +48,12 @@ pub fn metric_colour(metric: &str) -> RGBColor {
         "hd2" => SERIES[2],
         "hd5" => SERIES[4],
         "im3" => SERIES[3],
-        "gain" => SERIES[6],
+        "gain" => RGBColor(0x1f, 0x8a, 0xc0),
         "iip3" => SERIES[5],
+        "oip3" => RGBColor(0xa0, 0x52, 0x2d),
+        "p1db" => RGBColor(0x6b, 0x4f, 0xa8),
+        "input_noise" => RGBColor(0x7a, 0x52, 0x30),
+        "steering_range" => SERIES[6],
         other => {
             let order: usize = other.trim_start_matches("hd").parse().unwrap_or(0);
             SERIES[order % SERIES.len()]
@@ -71,14 +76,38 @@ const HEADER_PX: u32 = 104;
 /// Footer height, px.
 const FOOTER_PX: u32 = 36;
 
+pub use crate::plots::canvas::FAMILY;
+
 /// A font of the house face.
 pub fn font(size: f64) -> FontDesc<'static> {
-    FontDesc::new(FontFamily::SansSerif, size, FontStyle::Normal)
+    FontDesc::new(FontFamily::Name(FAMILY), size, FontStyle::Normal)
 }
 
 /// A bold font of the house face.
 pub fn bold(size: f64) -> FontDesc<'static> {
-    FontDesc::new(FontFamily::SansSerif, size, FontStyle::Bold)
+    FontDesc::new(FontFamily::Name(FAMILY), size, FontStyle::Bold)
+}
+
+/// Marker of a named metric, the same in every figure.
+pub fn metric_marker(metric: &str) -> Marker {
+    match metric {
+        "hd2" => Marker::Circle,
+        "hd3" => Marker::Square,
+        "thd" => Marker::Diamond,
+        "im3" | "im2" => Marker::Triangle,
+        other => {
+            let order: usize = other.trim_start_matches("hd").parse().unwrap_or(0);
+            Marker::nth(order)
+        }
+    }
+}
+
+/// The case a figure's lines are drawn for when the plan has process corners.
+pub const TYPICAL_CORNER: &str = crate::model::corner::TYPICAL;
+
+/// Whether a record's corner is the typical one (records without corners are typical).
+pub fn is_typical(corner: &str) -> bool {
+    corner.is_empty() || corner == TYPICAL_CORNER
 }
 
 /// Text style of a given size and colour.
@@ -203,8 +232,13 @@ pub fn clip_runs(
 }
 
 /// Draws a line in a cartesian chart as clipped runs; returns nothing to annotate.
-pub fn draw_runs<'a, DB: DrawingBackend + 'a, X: Ranged<ValueType = f64>>(
-    chart: &mut ChartContext<'a, DB, Cartesian2d<X, RangedCoordf64>>,
+pub fn draw_runs<
+    'a,
+    DB: DrawingBackend + 'a,
+    X: Ranged<ValueType = f64>,
+    Y: Ranged<ValueType = f64>,
+>(
+    chart: &mut ChartContext<'a, DB, Cartesian2d<X, Y>>,
     points: &[(f64, Option<f64>)],
     y_range: (f64, f64),
     log_x: bool,
@@ -214,34 +248,6 @@ pub fn draw_runs<'a, DB: DrawingBackend + 'a, X: Ranged<ValueType = f64>>(
     for run in clip_runs(points, y_range.0, y_range.1, log_x) {
         chart.draw_series(std::iter::once(dashed(run, pattern, style)))?;
     }
-    Ok(())
-}
-
-/// Adds a label-only legend entry drawn as a line sample.
-pub fn legend_entry<'a, DB: DrawingBackend + 'a, X: Ranged<ValueType = f64>>(
-    chart: &mut ChartContext<'a, DB, Cartesian2d<X, RangedCoordf64>>,
-    label: &str,
-    pattern: (i32, i32),
-    style: ShapeStyle,
-    marker: Option<Marker>,
-) -> DrawResult {
-    chart
-        .draw_series(std::iter::empty::<Circle<(f64, f64), i32>>())?
-        .label(label)
-        .legend(move |(x, y)| {
-            let sample = if pattern.0 > 1000 {
-                (100, 1)
-            } else {
-                (pattern.0.min(10), pattern.1.min(6))
-            };
-            let line =
-                DashedPathElement::new(vec![(x - 2, y), (x + 30, y)], sample.0, sample.1, style);
-            let mark = match marker {
-                Some(m) => m.element((x + 14, y), style.color),
-                None => Polygon::new(vec![(x, y); 3], TRANSPARENT.filled()),
-            };
-            EmptyElement::at((0, 0)) + line + mark
-        });
     Ok(())
 }
 
@@ -299,8 +305,13 @@ impl Marker {
 pub const MAX_MARKERS: usize = 64;
 
 /// Draws point markers of one series (thinned to at most [`MAX_MARKERS`]).
-pub fn draw_markers<'a, DB: DrawingBackend + 'a, X: Ranged<ValueType = f64>>(
-    chart: &mut ChartContext<'a, DB, Cartesian2d<X, RangedCoordf64>>,
+pub fn draw_markers<
+    'a,
+    DB: DrawingBackend + 'a,
+    X: Ranged<ValueType = f64>,
+    Y: Ranged<ValueType = f64>,
+>(
+    chart: &mut ChartContext<'a, DB, Cartesian2d<X, Y>>,
     points: &[(f64, Option<f64>)],
     y_range: (f64, f64),
     marker: Marker,
@@ -326,26 +337,6 @@ pub fn draw_markers<'a, DB: DrawingBackend + 'a, X: Ranged<ValueType = f64>>(
     Ok(())
 }
 
-/// Rounds a dB axis span outwards to a multiple of `step`.
-pub fn db_span(low: f64, high: f64, step: f64) -> (f64, f64) {
-    let low = (low / step).floor() * step;
-    let mut high = (high / step).ceil() * step;
-    if high - low < step {
-        high = low + step;
-    }
-    (low, high)
-}
-
-/// Log-axis bounds around `low..high` with a margin of `factor` on both ends.
-pub fn log_span(low: f64, high: f64, factor: f64) -> (f64, f64) {
-    let (low, high) = if high > low {
-        (low, high)
-    } else {
-        (low / 2.0, low * 2.0)
-    };
-    (low / factor, high * factor)
-}
-
 /// Applies the house mesh style to a chart.
 pub fn mesh_style<'a, 'b, DB: DrawingBackend, X: Ranged, Y: Ranged>(
     mesh: &'b mut MeshStyle<'a, 'b, X, Y, DB>,
@@ -356,105 +347,6 @@ pub fn mesh_style<'a, 'b, DB: DrawingBackend, X: Ranged, Y: Ranged>(
         .max_light_lines(4)
         .label_style(text(TICK_PX, INK))
         .axis_desc_style(bold(AXIS_PX).color(&INK))
-}
-
-/// Places a legend in the house style.
-pub fn legend<'a, DB: DrawingBackend + 'a, CT: CoordTranslate>(
-    chart: &mut ChartContext<'a, DB, CT>,
-    position: SeriesLabelPosition,
-) -> DrawResult {
-    chart
-        .configure_series_labels()
-        .position(position)
-        .margin(14)
-        .legend_area_size(44)
-        .background_style(PAPER.mix(0.92))
-        .border_style(GRID.stroke_width(1))
-        .label_font(text(LEGEND_PX, INK))
-        .draw()?;
-    Ok(())
-}
-
-/// Draws the temperature key (line patterns) as legend entries when there are several.
-pub fn temperature_key<'a, DB: DrawingBackend + 'a, X: Ranged<ValueType = f64>>(
-    chart: &mut ChartContext<'a, DB, Cartesian2d<X, RangedCoordf64>>,
-    temps: &[f64],
-) -> DrawResult {
-    if temps.len() < 2 {
-        return Ok(());
-    }
-    for (i, t) in temps.iter().enumerate() {
-        legend_entry(chart, &celsius(*t), pattern(i), MUTED.stroke_width(3), None)?;
-    }
-    Ok(())
-}
-
-/// Moves label positions (pixels, in any order) apart so neighbours are at least `gap` apart,
-/// keeping them inside `low..=high` where possible; returns them in the input order.
-pub fn spread_labels(desired: &[i32], gap: i32, low: i32, high: i32) -> Vec<i32> {
-    let mut order: Vec<usize> = (0..desired.len()).collect();
-    order.sort_by_key(|&i| desired[i]);
-    let mut placed: Vec<i32> = order.iter().map(|&i| desired[i].max(low)).collect();
-    for k in 1..placed.len() {
-        placed[k] = placed[k].max(placed[k - 1] + gap);
-    }
-    if let Some(&last) = placed.last() {
-        if last > high {
-            let shift = last - high;
-            for p in placed.iter_mut() {
-                *p -= shift;
-            }
-            for k in (0..placed.len().saturating_sub(1)).rev() {
-                placed[k] = placed[k].min(placed[k + 1] - gap);
-            }
-        }
-    }
-    let mut result = vec![0; desired.len()];
-    for (k, &i) in order.iter().enumerate() {
-        result[i] = placed[k];
-    }
-    result
-}
-
-/// Draws a one-line label at a pixel position on a light backing so lines beneath stay
-/// readable; `right` anchors the label's right end at `x`, otherwise its left end.
-pub fn backed_label<DB: DrawingBackend>(
-    root: &DrawingArea<DB, Shift>,
-    label: &str,
-    (x, y): (i32, i32),
-    style: TextStyle<'static>,
-    right: bool,
-) -> DrawResult {
-    let (w, h) = root.estimate_text_size(label, &style)?;
-    let (w, h) = (w as i32, h as i32);
-    let left = if right { x - w } else { x };
-    root.draw(&Rectangle::new(
-        [(left - 4, y - h / 2 - 3), (left + w + 4, y + h / 2 + 3)],
-        PAPER.mix(0.85).filled(),
-    ))?;
-    root.draw(&Text::new(
-        label.to_owned(),
-        (left, y),
-        style.pos(Pos::new(HPos::Left, VPos::Center)),
-    ))?;
-    Ok(())
-}
-
-/// Tick label of a log axis: only mantissas 1, 2 and 5 are labelled, so short spans stay
-/// readable.
-pub fn log_tick(value: f64, unit: &str) -> String {
-    if value <= 0.0 || !value.is_finite() {
-        return String::new();
-    }
-    let mantissa = value / 10f64.powf(value.log10().floor());
-    if [1.0, 2.0, 5.0, 10.0]
-        .iter()
-        .any(|m| (mantissa - m).abs() < 1e-6 * m)
-    {
-        si(value, unit)
-    } else {
-        String::new()
-    }
 }
 
 /// The house chart frame: standard margins and label areas around a plot body, with the right
@@ -479,17 +371,6 @@ mod tests {
     use super::*;
 
     #[test]
-    fn labels_are_spread_at_least_a_gap_apart_in_input_order() {
-        let placed = spread_labels(&[100, 90, 95, 300], 24, 0, 1000);
-        let mut sorted = placed.clone();
-        sorted.sort();
-        assert!(sorted.windows(2).all(|w| w[1] - w[0] >= 24), "{placed:?}");
-        // The lowest wish keeps its place; the isolated label is untouched.
-        assert_eq!(placed[1], 90);
-        assert_eq!(placed[3], 300);
-    }
-
-    #[test]
     fn clipping_interpolates_the_crossing_and_splits_at_gaps() {
         // A straight line y = x from -10 to 10 clipped to 0..5 crosses at exactly 0 and 5
         // (linear interpolation, exact for a straight line).
@@ -504,12 +385,5 @@ mod tests {
             (5.0, Some(4.5)),
         ];
         assert_eq!(clip_runs(&gapped, 0.0, 5.0, false).len(), 2);
-    }
-
-    #[test]
-    fn log_ticks_label_one_two_five_only() {
-        assert_eq!(log_tick(0.01, "V"), crate::units::format_si(0.01, "V"));
-        assert_eq!(log_tick(0.02, "V"), crate::units::format_si(0.02, "V"));
-        assert_eq!(log_tick(0.03, "V"), "");
     }
 }

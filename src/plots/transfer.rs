@@ -1,12 +1,13 @@
 //! Transfer curve: normalised differential output current and incremental transconductance
 //! versus differential input, one figure per stage, every temperature overlaid.
 
+use super::axis::{nice_step, Axis};
+use super::key::{draw_key, split, Key, Swatch};
 use super::style::*;
 use super::{DrawResult, Drawing, PlotKind};
 use crate::report::{Report, StageRecord};
 use plotters::coord::Shift;
 use plotters::prelude::*;
-use plotters::style::text_anchor::{HPos, Pos, VPos};
 
 /// The transfer figure of one stage.
 pub struct TransferPlot {
@@ -14,24 +15,85 @@ pub struct TransferPlot {
     slug: String,
     records: Vec<StageRecord>,
     steering_fraction: f64,
+    corners: bool,
+    x: Axis,
+    y: Axis,
+    y2: Axis,
 }
+
+const CURRENT: RGBColor = SERIES[0];
+const GM: RGBColor = SERIES[1];
 
 impl TransferPlot {
     /// The figure, if the report carries a transfer curve for the stage.
     pub fn new(report: &Report, stage: &str, slug: &str) -> Option<Self> {
+        let corners = report.stages.iter().any(|s| !is_typical(&s.corner));
         let records: Vec<StageRecord> = report
             .stages
             .iter()
-            .filter(|s| s.stage == stage && s.transfer.len() > 1)
+            .filter(|s| s.stage == stage && s.transfer.len() > 1 && is_typical(&s.corner))
             .cloned()
             .collect();
-        (!records.is_empty()).then(|| TransferPlot {
+        if records.is_empty() {
+            return None;
+        }
+        // The axis spans what every curve covers, so no curve stops short of its end.
+        let x_max_mv = records
+            .iter()
+            .map(|r| {
+                r.transfer
+                    .iter()
+                    .map(|t| t.input_v.abs() * 1e3)
+                    .fold(0.0, f64::max)
+            })
+            .fold(f64::INFINITY, f64::min);
+        let step = nice_step(x_max_mv / 8.0);
+        let x_end = ((x_max_mv / step).floor() * step).max(step.min(x_max_mv));
+        let x = Axis::linear_exact(-x_end, x_end, 8);
+        let y = Axis::linear_step(-1.2, 1.2, 0.2);
+        let gm_values = records
+            .iter()
+            .flat_map(|r| r.transfer.iter().map(|t| t.transconductance_s * 1e3));
+        let gm_max = gm_values.clone().fold(0.0, f64::max);
+        let gm_min = gm_values.fold(0.0, f64::min);
+        let gm_bottom = if gm_min < -0.01 * gm_max {
+            gm_min * 1.2
+        } else {
+            0.0
+        };
+        let y2 = Axis::linear(gm_bottom, gm_max * 1.08, 8);
+        Some(TransferPlot {
             stage: stage.to_owned(),
             slug: slug.to_owned(),
             records,
             steering_fraction: report.analysis.steering_fraction,
+            corners,
+            x,
+            y,
+            y2,
         })
     }
+
+    fn reference(&self) -> (f64, &StageRecord) {
+        let temps: Vec<f64> = self.records.iter().map(|r| r.temperature_c).collect();
+        let typical = typical_temperature(&temps).unwrap_or(temps[0]);
+        let record = self
+            .records
+            .iter()
+            .find(|r| r.temperature_c == typical)
+            .unwrap_or(&self.records[0]);
+        (typical, record)
+    }
+}
+
+/// Opacity of the band where a side saturates.
+const SATURATION_ALPHA: f64 = 0.13;
+
+/// Whether either side's collector-base junction is forward-biased anywhere on the curve.
+fn reference_saturates(transfer: &[crate::report::TransferRecord]) -> bool {
+    transfer
+        .iter()
+        .any(|t| t.base_collector_v.iter().any(|v| *v > 0.0))
 }
 
 impl Drawing for TransferPlot {
@@ -50,55 +112,77 @@ impl Drawing for TransferPlot {
             self.stage,
             100.0 * (1.0 - self.steering_fraction),
             100.0 * self.steering_fraction
-        )
+        ) + if self.corners { " Typical process corner." } else { "" }
+    }
+    fn key(&self) -> Key {
+        let temps: Vec<f64> = self.records.iter().map(|r| r.temperature_c).collect();
+        let (typical, _) = self.reference();
+        let mut key = Key::default();
+        key.entry(
+            Swatch::line(CURRENT, 3, None),
+            "normalised output current (left axis)",
+        );
+        key.entry(Swatch::line(GM, 3, None), "incremental g_m (right axis)");
+        key.entry(
+            Swatch::Band {
+                colour: ACCENT,
+                alpha: 0.1,
+            },
+            format!(
+                "steering range at {} ({:.0} % of the tail current on one side at its edges)",
+                celsius(typical),
+                100.0 * self.steering_fraction
+            ),
+        );
+        if reference_saturates(&self.reference().1.transfer) {
+            key.entry(
+                Swatch::Band {
+                    colour: MUTED,
+                    alpha: SATURATION_ALPHA,
+                },
+                format!(
+                    "a side saturates (collector-base junction forward-biased) at {}; solid edge at its onset",
+                    celsius(typical)
+                ),
+            );
+        }
+        key.temperatures(&temps);
+        if self.corners {
+            key.notes
+                .push("Typical process corner; the report's corner table gives the spread.".into());
+        }
+        key
+    }
+    fn axes(&self) -> Vec<Axis> {
+        vec![self.x.clone(), self.y.clone(), self.y2.clone()]
     }
 
     fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> DrawResult {
-        let temps: Vec<f64> = self.records.iter().map(|r| r.temperature_c).collect();
-        let typical = typical_temperature(&temps).unwrap_or(temps[0]);
-        let reference = self
-            .records
-            .iter()
-            .find(|r| r.temperature_c == typical)
-            .unwrap_or(&self.records[0]);
+        let (typical, reference) = self.reference();
         let subtitle = format!(
             "steering range {} to {} at {} · small-signal g_m {} · φT {}",
-            si(reference.steering_low_v, "V"),
-            si(reference.steering_high_v, "V"),
+            si_short(reference.steering_low_v, "V"),
+            si_short(reference.steering_high_v, "V"),
             celsius(typical),
-            si(reference.transconductance_s, "S"),
-            si(reference.thermal_voltage_v, "V"),
+            si_short(reference.transconductance_s, "S"),
+            si_short(reference.thermal_voltage_v, "V"),
         );
         let body = frame(root, &self.title(), &subtitle)?;
+        let (plot, side) = split(&body);
+        draw_key(&side, &self.key())?;
+        let (x, y, y2) = (&self.x, &self.y, &self.y2);
+        let (x_low, x_high) = (x.low, x.high);
+        let y_range = (y.low, y.high);
 
-        let x_max_mv = self
-            .records
-            .iter()
-            .flat_map(|r| r.transfer.iter().map(|t| t.input_v.abs() * 1e3))
-            .fold(0.0, f64::max);
-        let gm_values = self
-            .records
-            .iter()
-            .flat_map(|r| r.transfer.iter().map(|t| t.transconductance_s * 1e3));
-        let gm_max = gm_values.clone().fold(0.0, f64::max);
-        let gm_min = gm_values.fold(0.0, f64::min);
-        let gm_top = nice_ceiling(gm_max * 1.08);
-        let gm_bottom = if gm_min < -0.01 * gm_max {
-            -nice_ceiling(-gm_min * 1.2)
-        } else {
-            0.0
-        };
-        let y_range = (-1.1, 1.1);
-
-        let mut chart = house_chart(&body, 24, 96)
+        let mut chart = house_chart(&plot, 24, 96)
             .right_y_label_area_size(100)
-            .build_cartesian_2d(-x_max_mv..x_max_mv, y_range.0..y_range.1)?
-            .set_secondary_coord(-x_max_mv..x_max_mv, gm_bottom..gm_top);
+            .build_cartesian_2d(x.linear_range(), y.linear_range())?
+            .set_secondary_coord(x.linear_range(), y2.linear_range());
         mesh_style(&mut chart.configure_mesh())
             .x_desc("differential input v_d (mV)")
             .y_desc("(I_CP − I_CM) / I_tail")
-            .x_label_formatter(&|v| num(*v, if x_max_mv < 20.0 { 1 } else { 0 }))
-            .y_label_formatter(&|v| num(*v, 1))
+            .x_label_formatter(&|v| x.label(*v))
+            .y_label_formatter(&|v| y.label(*v))
             .draw()?;
         chart
             .configure_secondary_axes()
@@ -106,21 +190,22 @@ impl Drawing for TransferPlot {
             .label_style(text(TICK_PX, INK))
             .axis_desc_style(bold(AXIS_PX).color(&INK))
             .y_desc("incremental g_m (mS)")
-            .y_label_formatter(&|v| num(*v, if gm_top < 1.0 { 2 } else { 1 }))
+            .y_label_formatter(&|v| y2.label(*v))
             .draw()?;
 
         // Steering band of the typical temperature, boundaries of every temperature.
         chart.draw_series(std::iter::once(Rectangle::new(
             [
-                (reference.steering_low_v * 1e3, y_range.0),
-                (reference.steering_high_v * 1e3, y_range.1),
+                ((reference.steering_low_v * 1e3).max(x_low), y_range.0),
+                ((reference.steering_high_v * 1e3).min(x_high), y_range.1),
             ],
-            ACCENT.mix(0.07).filled(),
+            ACCENT.mix(0.1).filled(),
         )))?;
         for (i, r) in self.records.iter().enumerate() {
             for edge in [r.steering_low_v, r.steering_high_v] {
+                let edge = (edge * 1e3).clamp(x_low, x_high);
                 chart.draw_series(std::iter::once(dashed(
-                    vec![(edge * 1e3, y_range.0), (edge * 1e3, y_range.1)],
+                    vec![(edge, y_range.0), (edge, y_range.1)],
                     if i == 0 { (8, 6) } else { pattern(i) },
                     MUTED.mix(0.8).stroke_width(1),
                 )))?;
@@ -128,7 +213,7 @@ impl Drawing for TransferPlot {
         }
         // Where each side saturates (typical temperature): inputs with V_BC > 0 on that side,
         // from the first such sample out to the edge.
-        for (side, name) in [(0usize, "P"), (1usize, "M")] {
+        for side in [0usize, 1] {
             let saturated: Vec<f64> = reference
                 .transfer
                 .iter()
@@ -142,97 +227,95 @@ impl Drawing for TransferPlot {
                 continue;
             };
             let edge = if side == 0 { lo } else { hi };
-            let outer = if side == 0 { x_max_mv } else { -x_max_mv };
+            let outer = if side == 0 { x_high } else { x_low };
             chart.draw_series(std::iter::once(Rectangle::new(
                 [(edge, y_range.0), (outer, y_range.1)],
-                MUTED.mix(0.13).filled(),
+                MUTED.mix(SATURATION_ALPHA).filled(),
             )))?;
             chart.draw_series(std::iter::once(PathElement::new(
                 vec![(edge, y_range.0), (edge, y_range.1)],
                 MUTED.stroke_width(2),
             )))?;
-            let (anchor, x) = if side == 0 {
-                (HPos::Left, edge + 0.01 * x_max_mv)
-            } else {
-                (HPos::Right, edge - 0.01 * x_max_mv)
-            };
-            chart.draw_series(std::iter::once(Text::new(
-                format!("{name} side saturates"),
-                (x, -1.06),
-                text(LEGEND_PX, MUTED).pos(Pos::new(anchor, VPos::Bottom)),
-            )))?;
         }
         let level = 2.0 * self.steering_fraction - 1.0;
         for y in [-level, level] {
             chart.draw_series(std::iter::once(dashed(
-                vec![(-x_max_mv, y), (x_max_mv, y)],
+                vec![(x_low, y), (x_high, y)],
                 (3, 6),
                 MUTED.mix(0.7).stroke_width(1),
             )))?;
         }
-        chart.draw_series(std::iter::once(Text::new(
-            format!("steering range ({:.0} %)", 100.0 * self.steering_fraction),
-            (reference.steering_high_v * 1e3, 1.06),
-            text(LEGEND_PX, MUTED).pos(Pos::new(HPos::Right, VPos::Top)),
-        )))?;
 
-        let current_colour = SERIES[0];
-        let gm_colour = SERIES[1];
         for (i, r) in self.records.iter().enumerate() {
-            let current: Vec<(f64, Option<f64>)> = r
-                .transfer
-                .iter()
-                .map(|t| (t.input_v * 1e3, Some(t.normalised_current)))
-                .collect();
+            let current: Vec<(f64, Option<f64>)> = trim_x(
+                &r.transfer
+                    .iter()
+                    .map(|t| (t.input_v * 1e3, t.normalised_current))
+                    .collect::<Vec<_>>(),
+                x_low,
+                x_high,
+            )
+            .into_iter()
+            .map(|(a, b)| (a, Some(b)))
+            .collect();
             draw_runs(
                 &mut chart,
                 &current,
                 y_range,
                 false,
                 pattern(i),
-                current_colour.stroke_width(3),
+                CURRENT.stroke_width(3),
             )?;
-            let gm: Vec<(f64, f64)> = r
-                .transfer
-                .iter()
-                .map(|t| (t.input_v * 1e3, t.transconductance_s * 1e3))
-                .collect();
+            let gm = trim_x(
+                &r.transfer
+                    .iter()
+                    .map(|t| (t.input_v * 1e3, t.transconductance_s * 1e3))
+                    .collect::<Vec<_>>(),
+                x_low,
+                x_high,
+            );
             chart.draw_secondary_series(std::iter::once(dashed(
                 gm,
                 pattern(i),
-                gm_colour.stroke_width(3),
+                GM.stroke_width(3),
             )))?;
         }
-        legend_entry(
-            &mut chart,
-            "normalised output current (left)",
-            (1_000_000, 1),
-            current_colour.stroke_width(3),
-            None,
-        )?;
-        legend_entry(
-            &mut chart,
-            "incremental g_m (right)",
-            (1_000_000, 1),
-            gm_colour.stroke_width(3),
-            None,
-        )?;
-        temperature_key(&mut chart, &temps)?;
-        legend(&mut chart, SeriesLabelPosition::UpperLeft)?;
         Ok(())
     }
 }
 
-/// Rounds up to 1, 2, 2.5 or 5 times a power of ten.
-pub fn nice_ceiling(value: f64) -> f64 {
-    if value <= 0.0 || !value.is_finite() {
-        return 1.0;
+/// The part of a polyline (ascending in x) between `low` and `high`, with the ends
+/// interpolated onto the bounds so the line reaches both ends of the axis.
+pub fn trim_x(points: &[(f64, f64)], low: f64, high: f64) -> Vec<(f64, f64)> {
+    let at = |x: f64| -> Option<(f64, f64)> {
+        let k = points.windows(2).position(|w| w[0].0 <= x && x <= w[1].0)?;
+        let (a, b) = (points[k], points[k + 1]);
+        let t = if b.0 > a.0 {
+            (x - a.0) / (b.0 - a.0)
+        } else {
+            0.0
+        };
+        Some((x, a.1 + t * (b.1 - a.1)))
+    };
+    let mut out: Vec<(f64, f64)> = at(low).into_iter().collect();
+    out.extend(points.iter().copied().filter(|p| p.0 > low && p.0 < high));
+    out.extend(at(high));
+    out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::trim_x;
+
+    /// A straight line trimmed to a range keeps its exact values at both ends (linear
+    /// interpolation is exact on a line), so a curve reaches both ends of its axis.
+    #[test]
+    fn a_trimmed_curve_reaches_both_ends_of_the_axis() {
+        let line: Vec<(f64, f64)> = (-20..=20)
+            .map(|k| (k as f64 * 9.7, k as f64 * 9.7 * 0.5))
+            .collect();
+        let trimmed = trim_x(&line, -150.0, 150.0);
+        assert_eq!(trimmed.first(), Some(&(-150.0, -75.0)));
+        assert_eq!(trimmed.last(), Some(&(150.0, 75.0)));
     }
-    let decade = 10f64.powf(value.log10().floor());
-    for step in [1.0, 2.0, 2.5, 5.0, 10.0] {
-        if step * decade >= value {
-            return step * decade;
-        }
-    }
-    10.0 * decade
 }

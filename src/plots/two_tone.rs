@@ -1,8 +1,14 @@
 //! Two-tone: output fundamental (per tone) and IM3 versus input level in dBV, with the fitted
-//! 1:1 and 3:1 lines meeting at the third-order intercept and the fit region shaded.
+//! 1:1 and 3:1 lines meeting at the third-order intercept and the fit region shaded; IIP3 and
+//! OIP3 budget lines as limit lines and IM3 lines as hatched limit bars at their amplitude.
+//! One figure at the first frequency and one at every frequency an IM3 or intercept line names.
 
-use super::bench::{bench_entries, bench_marks, draw_bench, same};
+use super::axis::Axis;
+use super::bench::{bench_marks, draw_bench, same};
+use super::harmonics::{figure_frequencies, frequency_slug};
+use super::key::{draw_key, hatch_pixels, split, verdict_marker, Key, Swatch};
 use super::style::*;
+use super::verdicts::{lines_of, LineChecks};
 use super::{DrawResult, Drawing, PlotKind};
 use crate::report::{BudgetRecord, InterceptRecord, PointRecord, Report};
 use plotters::coord::Shift;
@@ -13,7 +19,7 @@ pub fn dbv(volts: f64) -> f64 {
     20.0 * volts.log10()
 }
 
-/// The two-tone figure of one stage at its typical temperature and first frequency.
+/// The two-tone figure of one stage at its typical temperature and one frequency.
 pub struct TwoTonePlot {
     stage: String,
     slug: String,
@@ -21,22 +27,44 @@ pub struct TwoTonePlot {
     points: Vec<PointRecord>,
     intercept: InterceptRecord,
     others: Vec<InterceptRecord>,
-    budget: Vec<BudgetRecord>,
-    /// Bench IM3 products as (input dBV, output dBV): the measured IM3 on the measured
-    /// output fundamental (`fundamental_v`, or the measured gain) of the same row.
+    lines: Vec<LineChecks>,
+    /// Bench IM3 products as (input dBV, output dBV) at the drawn temperature.
     bench_im3: Vec<(f64, f64)>,
+    x: Axis,
+    y: Axis,
 }
 
+fn is_two_tone_line(b: &BudgetRecord) -> bool {
+    matches!(b.metric.as_str(), "im3" | "iip3" | "oip3")
+}
+
+const FUNDAMENTAL: RGBColor = SERIES[0];
+/// IM3 in its metric colour, as in every figure.
+const IM3: RGBColor = SERIES[3];
+/// The fit region's shade.
+const FIT: RGBColor = SERIES[6];
+
 impl TwoTonePlot {
-    /// The figure, if the plan ran two tones and an intercept was found.
-    pub fn new(report: &Report, stage: &str, slug: &str) -> Option<Self> {
+    /// The figures of a stage: at its first frequency and at each frequency an IM3, IIP3 or
+    /// OIP3 line names (plans with two-tone drive whose intercept was found).
+    pub fn all(report: &Report, stage: &str, slug: &str) -> Vec<Self> {
+        figure_frequencies(report, stage, is_two_tone_line)
+            .into_iter()
+            .enumerate()
+            .filter_map(|(i, f)| {
+                let slug = if i == 0 {
+                    slug.to_owned()
+                } else {
+                    format!("{slug}-{}", frequency_slug(f))
+                };
+                TwoTonePlot::at(report, stage, &slug, f)
+            })
+            .collect()
+    }
+
+    fn at(report: &Report, stage: &str, slug: &str, frequency_hz: f64) -> Option<Self> {
         let temps = temperatures(report);
         let typical = typical_temperature(&temps)?;
-        let frequency_hz = report
-            .points
-            .iter()
-            .find(|p| p.stage == stage)?
-            .frequency_hz;
         let intercept = report
             .intercepts
             .iter()
@@ -44,6 +72,7 @@ impl TwoTonePlot {
                 i.stage == stage
                     && i.temperature_c == typical
                     && i.frequency_hz == frequency_hz
+                    && is_typical(&i.corner)
                     && i.iip3_v.is_some()
             })?
             .clone();
@@ -51,9 +80,12 @@ impl TwoTonePlot {
             .points
             .iter()
             .filter(|p| {
-                p.stage == stage && p.temperature_c == typical && p.frequency_hz == frequency_hz
+                p.stage == stage
+                    && p.temperature_c == typical
+                    && p.frequency_hz == frequency_hz
+                    && is_typical(&p.corner)
+                    && p.im3_dbc.is_some()
             })
-            .filter(|p| p.im3_dbc.is_some())
             .cloned()
             .collect();
         if points.is_empty() {
@@ -63,18 +95,20 @@ impl TwoTonePlot {
             .intercepts
             .iter()
             .filter(|i| {
-                i.stage == stage && i.frequency_hz == frequency_hz && i.temperature_c != typical
+                i.stage == stage
+                    && i.frequency_hz == frequency_hz
+                    && i.temperature_c != typical
+                    && is_typical(&i.corner)
             })
             .cloned()
             .collect();
-        let budget = report
-            .budget
-            .iter()
-            .filter(|b| b.stage == stage && b.temperature_c == typical && b.metric == "iip3")
-            .cloned()
+        let lines: Vec<LineChecks> = lines_of(report, stage)
+            .into_iter()
+            .filter(|l| is_two_tone_line(l.line()) && l.line().frequency_hz == frequency_hz)
             .collect();
+
         let marks = bench_marks(report, Some(stage));
-        let bench_im3 = marks
+        let bench_im3: Vec<(f64, f64)> = marks
             .iter()
             .filter(|b| {
                 b.metric == "im3"
@@ -94,16 +128,89 @@ impl TwoTonePlot {
                 Some((dbv(b.amplitude_v), output + b.bench))
             })
             .collect();
+        let iip3_v = intercept.iip3_v?;
+        let x_ip = dbv(iip3_v);
+        let y_ip = x_ip + intercept.small_signal_gain_db;
+        let measured = measured(&points);
+        let fit = intercept.iip3_fit_amplitude_v.map(dbv);
+        let limits_x = lines.iter().filter_map(|l| {
+            let b = l.line();
+            match b.metric.as_str() {
+                "iip3" => Some(dbv(b.limit)),
+                "im3" => b.at_v.map(dbv),
+                _ => None,
+            }
+        });
+        let xs = measured
+            .iter()
+            .map(|m| m.0)
+            .chain(fit)
+            .chain([x_ip])
+            .chain(limits_x)
+            .chain(bench_im3.iter().map(|b| b.0));
+        let (x_min, x_max) = xs.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), x| {
+            (lo.min(x), hi.max(x))
+        });
+        let x = Axis::linear_step(x_min - 6.0, x_max + 6.0, 10.0);
+        let limits_y = lines
+            .iter()
+            .filter(|l| l.line().metric == "oip3")
+            .map(|l| dbv(l.line().limit));
+        let ys = measured
+            .iter()
+            .flat_map(|m| [Some(m.1), m.2])
+            .flatten()
+            .chain([y_ip])
+            .chain(limits_y)
+            .chain(bench_im3.iter().map(|b| b.1));
+        let (y_min, y_max) = ys.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), y| {
+            (lo.min(y), hi.max(y))
+        });
+        let y = Axis::linear_step((y_min - 10.0).max(y_max - 220.0), y_max + 10.0, 20.0);
         Some(TwoTonePlot {
-            bench_im3,
             stage: stage.to_owned(),
             slug: slug.to_owned(),
             temperature_c: typical,
             points,
             intercept,
             others,
-            budget,
+            lines,
+            bench_im3,
+            x,
+            y,
         })
+    }
+
+    /// The IM3 product's output level (dBV) that an IM3 line allows at its amplitude, from the
+    /// drawn fundamental there.
+    fn im3_limit_dbv(&self, line: &BudgetRecord) -> Option<(f64, f64)> {
+        let at = line.at_v?;
+        let point = self.points.iter().find(|p| p.amplitude_v == at)?;
+        let fundamental = dbv(point.two_tone_fundamental_v.unwrap_or(point.fundamental_v));
+        Some((dbv(at), fundamental + line.limit))
+    }
+}
+
+/// (input dBV, fundamental output dBV, IM3 output dBV) of each drawn point.
+fn measured(points: &[PointRecord]) -> Vec<(f64, f64, Option<f64>)> {
+    points
+        .iter()
+        .map(|p| {
+            let fundamental = dbv(p.two_tone_fundamental_v.unwrap_or(p.fundamental_v));
+            (
+                dbv(p.amplitude_v),
+                fundamental,
+                p.im3_dbc.flatten().map(|d| fundamental + d),
+            )
+        })
+        .collect()
+}
+
+fn line_colour(line: &BudgetRecord) -> RGBColor {
+    match line.metric.as_str() {
+        "im3" => metric_colour("im3"),
+        "oip3" => metric_colour("oip3"),
+        _ => metric_colour("iip3"),
     }
 }
 
@@ -115,14 +222,100 @@ impl Drawing for TwoTonePlot {
         Some(&self.slug)
     }
     fn title(&self) -> String {
-        format!("Two-tone intercept · {}", self.stage)
+        format!(
+            "Two-tone intercept · {} at {}",
+            self.stage,
+            si_exact(self.intercept.frequency_hz, "Hz")
+        )
     }
     fn caption(&self) -> String {
         format!(
-            "Output fundamental of one tone and the larger IM3 product of “{}” versus input level per tone (dBV, peak) at {}; the fitted 1:1 and 3:1 lines (dashed) meet at the third-order intercept, extrapolated from the shaded small-signal fit region.",
+            "Model output fundamental of one tone and the larger IM3 product of “{}” versus input level per tone (dBV, peak) at {} and {}, typical corner; the fitted 1:1 and 3:1 lines (dashed) meet at the third-order intercept, extrapolated from the shaded small-signal fit region; budget lines are drawn as limit lines (IIP3, OIP3) or hatched limit bars at their amplitude (IM3).",
             self.stage,
-            celsius(self.temperature_c)
+            celsius(self.temperature_c),
+            si_exact(self.intercept.frequency_hz, "Hz")
         )
+    }
+    fn key(&self) -> Key {
+        let mut key = Key::default();
+        key.entry(
+            Swatch::line(FUNDAMENTAL, 3, Some(Marker::Circle)),
+            "output fundamental per tone (model)",
+        );
+        key.entry(
+            Swatch::line(IM3, 3, Some(Marker::Triangle)),
+            "IM3 product (model)",
+        );
+        key.entry(
+            Swatch::Line {
+                colour: FUNDAMENTAL,
+                alpha: 0.8,
+                width: 2,
+                pattern: (14, 8),
+                marker: None,
+            },
+            "1:1 fit (small-signal gain)",
+        );
+        key.entry(
+            Swatch::Line {
+                colour: IM3,
+                alpha: 0.8,
+                width: 2,
+                pattern: (14, 8),
+                marker: None,
+            },
+            "3:1 fit through the intercept",
+        );
+        if self.intercept.iip3_fit_amplitude_v.is_some() {
+            key.entry(
+                Swatch::Band {
+                    colour: FIT,
+                    alpha: 0.14,
+                },
+                "fit region (IM3 slope 3:1)",
+            );
+        }
+        key.entry(Swatch::Ring, "third-order intercept");
+        if !self.bench_im3.is_empty() {
+            key.entry(
+                Swatch::Open {
+                    index: 0,
+                    colour: IM3,
+                },
+                "IM3 product (bench)",
+            );
+        }
+        if !self.lines.is_empty() {
+            key.verdict_heading =
+                format!("Budget at {}", si_exact(self.intercept.frequency_hz, "Hz"));
+            key.verdicts = self
+                .lines
+                .iter()
+                .map(|l| {
+                    let colour = line_colour(l.line());
+                    let swatch = if l.line().metric == "im3" {
+                        Swatch::Mask { colour }
+                    } else {
+                        Swatch::Line {
+                            colour,
+                            alpha: 1.0,
+                            width: 3,
+                            pattern: (14, 8),
+                            marker: None,
+                        }
+                    };
+                    l.row(swatch, false)
+                })
+                .collect();
+            key.notes.push(format!(
+                "Markers show the drawn case ({}, typical corner); the table gives each line's worst case.",
+                celsius(self.temperature_c)
+            ));
+        }
+        key
+    }
+    fn axes(&self) -> Vec<Axis> {
+        vec![self.x.clone(), self.y.clone()]
     }
 
     fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> DrawResult {
@@ -134,13 +327,15 @@ impl Drawing for TwoTonePlot {
         let gain = i.small_signal_gain_db;
         let y_ip = x_ip + gain;
         let mut subtitle = format!(
-            "{} · {} · IIP3 {} dBV ({}) · OIP3 {} dBV",
+            "{} · IIP3 {} dBV ({}) · OIP3 {} dBV",
             celsius(self.temperature_c),
-            si(i.frequency_hz, "Hz"),
             num(x_ip, 1),
-            si(iip3_v, "V"),
+            si_short(iip3_v, "V"),
             num(y_ip, 1)
         );
+        if let Some(dbm) = i.iip3_dbm {
+            subtitle.push_str(&format!(" · IIP3 {} dBm", num(dbm, 1)));
+        }
         for other in &self.others {
             if let Some(v) = other.iip3_v {
                 subtitle.push_str(&format!(
@@ -151,88 +346,67 @@ impl Drawing for TwoTonePlot {
             }
         }
         let body = frame(root, &self.title(), &subtitle)?;
-
-        let measured: Vec<(f64, f64, Option<f64>)> = self
-            .points
-            .iter()
-            .map(|p| {
-                let fundamental = dbv(p.two_tone_fundamental_v.unwrap_or(p.fundamental_v));
-                (
-                    dbv(p.amplitude_v),
-                    fundamental,
-                    p.im3_dbc.flatten().map(|d| fundamental + d),
-                )
-            })
-            .collect();
-        let fit = i.iip3_fit_amplitude_v.map(dbv);
-        let limits: Vec<f64> = self.budget.iter().map(|b| dbv(b.limit)).collect();
-        let xs = measured
-            .iter()
-            .map(|m| m.0)
-            .chain(fit)
-            .chain([x_ip])
-            .chain(limits.iter().copied());
-        let (x_min, x_max) = xs.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), x| {
-            (lo.min(x), hi.max(x))
-        });
-        let (x_low, x_high) = db_span(x_min - 6.0, x_max + 8.0, 10.0);
-        let ys = measured
-            .iter()
-            .flat_map(|m| [Some(m.1), m.2])
-            .flatten()
-            .chain([y_ip])
-            .chain(self.bench_im3.iter().map(|b| b.1));
-        let (y_min, y_max) = ys.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), y| {
-            (lo.min(y), hi.max(y))
-        });
-        let (y_low, y_high) = db_span((y_min - 10.0).max(y_max - 220.0), y_max + 12.0, 20.0);
+        let (plot, side) = split(&body);
+        draw_key(&side, &self.key())?;
+        let (x, y) = (&self.x, &self.y);
+        let (x_low, x_high, y_low, y_high) = (x.low, x.high, y.low, y.high);
 
         let mut chart =
-            house_chart(&body, 48, 96).build_cartesian_2d(x_low..x_high, y_low..y_high)?;
+            house_chart(&plot, 36, 96).build_cartesian_2d(x.linear_range(), y.linear_range())?;
         mesh_style(&mut chart.configure_mesh())
             .x_desc("input per tone (dBV, peak)")
             .y_desc("output per tone (dBV, peak)")
-            .x_label_formatter(&|v| num(*v, 0))
-            .y_label_formatter(&|v| num(*v, 0))
+            .x_label_formatter(&|v| x.label(*v))
+            .y_label_formatter(&|v| y.label(*v))
             .draw()?;
 
-        if let Some(fit_lo) = fit {
+        if let Some(fit_lo) = i.iip3_fit_amplitude_v.map(dbv) {
             let fit_hi = fit_lo + dbv(2.0);
-            chart
-                .draw_series(std::iter::once(Rectangle::new(
-                    [(fit_lo, y_low), (fit_hi, y_high)],
-                    SERIES[3].mix(0.16).filled(),
-                )))?
-                .label("fit region (IM3 slope 3:1)")
-                .legend(|(x, y)| {
-                    Rectangle::new(
-                        [(x - 2, y - 8), (x + 30, y + 8)],
-                        SERIES[3].mix(0.3).filled(),
-                    )
-                });
+            chart.draw_series(std::iter::once(Rectangle::new(
+                [(fit_lo.max(x_low), y_low), (fit_hi.min(x_high), y_high)],
+                FIT.mix(0.14).filled(),
+            )))?;
         }
-        for (line, x) in self.budget.iter().zip(&limits) {
-            let colour = if line.pass { PASS } else { FAIL };
-            // A line, not a shaded area: the whole plane left of it would read as "failing"
-            // although only the intercept point is judged against it.
-            chart
-                .draw_series(std::iter::once(dashed(
-                    vec![(*x, y_low), (*x, y_high)],
-                    (14, 8),
-                    colour.stroke_width(2),
-                )))?
-                .label(format!(
-                    "IIP3 budget ≥ {} ({} dBV): the intercept must lie right of this line",
-                    si(line.limit, "V"),
-                    num(*x, 1)
-                ))
-                .legend(move |(lx, ly)| {
-                    PathElement::new(vec![(lx - 2, ly), (lx + 30, ly)], colour.stroke_width(2))
-                });
+        for line in &self.lines {
+            let l = line.line();
+            let colour = line_colour(l);
+            match l.metric.as_str() {
+                "iip3" => {
+                    let at = dbv(l.limit).clamp(x_low, x_high);
+                    chart.draw_series(std::iter::once(dashed(
+                        vec![(at, y_low), (at, y_high)],
+                        (14, 8),
+                        colour.stroke_width(3),
+                    )))?;
+                }
+                "oip3" => {
+                    let at = dbv(l.limit).clamp(y_low, y_high);
+                    chart.draw_series(std::iter::once(dashed(
+                        vec![(x_low, at), (x_high, at)],
+                        (14, 8),
+                        colour.stroke_width(3),
+                    )))?;
+                }
+                _ => {
+                    if let Some((x_at, limit)) = self.im3_limit_dbv(l) {
+                        let limit = limit.clamp(y_low, y_high);
+                        let (from, to) = ((x_at - 2.5).max(x_low), (x_at + 2.5).min(x_high));
+                        let beyond = if l.kind == "max" { y_high } else { y_low };
+                        hatch_pixels(
+                            root,
+                            chart.backend_coord(&(from, limit)),
+                            chart.backend_coord(&(to, beyond)),
+                            colour,
+                        )?;
+                        chart.draw_series(std::iter::once(PathElement::new(
+                            vec![(from, limit), (to, limit)],
+                            colour.stroke_width(3),
+                        )))?;
+                    }
+                }
+            }
         }
 
-        let fundamental_colour = SERIES[0];
-        let im3_colour = SERIES[1];
         let fit_one: Vec<(f64, Option<f64>)> =
             vec![(x_low, Some(x_low + gain)), (x_high, Some(x_high + gain))];
         let fit_three: Vec<(f64, Option<f64>)> = vec![
@@ -245,7 +419,7 @@ impl Drawing for TwoTonePlot {
             (y_low, y_high),
             false,
             (14, 8),
-            fundamental_colour.mix(0.8).stroke_width(2),
+            FUNDAMENTAL.mix(0.8).stroke_width(2),
         )?;
         draw_runs(
             &mut chart,
@@ -253,96 +427,68 @@ impl Drawing for TwoTonePlot {
             (y_low, y_high),
             false,
             (14, 8),
-            im3_colour.mix(0.8).stroke_width(2),
+            IM3.mix(0.8).stroke_width(2),
         )?;
 
+        let measured = measured(&self.points);
         let fundamental: Vec<(f64, Option<f64>)> =
             measured.iter().map(|m| (m.0, Some(m.1))).collect();
         let im3: Vec<(f64, Option<f64>)> = measured.iter().map(|m| (m.0, m.2)).collect();
-        draw_runs(
-            &mut chart,
-            &fundamental,
-            (y_low, y_high),
-            false,
-            pattern(0),
-            fundamental_colour.stroke_width(3),
-        )?;
-        draw_markers(
-            &mut chart,
-            &fundamental,
-            (y_low, y_high),
-            Marker::Circle,
-            fundamental_colour,
-        )?;
-        draw_runs(
-            &mut chart,
-            &im3,
-            (y_low, y_high),
-            false,
-            pattern(0),
-            im3_colour.stroke_width(3),
-        )?;
-        draw_markers(
-            &mut chart,
-            &im3,
-            (y_low, y_high),
-            Marker::Triangle,
-            im3_colour,
-        )?;
+        for (data, colour, marker) in [
+            (&fundamental, FUNDAMENTAL, Marker::Circle),
+            (&im3, IM3, Marker::Triangle),
+        ] {
+            draw_runs(
+                &mut chart,
+                data,
+                (y_low, y_high),
+                false,
+                pattern(0),
+                colour.stroke_width(3),
+            )?;
+            draw_markers(&mut chart, data, (y_low, y_high), marker, colour)?;
+        }
 
+        if !self.bench_im3.is_empty() {
+            draw_bench(&mut chart, &self.bench_im3, (y_low, y_high), 0, IM3)?;
+        }
         chart.draw_series(std::iter::once(
             EmptyElement::at((x_ip, y_ip))
                 + Circle::new((0, 0), 12, INK.stroke_width(3))
                 + Circle::new((0, 0), 4, INK.filled()),
         ))?;
-        let anchor = chart.backend_coord(&(x_ip, y_ip));
-        backed_label(
-            root,
-            &format!(
-                "intercept: IIP3 {} dBV, OIP3 {} dBV",
-                num(x_ip, 1),
-                num(y_ip, 1)
-            ),
-            (anchor.0 - 20, anchor.1 - 26),
-            bold(LEGEND_PX).color(&INK),
-            true,
-        )?;
-
-        if !self.bench_im3.is_empty() {
-            draw_bench(&mut chart, &self.bench_im3, (y_low, y_high), 0, im3_colour)?;
+        // Verdict markers of the drawn case: IM3 at its amplitude, intercepts at the intercept.
+        for line in &self.lines {
+            let l = line.line();
+            let drawn = line
+                .records
+                .iter()
+                .find(|r| r.temperature_c == self.temperature_c && is_typical(&r.corner));
+            let Some(record) = drawn else { continue };
+            let position = match l.metric.as_str() {
+                "im3" => {
+                    let Some(at) = l.at_v else { continue };
+                    let Some(point) = self.points.iter().find(|p| p.amplitude_v == at) else {
+                        continue;
+                    };
+                    let fundamental =
+                        dbv(point.two_tone_fundamental_v.unwrap_or(point.fundamental_v));
+                    record.value.map(|v| (dbv(at), fundamental + v))
+                }
+                "iip3" | "oip3" => Some((x_ip, y_ip)),
+                _ => None,
+            };
+            if let Some((px, py)) = position {
+                // Beside the intercept's ring, not on it.
+                let (dx, dy) = match l.metric.as_str() {
+                    "iip3" => (30, 0),
+                    "oip3" => (0, -30),
+                    _ => (0, 0),
+                };
+                let at = chart.backend_coord(&(px.clamp(x_low, x_high), py.clamp(y_low, y_high)));
+                verdict_marker(root, (at.0 + dx, at.1 + dy), record.pass)?;
+            }
         }
-        legend_entry(
-            &mut chart,
-            "output fundamental (model)",
-            pattern(0),
-            fundamental_colour.stroke_width(3),
-            Some(Marker::Circle),
-        )?;
-        legend_entry(
-            &mut chart,
-            "IM3 product (model)",
-            pattern(0),
-            im3_colour.stroke_width(3),
-            Some(Marker::Triangle),
-        )?;
-        legend_entry(
-            &mut chart,
-            "1:1 fit (small-signal gain)",
-            (14, 8),
-            fundamental_colour.stroke_width(2),
-            None,
-        )?;
-        legend_entry(
-            &mut chart,
-            "3:1 fit through the intercept",
-            (14, 8),
-            im3_colour.stroke_width(2),
-            None,
-        )?;
-        if !self.bench_im3.is_empty() {
-            bench_entries(&mut chart, &[("IM3 product (bench)".to_owned(), 0)])?;
-        }
-        legend(&mut chart, SeriesLabelPosition::LowerRight)?;
         Ok(())
     }
 }

@@ -3,13 +3,13 @@
 
 use crate::error::Error;
 use crate::measure::small_signal::STEERING_FRACTION;
-use crate::model::budget::{BudgetLine, Limit};
+use crate::model::budget::{BudgetLine, Limit, Metric};
 use crate::model::corner::TYPICAL;
 use crate::model::plan::{Plan, PlanCaution, SizingSettings};
 use crate::model::stage::Stage;
 use crate::report::text::celsius;
 use crate::report::{
-    quantity_text, AnalysisRecord, BudgetRecord, DesignVerdictRecord, FailingCheckRecord,
+    dbm, quantity_text, AnalysisRecord, BudgetRecord, DesignVerdictRecord, FailingCheckRecord,
     FitRecord, FitSummaryRecord, Harmonics, InterceptRecord, MonteCarloRecord, PointRecord,
     RecommendedStageRecord, RecommendedVerdictRecord, Region, Report, ResidualRecord,
     ResidualSummaryRecord, SizingRecord, SizingScanRecord, SpreadRecord, StageRecord,
@@ -26,7 +26,7 @@ use crate::study::sizing::{
     Basis, Binding, RangeEnd, RangeHint, SizingOutcome, Trial, Unreachable,
 };
 use crate::study::verdict::{DesignVerdict, FailingCheck, Judged, Verdict};
-use crate::units::format_si;
+use crate::units::{format_si, short_number};
 
 /// Name of the yield interval written in the report.
 pub const INTERVAL_NAME: &str = "Wilson score interval, 95 %";
@@ -605,6 +605,8 @@ fn case_records(plan: &Plan, case: CaseEvaluation, derived_from: Option<String>)
         .map(|p| point_record(name, temperature_c, &corner, p))
         .collect();
     let mut warnings = default_bias_saturation_warnings(&stage, temperature_c, &points);
+    warnings.extend(small_drive_warnings(name, temperature_c, &points));
+    warnings.extend(collision_warnings(name, temperature_c, &points));
     let (steer_low, steer_high) = operating.steering_v;
     let steering_range = 0.5 * (steer_high - steer_low);
     let mut intercepts = Vec::with_capacity(frequencies.len());
@@ -649,7 +651,7 @@ fn case_records(plan: &Plan, case: CaseEvaluation, derived_from: Option<String>)
             iip3_dbv: iip3.map(|v| 20.0 * v.log10()),
             iip3_dbm: match (iip3, plan.reference_impedance) {
                 // Peak differential volts into R: P = V²/(2R).
-                (Some(v), Some(r)) => Some(10.0 * (v * v / (2.0 * r) / 1e-3).log10()),
+                (Some(v), Some(r)) => Some(dbm(v, r)),
                 _ => None,
             },
             iip3_fit_amplitude_v: intercept.map(|i| i.fit_amplitude_v),
@@ -726,6 +728,8 @@ fn case_records(plan: &Plan, case: CaseEvaluation, derived_from: Option<String>)
                 .into(),
                 region: region(&result.region),
                 collector_base_margin_v: result.region.collector_base_margin_v(),
+                limit_dbm: dbm_of(plan, line.metric, line.limit.value()),
+                value_dbm: result.value.and_then(|v| dbm_of(plan, line.metric, v)),
                 margin_at_least: result.margin_at_least,
                 interval: result.interval.map(|(low, high)| [low, high]),
             }
@@ -754,6 +758,16 @@ fn region(check: &RegionCheck) -> Region {
     }
 }
 
+/// A volt figure of a power-like metric (IIP3, OIP3, P1dB) in dBm, when the plan gives a
+/// reference impedance.
+fn dbm_of(plan: &Plan, metric: Metric, volts: f64) -> Option<f64> {
+    let power_like = matches!(metric, Metric::Iip3 | Metric::Oip3 | Metric::P1db);
+    match plan.reference_impedance {
+        Some(ohms) if power_like && volts > 0.0 && volts.is_finite() => Some(dbm(volts, ohms)),
+        _ => None,
+    }
+}
+
 fn point_record(stage: &str, temperature_c: f64, corner: &str, point: DrivePoint) -> PointRecord {
     let two = point.two_tone;
     PointRecord {
@@ -773,6 +787,16 @@ fn point_record(stage: &str, temperature_c: f64, corner: &str, point: DrivePoint
         single_ended_hd2_dbc: point.single_ended_hd2_dbc,
         single_ended_hd3_dbc: point.single_ended_hd3_dbc,
         samples: point.samples,
+        floor_dbc: point.floor_dbc,
+        from_series: point.from_series,
+        im3_floor_dbc: two
+            .map(|t| t.im3_floor_dbc)
+            .filter(|floor| *floor > point.floor_dbc),
+        im2_floor_dbc: two
+            .map(|t| t.im2_floor_dbc)
+            .filter(|floor| *floor > point.floor_dbc),
+        im3_limited_by: two.and_then(|t| t.im3_limited_by).map(|p| p.to_string()),
+        im2_limited_by: two.and_then(|t| t.im2_limited_by).map(|p| p.to_string()),
         region: region(&point.region),
         collector_base_margin_v: point.region.collector_base_margin_v(),
         min_current_fraction: point.region.min_current_fraction,
@@ -905,9 +929,13 @@ fn scan_record(trial: &Trial) -> SizingScanRecord {
     SizingScanRecord {
         emitter_resistance_ohm: trial.emitter_resistance,
         margins: trial.margins.clone(),
-        gain_db: trial.gain_db,
+        gain_db: trial.gain_db.is_finite().then_some(trial.gain_db),
         headroom_v: trial.headroom_v,
-        collector_base_margin_v: Some(trial.collector_base_margin_v),
+        tail_headroom_v: Some(trial.tail_headroom_v),
+        collector_base_margin_v: trial
+            .collector_base_margin_v
+            .is_finite()
+            .then_some(trial.collector_base_margin_v),
     }
 }
 
@@ -919,14 +947,20 @@ fn sizing_record(plan: &Plan, outcome: SizingOutcome) -> SizingRecord {
         emitter_resistance_ohm: Some(chosen.emitter_resistance),
         binding_metric: match outcome.binding {
             Binding::Headroom => "collector_base_margin".into(),
+            Binding::TailCompliance => "tail_compliance".into(),
             Binding::Line(index) => plan.budget[index].metric.name(),
             Binding::Nothing => "none".into(),
         },
         met: outcome.met,
         best_margin: outcome.worst_margin,
-        gain_db: Some(chosen.gain_db),
-        gain_cost_db: Some(outcome.reference_gain_db - chosen.gain_db),
-        steering_range_v: Some(chosen.steering_range_v),
+        gain_db: chosen.gain_db.is_finite().then_some(chosen.gain_db),
+        gain_cost_db: (chosen.gain_db - outcome.reference_gain_db)
+            .is_finite()
+            .then_some(outcome.reference_gain_db - chosen.gain_db),
+        steering_range_v: chosen
+            .steering_range_v
+            .is_finite()
+            .then_some(chosen.steering_range_v),
         load_resistance_ohm: Some(chosen.load_resistance),
         headroom_binds: outcome.headroom_binds,
         best_headroom_v: chosen.headroom_v,
@@ -955,6 +989,100 @@ fn sizing_record(plan: &Plan, outcome: SizingOutcome) -> SizingRecord {
             None => Vec::new(),
         },
     }
+}
+
+/// The distinct frequencies of some points, in order of appearance.
+fn frequencies_of(points: &[PointRecord]) -> Vec<f64> {
+    let mut frequencies: Vec<f64> = Vec::new();
+    for p in points {
+        if !frequencies.contains(&p.frequency_hz) {
+            frequencies.push(p.frequency_hz);
+        }
+    }
+    frequencies
+}
+
+/// One note per frequency for drives answered from the small-signal power series or with an
+/// analysis floor raised by the solve's precision: which drives, and how high the floor went.
+fn small_drive_warnings(stage: &str, temperature_c: f64, points: &[PointRecord]) -> Vec<String> {
+    let mut notes = Vec::new();
+    for frequency in frequencies_of(points) {
+        let here: Vec<&PointRecord> = points
+            .iter()
+            .filter(|p| p.frequency_hz == frequency)
+            .collect();
+        let lowest_floor = here
+            .iter()
+            .map(|p| p.floor_dbc)
+            .fold(f64::INFINITY, f64::min);
+        // Worth a note when a figure a designer might read is affected: a point answered from
+        // the series, or a floor raised above −150 dBc (each point's floor is in the JSON).
+        let raised: Vec<&&PointRecord> = here
+            .iter()
+            .filter(|p| p.from_series || (p.floor_dbc > lowest_floor + 0.5 && p.floor_dbc > -150.0))
+            .collect();
+        let Some(highest) = raised.iter().map(|p| p.floor_dbc).reduce(f64::max) else {
+            continue;
+        };
+        let largest = raised.iter().map(|p| p.amplitude_v).fold(0.0, f64::max);
+        let series = raised.iter().filter(|p| p.from_series).count();
+        let how = if series > 0 {
+            format!(
+                "; {series} of them, too small to solve directly to full precision, are answered from the small-signal power series through two larger drives (gain exact)"
+            )
+        } else {
+            String::new()
+        };
+        notes.push(format!(
+            "stage `{stage}` at {} °C, {}: {} drive(s) up to {} meet the solve's precision, so their analysis floor rises (to {:.1} dBc at most; each point's floor_dbc says where) and harmonics below it are null{how}",
+            short_number(temperature_c),
+            format_si(frequency, "Hz"),
+            raised.len(),
+            format_si(largest, "V"),
+            highest
+        ));
+    }
+    notes
+}
+
+/// One note per frequency and figure when a product of higher order shares IM3's or IM2's
+/// frequency in the two tones' common period (stages with capacitance) and sets its floor.
+fn collision_warnings(stage: &str, temperature_c: f64, points: &[PointRecord]) -> Vec<String> {
+    let mut notes = Vec::new();
+    for frequency in frequencies_of(points) {
+        for (figure, limited, floor) in [
+            (
+                "IM3",
+                (|p: &PointRecord| p.im3_limited_by.clone()) as fn(&PointRecord) -> Option<String>,
+                (|p: &PointRecord| p.im3_floor_dbc) as fn(&PointRecord) -> Option<f64>,
+            ),
+            ("IM2", |p| p.im2_limited_by.clone(), |p| p.im2_floor_dbc),
+        ] {
+            let here: Vec<&PointRecord> = points
+                .iter()
+                .filter(|p| p.frequency_hz == frequency && limited(p).is_some())
+                .collect();
+            let Some(first) = here.first() else {
+                continue;
+            };
+            let highest = here
+                .iter()
+                .filter_map(|p| floor(p))
+                .fold(f64::NEG_INFINITY, f64::max);
+            notes.push(format!(
+                "stage `{stage}` at {} °C, {}: {} shares its frequency with the product {} in the two tones' common period, so {figure} is only resolved above that product's estimated level ({} of {} drive(s) limited, floor up to {:.1} dBc; each point's {}_floor_dbc says where); a spacing that makes frequency/spacing a ratio of larger integers moves it away",
+                short_number(temperature_c),
+                format_si(frequency, "Hz"),
+                figure,
+                limited(first).unwrap_or_default(),
+                here.len(),
+                points.iter().filter(|p| p.frequency_hz == frequency).count(),
+                highest,
+                figure.to_lowercase()
+            ));
+        }
+    }
+    notes
 }
 
 /// A fitted parameter's value in words: a percentage for mismatch fractions, SI-prefixed

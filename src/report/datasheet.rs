@@ -9,8 +9,9 @@
 use super::queries::{
     frequencies, recommended_stage, stage_names, temperatures, typical_temperature,
 };
-use super::table::{html_text, markdown_text, Cell, Table};
-use super::text::celsius;
+use super::summary::{limit_cell, temperature_cell, value_cell};
+use super::table::{html_inline, html_text, markdown_inline, markdown_text, Cell, Table};
+use super::text::{celsius, metric_label, si_exact, si_short};
 use super::{Region, Report, CAUTION};
 use crate::model::corner::TYPICAL;
 use std::fmt::Write;
@@ -53,23 +54,46 @@ fn fixed(value: Option<f64>, decimals: usize) -> String {
     }
 }
 
-/// Typical (at `typical_c`), minimum and maximum of a figure over temperatures.
+/// One value of a figure in one case: (temperature, corner, value).
+type CaseValue<'a> = (f64, &'a str, Option<f64>);
+
+/// Minimum, typical (at `typical_c` in the typical corner) and maximum of a figure over the
+/// cases, with where the minimum and maximum occur.
 fn typ_min_max(
-    values: &[(f64, Option<f64>)],
+    values: &[CaseValue],
     typical_c: f64,
-) -> (Option<f64>, Option<f64>, Option<f64>) {
-    let present: Vec<f64> = values
+) -> (Option<f64>, Option<f64>, Option<f64>, String) {
+    let present: Vec<&CaseValue> = values
         .iter()
-        .filter_map(|(_, v)| *v)
-        .filter(|v| v.is_finite())
+        .filter(|(_, _, v)| v.is_some_and(f64::is_finite))
         .collect();
     let typical = values
         .iter()
-        .find(|(t, _)| *t == typical_c)
-        .and_then(|(_, v)| *v);
-    let min = present.iter().copied().reduce(f64::min);
-    let max = present.iter().copied().reduce(f64::max);
-    (min, typical, max)
+        .find(|(t, c, _)| *t == typical_c && (c.is_empty() || *c == TYPICAL))
+        .and_then(|(_, _, v)| *v);
+    let value = |c: &&&CaseValue| c.2.unwrap_or(f64::NAN);
+    let min = present.iter().min_by(|a, b| value(a).total_cmp(&value(b)));
+    let max = present.iter().max_by(|a, b| value(a).total_cmp(&value(b)));
+    let cases = values
+        .iter()
+        .map(|(t, c, _)| (t.to_bits(), *c))
+        .collect::<std::collections::BTreeSet<_>>()
+        .len();
+    let corners = values
+        .iter()
+        .any(|(_, c, _)| !c.is_empty() && *c != TYPICAL);
+    let place = |case: &&CaseValue| {
+        if corners {
+            format!("{}, {}", celsius(case.0), case.1)
+        } else {
+            celsius(case.0)
+        }
+    };
+    let at = match (min, max) {
+        (Some(lo), Some(hi)) if cases > 1 => format!("{} / {}", place(lo), place(hi)),
+        _ => String::new(),
+    };
+    (min.and_then(|c| c.2), typical, max.and_then(|c| c.2), at)
 }
 
 /// The datasheet table of one stage.
@@ -89,20 +113,21 @@ pub fn datasheet_table(report: &Report, stage: &str) -> Table {
         ("typ", true),
         ("max", true),
         ("unit", false),
+        ("min / max at", false),
     ]);
     let f_text = frequency
-        .map(|f| format!("f = {}", crate::units::format_si(f, "Hz")))
+        .map(|f| format!("f = {}", si_exact(f, "Hz")))
         .unwrap_or_default();
     let mut row = |name: &str,
                    symbol: &str,
                    conditions: String,
-                   values: Vec<(f64, Option<f64>)>,
+                   values: Vec<CaseValue>,
                    decimals: usize,
                    unit: &str| {
-        if values.iter().all(|(_, v)| v.is_none()) {
+        if values.iter().all(|(_, _, v)| v.is_none()) {
             return;
         }
-        let (min, typ, max) = typ_min_max(&values, typical);
+        let (min, typ, max, at) = typ_min_max(&values, typical);
         table.push(vec![
             name.into(),
             symbol.into(),
@@ -111,6 +136,7 @@ pub fn datasheet_table(report: &Report, stage: &str) -> Table {
             fixed(typ, decimals).into(),
             fixed(max, decimals).into(),
             unit.into(),
+            at.into(),
         ]);
     };
     let intercepts: Vec<_> = report
@@ -119,10 +145,12 @@ pub fn datasheet_table(report: &Report, stage: &str) -> Table {
         .filter(|i| i.stage == stage && Some(i.frequency_hz) == frequency)
         .collect();
     let stages: Vec<_> = report.stages.iter().filter(|s| s.stage == stage).collect();
-    let by_t =
-        |f: &dyn Fn(&crate::report::InterceptRecord) -> Option<f64>| -> Vec<(f64, Option<f64>)> {
-            intercepts.iter().map(|i| (i.temperature_c, f(i))).collect()
-        };
+    let by_t = |f: &dyn Fn(&crate::report::InterceptRecord) -> Option<f64>| -> Vec<CaseValue> {
+        intercepts
+            .iter()
+            .map(|i| (i.temperature_c, i.corner.as_str(), f(i)))
+            .collect()
+    };
     row(
         "small-signal differential gain",
         "A_v",
@@ -137,7 +165,13 @@ pub fn datasheet_table(report: &Report, stage: &str) -> Table {
         "v_d = 0".into(),
         stages
             .iter()
-            .map(|s| (s.temperature_c, Some(s.transconductance_s * 1e3)))
+            .map(|s| {
+                (
+                    s.temperature_c,
+                    s.corner.as_str(),
+                    Some(s.transconductance_s * 1e3),
+                )
+            })
             .collect(),
         3,
         "mS",
@@ -148,7 +182,13 @@ pub fn datasheet_table(report: &Report, stage: &str) -> Table {
         "from the plan's mismatch".into(),
         stages
             .iter()
-            .map(|s| (s.temperature_c, Some(s.input_offset_v * 1e6)))
+            .map(|s| {
+                (
+                    s.temperature_c,
+                    s.corner.as_str(),
+                    Some(s.input_offset_v * 1e6),
+                )
+            })
             .collect(),
         2,
         "µV",
@@ -240,7 +280,7 @@ pub fn datasheet_table(report: &Report, stage: &str) -> Table {
     amplitudes.dedup();
     for a in amplitudes {
         let at = points.iter().filter(|p| p.amplitude_v == a);
-        let conditions = format!("v_d = {} peak, {f_text}", crate::units::format_si(a, "V"));
+        let conditions = format!("v_d = {} peak, {f_text}", si_exact(a, "V"));
         // Figures of drives outside forward-active operation say so beside them: saturation
         // is distortion the figure includes, and a reader must see it.
         let single = region_note(at.clone().map(|p| (p.temperature_c, p.region)).collect());
@@ -267,7 +307,9 @@ pub fn datasheet_table(report: &Report, stage: &str) -> Table {
                 name,
                 symbol,
                 format!("{conditions}{note}"),
-                at.clone().map(|p| (p.temperature_c, get(p))).collect(),
+                at.clone()
+                    .map(|p| (p.temperature_c, p.corner.as_str(), get(p)))
+                    .collect(),
                 2,
                 "dBc",
             );
@@ -312,6 +354,7 @@ pub fn budget_table(report: &Report) -> Table {
     columns.extend([
         ("metric", false),
         ("at", true),
+        ("f", true),
         ("limit", true),
         ("value", true),
         ("margin (dB)", true),
@@ -323,36 +366,24 @@ pub fn budget_table(report: &Report) -> Table {
         let region = format!(
             "{} (collector-base margin {})",
             b.region.name(),
-            crate::units::format_si(b.collector_base_margin_v, "V")
+            si_short(b.collector_base_margin_v, "V")
         );
-        let value_text = |v: f64| b.quantity_text(v);
         let mut row: Vec<Cell> = vec![
             b.stage.as_str().into(),
-            format!("{}", b.temperature_c).into(),
+            temperature_cell(b.temperature_c).into(),
         ];
         if with_corner {
             row.push(b.corner.as_str().into());
         }
         row.extend([
-            b.metric.to_uppercase().into(),
+            metric_label(&b.metric).into(),
             b.at_v
-                .map(|a| crate::units::format_si(a, "V"))
+                .map(|a| si_exact(a, "V"))
                 .unwrap_or_else(|| "—".into())
                 .into(),
-            format!("{} {}", b.kind, value_text(b.limit)).into(),
-            match (b.value, b.interval) {
-                (Some(v), Some([low, high])) => format!(
-                    "{} ({}–{})",
-                    value_text(v),
-                    value_text(low),
-                    value_text(high)
-                ),
-                (Some(v), None) => value_text(v),
-                (None, _) if b.margin_at_least => "below floor".into(),
-                (None, _) if b.unit == super::YIELD_UNIT => "not estimated".into(),
-                (None, _) => "—".into(),
-            }
-            .into(),
+            si_exact(b.frequency_hz, "Hz").into(),
+            limit_cell(b).into(),
+            value_cell(b).into(),
             b.margin_text().into(),
             Cell::verdict(b.pass, "pass", "FAIL"),
             Cell::verdict(b.region.is_forward_active(), &region, &region),
@@ -364,51 +395,62 @@ pub fn budget_table(report: &Report) -> Table {
 
 /// The sizing table.
 pub fn sizing_table(report: &Report) -> Table {
-    let mut table = Table::new([
+    let corners = report
+        .sizing
+        .iter()
+        .any(|s| !s.binding_corner.is_empty() && s.binding_corner != TYPICAL);
+    let mut columns = vec![
         ("stage", false),
         ("T (°C)", true),
-        ("R_E (Ω)", true),
+        ("R_E", true),
         ("binding line", false),
+    ];
+    if corners {
+        columns.push(("binding corner", false));
+    }
+    columns.extend([
         ("worst margin (dB)", true),
         ("gain (dB)", true),
         ("gain cost (dB)", true),
         ("steering range", true),
-        ("load (Ω)", true),
+        ("load", true),
         ("usable R_E", false),
         ("result", false),
     ]);
+    let mut table = Table::new(columns);
+    let ohms = |v: Option<f64>| v.map(|r| si_short(r, "Ω")).unwrap_or_else(|| "—".into());
     for s in &report.sizing {
         let windows = if s.window_ohm.is_empty() {
             "none".to_owned()
         } else {
             s.window_ohm
                 .iter()
-                .map(|[low, high]| {
-                    format!(
-                        "{} – {}",
-                        crate::units::format_si(*low, "Ω"),
-                        crate::units::format_si(*high, "Ω")
-                    )
-                })
+                .map(|[low, high]| format!("{} – {}", si_short(*low, "Ω"), si_short(*high, "Ω")))
                 .collect::<Vec<_>>()
                 .join(", ")
         };
-        table.push(vec![
+        let mut row: Vec<Cell> = vec![
             s.stage.as_str().into(),
-            format!("{}", s.temperature_c).into(),
-            fixed(s.emitter_resistance_ohm, 1).into(),
-            s.binding_metric.to_uppercase().into(),
+            temperature_cell(s.temperature_c).into(),
+            ohms(s.emitter_resistance_ohm).into(),
+            metric_label(&s.binding_metric).into(),
+        ];
+        if corners {
+            row.push(s.binding_corner.as_str().into());
+        }
+        row.extend([
             fixed(Some(s.best_margin), 2).into(),
             fixed(s.gain_db, 2).into(),
             fixed(s.gain_cost_db, 2).into(),
             s.steering_range_v
-                .map(|v| crate::units::format_si(v, "V"))
+                .map(|v| si_short(v, "V"))
                 .unwrap_or_else(|| "—".into())
                 .into(),
-            fixed(s.load_resistance_ohm, 1).into(),
+            ohms(s.load_resistance_ohm).into(),
             windows.into(),
             Cell::verdict(s.met, "met", "not met"),
         ]);
+        table.push(row);
     }
     table
 }
@@ -416,7 +458,7 @@ pub fn sizing_table(report: &Report) -> Table {
 fn list_of(values: &[f64], unit: &str) -> String {
     values
         .iter()
-        .map(|v| crate::units::format_si(*v, unit))
+        .map(|v| si_exact(*v, unit))
         .collect::<Vec<_>>()
         .join(", ")
 }
@@ -443,9 +485,9 @@ pub fn blocks(report: &Report, figures: &[EmbeddedFigure]) -> Vec<Block> {
                 .stages
                 .iter()
                 .map(|s| format!("{} = {} with R_E = {}{}", s.evaluated_as, s.stage,
-                    crate::units::format_si(s.emitter_resistance_ohm, "Ω"),
+                    si_short(s.emitter_resistance_ohm, "Ω"),
                     if (s.load_resistance_ohm / s.planned_load_resistance_ohm - 1.0).abs() > 1e-9 {
-                        format!(" and R_L = {}", crate::units::format_si(s.load_resistance_ohm, "Ω"))
+                        format!(" and R_L = {}", si_short(s.load_resistance_ohm, "Ω"))
                     } else { String::new() }))
                 .collect::<Vec<_>>()
                 .join("; "),
@@ -496,14 +538,14 @@ pub fn blocks(report: &Report, figures: &[EmbeddedFigure]) -> Vec<Block> {
         format!("Stages: {}", stages.join(", ")),
         format!(
             "Temperatures: {} (typical values are at {})",
-            temps.iter().map(|t| format!("{t} °C")).collect::<Vec<_>>().join(", "),
+            temps.iter().map(|t| celsius(*t)).collect::<Vec<_>>().join(", "),
             celsius(typical)
         ),
         format!("Frequencies: {}", list_of(&frequencies(report), "Hz")),
         format!("Drive amplitudes (peak differential, per tone): {}", list_of(&amplitudes, "V")),
         format!("Two-tone test: {}", if two_tone { "yes (IM3 and IIP3 reported)" } else { "no" }),
         format!(
-            "Analysis: THD over harmonics 2–{}; harmonics below {} dBc are reported as below the floor; FFT refined until every figure moves less than {} dB; linbudget {}",
+            "Analysis: THD over harmonics 2–{}; harmonics below {} dBc (−160 dBc for stages with capacitance, higher at drives small enough to meet the solve's precision: each point's floor_dbc) are reported as below the floor; FFT refined until every figure moves less than {} dB; linbudget {}",
             report.analysis.thd_harmonics, report.analysis.analysis_floor_dbc, report.analysis.convergence_db, report.analysis.version
         ),
     ]));
@@ -521,10 +563,10 @@ pub fn blocks(report: &Report, figures: &[EmbeddedFigure]) -> Vec<Block> {
             out.push(Block::Paragraph(format!(
                 "Derived stage: {} as planned, with R_E = {} per side (planned {}) and R_L = {} per side (planned {}), the values sizing recommends. Every figure below is the model's prediction for that design.",
                 d.stage,
-                crate::units::format_si(d.emitter_resistance_ohm, "Ω"),
-                crate::units::format_si(d.planned_emitter_resistance_ohm, "Ω"),
-                crate::units::format_si(d.load_resistance_ohm, "Ω"),
-                crate::units::format_si(d.planned_load_resistance_ohm, "Ω"),
+                si_short(d.emitter_resistance_ohm, "Ω"),
+                si_short(d.planned_emitter_resistance_ohm, "Ω"),
+                si_short(d.load_resistance_ohm, "Ω"),
+                si_short(d.planned_load_resistance_ohm, "Ω"),
             )));
         }
         out.push(Block::Paragraph(format!(
@@ -564,11 +606,7 @@ pub fn blocks(report: &Report, figures: &[EmbeddedFigure]) -> Vec<Block> {
                     .window_ohm
                     .iter()
                     .map(|[low, high]| {
-                        format!(
-                            "{} – {}",
-                            crate::units::format_si(*low, "Ω"),
-                            crate::units::format_si(*high, "Ω")
-                        )
+                        format!("{} – {}", si_short(*low, "Ω"), si_short(*high, "Ω"))
                     })
                     .collect();
                 advice.push(if s.found {
@@ -576,7 +614,7 @@ pub fn blocks(report: &Report, figures: &[EmbeddedFigure]) -> Vec<Block> {
                         "{}: {} R_E = {} ({}; usable at every temperature: {}).",
                         s.stage,
                         if recommended.met { "build" } else { "evaluated at" },
-                        crate::units::format_si(s.emitter_resistance_ohm, "Ω"),
+                        si_short(s.emitter_resistance_ohm, "Ω"),
                         if s.basis == "least_in_common_window_meeting_yield" {
                             "the least value in the usable windows whose Monte Carlo population meets the yield line too"
                         } else {
@@ -588,7 +626,7 @@ pub fn blocks(report: &Report, figures: &[EmbeddedFigure]) -> Vec<Block> {
                     format!(
                         "{}: no value in the range holds every line at every temperature; the recommended design is evaluated at R_E = {} ({}).",
                         s.stage,
-                        crate::units::format_si(s.emitter_resistance_ohm, "Ω"),
+                        si_short(s.emitter_resistance_ohm, "Ω"),
                         match s.basis.as_str() {
                             "least_meeting_reachable_lines" => "the least value meeting every line that can be met",
                             _ => "the value with the best worst-line margin",
@@ -610,10 +648,11 @@ pub fn blocks(report: &Report, figures: &[EmbeddedFigure]) -> Vec<Block> {
         )));
         let mut table = Table::new([
             ("stage", false),
+            ("corner", false),
             ("T (°C)", true),
             ("runs", true),
-            ("pass fraction", true),
-            ("interval", true),
+            ("yield", true),
+            ("95 % interval", true),
             ("runs failing each line", false),
         ]);
         for y in &report.yield_ {
@@ -625,7 +664,7 @@ pub fn blocks(report: &Report, figures: &[EmbeddedFigure]) -> Vec<Block> {
                         "{}{}: {:.2} %",
                         l.metric.to_uppercase(),
                         l.at_v
-                            .map(|a| format!(" at {}", crate::units::format_si(a, "V")))
+                            .map(|a| format!(" at {}", si_short(a, "V")))
                             .unwrap_or_default(),
                         100.0 * l.failing_fraction
                     )
@@ -633,10 +672,16 @@ pub fn blocks(report: &Report, figures: &[EmbeddedFigure]) -> Vec<Block> {
                 .collect();
             table.push(vec![
                 y.stage.as_str().into(),
-                format!("{}", y.temperature_c).into(),
+                y.corner.as_str().into(),
+                temperature_cell(y.temperature_c).into(),
                 y.runs.to_string().into(),
-                format!("{:.4}", y.pass_fraction).into(),
-                format!("{:.4} – {:.4}", y.pass_fraction_low, y.pass_fraction_high).into(),
+                format!("{:.1} %", 100.0 * y.pass_fraction).into(),
+                format!(
+                    "{:.1} % to {:.1} %",
+                    100.0 * y.pass_fraction_low,
+                    100.0 * y.pass_fraction_high
+                )
+                .into(),
                 lines.join("; ").into(),
             ]);
         }
@@ -709,14 +754,14 @@ pub fn markdown(blocks: &[Block], figures: &[EmbeddedFigure]) -> String {
                 );
             }
             Block::Paragraph(text) => {
-                let _ = writeln!(out, "{}\n", markdown_text(text));
+                let _ = writeln!(out, "{}\n", markdown_inline(text));
             }
             Block::Caution(text) => {
                 let _ = writeln!(out, "> **Caution.** {}\n", markdown_text(text));
             }
             Block::Bullets(items) => {
                 for item in items {
-                    let _ = writeln!(out, "- {}", markdown_text(item));
+                    let _ = writeln!(out, "- {}", markdown_inline(item));
                 }
                 let _ = writeln!(out);
             }
@@ -764,6 +809,7 @@ td.pass { color: var(--pass); }
 figure { margin: 18px 0 28px; page-break-inside: avoid; break-inside: avoid; }
 figure svg { width: 100%; height: auto; display: block; border: 1px solid var(--rule); }
 figcaption { color: var(--muted); font-size: 13.5px; margin-top: 6px; }
+code { font-family: 'DejaVu Sans Mono', Menlo, Consolas, monospace; font-size: 0.92em; background: #f3f5f8; padding: 0 3px; border-radius: 3px; }
 a { color: var(--accent); }
 @media print {
   body { max-width: none; padding: 0; font-size: 11pt; }
@@ -805,7 +851,7 @@ pub fn html(report: &Report, blocks: &[Block], figures: &[EmbeddedFigure]) -> St
                 } else {
                     ""
                 };
-                let _ = writeln!(out, "<p{class}>{}</p>", html_text(text));
+                let _ = writeln!(out, "<p{class}>{}</p>", html_inline(text));
             }
             Block::Caution(text) => {
                 let _ = writeln!(
@@ -817,7 +863,7 @@ pub fn html(report: &Report, blocks: &[Block], figures: &[EmbeddedFigure]) -> St
             Block::Bullets(items) => {
                 let _ = writeln!(out, "<ul>");
                 for item in items {
-                    let _ = writeln!(out, "<li>{}</li>", html_text(item));
+                    let _ = writeln!(out, "<li>{}</li>", html_inline(item));
                 }
                 let _ = writeln!(out, "</ul>");
             }

@@ -1,4 +1,4 @@
-//! `report.json`: the report as JSON, one record per line.
+//! `report.json`: the report as one JSON document, each record on its own line.
 //!
 //! The top level and the record lists are indented as usual; each record (a drive point, an
 //! intercept, a budget line …) is written on one line. A 4,096-point sweep then reads and

@@ -321,6 +321,28 @@ pub struct PointRecord {
     pub single_ended_hd3_dbc: Option<f64>,
     /// Samples per period used (converged).
     pub samples: usize,
+    /// This point's analysis floor, dBc: harmonics below it are null. The analysis floor of
+    /// the report, or higher for a small drive whose fundamental nears the solve's precision.
+    #[serde(default = "default_floor_dbc")]
+    pub floor_dbc: f64,
+    /// True when the point was answered from the small-signal power series through two
+    /// larger drives (a drive too small to solve directly to full precision).
+    #[serde(default, skip_serializing_if = "std::ops::Not::not")]
+    pub from_series: bool,
+    /// IM3's floor at this point, dBc (two-tone only), when above `floor_dbc`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub im3_floor_dbc: Option<f64>,
+    /// IM2's floor at this point, dBc (two-tone only), when above `floor_dbc`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub im2_floor_dbc: Option<f64>,
+    /// The product of higher order that shares IM3's frequency and sets its floor
+    /// (stages with capacitance), e.g. "8f1 − 7f2".
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub im3_limited_by: Option<String>,
+    /// The product of higher order that shares IM2's frequency and sets its floor, e.g.
+    /// "10f1 − 9f2".
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub im2_limited_by: Option<String>,
     /// Worst operating region of either transistor over the single-tone period.
     pub region: Region,
     /// The least collector-base reverse bias (intrinsic junction) over the single-tone
@@ -347,6 +369,10 @@ pub struct PointRecord {
     /// Signal over the larger of the band noise and the largest spur, dB.
     #[serde(default)]
     pub dynamic_range_db: Option<f64>,
+}
+
+fn default_floor_dbc() -> f64 {
+    crate::solve::spectrum::ANALYSIS_FLOOR_DBC
 }
 
 impl PointRecord {
@@ -747,6 +773,18 @@ pub struct BudgetRecord {
     /// For a yield line: the 95 % Wilson score interval of the pass fraction.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub interval: Option<[f64; 2]>,
+    /// The limit in dBm into the plan's reference impedance (IIP3, OIP3 and P1dB lines of a
+    /// plan that gives `reference_impedance`); `limit` stays in volts.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub limit_dbm: Option<f64>,
+    /// The value in dBm into the plan's reference impedance (as `limit_dbm`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub value_dbm: Option<f64>,
+}
+
+/// Peak volts (a sine) into `ohms` as dBm: `P = V²/(2R)` referred to 1 mW.
+pub fn dbm(peak_v: f64, ohms: f64) -> f64 {
+    10.0 * (peak_v * peak_v / (2.0 * ohms) / 1e-3).log10()
 }
 
 /// Sizing result for one stage and temperature.
@@ -843,11 +881,15 @@ pub struct SizingScanRecord {
     pub emitter_resistance_ohm: f64,
     /// Margin of each budget line (in plan order), dB.
     pub margins: Vec<Option<f64>>,
-    /// Small-signal gain, dB.
-    pub gain_db: f64,
+    /// Small-signal gain, dB (null: the stage cannot bias at this value and was not solved).
+    pub gain_db: Option<f64>,
     /// Collector-base margin on the hold-gain check, V (hold_gain only).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub headroom_v: Option<f64>,
+    /// Height of the tail node above the tail source's compliance at rest, worst corner, V
+    /// (negative: the stage cannot bias at this value).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub tail_headroom_v: Option<f64>,
     /// The least collector-base reverse bias over every drive evaluated at this value, V.
     #[serde(default)]
     pub collector_base_margin_v: Option<f64>,

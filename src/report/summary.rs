@@ -3,10 +3,59 @@
 
 use super::queries::{recommended_stage, value_to_build};
 use super::table::{markdown_text, Cell, Table};
-use super::{PointRecord, Report, CAUTION};
+use super::text::{limit_text, metric_label, num, si_exact, si_short};
+use super::{BudgetRecord, PointRecord, Report, CAUTION};
 use crate::model::corner::TYPICAL;
-use crate::units::format_si;
 use std::fmt::Write;
+
+/// A temperature cell: `27`, `−40` (the column title carries the unit).
+pub fn temperature_cell(t: f64) -> String {
+    num(t, if t.fract() == 0.0 { 0 } else { 1 })
+}
+
+/// Whether any record of the report comes from a process corner other than the typical one.
+pub fn has_corners(report: &Report) -> bool {
+    report
+        .points
+        .iter()
+        .any(|p| !p.corner.is_empty() && p.corner != TYPICAL)
+}
+
+/// A budget line's limit: `≤ −60 dBc`, `≥ 300 mV`, and in dBm where the plan gives a
+/// reference impedance: `≥ −10 dBm (100 mV)`.
+pub fn limit_cell(b: &BudgetRecord) -> String {
+    match b.limit_dbm {
+        Some(dbm) => format!(
+            "{} ({})",
+            limit_text(&b.kind, dbm, "dBm"),
+            si_short(b.limit, &b.unit)
+        ),
+        None => limit_text(&b.kind, b.limit, &b.unit),
+    }
+}
+
+/// A budget line's value in its unit (dBm beside volts where the plan gives a reference
+/// impedance), or why there is none.
+pub fn value_cell(b: &BudgetRecord) -> String {
+    if let (Some(v), Some([low, high])) = (b.value, b.interval) {
+        let q = |x: f64| b.quantity_text(x);
+        return format!("{} ({}–{})", q(v), q(low), q(high));
+    }
+    match (b.value, b.value_dbm) {
+        (Some(v), Some(dbm)) => format!(
+            "{} ({})",
+            super::text::level(dbm, "dBm"),
+            si_short(v, &b.unit)
+        ),
+        // Values to two decimals, as the margins: a trimmed "22 dB" for 21.97 dB would hide
+        // how close a line is.
+        (Some(v), None) if b.unit.starts_with("dB") => format!("{} {}", num(v, 2), b.unit),
+        (Some(v), None) => super::text::level(v, &b.unit),
+        (None, _) if b.unit == "dBc" || b.margin_at_least => "below floor".into(),
+        (None, _) if b.unit == super::YIELD_UNIT => "not estimated".into(),
+        (None, _) => "—".into(),
+    }
+}
 
 fn db(value: Option<f64>) -> String {
     value
@@ -16,7 +65,7 @@ fn db(value: Option<f64>) -> String {
 
 fn volts(value: Option<f64>) -> String {
     value
-        .map(|v| format_si(v, "V"))
+        .map(|v| si_short(v, "V"))
         .unwrap_or_else(|| "—".into())
 }
 
@@ -40,37 +89,53 @@ pub fn summary(report: &Report) -> String {
             stage_names.push(&s.stage);
         }
     }
+    let corners = has_corners(report);
+    let corner_column = |columns: &mut Vec<(&'static str, bool)>| {
+        if corners {
+            columns.push(("corner", false));
+        }
+    };
     if stage_names.len() > 1 {
         let _ = writeln!(out, "## Stages side by side\n");
-        let mut table = Table::new([
-            ("stage", false),
+        let mut columns = vec![("stage", false)];
+        corner_column(&mut columns);
+        columns.extend([
             ("T (°C)", true),
+            ("f", true),
             ("gain (dB)", true),
             ("IIP3", true),
             ("P1dB", true),
             ("steering range", true),
-            ("noise (nV/√Hz)", true),
+            ("input noise (nV/√Hz)", true),
             ("budget", false),
         ]);
+        let mut table = Table::new(columns);
         for i in &report.intercepts {
-            table.push(vec![
-                i.stage.as_str().into(),
-                i.temperature_c.to_string().into(),
+            let mut row: Vec<Cell> = vec![i.stage.as_str().into()];
+            if corners {
+                row.push(i.corner.as_str().into());
+            }
+            row.extend([
+                temperature_cell(i.temperature_c).into(),
+                si_exact(i.frequency_hz, "Hz").into(),
                 format!("{:.2}", i.small_signal_gain_db).into(),
                 volts(i.iip3_v).into(),
                 volts(i.p1db_v).into(),
-                format_si(i.steering_range_v, "V").into(),
+                si_short(i.steering_range_v, "V").into(),
                 format!("{:.2}", i.input_noise_v_rthz * 1e9).into(),
-                verdict_of(report, &i.stage, i.temperature_c),
+                verdict_of(report, &i.stage, i.temperature_c, &i.corner),
             ]);
+            table.push(row);
         }
         let _ = writeln!(out, "{}", table.to_markdown());
     }
     for name in stage_names {
         let _ = writeln!(out, "## Stage {}\n", markdown_text(name));
-        let mut table = Table::new([
+        let mut columns = Vec::new();
+        corner_column(&mut columns);
+        columns.extend([
             ("T (°C)", true),
-            ("f (Hz)", true),
+            ("f", true),
             ("amplitude", true),
             ("fundamental", true),
             ("gain (dB)", true),
@@ -81,6 +146,7 @@ pub fn summary(report: &Report) -> String {
             ("IM3", true),
             ("region (collector-base margin)", false),
         ]);
+        let mut table = Table::new(columns);
         let of_stage: Vec<&PointRecord> =
             report.points.iter().filter(|p| p.stage == name).collect();
         let budget_amplitudes: Vec<f64> = report
@@ -91,11 +157,15 @@ pub fn summary(report: &Report) -> String {
             .collect();
         let shown = shown_points(&of_stage, &budget_amplitudes);
         for p in &shown {
-            table.push(vec![
-                p.temperature_c.to_string().into(),
-                p.frequency_hz.to_string().into(),
-                format_si(p.amplitude_v, "V").into(),
-                format_si(p.fundamental_v, "V").into(),
+            let mut row: Vec<Cell> = Vec::new();
+            if corners {
+                row.push(p.corner.as_str().into());
+            }
+            row.extend([
+                temperature_cell(p.temperature_c).into(),
+                si_exact(p.frequency_hz, "Hz").into(),
+                si_exact(p.amplitude_v, "V").into(),
+                si_short(p.fundamental_v, "V").into(),
                 format!("{:.2}", p.gain_db).into(),
                 db(p.harmonic(2)).into(),
                 db(p.harmonic(3)).into(),
@@ -106,11 +176,12 @@ pub fn summary(report: &Report) -> String {
                     let text = format!(
                         "{} ({})",
                         p.region.name(),
-                        format_si(p.collector_base_margin_v, "V")
+                        si_short(p.collector_base_margin_v, "V")
                     );
                     Cell::verdict(p.region.is_forward_active(), &text, &text)
                 },
             ]);
+            table.push(row);
         }
         let _ = write!(out, "{}", table.to_markdown());
         if shown.len() < of_stage.len() {
@@ -123,9 +194,11 @@ pub fn summary(report: &Report) -> String {
             );
         }
         let _ = writeln!(out);
-        let mut table = Table::new([
+        let mut columns = Vec::new();
+        corner_column(&mut columns);
+        columns.extend([
             ("T (°C)", true),
-            ("f (Hz)", true),
+            ("f", true),
             ("small-signal gain (dB)", true),
             ("IIP3", true),
             ("OIP3", true),
@@ -133,17 +206,23 @@ pub fn summary(report: &Report) -> String {
             ("steering range", true),
             ("input noise (nV/√Hz)", true),
         ]);
+        let mut table = Table::new(columns);
         for i in report.intercepts.iter().filter(|i| i.stage == name) {
-            table.push(vec![
-                i.temperature_c.to_string().into(),
-                i.frequency_hz.to_string().into(),
+            let mut row: Vec<Cell> = Vec::new();
+            if corners {
+                row.push(i.corner.as_str().into());
+            }
+            row.extend([
+                temperature_cell(i.temperature_c).into(),
+                si_exact(i.frequency_hz, "Hz").into(),
                 format!("{:.2}", i.small_signal_gain_db).into(),
                 volts(i.iip3_v).into(),
                 volts(i.oip3_v).into(),
                 volts(i.p1db_v).into(),
-                format_si(i.steering_range_v, "V").into(),
+                si_short(i.steering_range_v, "V").into(),
                 format!("{:.3}", i.input_noise_v_rthz * 1e9).into(),
             ]);
+            table.push(row);
         }
         let _ = writeln!(out, "{}", table.to_markdown());
         let lines: Vec<_> = report.budget.iter().filter(|b| b.stage == name).collect();
@@ -157,8 +236,8 @@ pub fn summary(report: &Report) -> String {
                         out,
                         "Budget lines checked on the recommended design (derived: `{}` with R_E = {}, R_L = {}):\n",
                         markdown_text(&d.stage),
-                        format_si(d.emitter_resistance_ohm, "Ω"),
-                        format_si(d.load_resistance_ohm, "Ω")
+                        si_short(d.emitter_resistance_ohm, "Ω"),
+                        si_short(d.load_resistance_ohm, "Ω")
                     );
                 }
                 None if !report.sizing.is_empty() => {
@@ -176,6 +255,7 @@ pub fn summary(report: &Report) -> String {
             columns.extend([
                 ("metric", false),
                 ("at", true),
+                ("f", true),
                 ("limit", true),
                 ("value", true),
                 ("margin (dB)", true),
@@ -183,24 +263,19 @@ pub fn summary(report: &Report) -> String {
             ]);
             let mut table = Table::new(columns);
             for b in lines {
-                let quantity = |v: f64| b.quantity_text(v);
-                let mut row: Vec<Cell> = vec![b.temperature_c.to_string().into()];
+                let mut row: Vec<Cell> = vec![temperature_cell(b.temperature_c).into()];
                 if with_corner {
                     row.push(b.corner.as_str().into());
                 }
                 row.extend([
-                    b.metric.as_str().into(),
-                    volts(b.at_v).into(),
-                    format!("{} {}", b.kind, quantity(b.limit)).into(),
-                    match (b.value, b.interval) {
-                        (Some(v), Some([low, high])) => {
-                            format!("{} ({}–{})", quantity(v), quantity(low), quantity(high))
-                        }
-                        (Some(v), None) => quantity(v),
-                        (None, _) if b.margin_at_least => "below floor".into(),
-                        (None, _) => "—".into(),
-                    }
-                    .into(),
+                    metric_label(&b.metric).into(),
+                    b.at_v
+                        .map(|a| si_exact(a, "V"))
+                        .unwrap_or_else(|| "—".into())
+                        .into(),
+                    si_exact(b.frequency_hz, "Hz").into(),
+                    limit_cell(b).into(),
+                    value_cell(b).into(),
                     b.margin_text().into(),
                     Cell::verdict(b.pass, "pass", "FAIL"),
                 ]);
@@ -209,18 +284,27 @@ pub fn summary(report: &Report) -> String {
             let _ = writeln!(out, "{}", table.to_markdown());
         }
         for s in report.sizing.iter().filter(|s| s.stage == name) {
+            let binding = if s.binding_corner.is_empty() || s.binding_corner == TYPICAL {
+                metric_label(&s.binding_metric)
+            } else {
+                format!(
+                    "{} in the {} corner",
+                    metric_label(&s.binding_metric),
+                    s.binding_corner
+                )
+            };
             let _ = writeln!(
                 out,
                 "Sizing at {} °C: {} R_E = {} (binding: {}, worst margin {:.2} dB, gain {} dB, gain cost {} dB, steering range {}, load {}){}\n",
-                s.temperature_c,
+                temperature_cell(s.temperature_c),
                 if s.met { "least" } else { "no value meets every line; best" },
-                s.emitter_resistance_ohm.map(|r| format_si(r, "Ω")).unwrap_or_else(|| "—".into()),
-                markdown_text(&s.binding_metric),
+                s.emitter_resistance_ohm.map(|r| si_short(r, "Ω")).unwrap_or_else(|| "—".into()),
+                markdown_text(&binding),
                 s.best_margin,
                 db(s.gain_db),
                 db(s.gain_cost_db),
                 volts(s.steering_range_v),
-                s.load_resistance_ohm.map(|r| format_si(r, "Ω")).unwrap_or_else(|| "—".into()),
+                s.load_resistance_ohm.map(|r| si_short(r, "Ω")).unwrap_or_else(|| "—".into()),
                 if s.headroom_binds { "; headroom, not distortion, binds" } else { "" }
             );
         }
@@ -237,14 +321,14 @@ pub fn summary(report: &Report) -> String {
                 .flat_map(|r| &r.stages)
                 .filter(|s| s.stage == name)
                 .flat_map(|s| &s.window_ohm)
-                .map(|[low, high]| format!("{} – {}", format_si(*low, "Ω"), format_si(*high, "Ω")))
+                .map(|[low, high]| format!("{} – {}", si_short(*low, "Ω"), si_short(*high, "Ω")))
                 .collect::<Vec<_>>()
                 .join(", ");
             let _ = writeln!(
                 out,
                 "\n**R_E to build for {}: {}** — the least value holding every line at every temperature (usable at every temperature: {}); the recommended design, evaluated in full, meets every line.\n",
                 markdown_text(name),
-                format_si(value, "Ω"),
+                si_short(value, "Ω"),
                 windows
             );
         }
@@ -270,7 +354,7 @@ pub fn summary(report: &Report) -> String {
     if !report.warnings.is_empty() {
         let _ = writeln!(out, "## Warnings\n");
         for w in &report.warnings {
-            let _ = writeln!(out, "- {}", markdown_text(w));
+            let _ = writeln!(out, "- {}", super::table::markdown_inline(w));
         }
         let _ = writeln!(out);
     }
@@ -331,11 +415,11 @@ fn shown_points<'a>(points: &[&'a PointRecord], budget_amplitudes: &[f64]) -> Ve
     shown
 }
 
-fn verdict_of(report: &Report, stage: &str, temperature_c: f64) -> Cell {
+fn verdict_of(report: &Report, stage: &str, temperature_c: f64, corner: &str) -> Cell {
     let lines: Vec<_> = report
         .budget
         .iter()
-        .filter(|b| b.stage == stage && b.temperature_c == temperature_c)
+        .filter(|b| b.stage == stage && b.temperature_c == temperature_c && b.corner == corner)
         .collect();
     if lines.is_empty() {
         "—".into()
@@ -349,7 +433,7 @@ fn figure(value: Option<f64>, unit: &str) -> String {
         (None, _) => "—".into(),
         (Some(v), "dBc" | "dB") => format!("{v:.2}"),
         (Some(v), "V/√Hz") => format!("{:.3} nV/√Hz", v * 1e9),
-        (Some(v), u) => format_si(v, u),
+        (Some(v), u) => si_short(v, u),
     }
 }
 
@@ -369,9 +453,12 @@ fn population_sections(report: &Report, out: &mut String) {
         for r in &report.corner_spread {
             table.push(vec![
                 r.stage.as_str().into(),
-                r.temperature_c.to_string().into(),
-                r.metric.as_str().into(),
-                volts(r.at_v).into(),
+                temperature_cell(r.temperature_c).into(),
+                metric_label(&r.metric).into(),
+                r.at_v
+                    .map(|a| si_exact(a, "V"))
+                    .unwrap_or_else(|| "—".into())
+                    .into(),
                 figure(r.typical, &r.unit).into(),
                 format!("{} ({})", figure(r.min, &r.unit), r.min_corner).into(),
                 format!("{} ({})", figure(r.max, &r.unit), r.max_corner).into(),
@@ -383,8 +470,9 @@ fn population_sections(report: &Report, out: &mut String) {
         let _ = writeln!(out, "## Monte Carlo mismatch\n");
         let mut table = Table::new([
             ("stage", false),
+            ("corner", false),
             ("T (°C)", true),
-            ("f (Hz)", true),
+            ("f", true),
             ("amplitude", true),
             ("metric", false),
             ("runs", true),
@@ -395,10 +483,16 @@ fn population_sections(report: &Report, out: &mut String) {
         for r in &report.monte_carlo {
             table.push(vec![
                 r.stage.as_str().into(),
-                r.temperature_c.to_string().into(),
-                r.frequency_hz.to_string().into(),
-                format_si(r.amplitude_v, "V").into(),
-                r.metric.as_str().into(),
+                r.corner.as_str().into(),
+                temperature_cell(r.temperature_c).into(),
+                si_exact(r.frequency_hz, "Hz").into(),
+                if r.metric == "offset" {
+                    "—".to_owned()
+                } else {
+                    si_exact(r.amplitude_v, "V")
+                }
+                .into(),
+                metric_label(&r.metric).into(),
                 r.runs.to_string().into(),
                 figure(r.p05, &r.unit).into(),
                 figure(r.median, &r.unit).into(),
@@ -416,7 +510,7 @@ fn population_sections(report: &Report, out: &mut String) {
                         "{}{} {:.1} %",
                         l.metric,
                         l.at_v
-                            .map(|a| format!(" at {}", format_si(a, "V")))
+                            .map(|a| format!(" at {}", si_exact(a, "V")))
                             .unwrap_or_default(),
                         100.0 * l.failing_fraction
                     )
@@ -426,7 +520,7 @@ fn population_sections(report: &Report, out: &mut String) {
                 out,
                 "Yield of {} at {} °C ({} corner): {:.1} % of {} runs meet every budget line ({}: {:.1} % to {:.1} %){}.\n",
                 markdown_text(&y.stage),
-                y.temperature_c,
+                temperature_cell(y.temperature_c),
                 markdown_text(&y.corner),
                 100.0 * y.pass_fraction,
                 y.runs,
@@ -450,10 +544,10 @@ fn population_sections(report: &Report, out: &mut String) {
             out,
             "Sizing of {} at {} °C: distortion needs R_E ≥ {} but noise allows at most {}; no value meets both (gap {}).\n",
             markdown_text(&s.stage),
-            s.temperature_c,
-            s.distortion_least_emitter_resistance_ohm.map(|r| format_si(r, "Ω")).unwrap_or_default(),
-            s.noise_greatest_emitter_resistance_ohm.map(|r| format_si(r, "Ω")).unwrap_or_default(),
-            s.conflict_gap_ohm.map(|r| format_si(r, "Ω")).unwrap_or_default()
+            temperature_cell(s.temperature_c),
+            s.distortion_least_emitter_resistance_ohm.map(|r| si_short(r, "Ω")).unwrap_or_default(),
+            s.noise_greatest_emitter_resistance_ohm.map(|r| si_short(r, "Ω")).unwrap_or_default(),
+            s.conflict_gap_ohm.map(|r| si_short(r, "Ω")).unwrap_or_default()
         );
     }
 }

@@ -197,6 +197,50 @@ pub fn markdown_text(text: &str) -> String {
     out
 }
 
+/// Splits prose at backtick pairs into (text, is_code) runs: the library words names and plan
+/// keys in backticks (`stage \`a\``). An odd number of backticks (a name holding one) leaves the
+/// text as one plain run.
+fn code_runs(text: &str) -> Vec<(&str, bool)> {
+    if text.matches('`').count() % 2 != 0 {
+        return vec![(text, false)];
+    }
+    text.split('`')
+        .enumerate()
+        .filter(|(_, run)| !run.is_empty())
+        .map(|(i, run)| (run, i % 2 == 1))
+        .collect()
+}
+
+/// Prose for Markdown: names in backticks become code spans where that is safe, everything
+/// else is escaped as by [`markdown_text`].
+pub fn markdown_inline(text: &str) -> String {
+    code_runs(text)
+        .into_iter()
+        .map(|(run, code)| {
+            let plain = |c: char| c.is_alphanumeric() || " -_.:=/()°%+".contains(c);
+            if code && run.chars().all(plain) {
+                format!("`{run}`")
+            } else {
+                markdown_text(run)
+            }
+        })
+        .collect()
+}
+
+/// Prose for HTML: names in backticks become `<code>` elements, never literal backticks.
+pub fn html_inline(text: &str) -> String {
+    code_runs(text)
+        .into_iter()
+        .map(|(run, code)| {
+            if code {
+                format!("<code>{}</code>", html_text(run))
+            } else {
+                html_text(run)
+            }
+        })
+        .collect()
+}
+
 /// Text that HTML shows as written.
 pub fn html_text(text: &str) -> String {
     text.replace('&', "&amp;")
@@ -236,6 +280,19 @@ mod tests {
         assert!(row.contains(r"a\|b\*c&lt;d&gt;\`e\`\_f"), "{row}");
         assert!(row.ends_with("| **FAIL** |"), "{row}");
         assert!(markdown.lines().nth(1).unwrap() == "|---|---:|---|");
+    }
+
+    /// Names the library writes in backticks read as code in both documents; the HTML never
+    /// shows a literal backtick for them.
+    #[test]
+    fn backticked_names_become_code_not_backticks() {
+        let warning = "stage `bare-pair` at 27 °C: set `supply` to the design's bias";
+        let html = html_inline(warning);
+        assert!(!html.contains('`'), "{html}");
+        assert!(html.contains("<code>bare-pair</code>") && html.contains("<code>supply</code>"));
+        assert_eq!(markdown_inline(warning), warning);
+        // An odd backtick (a name holding one) is plain, escaped text.
+        assert_eq!(markdown_inline("a`b"), "a\\`b");
     }
 
     #[test]

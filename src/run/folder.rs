@@ -47,14 +47,7 @@ pub fn check_output_dir(out_dir: &Path) -> Result<(), Error> {
                 "exists and is not a folder; pass a folder to --out",
             ));
         }
-        let metadata = fs::metadata(out_dir).map_err(|e| output_error(out_dir, e))?;
-        if metadata.permissions().readonly() {
-            return Err(output_error(
-                out_dir,
-                "the folder is read-only; pass a writable folder to --out",
-            ));
-        }
-        return Ok(());
+        return try_writing_in(out_dir, out_dir);
     }
     let mut ancestor = out_dir.parent();
     while let Some(dir) = ancestor {
@@ -68,11 +61,100 @@ pub fn check_output_dir(out_dir: &Path) -> Result<(), Error> {
                     ),
                 ));
             }
-            return Ok(());
+            let existing = if dir.as_os_str().is_empty() {
+                Path::new(".")
+            } else {
+                dir
+            };
+            return try_writing_in(existing, out_dir);
         }
         ancestor = dir.parent();
     }
     Ok(())
+}
+
+/// Decides whether a folder can be written in by trying: creating and removing an empty
+/// folder there. Permission bits alone answer wrongly (root writes into a mode-0555 folder;
+/// a read-only mount or an ACL refuses a writable-looking one).
+fn try_writing_in(dir: &Path, out_dir: &Path) -> Result<(), Error> {
+    let probe = dir.join(format!(".linbudget-probe-{}", std::process::id()));
+    match fs::create_dir(&probe) {
+        Ok(()) => {
+            let _ = fs::remove_dir(&probe);
+            Ok(())
+        }
+        Err(e) if e.kind() == std::io::ErrorKind::AlreadyExists => Ok(()),
+        Err(e) => Err(output_error(
+            out_dir,
+            format!(
+                "nothing can be written in {} ({e}); pass a writable folder to --out",
+                dir.display()
+            ),
+        )),
+    }
+}
+
+/// Whether the process that left a staging folder named `.NAME.partial-PID` or
+/// `.NAME.previous-PID` may still be running (so the folder may still be in use).
+fn may_be_running(pid: u32) -> bool {
+    if pid == std::process::id() {
+        return false;
+    }
+    #[cfg(target_os = "linux")]
+    {
+        // A killed run not yet reaped by its parent stays in /proc as a zombie ('Z') or
+        // dying ('X') process: it is not running.
+        match fs::read_to_string(Path::new("/proc").join(pid.to_string()).join("stat")) {
+            Ok(stat) => !matches!(
+                stat.rsplit_once(')')
+                    .and_then(|(_, rest)| rest.trim_start().chars().next()),
+                Some('Z' | 'X')
+            ),
+            Err(_) => false,
+        }
+    }
+    #[cfg(not(target_os = "linux"))]
+    {
+        true
+    }
+}
+
+/// Removes the staging folders an interrupted run of the same report left behind
+/// (`.NAME.partial-PID`, `.NAME.previous-PID` whose process is gone). Folders of a run that
+/// may still be going are left alone; elsewhere than Linux, only those older than a day.
+pub fn remove_stale_staging(out_dir: &Path, name: &str) {
+    let Ok(entries) = fs::read_dir(out_dir) else {
+        return;
+    };
+    let prefixes = [format!(".{name}.partial-"), format!(".{name}.previous-")];
+    for entry in entries.flatten() {
+        let file_name = entry.file_name();
+        let Some(file_name) = file_name.to_str() else {
+            continue;
+        };
+        let Some(pid) = prefixes
+            .iter()
+            .find_map(|prefix| file_name.strip_prefix(prefix.as_str()))
+            .and_then(|pid| pid.parse::<u32>().ok())
+        else {
+            continue;
+        };
+        let is_dir = entry.file_type().is_ok_and(|t| t.is_dir());
+        let old = entry
+            .metadata()
+            .and_then(|m| m.modified())
+            .ok()
+            .and_then(|t| t.elapsed().ok())
+            .is_some_and(|age| age.as_secs() > 24 * 3600);
+        let stale = if cfg!(target_os = "linux") {
+            !may_be_running(pid)
+        } else {
+            old
+        };
+        if is_dir && stale {
+            let _ = fs::remove_dir_all(entry.path());
+        }
+    }
 }
 
 /// Writes `out_dir/<name>/`, replacing any previous report of that name whole, from `fill`,
@@ -125,8 +207,13 @@ impl Staging {
     /// Writes one file of the report. `name` is a plain file name (no folder part); this may
     /// be called from several threads at once for different files.
     pub fn put(&self, name: &str, bytes: &[u8]) -> Result<(), Error> {
+        use std::io::Write;
         let path = self.path_of(name)?;
-        fs::write(&path, bytes).map_err(|e| output_error(&path, e))
+        let mut file = fs::File::create(&path).map_err(|e| output_error(&path, e))?;
+        file.write_all(bytes).map_err(|e| output_error(&path, e))?;
+        // On disk before the folder is swapped in: a crash after the swap must not leave a
+        // report of empty files.
+        file.sync_all().map_err(|e| output_error(&path, e))
     }
 
     /// Writes one file of the report by streaming into it through a buffer, for large
@@ -141,7 +228,11 @@ impl Staging {
         let mut buffered = std::io::BufWriter::with_capacity(1 << 16, file);
         write(&mut buffered).map_err(|reason| output_error(&path, reason))?;
         use std::io::Write;
-        buffered.flush().map_err(|e| output_error(&path, e))
+        buffered.flush().map_err(|e| output_error(&path, e))?;
+        buffered
+            .get_ref()
+            .sync_all()
+            .map_err(|e| output_error(&path, e))
     }
 }
 
@@ -190,6 +281,7 @@ fn write_inside(
             "exists and is not a folder; remove it or choose another --out",
         ));
     }
+    remove_stale_staging(out_dir, name);
     let staging = out_dir.join(format!(".{name}.partial-{}", std::process::id()));
     if staging.exists() {
         fs::remove_dir_all(&staging).map_err(|e| output_error(&staging, e))?;
@@ -199,7 +291,10 @@ fn write_inside(
         fill(&Staging {
             dir: staging.clone(),
         })?;
+        // The folder's entries on disk too, then the swap, then the swap itself.
+        sync_folder(&staging)?;
         install(&staging, &target, out_dir, name)?;
+        sync_folder(out_dir)?;
         Ok(target.clone())
     })();
     if staging.exists() {
@@ -208,6 +303,18 @@ fn write_inside(
         let _ = fs::remove_dir_all(&staging);
     }
     result
+}
+
+/// Flushes a folder's entries to disk (a no-op where folders cannot be opened as files).
+fn sync_folder(dir: &Path) -> Result<(), Error> {
+    #[cfg(unix)]
+    {
+        let handle = fs::File::open(dir).map_err(|e| output_error(dir, e))?;
+        handle.sync_all().map_err(|e| output_error(dir, e))?;
+    }
+    #[cfg(not(unix))]
+    let _ = dir;
+    Ok(())
 }
 
 /// Moves the finished `staging` folder to `target`; afterwards `staging` holds the previous
@@ -272,6 +379,60 @@ mod tests {
             "old"
         );
         assert_eq!(fs::read_dir(dir.path()).unwrap().count(), 1);
+    }
+
+    #[test]
+    fn staging_folders_of_a_killed_run_are_removed_by_the_next() {
+        // A process id that cannot be running: above Linux's largest pid (2^22).
+        let dir = tempfile::tempdir().unwrap();
+        let stale = dir.path().join(".p.partial-4999999");
+        fs::create_dir(&stale).unwrap();
+        fs::write(stale.join("report.json"), "half").unwrap();
+        let other_report = dir.path().join(".q.partial-4999999");
+        fs::create_dir(&other_report).unwrap();
+        write_report_folder(dir.path(), "p", report("new")).unwrap();
+        if cfg!(target_os = "linux") {
+            assert!(!stale.exists());
+        }
+        // Another report's staging is not this run's to judge.
+        assert!(other_report.exists());
+        // A staging folder of a process still running (this test's parent) stays.
+        #[cfg(unix)]
+        {
+            let live = dir.path().join(format!(
+                ".p.partial-{}",
+                std::os::unix::process::parent_id()
+            ));
+            fs::create_dir(&live).unwrap();
+            write_report_folder(dir.path(), "p", report("newer")).unwrap();
+            assert!(live.exists());
+        }
+    }
+
+    #[test]
+    fn writability_is_decided_by_trying() {
+        let dir = tempfile::tempdir().unwrap();
+        check_output_dir(&dir.path().join("a/b")).unwrap();
+        check_output_dir(dir.path()).unwrap();
+        assert_eq!(
+            fs::read_dir(dir.path()).unwrap().count(),
+            0,
+            "no probe left"
+        );
+        #[cfg(unix)]
+        {
+            use std::os::unix::fs::PermissionsExt;
+            let locked = dir.path().join("locked");
+            fs::create_dir(&locked).unwrap();
+            fs::set_permissions(&locked, fs::Permissions::from_mode(0o555)).unwrap();
+            // Whatever the permission bits say, the answer is whether a folder can be made
+            // there (root can; others cannot).
+            let can = fs::create_dir(locked.join("x")).is_ok();
+            let _ = fs::remove_dir(locked.join("x"));
+            assert_eq!(check_output_dir(&locked).is_ok(), can);
+            assert_eq!(check_output_dir(&locked.join("sub")).is_ok(), can);
+            fs::set_permissions(&locked, fs::Permissions::from_mode(0o755)).unwrap();
+        }
     }
 
     #[test]

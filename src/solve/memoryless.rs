@@ -8,7 +8,7 @@ use crate::error::SolveFailure;
 use crate::model::circuit::StageCircuit;
 use crate::solve::response::{RegionCheck, ResponseEngine, ToneResult, TwoToneResult};
 use crate::solve::spectrum::{
-    analyse_adaptive, FftCache, Spectrum, ANALYSIS_FLOOR_DBC, CONVERGED_DB,
+    analyse_adaptive, resolved_floor_dbc, FftCache, Spectrum, ANALYSIS_FLOOR_DBC, CONVERGED_DB,
 };
 use crate::solve::transfer::{StaticSolver, WarmStart};
 use num_complex::Complex;
@@ -36,6 +36,44 @@ pub fn single_tone(
     }
 }
 
+/// Absolute precision of the differential output of the general solve, V.
+///
+/// The general solve converges each side's `u = ln J` to a few ulps on its own (relative step
+/// ≤ 4ε), so each collector current carries a relative error near `4ε·|u|`, and their
+/// difference — the signal — an absolute one near `4ε·|u|·R_L·I_tail` however small the
+/// signal is (measured: 2.3e-15 V for 1 mA, 2 kΩ, against this bound's 6e-15 V). The
+/// matched-pair fast path keeps full relative precision and needs no such bound.
+pub fn general_precision_v(circuit: &StageCircuit) -> f64 {
+    let log_transport = (0.5 * circuit.tail_current).ln().abs().max(1.0);
+    let load = circuit.p.load_resistance.max(circuit.m.load_resistance);
+    4.0 * f64::EPSILON * log_transport * load * circuit.tail_current
+}
+
+/// The least amplitude answered directly by the general path, V: large enough that at half
+/// of it [`general_precision_v`] times the noise margin is 10⁻⁹ of the fundamental (the
+/// analysis floor there is −180 dBc and the gain exact to about 1e-10 dB), at least 10⁻⁴·φT,
+/// and never above 3·10⁻²·φT, where the power series through it and half of it still leaves
+/// a gain error near 1e-8 relative (the fourth-order term, (A/2φT)⁴ ≈ 6e-8 at most).
+pub fn general_direct_floor_v(circuit: &StageCircuit) -> f64 {
+    let phi = circuit.thermal_voltage;
+    let for_precision =
+        2.0 * crate::solve::spectrum::NOISE_MARGIN * 1e9 * general_precision_v(circuit)
+            / estimated_gain(circuit).max(f64::MIN_POSITIVE);
+    (1e-4 * phi).max(for_precision).min(3e-2 * phi)
+}
+
+/// The small-signal gain `g_m·R_L/(1 + g_m·(R_E + R_b/β))` of the P side's half circuit, a
+/// close estimate without the Early effect (half-circuit analysis, common practice): it scales
+/// an engine's precision to the input.
+pub fn estimated_gain(circuit: &StageCircuit) -> f64 {
+    let side = &circuit.p;
+    let transconductance = 0.5 * circuit.tail_current / circuit.thermal_voltage;
+    side.load_resistance * transconductance
+        / (1.0
+            + transconductance
+                * (side.emitter_resistance + side.base_path_resistance * side.beta_inv))
+}
+
 /// The general single-tone analysis: every sample of the period solved in turn (with the
 /// whole model throughout when the drive saturates anywhere).
 pub fn single_tone_general(
@@ -58,12 +96,12 @@ fn general_tone(
     let tail = solver.circuit().tail_current;
     let mut warm = WarmStart::default();
     let mut region = RegionCheck::new();
-    let floor = ANALYSIS_FLOOR_DBC;
     let result = analyse_adaptive(
         cache,
         2,
         harmonics,
-        floor,
+        ANALYSIS_FLOOR_DBC,
+        general_precision_v(solver.circuit()),
         |theta, out: &mut [f64]| {
             let v_d = amplitude_v * theta.cos();
             let point = if whole {
@@ -78,7 +116,7 @@ fn general_tone(
         },
         |n, change| {
             SolveFailure {
-            point: format!("amplitude {amplitude_v:e} V"),
+            point: format!("amplitude {} V", crate::units::short_number(amplitude_v)),
             reason: format!(
                 "harmonics did not converge to {CONVERGED_DB} dB with {n} samples per period (last change {change:.2e} dB)"
             ),
@@ -93,7 +131,7 @@ fn general_tone(
         differential,
         single_ended,
         samples: result.samples,
-        floor_dbc: floor,
+        floor_dbc: result.floor_dbc,
         region,
     })
 }
@@ -102,20 +140,30 @@ fn general_tone(
 /// phases: `v_d = A·(cos θ1 + cos θ2)` sampled on an `N×N` grid and transformed in 2-D, so
 /// every product `m·f1 + n·f2` has its own coefficient and none can collide, whatever the
 /// tone frequencies. `N` doubles until the fundamental, IM3 and IM2 move by less than
-/// [`CONVERGED_DB`].
+/// [`CONVERGED_DB`], products compared down to the point's analysis floor (which rises
+/// above [`ANALYSIS_FLOOR_DBC`] when the solve's absolute precision is a sizeable part of a
+/// small fundamental, see [`resolved_floor_dbc`]).
 pub fn two_tone(
     solver: &StaticSolver,
     cache: &FftCache,
     amplitude_v: f64,
 ) -> Result<TwoToneResult, SolveFailure> {
+    let precision = if crate::solve::symmetric::applies(solver.circuit()) {
+        0.0
+    } else {
+        general_precision_v(solver.circuit())
+    };
     let mut n = 16usize;
     let mut previous: Option<TwoToneResult> = None;
     while n <= 4096 {
-        let result = two_tone_grid(solver, cache, amplitude_v, n)?;
+        let mut result = two_tone_grid(solver, cache, amplitude_v, n)?;
+        result.floor_dbc = resolved_floor_dbc(ANALYSIS_FLOOR_DBC, precision, result.fundamental_v);
+        result.im3_floor_dbc = result.floor_dbc;
+        result.im2_floor_dbc = result.floor_dbc;
         if let Some(before) = previous {
-            let clamp = |level: f64, fundamental: f64| {
-                (20.0 * (level / fundamental).log10()).max(ANALYSIS_FLOOR_DBC)
-            };
+            let floor = result.floor_dbc.max(before.floor_dbc);
+            let clamp =
+                |level: f64, fundamental: f64| (20.0 * (level / fundamental).log10()).max(floor);
             let changes = [
                 (20.0 * (result.fundamental_v / before.fundamental_v).log10()).abs(),
                 (clamp(result.im3_v, result.fundamental_v)
@@ -126,6 +174,9 @@ pub fn two_tone(
                 .abs(),
             ];
             if changes.iter().all(|c| *c <= CONVERGED_DB) {
+                result.floor_dbc = floor;
+                result.im3_floor_dbc = floor;
+                result.im2_floor_dbc = floor;
                 return Ok(result);
             }
         }
@@ -133,7 +184,10 @@ pub fn two_tone(
         n *= 2;
     }
     Err(SolveFailure {
-        point: format!("two tones of {amplitude_v:e} V each"),
+        point: format!(
+            "two tones of {} V each",
+            crate::units::short_number(amplitude_v)
+        ),
         reason: "intermodulation did not converge on a 4096×4096 grid".into(),
     })
 }
@@ -192,6 +246,11 @@ pub fn two_tone_grid(
         im3_v,
         im2_v,
         samples: n,
+        floor_dbc: ANALYSIS_FLOOR_DBC,
+        im3_floor_dbc: ANALYSIS_FLOOR_DBC,
+        im2_floor_dbc: ANALYSIS_FLOOR_DBC,
+        im3_limited_by: None,
+        im2_limited_by: None,
         region,
     })
 }
@@ -201,14 +260,20 @@ pub fn two_tone_grid(
 pub struct MemorylessEngine {
     solver: StaticSolver,
     cache: Arc<FftCache>,
+    /// Least amplitude answered directly (`None`: the matched-pair fast path, exact to its
+    /// own relative precision at any amplitude).
+    direct_floor_v: Option<f64>,
 }
 
 impl MemorylessEngine {
     /// Builds the engine for one stage at one temperature.
     pub fn new(circuit: StageCircuit, cache: Arc<FftCache>) -> Self {
+        let direct_floor_v =
+            (!crate::solve::symmetric::applies(&circuit)).then(|| general_direct_floor_v(&circuit));
         MemorylessEngine {
             solver: StaticSolver::new(circuit),
             cache,
+            direct_floor_v,
         }
     }
 }
@@ -234,6 +299,10 @@ impl ResponseEngine for MemorylessEngine {
 
     fn static_solver(&self) -> &StaticSolver {
         &self.solver
+    }
+
+    fn direct_floor_v(&self) -> Option<f64> {
+        self.direct_floor_v
     }
 }
 

@@ -4,7 +4,8 @@
 //! - [`memoryless`] and [`symmetric`]: single- and two-tone drives of a stage without charge
 //!   storage, sampled coherently and analysed by FFT ([`spectrum`]);
 //! - [`dynamic`]: the periodic steady state of a stage with capacitance or transit time;
-//! - [`response`]: what every engine answers, and [`engine`] picks the right one.
+//! - [`response`]: what every engine answers, and [`engine`] picks the right one;
+//! - [`small_drive`]: drives too small to answer directly, from the small-signal power series.
 //!
 //! Every solver states its tolerance and returns a [`crate::SolveFailure`] naming the point
 //! where it could not meet it.
@@ -15,6 +16,7 @@ pub mod engine;
 pub mod memoryless;
 pub mod response;
 pub mod roots;
+pub mod small_drive;
 pub mod spectrum;
 pub mod symmetric;
 pub mod transfer;

@@ -4,6 +4,7 @@
 //! engine ([`super::dynamic`]) both answer these, so measuring code never asks which it has.
 
 use crate::error::SolveFailure;
+use crate::model::products::Product;
 use crate::solve::device::{base_charge_factor, HIGH_INJECTION_FACTOR};
 use crate::solve::spectrum::Spectrum;
 use crate::solve::transfer::{OperatingPoint, StaticSolver};
@@ -147,8 +148,19 @@ pub struct TwoToneResult {
     pub im3_v: f64,
     /// Larger of the difference and sum products (f2 − f1, f1 + f2), peak V.
     pub im2_v: f64,
-    /// Grid size per tone axis (or time steps over the common period).
+    /// Grid size per tone axis (time steps per common period for stages with capacitance).
     pub samples: usize,
+    /// Analysis floor of the point's products, dBc: where the solve's precision ends.
+    pub floor_dbc: f64,
+    /// IM3's floor, dBc: the point's floor, or higher when a product of higher order shares
+    /// IM3's frequency in the common period (stages with capacitance).
+    pub im3_floor_dbc: f64,
+    /// IM2's floor, dBc, likewise.
+    pub im2_floor_dbc: f64,
+    /// The product of higher order that sets IM3's floor, when one does.
+    pub im3_limited_by: Option<Product>,
+    /// The product of higher order that sets IM2's floor, when one does.
+    pub im2_limited_by: Option<Product>,
     /// Operating region over the two-tone drive.
     pub region: RegionCheck,
 }
@@ -161,6 +173,18 @@ impl TwoToneResult {
     /// IM2 relative to one tone's fundamental, dBc (may be −∞).
     pub fn im2_dbc(&self) -> f64 {
         20.0 * (self.im2_v / self.fundamental_v).log10()
+    }
+
+    /// IM3 in dBc when it stands above its floor.
+    pub fn im3_resolved_dbc(&self) -> Option<f64> {
+        let im3 = self.im3_dbc();
+        (im3.is_finite() && im3 >= self.im3_floor_dbc).then_some(im3)
+    }
+
+    /// IM2 in dBc when it stands above its floor.
+    pub fn im2_resolved_dbc(&self) -> Option<f64> {
+        let im2 = self.im2_dbc();
+        (im2.is_finite() && im2 >= self.im2_floor_dbc).then_some(im2)
     }
 }
 
@@ -185,4 +209,12 @@ pub trait ResponseEngine: Sync + Send {
 
     /// The static solver of the same stage (operating point, small-signal figures).
     fn static_solver(&self) -> &StaticSolver;
+
+    /// The least amplitude this engine answers directly, V. A smaller drive is answered from
+    /// the small-signal power series through this amplitude and half of it
+    /// ([`crate::solve::small_drive`]), because the engine's absolute precision would be a
+    /// sizeable part of its fundamental. `None`: every amplitude is answered directly.
+    fn direct_floor_v(&self) -> Option<f64> {
+        None
+    }
 }

@@ -3,6 +3,8 @@
 //! Every call states its tolerance and either converges or returns [`RootFailure`] with the
 //! bracket it reached; it never returns a silent NaN or a clipped guess.
 
+use crate::units::short_number;
+
 /// Why a root search gave up.
 #[derive(Debug, Clone, PartialEq)]
 pub struct RootFailure {
@@ -55,7 +57,11 @@ pub fn safe_newton(
     let (f_high, _) = f(high);
     if !f_low.is_finite() || !f_high.is_finite() {
         return Err(RootFailure {
-            reason: format!("the function is not finite at the bracket [{low:e}, {high:e}]"),
+            reason: format!(
+                "the function is not finite at the bracket [{}, {}]",
+                short_number(low),
+                short_number(high)
+            ),
         });
     }
     if f_low == 0.0 {
@@ -66,7 +72,13 @@ pub fn safe_newton(
     }
     if f_low.signum() == f_high.signum() {
         return Err(RootFailure {
-            reason: format!("no sign change in [{low:e}, {high:e}] (values {f_low:e}, {f_high:e})"),
+            reason: format!(
+                "no sign change in [{}, {}] (values {}, {})",
+                short_number(low),
+                short_number(high),
+                short_number(f_low),
+                short_number(f_high)
+            ),
         });
     }
     // Orient so that f(low) < 0 < f(high).
@@ -83,7 +95,7 @@ pub fn safe_newton(
         let (value, slope) = f(x);
         if !value.is_finite() {
             return Err(RootFailure {
-                reason: format!("the function is not finite at x = {x:e}"),
+                reason: format!("the function is not finite at x = {}", short_number(x)),
             });
         }
         if value == 0.0 {
@@ -114,8 +126,10 @@ pub fn safe_newton(
     }
     Err(RootFailure {
         reason: format!(
-            "no convergence in {} iterations; bracket [{low:e}, {high:e}]",
-            tolerance.max_iterations
+            "no convergence in {} iterations; bracket [{}, {}]",
+            tolerance.max_iterations,
+            short_number(low),
+            short_number(high)
         ),
     })
 }
@@ -223,7 +237,10 @@ pub fn bracket_increasing(
     }
     Err(RootFailure {
         reason: format!(
-            "could not bracket a root near {guess:e} (last interval [{low:e}, {high:e}])"
+            "could not bracket a root near {} (last interval [{}, {}])",
+            short_number(guess),
+            short_number(low),
+            short_number(high)
         ),
     })
 }

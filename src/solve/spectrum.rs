@@ -20,6 +20,25 @@ pub const CONVERGED_DB: f64 = 1e-3;
 pub const ANALYSIS_FLOOR_DBC: f64 = -200.0;
 /// Largest sample count tried before the analysis is declared unconverged.
 pub const MAX_SAMPLES: usize = 1 << 20;
+/// How far above the samples' absolute precision a harmonic must stand to be resolved: a
+/// bin's rounding noise is at most that precision, and a harmonic 50 dB above it moves by far
+/// less than [`CONVERGED_DB`] from one sample count to the next.
+pub const NOISE_MARGIN: f64 = 300.0;
+
+/// The analysis floor of one drive point, dBc: `floor_dbc`, or higher when the samples'
+/// absolute precision `precision_v` (V, 0 for samples exact to their own relative precision)
+/// times [`NOISE_MARGIN`] is a larger part of the fundamental. This is where a small drive's
+/// harmonics stop being resolvable: the floor follows the fundamental down, not the
+/// harmonics, so the convergence test stops comparing figures that are rounding noise.
+pub fn resolved_floor_dbc(floor_dbc: f64, precision_v: f64, fundamental_v: f64) -> f64 {
+    if precision_v.is_nan() || precision_v <= 0.0 {
+        return floor_dbc;
+    }
+    if !(fundamental_v > 0.0 && fundamental_v.is_finite()) {
+        return 0.0;
+    }
+    floor_dbc.max(20.0 * (NOISE_MARGIN * precision_v / fundamental_v).log10())
+}
 
 /// Powers of two up to this exponent get lock-free slots in [`FftCache`]; other sizes go
 /// through the locked maps.
@@ -312,6 +331,8 @@ pub struct AdaptiveResult {
     pub spectra: Vec<Spectrum>,
     /// The sample count reported.
     pub samples: usize,
+    /// The analysis floor of the point, dBc (see [`resolved_floor_dbc`]).
+    pub floor_dbc: f64,
 }
 
 /// The first sample count of the adaptive analysis, whatever the number of harmonics
@@ -329,12 +350,16 @@ pub const INITIAL_SAMPLES: usize = 32;
 /// (called in increasing phase order for each new batch, so it may warm-start), doubling N
 /// until every reported figure of channel 0 converges (see the module docs).
 ///
-/// `floor_dbc` is the level below which harmonics are not compared or reported.
+/// `floor_dbc` is the level below which harmonics are not compared or reported; it rises
+/// with [`resolved_floor_dbc`] when the samples carry an absolute error `precision_v` (V) that
+/// is a sizeable part of a small fundamental.
+#[allow(clippy::too_many_arguments)]
 pub fn analyse_adaptive<E>(
     cache: &FftCache,
     channels: usize,
     harmonics: usize,
     floor_dbc: f64,
+    precision_v: f64,
     mut sample: impl FnMut(f64, &mut [f64]) -> Result<(), E>,
     on_unconverged: impl FnOnce(usize, f64) -> E,
 ) -> Result<AdaptiveResult, E> {
@@ -381,14 +406,18 @@ pub fn analyse_adaptive<E>(
                 amplitudes: cache.harmonic_amplitudes(d, harmonics),
             })
             .collect();
-        if converged(&previous[0], &current[0], harmonics, floor_dbc) {
+        let floor = resolved_floor_dbc(floor_dbc, precision_v, current[0].fundamental()).max(
+            resolved_floor_dbc(floor_dbc, precision_v, previous[0].fundamental()),
+        );
+        if converged(&previous[0], &current[0], harmonics, floor) {
             return Ok(AdaptiveResult {
                 spectra: current,
                 samples: n,
+                floor_dbc: floor,
             });
         }
         if 2 * n > MAX_SAMPLES {
-            let change = largest_change_db(&previous[0], &current[0], harmonics, floor_dbc);
+            let change = largest_change_db(&previous[0], &current[0], harmonics, floor);
             return Err(on_unconverged(n, change));
         }
         previous = current;
@@ -442,6 +471,16 @@ mod tests {
         };
         let exact = largest_change_db(&silent, &silent, 6, -200.0) <= CONVERGED_DB;
         assert_eq!(converged(&silent, &silent, 6, -200.0), exact);
+    }
+
+    /// The floor follows a small fundamental up: a precision of 1e-15 V against a 1e-9 V
+    /// fundamental leaves 300·1e-6 → −70.5 dBc (decibel definition, common practice).
+    #[test]
+    fn the_floor_rises_as_the_fundamental_falls_to_the_precision() {
+        assert_eq!(resolved_floor_dbc(-200.0, 0.0, 1e-12), -200.0);
+        assert_eq!(resolved_floor_dbc(-200.0, 1e-15, 1.0), -200.0);
+        let floor = resolved_floor_dbc(-200.0, 1e-15, 1e-9);
+        assert!((floor - 20.0 * (300.0e-6f64).log10()).abs() < 1e-12);
     }
 
     #[test]

@@ -10,6 +10,7 @@ use crate::measure::noise::{
 use crate::measure::small_signal::{offset_voltage, transfer_curve, TransferSample};
 use crate::measure::stage::{DriveSettings, StageMeasurements};
 use crate::model::plan::Plan;
+use crate::model::products::Product;
 use crate::model::stage::Stage;
 use crate::solve::response::{RegionCheck, ResponseEngine};
 use crate::solve::spectrum::{FftCache, ANALYSIS_FLOOR_DBC};
@@ -66,6 +67,12 @@ pub struct DrivePoint {
     pub single_ended_hd3_dbc: Option<f64>,
     /// Samples (or time steps) per period.
     pub samples: usize,
+    /// The analysis floor of this point's harmonics, dBc: the engine's, or higher where the
+    /// solve's precision is a sizeable part of a small fundamental.
+    pub floor_dbc: f64,
+    /// Whether the point was answered from the small-signal power series (a drive below the
+    /// engine's direct floor, see `solve::small_drive`).
+    pub from_series: bool,
     /// Operating region over the single-tone period.
     pub region: RegionCheck,
     /// Signal over band noise, dB (plans with a noise band).
@@ -87,6 +94,14 @@ pub struct TwoToneFigures {
     pub iip3_effective_v: Option<f64>,
     /// One tone's output fundamental, V.
     pub fundamental_v: f64,
+    /// IM3's analysis floor at this point, dBc.
+    pub im3_floor_dbc: f64,
+    /// IM2's analysis floor at this point, dBc.
+    pub im2_floor_dbc: f64,
+    /// The product of higher order sharing IM3's frequency that sets its floor, if any.
+    pub im3_limited_by: Option<Product>,
+    /// The product of higher order sharing IM2's frequency that sets its floor, if any.
+    pub im2_limited_by: Option<Product>,
     /// Operating region over the two-tone drive (its peak is twice one tone's).
     pub region: RegionCheck,
 }
@@ -385,7 +400,9 @@ pub fn evaluate_case(
 pub fn at_drive_point(failure: SolveFailure, amplitude_v: f64, frequency_hz: f64) -> SolveFailure {
     SolveFailure {
         point: format!(
-            "drive {amplitude_v:e} V at {frequency_hz} Hz ({})",
+            "drive {} V at {} Hz ({})",
+            crate::units::short_number(amplitude_v),
+            crate::units::short_number(frequency_hz),
             failure.point
         ),
         reason: failure.reason,
@@ -417,15 +434,17 @@ pub fn drive_point(
     let two_tone = match plan.drive.two_tone_spacing {
         Some(spacing) => {
             let two = engine.two_tone(amplitude_v, frequency_hz, spacing)?;
-            let im3 = two.im3_dbc();
-            let im3_dbc = (im3 >= floor).then_some(im3);
-            let im2 = two.im2_dbc();
-            let im2_dbc = (im2 >= floor).then_some(im2);
+            let im3_dbc = two.im3_resolved_dbc();
+            let im2_dbc = two.im2_resolved_dbc();
             Some(TwoToneFigures {
                 im3_dbc,
                 im2_dbc,
                 iip3_effective_v: im3_dbc.map(|d| amplitude_v * 10f64.powf(-d / 40.0)),
                 fundamental_v: two.fundamental_v,
+                im3_floor_dbc: two.im3_floor_dbc,
+                im2_floor_dbc: two.im2_floor_dbc,
+                im3_limited_by: two.im3_limited_by,
+                im2_limited_by: two.im2_limited_by,
                 region: two.region,
             })
         }
@@ -444,6 +463,10 @@ pub fn drive_point(
         single_ended_hd2_dbc: tone.single_ended.harmonic_dbc(2, floor),
         single_ended_hd3_dbc: tone.single_ended.harmonic_dbc(3, floor),
         samples: tone.samples,
+        floor_dbc: floor,
+        from_series: engine
+            .direct_floor_v()
+            .is_some_and(|reference| amplitude_v < reference),
         region: tone.region,
         snr_db: None,
         sfdr_dbc: None,

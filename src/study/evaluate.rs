@@ -4,7 +4,10 @@
 
 use crate::error::Error;
 use crate::measure::budget::judge;
+use crate::model::bias::{bias_problem, temperature_supported, MODEL_TEMPERATURE_RANGE_C};
+use crate::model::circuit::StageCircuit;
 use crate::model::plan::{MonteCarloSettings, Plan, SizingSettings};
+use crate::model::products::{refused_collision, separating_spacing, PeriodTooLong};
 use crate::model::stage::Stage;
 use crate::solve::spectrum::FftCache;
 use crate::solve::spectrum::ANALYSIS_FLOOR_DBC;
@@ -14,7 +17,9 @@ use crate::study::fit::{self, BenchComparison, FitOutcome, FitProgress};
 use crate::study::montecarlo::{self, Population};
 use crate::study::sizing::{self, Recommendation, SizingOutcome};
 use crate::study::verdict::{DesignVerdict, Judged, Verdict};
+use crate::units::short_number;
 use rayon::prelude::*;
+use std::sync::atomic::{AtomicU64, Ordering};
 use std::sync::Arc;
 
 /// What the evaluation is doing, for a progress display.
@@ -47,6 +52,69 @@ pub enum Progress {
     },
     /// Fitting a stage to its bench data.
     Fitting(FitProgress),
+    /// How far a phase has come: `done` of `total` units (cases, runs or sizing trials). A
+    /// sizing's total is an estimate and grows if the refinement takes longer.
+    Step {
+        /// The phase counted.
+        phase: Phase,
+        /// Units finished.
+        done: u64,
+        /// Units in the phase.
+        total: u64,
+    },
+}
+
+/// The phases of an evaluation that report counted progress.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Phase {
+    /// Drive points: one unit per stage × temperature × corner.
+    DrivePoints,
+    /// Monte Carlo: one unit per run.
+    MonteCarlo,
+    /// Sizing: one unit per trial emitter resistance.
+    Sizing,
+}
+
+/// A thread-safe counter that reports each finished unit of a phase.
+struct Counter<'a> {
+    phase: Phase,
+    done: AtomicU64,
+    total: u64,
+    progress: &'a (dyn Fn(Progress) + Sync),
+}
+
+impl<'a> Counter<'a> {
+    fn new(phase: Phase, total: u64, progress: &'a (dyn Fn(Progress) + Sync)) -> Self {
+        progress(Progress::Step {
+            phase,
+            done: 0,
+            total,
+        });
+        Counter {
+            phase,
+            done: AtomicU64::new(0),
+            total,
+            progress,
+        }
+    }
+
+    fn tick(&self) {
+        let done = self.done.fetch_add(1, Ordering::Relaxed) + 1;
+        (self.progress)(Progress::Step {
+            phase: self.phase,
+            done,
+            total: self.total.max(done),
+        });
+    }
+
+    fn finish(&self) {
+        let done = self.done.load(Ordering::Relaxed);
+        (self.progress)(Progress::Step {
+            phase: self.phase,
+            done,
+            total: done,
+        });
+    }
 }
 
 /// Everything a plan's evaluation found.
@@ -110,6 +178,7 @@ fn evaluate_cases(
     plan: &Plan,
     stages: &[(usize, &Stage)],
     cache: &Arc<FftCache>,
+    progress: &(dyn Fn(Progress) + Sync),
 ) -> Result<Vec<CaseEvaluation>, Error> {
     let cases: Vec<(usize, &Stage, f64, usize)> = stages
         .iter()
@@ -119,18 +188,21 @@ fn evaluate_cases(
                 .flat_map(move |t| (0..plan.corners.len()).map(move |k| (index, stage, *t, k)))
         })
         .collect();
+    let counter = Counter::new(Phase::DrivePoints, cases.len() as u64, progress);
     cases
         .par_iter()
         .map(|&(index, stage, temperature, corner)| {
             let process = &plan.corners[corner];
-            evaluate_case(
+            let case = evaluate_case(
                 plan,
                 index,
                 process.apply(stage),
                 temperature,
                 &process.name,
                 cache,
-            )
+            );
+            counter.tick();
+            case
         })
         .collect()
 }
@@ -276,6 +348,82 @@ fn judge_yield(plan: &Plan, cases: &mut [CaseEvaluation], population: Option<&Po
     }
 }
 
+/// Refuses what the plan alone decides cannot be answered (the plan reader refuses the same
+/// with positions; this covers plans built in code): a temperature outside the device
+/// model's range, a stage that cannot bias, a two-tone spacing whose products collide for a
+/// stage with charge storage.
+fn check_physics(plan: &Plan) -> Result<(), Error> {
+    for &temperature in &plan.temperatures_c {
+        if !temperature_supported(temperature) {
+            let (low, high) = MODEL_TEMPERATURE_RANGE_C;
+            return Err(Error::Argument {
+                name: "temperatures_c".into(),
+                problem: format!(
+                    "{} °C is outside the temperatures the device model supports",
+                    short_number(temperature)
+                ),
+                accepted: format!("temperatures from {low} to {high} °C"),
+            });
+        }
+    }
+    for stage in &plan.stages {
+        for corner in &plan.corners {
+            for &temperature in &plan.temperatures_c {
+                if let Some(problem) = bias_problem(&corner.apply(stage), temperature) {
+                    return Err(Error::Argument {
+                        name: format!(
+                            "stage `{}` ({} corner): {}",
+                            stage.name,
+                            corner.name,
+                            problem.key()
+                        ),
+                        problem: format!("the stage cannot bias: {problem}"),
+                        accepted: problem.remedy(),
+                    });
+                }
+            }
+        }
+    }
+    if let Some(spacing) = plan.drive.two_tone_spacing {
+        let stores_charge = plan.stages.iter().any(|stage| {
+            plan.temperatures_c
+                .iter()
+                .any(|&t| !StageCircuit::new(stage, t).is_memoryless())
+        });
+        if stores_charge {
+            for &frequency in &plan.drive.frequencies {
+                let problem = match refused_collision(frequency, spacing) {
+                    Err(PeriodTooLong) => format!(
+                        "the common period of {} Hz and {} Hz is too long to solve",
+                        short_number(frequency),
+                        short_number(frequency + spacing)
+                    ),
+                    Ok(Some(collision)) => format!(
+                        "at {} Hz the product {} falls on {} (order {})",
+                        short_number(frequency),
+                        collision.reported,
+                        collision.other,
+                        collision.other.order()
+                    ),
+                    Ok(None) => continue,
+                };
+                return Err(Error::Argument {
+                    name: "drive.two_tone_spacing".into(),
+                    problem,
+                    accepted: match separating_spacing(frequency, spacing) {
+                        Some(s) => format!(
+                            "a spacing that separates the products, e.g. {} Hz",
+                            short_number(s)
+                        ),
+                        None => "a spacing that divides the frequency".into(),
+                    },
+                });
+            }
+        }
+    }
+    Ok(())
+}
+
 /// Evaluates the plan. `progress` hears what is being done.
 ///
 /// Stages with bench data are fitted first (when the plan asks for a fit); each fitted stage
@@ -285,6 +433,7 @@ pub fn evaluate(
     plan: &Plan,
     progress: &(dyn Fn(Progress) + Sync),
 ) -> Result<PlanEvaluation, Error> {
+    check_physics(plan)?;
     let cache = Arc::new(FftCache::default());
     let fits = fit::fit_all(plan, &cache, &|event| progress(Progress::Fitting(event)))?;
     let mut comparisons = Vec::new();
@@ -308,7 +457,7 @@ pub fn evaluate(
         frequencies: plan.drive.frequencies.len(),
         amplitudes: plan.drive.amplitudes.len(),
     });
-    let mut evaluated = evaluate_cases(plan, &planned, &cache)?;
+    let mut evaluated = evaluate_cases(plan, &planned, &cache, progress)?;
 
     let sizing = match &plan.sizing {
         Some(settings) => {
@@ -319,12 +468,26 @@ pub fn evaluate(
                 .enumerate()
                 .flat_map(|(i, _)| plan.temperatures_c.iter().map(move |t| (i, *t)))
                 .collect();
-            stage_temperatures
+            let counter = Counter::new(
+                Phase::Sizing,
+                (stage_temperatures.len() * sizing::EXPECTED_TRIALS) as u64,
+                progress,
+            );
+            let outcomes = stage_temperatures
                 .par_iter()
                 .map(|(index, temperature)| {
-                    sizing::size_stage(plan, &plan.stages[*index], *temperature, settings, &cache)
+                    sizing::size_stage_observed(
+                        plan,
+                        &plan.stages[*index],
+                        *temperature,
+                        settings,
+                        &cache,
+                        &|| counter.tick(),
+                    )
                 })
-                .collect::<Result<Vec<_>, Error>>()?
+                .collect::<Result<Vec<_>, Error>>()?;
+            counter.finish();
+            outcomes
         }
         None => Vec::new(),
     };
@@ -367,7 +530,7 @@ pub fn evaluate(
             .iter()
             .map(|r| (r.recommendation.stage_index, &r.stage))
             .collect();
-        let mut derived_cases = evaluate_cases(plan, &derived, &cache)?;
+        let mut derived_cases = evaluate_cases(plan, &derived, &cache, progress)?;
         let per_stage = plan.temperatures_c.len() * plan.corners.len();
         for design in recommended.iter_mut().rev() {
             let start = derived_cases.len() - per_stage;
@@ -386,9 +549,17 @@ pub fn evaluate(
                     .iter()
                     .map(|r| (r.recommendation.stage_index, &r.stage)),
             );
-            Some(montecarlo::evaluate_stages(
-                plan, settings, &stages, &cache,
-            )?)
+            let counter = Counter::new(
+                Phase::MonteCarlo,
+                montecarlo::planned_runs(plan, settings, &stages),
+                progress,
+            );
+            let population =
+                montecarlo::evaluate_stages_observed(plan, settings, &stages, &cache, &|| {
+                    counter.tick()
+                })?;
+            counter.finish();
+            Some(population)
         }
         None => None,
     };

@@ -351,6 +351,32 @@ pub fn evaluate_stages(
     stages: &[(usize, &Stage)],
     cache: &Arc<FftCache>,
 ) -> Result<Population, Error> {
+    evaluate_stages_observed(plan, settings, stages, cache, &|| {})
+}
+
+/// The number of runs [`evaluate_stages`] draws in all for `stages`: `runs` per temperature of
+/// every stage it does not leave out.
+pub fn planned_runs(plan: &Plan, settings: &MonteCarloSettings, stages: &[(usize, &Stage)]) -> u64 {
+    let typical = &plan.corners[0];
+    let has_yield_line = plan.budget.iter().any(|l| l.metric.is_population());
+    let drawn = stages
+        .iter()
+        .filter(|(_, nominal)| nominal.mismatch_sigma != Mismatch::default() || has_yield_line)
+        .filter(|(_, nominal)| {
+            StageCircuit::new(&typical.apply(nominal), plan.temperatures_c[0]).is_memoryless()
+        })
+        .count();
+    drawn as u64 * plan.temperatures_c.len() as u64 * settings.runs
+}
+
+/// [`evaluate_stages`], calling `run_done` after every run (for a progress count).
+pub fn evaluate_stages_observed(
+    plan: &Plan,
+    settings: &MonteCarloSettings,
+    stages: &[(usize, &Stage)],
+    cache: &Arc<FftCache>,
+    run_done: &(dyn Fn() + Sync),
+) -> Result<Population, Error> {
     let typical = &plan.corners[0];
     let has_yield_line = plan.budget.iter().any(|l| l.metric.is_population());
     let mut population = Population::default();
@@ -370,10 +396,10 @@ pub fn evaluate_stages(
                 plan,
                 settings,
                 &stage,
-                (stage_index, temperature_index),
-                temperature_c,
+                (stage_index, temperature_index, temperature_c),
                 cache,
                 &typical.name,
+                run_done,
             )?);
         }
     }
@@ -384,10 +410,10 @@ fn evaluate_one(
     plan: &Plan,
     settings: &MonteCarloSettings,
     stage: &Stage,
-    (stage_index, temperature_index): (usize, usize),
-    temperature_c: f64,
+    (stage_index, temperature_index, temperature_c): (usize, usize, f64),
     cache: &Arc<FftCache>,
     corner: &str,
+    run_done: &(dyn Fn() + Sync),
 ) -> Result<StagePopulation, Error> {
     let fail = |failure: SolveFailure| Error::solve(&stage.name, temperature_c, failure);
     let nominal_circuit = StageCircuit::new(stage, temperature_c);
@@ -485,6 +511,7 @@ fn evaluate_one(
                 };
                 line_passes.push(judge(line, value, ANALYSIS_FLOOR_DBC).pass);
             }
+            run_done();
             Ok(RunResult {
                 points,
                 offset_v,
@@ -625,10 +652,10 @@ fn evaluate_one_with_charge(
     plan: &Plan,
     settings: &MonteCarloSettings,
     stage: &Stage,
-    (stage_index, temperature_index): (usize, usize),
-    temperature_c: f64,
+    (stage_index, temperature_index, temperature_c): (usize, usize, f64),
     cache: &Arc<FftCache>,
     corner: &str,
+    run_done: &(dyn Fn() + Sync),
 ) -> Result<StagePopulation, Error> {
     let harmonics = plan.drive.thd_harmonics.max(9);
     let drive_settings = DriveSettings::of(&plan.drive);
@@ -685,6 +712,7 @@ fn evaluate_one_with_charge(
                     line_passes.push(judge(line, checked.value, ANALYSIS_FLOOR_DBC).pass);
                 }
             }
+            run_done();
             Ok(ChargeRun {
                 points,
                 offset_v,

@@ -32,6 +32,7 @@ use crate::error::{Error, SolveFailure};
 use crate::measure::budget::judge;
 use crate::measure::small_signal::small_signal_gain;
 use crate::measure::stage::StageMeasurements;
+use crate::model::bias::{bias_problem, rest_collector_headroom_v, rest_point};
 use crate::model::budget::{BudgetLine, Limit, Metric};
 use crate::model::corner::TYPICAL;
 use crate::model::plan::{Plan, SizingSettings};
@@ -74,6 +75,13 @@ pub struct Trial {
     /// Worst collector-base margin across corners at the largest budget amplitude, V
     /// (`hold_gain` without a `collector_base_margin` line of the plan's own).
     pub headroom_v: Option<f64>,
+    /// Worst height of the tail node above the tail source's compliance at rest across
+    /// corners, V (negative: the stage cannot bias at this value and was not solved).
+    pub tail_headroom_v: f64,
+    /// Whether the trial stage can bias in every corner (rest point within the model and
+    /// the tail source's compliance, collectors above the bases); a trial that cannot is
+    /// not solved and fails every line.
+    pub biases: bool,
     /// Least collector-base margin over every drive the trial evaluated, V (negative: a
     /// junction was forward-biased).
     pub collector_base_margin_v: f64,
@@ -87,6 +95,8 @@ pub enum Binding {
     /// The implicit collector-base margin of `hold_gain` (no saturation at the largest budget
     /// amplitude), not distortion.
     Headroom,
+    /// The tail source's compliance: larger values cannot bias.
+    TailCompliance,
     /// No budget line bounds the result.
     Nothing,
 }
@@ -255,6 +265,7 @@ impl Trial {
                 *pass && margin.is_none_or(|m| m >= criterion.band(index))
             })
             && self.headroom_v.is_none_or(|h| h >= 0.0)
+            && self.biases
     }
 
     /// Least counted margin less the guard band (for the secant steps), dB.
@@ -301,7 +312,25 @@ impl Trial {
             .filter(|(line, _)| (line.metric == Metric::InputNoise) == noise)
             .all(|(_, pass)| *pass)
             && (noise || self.headroom_v.is_none_or(|h| h >= 0.0))
+            && self.biases
     }
+}
+
+/// Whether `stage` can bias in every corner at `temperature_c`: the worst tail headroom
+/// above the compliance, the worst collector-base headroom at rest, and whether every rest
+/// point is one the model can solve with the collectors above the bases.
+fn rest_feasibility(plan: &Plan, stage: &Stage, temperature_c: f64) -> (f64, f64, bool) {
+    let mut tail = f64::INFINITY;
+    let mut collector = f64::INFINITY;
+    let mut biases = true;
+    for corner in &plan.corners {
+        let built = corner.apply(stage);
+        let rest = rest_point(&built, temperature_c);
+        tail = tail.min(rest.tail_node_v - rest.compliance_v);
+        collector = collector.min(rest_collector_headroom_v(&built, temperature_c));
+        biases &= bias_problem(&built, temperature_c).is_none();
+    }
+    (tail, collector, biases)
 }
 
 /// The stage at one emitter resistance, with the load rescaled to `target_gain` when given.
@@ -317,9 +346,14 @@ fn stage_at(
     trial_stage.emitter_resistance = emitter_resistance;
     if let Some(target) = target_gain {
         // Gain is proportional to the load without Early effect; a few fixed-point steps
-        // settle it to 1e-12 otherwise. A load that saturates the stage at zero input holds
-        // no gain: scaling stops there, and the collector-base margin check fails the trial.
+        // settle it to 1e-12 otherwise. A stage that cannot bias (a tail node below its
+        // compliance) ends the search: it is not solved, and the trial made of it fails. A
+        // load that saturates the stage at zero input holds no gain: scaling stops there, and
+        // the collector-base margin check fails the trial.
         for _ in 0..8 {
+            if !rest_feasibility(plan, &trial_stage, temperature_c).2 {
+                break;
+            }
             let measured = measurements(&trial_stage, temperature_c, plan, cache);
             let solver = measured.engine().static_solver();
             if !junctions_reverse_biased(&solver.solve_cold(0.0)?) {
@@ -390,8 +424,32 @@ fn trial(
         cache,
     )
     .map_err(fail)?;
-    // Worst case over the process corners, line by line.
     let lines = plan.budget.len();
+    let (tail_headroom_v, collector_v, biases) =
+        rest_feasibility(plan, &trial_stage, temperature_c);
+    if !biases {
+        return Ok(Trial {
+            emitter_resistance,
+            load_resistance: trial_stage.load_resistance,
+            margins: vec![None; lines],
+            values: vec![None; lines],
+            passes: plan
+                .budget
+                .iter()
+                .map(|l| l.metric.is_population())
+                .collect(),
+            corners: vec![TYPICAL.to_owned(); lines],
+            // Held by construction with hold_gain; otherwise not solved.
+            gain_db: target_gain.map_or(f64::NAN, |g| 20.0 * g.abs().log10()),
+            steering_range_v: f64::NAN,
+            headroom_v: target_gain.map(|_| collector_v),
+            tail_headroom_v,
+            biases: false,
+            // Not solved: no drive was evaluated.
+            collector_base_margin_v: f64::NAN,
+        });
+    }
+    // Worst case over the process corners, line by line.
     let mut margins: Vec<Option<f64>> = vec![None; lines];
     let mut values: Vec<Option<f64>> = vec![None; lines];
     let mut passes = vec![true; lines];
@@ -438,6 +496,8 @@ fn trial(
         gain_db: 20.0 * gain.abs().log10(),
         steering_range_v: steering,
         headroom_v: headroom_worst,
+        tail_headroom_v,
+        biases,
         collector_base_margin_v: least_margin,
     })
 }
@@ -499,18 +559,22 @@ struct Search<'a> {
     cache: &'a Arc<FftCache>,
     /// Absolute resolution below which an edge near 0 Ω is not refined further, Ω.
     floor_ohm: f64,
+    /// Told after every trial (a progress count).
+    trial_done: &'a (dyn Fn() + Sync),
 }
 
 impl Search<'_> {
     fn trial(&self, emitter_resistance: f64) -> Result<Trial, Error> {
-        trial(
+        let outcome = trial(
             self.plan,
             self.stage,
             self.temperature_c,
             emitter_resistance,
             self.target_gain,
             self.cache,
-        )
+        );
+        (self.trial_done)();
+        outcome
     }
 
     /// The edge between a value that holds and one that does not (in either order): bisection
@@ -655,6 +719,22 @@ pub fn size_stage(
     settings: &SizingSettings,
     cache: &Arc<FftCache>,
 ) -> Result<SizingOutcome, Error> {
+    size_stage_observed(plan, stage, temperature_c, settings, cache, &|| {})
+}
+
+/// Trials a sizing is expected to take: the scan and about a dozen refinement steps. For a
+/// progress display; the real count may differ.
+pub const EXPECTED_TRIALS: usize = SCAN_POINTS + 12;
+
+/// [`size_stage`], calling `trial_done` after every trial R_E (for a progress count).
+pub fn size_stage_observed(
+    plan: &Plan,
+    stage: &Stage,
+    temperature_c: f64,
+    settings: &SizingSettings,
+    cache: &Arc<FftCache>,
+    trial_done: &(dyn Fn() + Sync),
+) -> Result<SizingOutcome, Error> {
     let target_gain = if settings.hold_gain {
         Some(planned_gain(plan, stage, temperature_c, cache)?)
     } else {
@@ -667,6 +747,7 @@ pub fn size_stage(
         target_gain,
         cache,
         floor_ohm: 1e-6 * (settings.to - settings.from),
+        trial_done,
     };
     let grid: Vec<f64> = (0..SCAN_POINTS)
         .map(|i| {
@@ -716,6 +797,20 @@ pub fn size_stage(
         guard_band_db: settings.guard_band_db,
         volts: every_line.volts.clone(),
     };
+    // When nothing holds and part of the range cannot bias, the bias limit met first (at the
+    // least R_E that cannot bias) is what binds: the values that might meet the budget are out
+    // of reach.
+    let bias_limit = if met || scan.iter().all(|t| t.biases) {
+        None
+    } else {
+        scan.iter().find(|t| !t.biases).map(|first| {
+            if first.tail_headroom_v < 0.0 {
+                Binding::TailCompliance
+            } else {
+                Binding::Headroom
+            }
+        })
+    };
     let mut hints = Vec::new();
     let (chosen, headroom_binds) = match found.first() {
         Some((window, low)) => {
@@ -741,17 +836,19 @@ pub fn size_stage(
             // Distortion alone may be meetable while headroom fails everywhere (hold_gain):
             // then headroom binds, and the best headroom among those trials is reported.
             let without_headroom = |t: &Trial| {
-                t.margins
-                    .iter()
-                    .zip(&t.passes)
-                    .enumerate()
-                    .filter(|(index, _)| reachable.counted[*index])
-                    .all(|(index, (m, p))| *p && m.is_none_or(|m| m >= reachable.band(index)))
+                t.biases
+                    && t.margins
+                        .iter()
+                        .zip(&t.passes)
+                        .enumerate()
+                        .filter(|(index, _)| reachable.counted[*index])
+                        .all(|(index, (m, p))| *p && m.is_none_or(|m| m >= reachable.band(index)))
             };
             let distortion_ok: Vec<&Trial> = scan.iter().filter(|t| without_headroom(t)).collect();
-            let headroom_binds = target_gain.is_some()
+            let headroom_binds = (target_gain.is_some()
                 && !distortion_ok.is_empty()
-                && !distortion_ok.iter().any(|t| t.holds(&reachable));
+                && !distortion_ok.iter().any(|t| t.holds(&reachable)))
+                || bias_limit == Some(Binding::Headroom);
             let best = if let Some(least) = scan.iter().find(|t| t.holds(&reachable)) {
                 // Every line that can be met is met here: the least such scanned value.
                 least.clone()
@@ -822,10 +919,25 @@ pub fn size_stage(
             margin_key(a.best_margin, false).total_cmp(&margin_key(b.best_margin, false))
         })
         .map(|u| Binding::Line(u.line));
-    let binding = match (met, headroom_binds, unreachable_binding) {
-        (_, true, _) => Binding::Headroom,
-        (false, false, Some(line)) => line,
+    let binding = match (met, headroom_binds, bias_limit, unreachable_binding) {
+        (_, true, _, _) => Binding::Headroom,
+        (false, false, Some(limit), _) => limit,
+        (false, false, None, Some(line)) => line,
         _ => worst_line,
+    };
+    // A value that cannot bias judges no line: when one is chosen (nothing holds anywhere),
+    // the margin reported is the best that can be reached.
+    let (worst_margin, binding_corner) = if worst_margin.is_finite() {
+        (worst_margin, binding_corner)
+    } else {
+        match unreachable
+            .iter()
+            .map(|u| margin_key(u.best_margin, false))
+            .reduce(f64::max)
+        {
+            Some(best) if best.is_finite() => (best, binding_corner),
+            _ => (worst_margin, binding_corner),
+        }
     };
     let (worst_margin, binding_corner) = match (met, binding, unreachable.first()) {
         (false, Binding::Line(index), Some(_)) => {

@@ -1,116 +1,368 @@
 //! The work a plan asks for, estimated before anything is evaluated, so that an absurd plan
-//! (a billion amplitudes, a trillion Monte Carlo runs) is refused in milliseconds with the
-//! estimate and the way to raise the limit, instead of running for days.
+//! (a billion amplitudes, a trillion Monte Carlo runs, a dense sweep of a stage with
+//! capacitance) is refused in milliseconds with the estimate and the way to raise the limit,
+//! instead of running for days — while a large plan of cheap points is admitted.
 //!
-//! The unit of work is one *sample solve*: the large-signal solve of a stage at one input
-//! value. A single-tone point costs about [`SAMPLES_PER_TONE`] of them (the adaptive FFT's
-//! first two sample counts), a two-tone point about [`SAMPLES_PER_TWO_TONE`] (the 2-D grids
-//! up to 64×64), and each stage and temperature a fixed [`SAMPLES_PER_CORNER`] for its
-//! intercept, compression point, steering range and transfer curve. Monte Carlo repeats the
-//! drive points once per run; sizing repeats the budget's measurements once per trial value.
-//! The estimate is deliberately coarse (within a factor of a few): it exists to tell a
-//! minutes-long plan from a years-long one.
+//! The estimate is a time: seconds of one core of the reference machine (the 2-core
+//! development machine of `benches/README.md`), counted per engine, because their costs per
+//! drive point differ by four orders of magnitude:
+//!
+//! | piece | cost |
+//! |---|---|
+//! | single tone, matched memoryless pair (quarter-period fast path) | [`SYMMETRIC_TONE_S`] |
+//! | single tone, other memoryless stages (every sample solved, nested Newton) | [`GENERAL_TONE_S`] (×[`REDUCED_FACTOR`] when the one-unknown solve applies) |
+//! | two tones, memoryless (2-D grids up to 64×64) | [`MEMORYLESS_TWO_TONE_S`] (same factor) |
+//! | single tone, stage with charge storage (periodic steady state) | [`DYNAMIC_TONE_S`] per 10 harmonics analysed |
+//! | two tones, stage with charge storage | [`DYNAMIC_TWO_TONE_CYCLE_S`] per upper-tone cycle of the common period |
+//! | stage-wide figures per frequency (IIP3 search, P1dB bisection) | [`INTERCEPT_TWO_TONES`] two-tone and [`COMPRESSION_TONES`] single-tone analyses |
+//! | stage-wide static figures per case (steering, offset, transfer curve, noise) | [`STATIC_CASE_S`] |
+//! | Monte Carlo, per run | the drive points at their nominal resolution, [`MONTE_CARLO_RUN_S`] fixed, and the stage-wide figures when a budget line needs them |
+//! | sizing | [`SIZING_TRIALS`] trials × corners × the measurements the budget lines need, then the recommended design evaluated in full (its population too, [`YIELD_SEARCH_POPULATIONS`] more with a yield line) |
+//! | a fit to bench data | [`FIT_EVALUATIONS`] single tones per bench point, then the fitted stage evaluated in full |
+//! | the report (tables and figures) | [`REPORT_S`] + [`REPORT_POINT_S`] per point, and [`PROCESS_S`] of wall time |
+//!
+//! The constants were fitted to measured runs of the demo and benchmark plans and of plans
+//! built to stress each engine (table in `benches/README.md`): the ratio of estimate to
+//! measured time stays within a factor of a few across them. The wall time is the CPU time
+//! spread over the worker threads, as far as the plan has independent pieces to spread.
 
+use crate::model::budget::Metric;
+use crate::model::circuit::StageCircuit;
 use crate::model::plan::Plan;
+use crate::model::products::common_period_cycles;
+use crate::model::stage::Stage;
+use crate::solve::symmetric;
 use crate::study::sizing::SCAN_POINTS;
 
-/// Sample solves of one single-tone drive point (first two adaptive sample counts).
-pub const SAMPLES_PER_TONE: f64 = 768.0;
-/// Sample solves of one two-tone drive point (grids of 16² to 64²).
-pub const SAMPLES_PER_TWO_TONE: f64 = 5_376.0;
-/// Fixed sample solves per stage and temperature (intercept, P1dB, steering, transfer curve).
-pub const SAMPLES_PER_CORNER: f64 = 200_000.0;
+/// One single tone through the matched-pair fast path, s.
+pub const SYMMETRIC_TONE_S: f64 = 5e-6;
+/// One single tone solved sample by sample (general memoryless stage), s.
+pub const GENERAL_TONE_S: f64 = 6e-4;
+/// Added per harmonic analysed to a general single tone, s.
+pub const GENERAL_TONE_HARMONIC_S: f64 = 1.2e-5;
+/// Cost of the one-unknown solve (ideal tail, no Early effect, mismatched) against the nested
+/// general solve.
+pub const REDUCED_FACTOR: f64 = 0.05;
+/// One memoryless two-tone analysis (general solve), s.
+pub const MEMORYLESS_TWO_TONE_S: f64 = 2e-2;
+/// One memoryless two-tone analysis of a matched pair with the one-unknown solve, s.
+pub const SYMMETRIC_TWO_TONE_S: f64 = 5e-4;
+/// One single tone of a stage with charge storage, per 10 harmonics analysed, s.
+pub const DYNAMIC_TONE_S: f64 = 4e-3;
+/// Added per harmonic analysed to a single tone with charge storage, s.
+pub const DYNAMIC_TONE_HARMONIC_S: f64 = 3.5e-4;
+/// One two-tone periodic steady state, per upper-tone cycle of the common period, s.
+pub const DYNAMIC_TWO_TONE_CYCLE_S: f64 = 4.5e-3;
+/// Two-tone analyses an IIP3 search costs (halving until the slope is 3:1), per engine: the
+/// matched pair's grids grow as the drive falls, the general solve's shrink, and the periodic
+/// steady state refines further at each level.
+pub const INTERCEPT_TWO_TONES: [f64; 3] = [6.0, 2.5, 8.0];
+/// Single tones of a P1dB search (bracketing and bisection).
+pub const COMPRESSION_TONES: f64 = 25.0;
+/// Static figures of one case (steering, offset, transfer curve, noise) through the nested
+/// general solve, s; a tenth of it with the one-unknown solve.
+pub const STATIC_CASE_S: f64 = 5e-3;
+/// Fixed part of one Monte Carlo run (offset search, gain, noise), s.
+pub const MONTE_CARLO_RUN_S: f64 = 1e-5;
+/// A Monte Carlo run analyses each drive point at the nominal's converged sample count only:
+/// this fraction of an adaptive analysis.
+pub const MONTE_CARLO_POINT_FACTOR: f64 = 0.3;
+/// Populations the upward search for a yield line draws, on average (a probe each, most
+/// searches ending within two).
+pub const YIELD_SEARCH_POPULATIONS: f64 = 1.5;
 /// Trial values of the emitter resistance a sizing search evaluates (scan plus refinement).
 pub const SIZING_TRIALS: f64 = SCAN_POINTS as f64 + 12.0;
+/// Writing the report: tables, documents and figures, s.
+pub const REPORT_S: f64 = 0.03;
+/// Writing the report, per drive point, s.
+pub const REPORT_POINT_S: f64 = 4e-6;
+/// Wall time of starting the process and putting the report folder on disk (files and folder
+/// synced before the swap), s; waiting on the disk costs no CPU.
+pub const PROCESS_S: f64 = 0.05;
 /// Model evaluations over every bench point a fit takes (coarse search, optimiser,
 /// Jacobians and the final statistics; 25–50 for three parameters).
 pub const FIT_EVALUATIONS: f64 = 50.0;
-/// Default limit, sample solves: about a minute on one core of a 2020s laptop.
-pub const DEFAULT_MAX_WORK: f64 = 5e9;
+/// Default limit on the estimated wall time, s (ten minutes).
+pub const DEFAULT_MAX_WORK: f64 = 600.0;
 
 /// The estimated work of a plan, with the factors that make it up.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Workload {
-    /// Estimated sample solves of the whole plan.
-    pub sample_solves: f64,
+    /// Estimated CPU time on one core of the reference machine, s.
+    pub cpu_seconds: f64,
+    /// Estimated wall time with the worker threads available, s.
+    pub wall_seconds: f64,
     /// The factors in words, e.g. "2 stages × 1 temperature × 1 frequency × 4096 amplitudes".
     pub breakdown: String,
     /// Key path of the largest multiplier the user controls (where to point an error).
     pub dominant_key: &'static str,
 }
 
+/// How one stage is solved, for costing.
+#[derive(Debug, Clone, Copy, PartialEq)]
+enum Engine {
+    /// Matched memoryless pair with the quarter-period fast path.
+    Symmetric,
+    /// Memoryless, every sample solved; `reduced` when the one-unknown solve applies.
+    General { reduced: bool },
+    /// Periodic steady state.
+    Dynamic,
+}
+
+impl Engine {
+    fn of(stage: &Stage, temperature_c: f64) -> Engine {
+        let circuit = StageCircuit::new(stage, temperature_c);
+        if !circuit.is_memoryless() {
+            Engine::Dynamic
+        } else if symmetric::applies(&circuit) {
+            Engine::Symmetric
+        } else {
+            Engine::General {
+                reduced: circuit.is_reducible(),
+            }
+        }
+    }
+
+    fn tone_s(self, harmonics: usize) -> f64 {
+        match self {
+            Engine::Symmetric => SYMMETRIC_TONE_S,
+            Engine::General { reduced } => {
+                (GENERAL_TONE_S + GENERAL_TONE_HARMONIC_S * harmonics as f64)
+                    * if reduced { REDUCED_FACTOR } else { 1.0 }
+            }
+            Engine::Dynamic => DYNAMIC_TONE_S + DYNAMIC_TONE_HARMONIC_S * harmonics.max(3) as f64,
+        }
+    }
+
+    fn two_tone_s(self, frequency_hz: f64, spacing_hz: f64) -> f64 {
+        match self {
+            Engine::Symmetric => SYMMETRIC_TWO_TONE_S,
+            Engine::General { reduced } => {
+                MEMORYLESS_TWO_TONE_S * if reduced { REDUCED_FACTOR } else { 1.0 }
+            }
+            Engine::Dynamic => {
+                let cycles = common_period_cycles(frequency_hz, spacing_hz)
+                    .map_or(crate::model::products::MAX_COMMON_PERIOD_CYCLES, |(_, q)| q);
+                DYNAMIC_TWO_TONE_CYCLE_S * cycles.max(2) as f64
+            }
+        }
+    }
+
+    /// Static figures of one case.
+    fn static_s(self) -> f64 {
+        match self {
+            Engine::Symmetric | Engine::General { reduced: true } => 0.1 * STATIC_CASE_S,
+            Engine::General { reduced: false } | Engine::Dynamic => STATIC_CASE_S,
+        }
+    }
+
+    /// An IIP3 search at one frequency.
+    fn intercept_s(self, frequency_hz: f64, spacing_hz: f64) -> f64 {
+        let count = match self {
+            Engine::Symmetric => INTERCEPT_TWO_TONES[0],
+            Engine::General { .. } => INTERCEPT_TWO_TONES[1],
+            Engine::Dynamic => INTERCEPT_TWO_TONES[2],
+        };
+        count * self.two_tone_s(frequency_hz, spacing_hz)
+    }
+
+    /// IIP3 search and P1dB search at one frequency.
+    fn stage_wide_s(self, frequency_hz: f64, spacing_hz: f64) -> f64 {
+        self.intercept_s(frequency_hz, spacing_hz) + COMPRESSION_TONES * self.tone_s(9)
+    }
+}
+
 /// Estimates the work of `plan` (see the module docs for the cost model).
 pub fn estimate(plan: &Plan) -> Workload {
-    let stages = plan.stages.len() as f64;
     let temperatures = plan.temperatures_c.len() as f64;
-    let frequencies = plan.drive.frequencies.len() as f64;
+    let corners = plan.corners.len().max(1) as f64;
     let amplitudes = plan.drive.amplitudes.len() as f64;
-    // Every stage and temperature is evaluated in every process corner.
-    let corners = stages * temperatures * plan.corners.len().max(1) as f64;
-    let per_point = SAMPLES_PER_TONE
-        + if plan.drive.two_tone_spacing.is_some() {
-            SAMPLES_PER_TWO_TONE
-        } else {
-            0.0
-        };
-    let sweep = corners * (frequencies * amplitudes * per_point + SAMPLES_PER_CORNER);
-    let runs = plan.monte_carlo.as_ref().map_or(0.0, |mc| mc.runs as f64);
-    let monte_carlo = runs * corners * (frequencies * amplitudes * per_point + SAMPLES_PER_CORNER);
-    let sizing = if plan.sizing.is_some() {
-        SIZING_TRIALS * corners * (plan.budget.len() as f64 * per_point + SAMPLES_PER_CORNER)
-    } else {
-        0.0
-    };
-    // A fit evaluates every measured point about FIT_EVALUATIONS times, and the fitted stage
-    // is then evaluated through the plan like the nominal one.
-    let fitted_stages = match &plan.fit {
-        Some(_) => plan
-            .stages
+    let frequencies = &plan.drive.frequencies;
+    let harmonics = plan.drive.thd_harmonics.max(9);
+    let reference_temperature = plan.temperatures_c.first().copied().unwrap_or(27.0);
+    let spacing = |f: f64| plan.drive.spacing_at(f);
+
+    let mut sweep = 0.0;
+    let mut monte_carlo = 0.0;
+    let mut sizing = 0.0;
+    let mut sweep_per_stage: Vec<f64> = Vec::with_capacity(plan.stages.len());
+    for stage in &plan.stages {
+        let engine = Engine::of(stage, reference_temperature);
+        let points: f64 = frequencies
             .iter()
-            .filter(|s| plan.measurements.iter().any(|m| m.stage == s.name))
-            .count() as f64,
-        None => 0.0,
-    };
+            .map(|&f| {
+                amplitudes
+                    * (engine.tone_s(harmonics)
+                        + plan
+                            .drive
+                            .two_tone_spacing
+                            .map_or(0.0, |s| engine.two_tone_s(f, s)))
+                    + engine.stage_wide_s(f, spacing(f))
+            })
+            .sum();
+        let stage_sweep = temperatures * corners * (points + engine.static_s());
+        sweep += stage_sweep;
+        sweep_per_stage.push(stage_sweep);
+
+        if let Some(mc) = &plan.monte_carlo {
+            let draws = stage.mismatch_sigma != crate::model::stage::Mismatch::default();
+            if draws && engine != Engine::Dynamic {
+                // Every run solves each drive point sample by sample at the nominal resolution.
+                let general = Engine::General {
+                    reduced: StageCircuit::new(stage, reference_temperature).is_reducible(),
+                };
+                let per_point = MONTE_CARLO_POINT_FACTOR
+                    * (general.tone_s(harmonics)
+                        + plan
+                            .drive
+                            .two_tone_spacing
+                            .map_or(0.0, |s| general.two_tone_s(frequencies[0], s)));
+                let figures = plan.budget.iter().any(|l| {
+                    matches!(
+                        l.metric,
+                        Metric::Iip3 | Metric::Oip3 | Metric::P1db | Metric::SteeringRange
+                    )
+                });
+                let per_run = amplitudes * per_point
+                    + MONTE_CARLO_RUN_S
+                    + if figures {
+                        general.stage_wide_s(frequencies[0], spacing(frequencies[0]))
+                            + general.static_s()
+                    } else {
+                        0.0
+                    };
+                monte_carlo += mc.runs as f64 * temperatures * per_run;
+            }
+        }
+
+        if plan.sizing.is_some() {
+            let lines: f64 = plan
+                .budget
+                .iter()
+                .map(|line| {
+                    let f = line.frequency.unwrap_or(frequencies[0]);
+                    match line.metric {
+                        Metric::Harmonic(_) | Metric::Thd | Metric::CollectorBaseMargin => {
+                            engine.tone_s(harmonics)
+                        }
+                        Metric::Im3 => engine.two_tone_s(f, spacing(f)),
+                        Metric::Iip3 | Metric::Oip3 => engine.intercept_s(f, spacing(f)),
+                        Metric::P1db => COMPRESSION_TONES * engine.tone_s(9),
+                        Metric::Gain => {
+                            if engine == Engine::Dynamic {
+                                engine.tone_s(3)
+                            } else {
+                                0.0
+                            }
+                        }
+                        Metric::SteeringRange | Metric::InputNoise | Metric::Yield => 0.0,
+                    }
+                })
+                .sum();
+            let hold = plan.sizing.as_ref().is_some_and(|s| s.hold_gain);
+            let headroom = if hold { engine.tone_s(3) } else { 0.0 };
+            sizing +=
+                temperatures * SIZING_TRIALS * (corners * (lines + headroom) + engine.static_s());
+        }
+    }
+    // A fit evaluates every measured point about FIT_EVALUATIONS times as a single tone, and
+    // the fitted stage is then evaluated through the plan like the nominal one.
     let bench_points: f64 = plan
         .measurements
         .iter()
         .map(|m| m.points.len() as f64)
         .sum();
-    let fit = if plan.fit.is_some() {
-        bench_points * SAMPLES_PER_TONE * FIT_EVALUATIONS
-            + fitted_stages / stages.max(1.0) * (sweep + monte_carlo + sizing)
+    let fit = match &plan.fit {
+        Some(_) => {
+            let per_stage = sweep_per_stage.iter().copied().sum::<f64>();
+            let fitted: f64 = plan
+                .stages
+                .iter()
+                .zip(&sweep_per_stage)
+                .filter(|(s, _)| plan.measurements.iter().any(|m| m.stage == s.name))
+                .map(|(_, cost)| cost)
+                .sum();
+            let tone = plan
+                .stages
+                .iter()
+                .filter(|s| plan.measurements.iter().any(|m| m.stage == s.name))
+                .map(|s| Engine::of(s, reference_temperature).tone_s(harmonics))
+                .fold(0.0, f64::max);
+            bench_points * tone * FIT_EVALUATIONS
+                + fitted * (1.0 + (monte_carlo + sizing) / per_stage.max(f64::MIN_POSITIVE))
+        }
+        None => 0.0,
+    };
+    // With sizing, the recommended design is evaluated in full as a stage of its own, with its
+    // own population; a yield line sends the recommendation up the window, a population per
+    // probe.
+    let recommended = if plan.sizing.is_some() {
+        let yield_line = plan.budget.iter().any(|l| l.metric == Metric::Yield);
+        sweep
+            + monte_carlo
+                * (1.0
+                    + if yield_line {
+                        YIELD_SEARCH_POPULATIONS
+                    } else {
+                        0.0
+                    })
     } else {
         0.0
     };
+    let points =
+        plan.stages.len() as f64 * temperatures * corners * frequencies.len() as f64 * amplitudes;
+    let report = REPORT_S + REPORT_POINT_S * points;
+    let cpu_seconds = sweep + monte_carlo + sizing + fit + recommended + report;
+
+    // Independent pieces the evaluation spreads over the threads: the cases and their points,
+    // Monte Carlo runs, sizing trials.
+    let threads = rayon::current_num_threads().max(1) as f64;
+    let spread = |pieces: f64| pieces.clamp(1.0, threads);
+    let cases = plan.stages.len() as f64 * temperatures * corners;
+    let wall_seconds = sweep / spread(cases * (points / cases.max(1.0) + 1.0))
+        + monte_carlo / spread(plan.monte_carlo.as_ref().map_or(1.0, |m| m.runs as f64))
+        + sizing / spread(SIZING_TRIALS * plan.stages.len() as f64 * temperatures)
+        + fit / spread(cases)
+        + recommended / spread(cases.max(plan.monte_carlo.as_ref().map_or(1.0, |m| m.runs as f64)))
+        + report / spread(4.0)
+        + PROCESS_S;
+
     let mut breakdown = format!(
-        "{} stage(s) × {} temperature(s) × {} process corner(s) × {} frequency(ies) × {} amplitude(s) × ~{} samples",
+        "{} stage(s) × {} temperature(s) × {} process corner(s) × {} frequency(ies) × {} amplitude(s)",
         plan.stages.len(),
         plan.temperatures_c.len(),
         plan.corners.len().max(1),
-        plan.drive.frequencies.len(),
+        frequencies.len(),
         plan.drive.amplitudes.len(),
-        per_point
     );
-    if runs > 0.0 {
-        breakdown.push_str(&format!(", × {runs} Monte Carlo runs"));
+    if let Some(mc) = &plan.monte_carlo {
+        breakdown.push_str(&format!(", {} Monte Carlo run(s)", mc.runs));
     }
-    if sizing > 0.0 {
-        breakdown.push_str(&format!(", + sizing ({SIZING_TRIALS} trials)"));
+    if plan.sizing.is_some() {
+        breakdown.push_str(&format!(", sizing ({SIZING_TRIALS} trials)"));
     }
     if fit > 0.0 {
         breakdown.push_str(&format!(
-            ", + fit ({bench_points} bench points × ~{FIT_EVALUATIONS} evaluations, and the fitted stage(s))"
+            ", fit ({bench_points} bench points × ~{FIT_EVALUATIONS} evaluations, and the fitted stage(s))"
         ));
     }
+    breakdown.push_str(&format!(
+        "; drive points {}, Monte Carlo {}, sizing {}, fit {} of one core",
+        format_duration(sweep + recommended),
+        format_duration(monte_carlo),
+        format_duration(sizing),
+        format_duration(fit)
+    ));
+    let (stages, frequency_count) = (plan.stages.len() as f64, frequencies.len() as f64);
     let dominant_key = if fit > sweep.max(sizing).max(monte_carlo) {
         "measurements"
     } else if monte_carlo > sweep.max(sizing) {
         "monte_carlo.runs"
     } else if sizing > sweep {
         "sizing"
-    } else if amplitudes >= frequencies.max(temperatures).max(stages) {
+    } else if amplitudes >= frequency_count.max(temperatures).max(stages) {
         "drive.amplitudes"
-    } else if frequencies >= temperatures.max(stages) {
+    } else if frequency_count >= temperatures.max(stages) {
         "drive.frequencies"
     } else if temperatures >= stages {
         "temperatures_c"
@@ -118,9 +370,107 @@ pub fn estimate(plan: &Plan) -> Workload {
         "stages"
     };
     Workload {
-        sample_solves: sweep + monte_carlo + sizing + fit,
+        cpu_seconds,
+        wall_seconds,
         breakdown,
         dominant_key,
+    }
+}
+
+/// A duration for people: `250 ms`, `42 s`, `12 min`, `3.5 h`, `40 days`.
+pub fn format_duration(seconds: f64) -> String {
+    let short = crate::units::short_number;
+    let round = |x: f64| {
+        if x >= 10.0 {
+            x.round()
+        } else {
+            (x * 10.0).round() / 10.0
+        }
+    };
+    if !seconds.is_finite() {
+        "forever".into()
+    } else if seconds < 1.0 {
+        format!("{} ms", short(round(seconds * 1e3)))
+    } else if seconds < 120.0 {
+        format!("{} s", short(round(seconds)))
+    } else if seconds < 2.0 * 3600.0 {
+        format!("{} min", short(round(seconds / 60.0)))
+    } else if seconds < 2.0 * 86400.0 {
+        format!("{} h", short(round(seconds / 3600.0)))
+    } else {
+        format!("{} days", short(round(seconds / 86400.0)))
+    }
+}
+
+/// Reads a work limit: a duration with a unit (`90s`, `10min`, `1.5h`, `2d`, `500ms`, or a
+/// sum such as `1h30min`), or a plain number of seconds (SI base unit), so a limit written
+/// as a large plain number (the sample-solve counts earlier versions took, such as `1e12`)
+/// still raises the limit far. Returns seconds.
+pub fn parse_duration(text: &str) -> Result<f64, String> {
+    let refuse = || {
+        format!(
+            "`{text}` is not a duration: a positive number with a unit (ms, s, min, h, d), e.g. 90s, 10min, 1.5h, or plain seconds"
+        )
+    };
+    let cleaned: String = text.chars().filter(|c| !c.is_whitespace()).collect();
+    if cleaned.is_empty() {
+        return Err(refuse());
+    }
+    if let Ok(seconds) = cleaned.parse::<f64>() {
+        return if seconds.is_finite() && seconds > 0.0 {
+            Ok(seconds)
+        } else {
+            Err(refuse())
+        };
+    }
+    let mut total = 0.0;
+    let mut rest = cleaned.as_str();
+    while !rest.is_empty() {
+        let number_end = rest
+            .find(|c: char| !(c.is_ascii_digit() || c == '.'))
+            .unwrap_or(rest.len());
+        let number: f64 = rest[..number_end].parse().map_err(|_| refuse())?;
+        rest = &rest[number_end..];
+        let unit_end = rest
+            .find(|c: char| c.is_ascii_digit() || c == '.')
+            .unwrap_or(rest.len());
+        let scale = match &rest[..unit_end] {
+            "ms" => 1e-3,
+            "s" | "sec" => 1.0,
+            "m" | "min" => 60.0,
+            "h" | "hr" => 3600.0,
+            "d" | "day" | "days" => 86400.0,
+            _ => return Err(refuse()),
+        };
+        total += number * scale;
+        rest = &rest[unit_end..];
+    }
+    if total.is_finite() && total > 0.0 {
+        Ok(total)
+    } else {
+        Err(refuse())
+    }
+}
+
+/// A limit to suggest for a plan estimated at `seconds`: comfortably above it, in whole
+/// minutes (or hours), written so [`parse_duration`] reads it back.
+pub fn suggested_limit(seconds: f64) -> String {
+    let wanted = (seconds * 1.5).max(60.0);
+    if wanted < 2.0 * 3600.0 {
+        format!("{}min", (wanted / 60.0).ceil() as u64)
+    } else if wanted < 1e7 {
+        format!("{}h", (wanted / 3600.0).ceil() as u64)
+    } else if wanted < 1e9 {
+        format!("{}d", (wanted / 86400.0).ceil() as u64)
+    } else {
+        // Plain seconds, one significant digit rounded up.
+        let exponent = wanted.log10().floor();
+        let mantissa = (wanted / 10f64.powf(exponent) * (1.0 + 1e-12)).ceil();
+        if mantissa >= 10.0 {
+            format!("1e{}", exponent + 1.0)
+        } else {
+            format!("{mantissa}e{exponent}")
+        }
     }
 }
 
@@ -129,37 +479,75 @@ mod tests {
     use super::*;
     use crate::model::drive::Drive;
     use crate::model::plan::MonteCarloSettings;
-    use crate::model::stage::Stage;
+    use crate::model::stage::Mismatch;
+    use crate::model::transistor::Transistor;
 
-    fn plan() -> Plan {
-        let amplitudes = (0..100).map(|i| 1e-3 * 1.07f64.powi(i)).collect();
-        Plan::new(
-            "w",
-            vec![Stage::new("a", 1e-3, 2e3)],
-            Drive::new(amplitudes),
-        )
+    fn plan(stage: Stage, amplitudes: usize) -> Plan {
+        let amplitudes = (0..amplitudes)
+            .map(|i| 1e-3 * 1.001f64.powi(i as i32))
+            .collect();
+        Plan::new("w", vec![stage], Drive::new(amplitudes))
     }
 
     #[test]
-    fn the_estimate_multiplies_the_plan_factors() {
-        // 1 stage × 1 temperature × 1 frequency × 100 amplitudes × 768 + one corner's fixed part.
-        let work = estimate(&plan());
-        assert_eq!(
-            work.sample_solves,
-            100.0 * SAMPLES_PER_TONE + SAMPLES_PER_CORNER
-        );
-        assert_eq!(work.dominant_key, "drive.amplitudes");
+    fn the_estimate_grows_with_the_points_and_the_engine_cost() {
+        let small = estimate(&plan(Stage::new("a", 1e-3, 2e3), 100));
+        let large = estimate(&plan(Stage::new("a", 1e-3, 2e3), 10_000));
+        assert!(large.cpu_seconds > small.cpu_seconds);
+        assert_eq!(large.dominant_key, "drive.amplitudes");
+        // The same sweep through the nested general solve (Early effect) costs more, and a
+        // stage with capacitance more again.
+        let early = estimate(&plan(
+            Stage::new("a", 1e-3, 2e3).transistor(Transistor::default().early_voltage(50.0)),
+            10_000,
+        ));
+        let capacitive = estimate(&plan(
+            Stage::new("a", 1e-3, 2e3).load_capacitance(1e-12),
+            10_000,
+        ));
+        assert!(early.cpu_seconds > 10.0 * large.cpu_seconds);
+        assert!(capacitive.cpu_seconds > 10.0 * early.cpu_seconds);
     }
 
     #[test]
-    fn monte_carlo_runs_multiply_the_sweep_and_dominate() {
-        let plan = plan().monte_carlo(MonteCarloSettings {
+    fn monte_carlo_runs_multiply_the_points_and_dominate() {
+        let stage =
+            Stage::new("a", 1e-3, 2e3).mismatch_sigma(Mismatch::default().saturation_current(0.01));
+        let base = estimate(&plan(stage.clone(), 10));
+        let many = estimate(&plan(stage, 10).monte_carlo(MonteCarloSettings {
             runs: 1_000_000_000_000,
             seed: 1,
-        });
-        let work = estimate(&plan);
-        let sweep = 100.0 * SAMPLES_PER_TONE + SAMPLES_PER_CORNER;
-        assert_eq!(work.sample_solves, sweep * (1.0 + 1e12));
-        assert_eq!(work.dominant_key, "monte_carlo.runs");
+        }));
+        assert!(many.cpu_seconds > 1e6 * base.cpu_seconds);
+        assert_eq!(many.dominant_key, "monte_carlo.runs");
+    }
+
+    #[test]
+    fn durations_are_read_with_their_units() {
+        for (text, seconds) in [
+            ("10min", 600.0),
+            ("90s", 90.0),
+            ("1.5h", 5400.0),
+            ("1h30min", 5400.0),
+            ("500ms", 0.5),
+            ("2d", 172800.0),
+            ("45", 45.0),
+            ("1e12", 1e12),
+            (" 3 min ", 180.0),
+        ] {
+            assert_eq!(parse_duration(text), Ok(seconds), "{text}");
+        }
+        for bad in ["", "-5min", "0", "10 parsecs", "min", "inf", "NaN"] {
+            assert!(parse_duration(bad).is_err(), "{bad}");
+        }
+    }
+
+    #[test]
+    fn the_suggested_limit_is_accepted_and_admits_the_plan() {
+        for seconds in [0.5, 59.0, 601.0, 7199.0, 9e5, 4e12, 1e30] {
+            let text = suggested_limit(seconds);
+            let limit = parse_duration(&text).unwrap();
+            assert!(limit >= seconds, "{text} for {seconds}");
+        }
     }
 }

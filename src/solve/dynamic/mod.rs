@@ -34,12 +34,22 @@
 //!
 //! Steps per period start at `N₀` (odd) and go `N → 2N − 1`. At each level the output
 //! phasors are Richardson-extrapolated with the previous level (`(r²·X_fine − X_coarse)/(r² − 1)`,
-//! `r` the step ratio). The result is accepted when every reported figure (fundamental in
-//! dB, each harmonic and THD in dBc, or the two-tone fundamental, IM3 and IM2) of two
-//! successive extrapolations differs by at most [`REFINEMENT_TOLERANCE_DB`]; levels above
-//! [`MAX_STEPS`] are an error naming the drive point. Harmonics below
+//! `r` the step ratio), which leaves `X* − b·h₁²h₂²`; from the third level on, a Romberg stage
+//! over the last two extrapolations cancels that too (sixth order). The sixth-order figures
+//! (fundamental in dB, each harmonic and THD in dBc, or the two-tone fundamental, IM3 and IM2)
+//! minus the fourth-order ones of the same levels estimate the fourth-order error; a level is
+//! accepted when that estimate is at most [`ACCEPTED_ERROR_ESTIMATE_DB`] (a quarter of
+//! [`REFINEMENT_TOLERANCE_DB`]) for every figure, and the sixth-order figures are reported;
+//! levels above [`MAX_STEPS`] are an error naming the drive point. Harmonics below
 //! [`DYNAMIC_FLOOR_DBC`] are neither compared nor reported (they are `null`): the
 //! integration's rounding noise sits some 60 dB further down.
+//!
+//! # Cost
+//!
+//! Each level starts from the previous levels' start states extrapolated along the h² law,
+//! and its Newton iterations from the previous level's trajectory interpolated onto the new
+//! grid (see [`trapezoid`]); nothing is carried from one drive point to another, so a figure
+//! does not depend on which other points are solved or in which order.
 //!
 //! # Two tones
 //!
@@ -79,6 +89,43 @@ pub const REFINEMENT_TOLERANCE_DB: f64 = 2e-3;
 pub const ACCEPTED_ERROR_ESTIMATE_DB: f64 = REFINEMENT_TOLERANCE_DB / 4.0;
 /// Harmonics and products below this level are not compared or reported, dBc.
 pub const DYNAMIC_FLOOR_DBC: f64 = -160.0;
+/// How far above the output's precision ([`output_precision_v`]) a harmonic must stand to be resolved (the
+/// waveform's error is smooth, not rounding noise, so a narrower margin than the memoryless
+/// analysis's does).
+pub const DYNAMIC_NOISE_MARGIN: f64 = 30.0;
+
+/// The analysis floor of a drive point with this fundamental, dBc: [`DYNAMIC_FLOOR_DBC`], or
+/// higher where the waveform's absolute precision `precision_v` is a sizeable part of a small
+/// fundamental.
+pub fn dynamic_floor_dbc(fundamental_v: f64, precision_v: f64) -> f64 {
+    if !(fundamental_v > 0.0 && fundamental_v.is_finite()) {
+        return 0.0;
+    }
+    DYNAMIC_FLOOR_DBC.max(20.0 * (DYNAMIC_NOISE_MARGIN * precision_v / fundamental_v).log10())
+}
+
+/// The slowest time constant of a stage's linearised circuit that a long period makes
+/// hard to settle, with its name: the tail node (tail capacitance against the tail
+/// resistance in parallel with the emitters seen from the tail) or a load (R_L·C_L), s.
+pub fn slowest_time_constant(circuit: &StageCircuit) -> (&'static str, f64) {
+    let emitters = {
+        let side = &circuit.p;
+        let transconductance = 0.5 * circuit.tail_current / circuit.thermal_voltage;
+        2.0 / (1.0 / transconductance
+            + side.emitter_resistance
+            + side.base_path_resistance * side.beta_inv)
+    };
+    let tail = circuit.tail_capacitance / (emitters + circuit.tail_conductance);
+    let load = circuit.load_capacitance * circuit.p.load_resistance.max(circuit.m.load_resistance);
+    if tail >= load {
+        (
+            "tail node (tail_capacitance against the emitters and tail_resistance)",
+            tail,
+        )
+    } else {
+        ("load (load_resistance × load_capacitance)", load)
+    }
+}
 /// Largest number of time steps over one (common) period.
 pub const MAX_STEPS: usize = 1 << 18;
 /// The region check's largest base-collector voltage is looked for on the accepted trajectory
@@ -86,17 +133,39 @@ pub const MAX_STEPS: usize = 1 << 18;
 const REGION_OVERSAMPLING: usize = 8;
 /// How many times a refinement that fails on a coarse grid is started again on finer grids.
 const COARSE_RETRIES: usize = 2;
-/// Largest common period of two tones, in periods of the upper tone.
-pub const MAX_COMMON_PERIOD_CYCLES: u64 = 1024;
+use crate::model::products::{
+    collisions, separating_spacing, Product, TwoToneFigure, ANALYSED_ORDER, REPORTED,
+};
+pub use crate::model::products::{common_period_cycles, MAX_COMMON_PERIOD_CYCLES};
 
 const STEP_TOLERANCE: StepTolerance = StepTolerance {
     absolute: NEWTON_TOLERANCE_V,
     max_iterations: 60,
 };
-const STEADY_TOLERANCE: SteadyTolerance = SteadyTolerance {
-    state: STEADY_STATE_TOLERANCE_V,
-    max_iterations: 40,
-};
+/// The steady-state criterion for a circuit: [`STEADY_STATE_TOLERANCE_V`], and as its rounding
+/// floor the rounding of a junction voltage (ε·V) carried to the collectors by the voltage
+/// gain g_m·R_L, sixteen rounding steps over.
+pub fn steady_tolerance(circuit: &StageCircuit) -> SteadyTolerance {
+    let largest = circuit
+        .supply
+        .abs()
+        .max(circuit.input_common_mode.abs())
+        .max(1.0);
+    let gain = 0.5 * circuit.tail_current / circuit.thermal_voltage
+        * circuit.p.load_resistance.max(circuit.m.load_resistance);
+    SteadyTolerance {
+        state: STEADY_STATE_TOLERANCE_V,
+        rounding: trapezoid::ROUNDING_STEPS * f64::EPSILON * largest * (1.0 + gain),
+        max_iterations: 40,
+    }
+}
+
+/// Absolute precision of a circuit's output waveform, V: four times the larger of the
+/// steady-state criterion and its rounding floor.
+pub fn output_precision_v(circuit: &StageCircuit) -> f64 {
+    let tolerance = steady_tolerance(circuit);
+    4.0 * tolerance.state.max(tolerance.rounding)
+}
 
 /// Answers drives of a stage with charge storage by its periodic steady state.
 #[derive(Debug, Clone)]
@@ -122,12 +191,12 @@ struct Refined {
 type Level = (usize, Vec<Complex<f64>>, Vec<Complex<f64>>);
 
 /// dB of an amplitude relative to a reference, clamped at the floor.
-fn dbc_clamped(level: f64, reference: f64) -> f64 {
+fn dbc_clamped(level: f64, reference: f64, floor_dbc: f64) -> f64 {
     let db = 20.0 * (level / reference).log10();
     if db.is_nan() {
-        DYNAMIC_FLOOR_DBC
+        floor_dbc
     } else {
-        db.max(DYNAMIC_FLOOR_DBC)
+        db.max(floor_dbc)
     }
 }
 
@@ -189,16 +258,26 @@ impl DynamicEngine {
                 period_s,
                 steps,
                 STEP_TOLERANCE,
-                STEADY_TOLERANCE,
+                steady_tolerance(circuit),
                 &mut monodromy,
                 guide,
             );
             let solution = match attempt {
                 Ok(solution) => solution,
                 Err(e) => {
+                    let (node, tau) = slowest_time_constant(circuit);
+                    let hint = if tau > 0.2 * period_s {
+                        format!(
+                            "; the {node} has a time constant of {} s, {} periods of the drive: a stage this slow against its period is outside what the steady-state solve can settle, so lower the capacitance or raise the frequency",
+                            crate::units::short_number(tau),
+                            crate::units::short_number(tau / period_s)
+                        )
+                    } else {
+                        String::new()
+                    };
                     let failure = fail(format!(
-                        "periodic steady state with {steps} steps per period, at t = {:.4e} s: {}",
-                        e.time_s, e.reason
+                        "periodic steady state with {steps} steps per period: {}{hint}",
+                        e.reason
                     ));
                     // A coarse grid can be too coarse for Newton on a hard-driven waveform:
                     // start the refinement again, cold, on the next finer grids (at most
@@ -358,40 +437,6 @@ fn resample_periodic(rows: &[f64], from: usize, to: usize, width: usize) -> Vec<
     out
 }
 
-/// `Δ/f` as a ratio `a/b` of small integers (continued fractions), when one exists with
-/// `a + b ≤ MAX_COMMON_PERIOD_CYCLES` to a relative 10⁻⁹.
-pub fn common_period_cycles(frequency_hz: f64, spacing_hz: f64) -> Option<(u64, u64)> {
-    let ratio = spacing_hz / frequency_hz;
-    if !(ratio.is_finite() && ratio > 0.0) {
-        return None;
-    }
-    let (mut h0, mut h1) = (0u64, 1u64);
-    let (mut k0, mut k1) = (1u64, 0u64);
-    let mut value = ratio;
-    for _ in 0..64 {
-        let whole = value.floor();
-        if whole > 1e12 {
-            break;
-        }
-        let a = whole as u64;
-        let h2 = a.checked_mul(h1)?.checked_add(h0)?;
-        let k2 = a.checked_mul(k1)?.checked_add(k0)?;
-        (h0, h1, k0, k1) = (h1, h2, k1, k2);
-        if k1 > 0 && h1 + k1 > MAX_COMMON_PERIOD_CYCLES {
-            return None;
-        }
-        if k1 > 0 && (h1 as f64 / k1 as f64 - ratio).abs() <= 1e-9 * ratio {
-            return Some((k1, h1 + k1));
-        }
-        let fraction = value - whole;
-        if fraction <= 0.0 {
-            break;
-        }
-        value = 1.0 / fraction;
-    }
-    None
-}
-
 impl ResponseEngine for DynamicEngine {
     fn tone(
         &self,
@@ -399,7 +444,11 @@ impl ResponseEngine for DynamicEngine {
         frequency_hz: f64,
         harmonics: usize,
     ) -> Result<ToneResult, SolveFailure> {
-        let label = format!("amplitude {amplitude_v:e} V at {frequency_hz:e} Hz");
+        let label = format!(
+            "amplitude {} V at {} Hz",
+            crate::units::short_number(amplitude_v),
+            crate::units::short_number(frequency_hz)
+        );
         if !(frequency_hz.is_finite() && frequency_hz > 0.0) {
             return Err(SolveFailure {
                 point: label,
@@ -408,16 +457,18 @@ impl ResponseEngine for DynamicEngine {
             });
         }
         let harmonics = harmonics.max(3);
+        let precision = output_precision_v(self.solver.circuit());
         let first_steps = (2 * (harmonics + 1)).next_power_of_two().max(16) + 1;
         let figures = |phasors: &[Complex<f64>]| -> Vec<f64> {
             let fundamental = phasors[1].norm();
+            let floor = dynamic_floor_dbc(fundamental, precision);
             let mut out = vec![20.0 * fundamental.log10()];
             let mut power = 0.0;
             for phasor in &phasors[2..] {
-                out.push(dbc_clamped(phasor.norm(), fundamental));
+                out.push(dbc_clamped(phasor.norm(), fundamental, floor));
                 power += phasor.norm_sqr();
             }
-            out.push(dbc_clamped(power.sqrt(), fundamental));
+            out.push(dbc_clamped(power.sqrt(), fundamental, floor));
             out
         };
         let drive = Drive::Tone {
@@ -435,12 +486,13 @@ impl ResponseEngine for DynamicEngine {
         let amplitudes = |phasors: &[Complex<f64>]| Spectrum {
             amplitudes: phasors.iter().map(|p| p.norm()).collect(),
         };
+        let differential = amplitudes(&refined.differential);
         Ok(ToneResult {
             amplitude_v,
-            differential: amplitudes(&refined.differential),
+            floor_dbc: dynamic_floor_dbc(differential.fundamental(), precision),
+            differential,
             single_ended: amplitudes(&refined.single_ended),
             samples: refined.steps,
-            floor_dbc: DYNAMIC_FLOOR_DBC,
             region: refined.region,
         })
     }
@@ -451,31 +503,71 @@ impl ResponseEngine for DynamicEngine {
         frequency_hz: f64,
         spacing_hz: f64,
     ) -> Result<TwoToneResult, SolveFailure> {
+        let v = crate::units::short_number;
         let label = format!(
-            "two tones of {amplitude_v:e} V at {frequency_hz:e} Hz and {:e} Hz",
-            frequency_hz + spacing_hz
+            "two tones of {} V at {} Hz and {} Hz",
+            v(amplitude_v),
+            v(frequency_hz),
+            v(frequency_hz + spacing_hz)
         );
+        let suggestion = || match separating_spacing(frequency_hz, spacing_hz) {
+            Some(s) => format!("for example {} Hz", v(s)),
+            None => "for example a spacing that divides the frequency".into(),
+        };
         let (lower, upper) = common_period_cycles(frequency_hz, spacing_hz).ok_or_else(|| SolveFailure {
             point: label.clone(),
             reason: format!(
                 "the common period of the two tones spans more than {MAX_COMMON_PERIOD_CYCLES} periods of the upper tone, \
                  which would take an impractical number of time steps; choose a spacing for which frequency/spacing is a \
-                 ratio of small integers (for example a spacing that divides the frequency)"
+                 ratio of small integers ({})", suggestion()
             ),
         })?;
-        if 2 * lower == upper {
+        let (p, q) = (lower as usize, upper as usize);
+        let precision = output_precision_v(self.solver.circuit());
+        let found = collisions(lower, upper, ANALYSED_ORDER);
+        if let Some(refused) = found.iter().find(|c| c.is_refused()) {
             return Err(SolveFailure {
                 point: label,
-                reason:
-                    "a spacing equal to the frequency puts 2f1 − f2 at DC; IM3 is undefined there"
-                        .into(),
+                reason: format!(
+                    "{} falls on the frequency of {} (order {}), so {} cannot be told from it; choose a spacing that separates them ({})",
+                    refused.reported,
+                    refused.other,
+                    refused.other.order(),
+                    refused.figure.name().to_uppercase(),
+                    suggestion()
+                ),
             });
         }
-        let (p, q) = (lower as usize, upper as usize);
         let im3_low = (2 * p).abs_diff(q);
         let im3_high = 2 * q - p;
         let (im2_low, im2_high) = (q - p, p + q);
-        let bins = im3_high.max(im2_high);
+        // The product of higher order limiting each figure, with the product one step down
+        // its family whose own bin is clean (no product of lower order there): its level
+        // bounds the colliding one's.
+        let limit = |figure: TwoToneFigure| -> Option<(Product, Option<Product>)> {
+            let collider = found.iter().find(|c| c.figure == figure)?.other;
+            let mut neighbour = collider.family_neighbour();
+            while let Some(candidate) = neighbour {
+                let bin = candidate.bin(lower, upper);
+                let reported = REPORTED.iter().any(|(r, _)| r.bin(lower, upper) == bin);
+                if !reported && bin <= 4 * upper && bin_is_clean(candidate, lower, upper) {
+                    return Some((collider, Some(candidate)));
+                }
+                neighbour = candidate.family_neighbour();
+            }
+            Some((collider, None))
+        };
+        let im3_limit = limit(TwoToneFigure::Im3);
+        let im2_limit = limit(TwoToneFigure::Im2);
+        let neighbour_bin = |limit: &Option<(Product, Option<Product>)>| {
+            limit
+                .and_then(|(_, n)| n)
+                .map_or(0, |n| n.bin(lower, upper) as usize)
+        };
+        let bins = im3_high
+            .max(im2_high)
+            .max(neighbour_bin(&im3_limit))
+            .max(neighbour_bin(&im2_limit));
         let first_steps = (8 * q).max(2 * bins + 2) + 1;
         let measure = |phasors: &[Complex<f64>]| -> (f64, f64, f64) {
             (
@@ -486,10 +578,11 @@ impl ResponseEngine for DynamicEngine {
         };
         let figures = |phasors: &[Complex<f64>]| -> Vec<f64> {
             let (fundamental, im3, im2) = measure(phasors);
+            let floor = dynamic_floor_dbc(fundamental, precision);
             vec![
                 20.0 * fundamental.log10(),
-                dbc_clamped(im3, fundamental),
-                dbc_clamped(im2, fundamental),
+                dbc_clamped(im3, fundamental, floor),
+                dbc_clamped(im2, fundamental, floor),
             ]
         };
         let drive = Drive::TwoTone {
@@ -500,17 +593,49 @@ impl ResponseEngine for DynamicEngine {
         let period_s = lower as f64 / frequency_hz;
         let refined = self.refine(drive, period_s, first_steps, bins, figures, &label)?;
         let (fundamental_v, im3_v, im2_v) = measure(&refined.differential);
-        // Products under the floor are rounding noise: report them as absent.
-        let floor = 10f64.powf(DYNAMIC_FLOOR_DBC / 20.0) * fundamental_v;
-        let clean = |level: f64| if level < floor { 0.0 } else { level };
+        let floor_dbc = dynamic_floor_dbc(fundamental_v, precision);
+        // A figure sharing its bin with a product of higher order: its floor is the level of
+        // that product's clean family neighbour (or, without one, the bin's own level: the
+        // figure cannot be separated at all).
+        let collision_floor = |limit: &Option<(Product, Option<Product>)>, own_v: f64| match limit {
+            None => (floor_dbc, None),
+            Some((collider, neighbour)) => {
+                let level = match neighbour {
+                    Some(n) => refined.differential[n.bin(lower, upper) as usize].norm(),
+                    None => own_v,
+                };
+                let dbc = 20.0 * (level / fundamental_v).log10();
+                if dbc.is_finite() && dbc > floor_dbc {
+                    (dbc, Some(*collider))
+                } else {
+                    (floor_dbc, None)
+                }
+            }
+        };
+        let (im3_floor_dbc, im3_limited_by) = collision_floor(&im3_limit, im3_v);
+        let (im2_floor_dbc, im2_limited_by) = collision_floor(&im2_limit, im2_v);
         Ok(TwoToneResult {
             amplitude_v,
             fundamental_v,
-            im3_v: clean(im3_v),
-            im2_v: clean(im2_v),
+            im3_v,
+            im2_v,
             samples: refined.steps,
+            floor_dbc,
+            im3_floor_dbc,
+            im2_floor_dbc,
+            im3_limited_by,
+            im2_limited_by,
             region: refined.region,
         })
+    }
+
+    fn direct_floor_v(&self) -> Option<f64> {
+        let circuit = self.solver.circuit();
+        let phi = circuit.thermal_voltage;
+        let gain = crate::solve::memoryless::estimated_gain(circuit);
+        // The fundamental at half this amplitude stands 10⁷ above the waveform's precision.
+        let for_precision = 2.0 * 1e7 * output_precision_v(circuit) / gain.max(f64::MIN_POSITIVE);
+        Some((1e-3 * phi).max(for_precision).min(0.3 * phi))
     }
 
     fn static_solver(&self) -> &StaticSolver {
@@ -518,16 +643,18 @@ impl ResponseEngine for DynamicEngine {
     }
 }
 
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    #[test]
-    fn common_periods_are_found_for_simple_ratios_only() {
-        assert_eq!(common_period_cycles(1e6, 1e5), Some((10, 11)));
-        assert_eq!(common_period_cycles(1e3, 1e5), Some((1, 101)));
-        assert_eq!(common_period_cycles(3e6, 2e6), Some((3, 5)));
-        assert_eq!(common_period_cycles(1e7, 1.0), None);
-        assert_eq!(common_period_cycles(1e6, 1e6 / std::f64::consts::PI), None);
+/// Whether no product of lower order than `product` lands on its bin (so the bin's level is
+/// that product's own, give or take products of equal or higher order).
+fn bin_is_clean(product: Product, p: u64, q: u64) -> bool {
+    let bin = product.bin(p, q);
+    let below = product.order() as i32 - 1;
+    for m in -below..=below {
+        let rest = below - m.abs();
+        for n in -rest..=rest {
+            if Product::new(m, n).bin(p, q) == bin {
+                return false;
+            }
+        }
     }
+    true
 }

@@ -1,0 +1,365 @@
+//! Budget lines as figures read them: the records of one line grouped across temperatures and
+//! corners, the verdict row that names its worst case, and the margins figure that shows every
+//! line of a stage whatever its metric and frequency.
+
+use super::axis::Axis;
+use super::key::{draw_key, split, Key, Swatch, VerdictRow};
+use super::style::*;
+use super::{DrawResult, Drawing, PlotKind};
+use crate::report::{BudgetRecord, Report};
+use plotters::coord::Shift;
+use plotters::prelude::*;
+use plotters::style::text_anchor::{HPos, Pos, VPos};
+
+/// One budget line of one stage, checked at every temperature and corner.
+#[derive(Debug, Clone, PartialEq)]
+pub struct LineChecks {
+    /// The checks, in report order.
+    pub records: Vec<BudgetRecord>,
+}
+
+impl LineChecks {
+    /// The first check (every check of a line shares its metric, limit, amplitude, frequency).
+    pub fn line(&self) -> &BudgetRecord {
+        &self.records[0]
+    }
+
+    /// The check with the least margin (a check without a margin counts as the most margin).
+    pub fn worst(&self) -> &BudgetRecord {
+        self.records
+            .iter()
+            .min_by(|a, b| {
+                a.margin
+                    .unwrap_or(f64::INFINITY)
+                    .total_cmp(&b.margin.unwrap_or(f64::INFINITY))
+            })
+            .unwrap_or(&self.records[0])
+    }
+
+    /// Whether every check passes.
+    pub fn pass(&self) -> bool {
+        self.records.iter().all(|r| r.pass)
+    }
+
+    /// Whether the checks span process corners other than the typical one.
+    pub fn has_corners(&self) -> bool {
+        self.records.iter().any(|r| !is_typical(&r.corner))
+    }
+
+    /// The line as read aloud, without its frequency: `HD3 ≤ −60 dBc at 20 mV`, and for a
+    /// line in dBm `IIP3 ≥ −10 dBm (100 mV)`.
+    pub fn describe(&self) -> String {
+        let line = self.line();
+        let limit = match line.limit_dbm {
+            Some(dbm) => format!(
+                "{} ({})",
+                limit_text(&line.kind, dbm, "dBm"),
+                si_short(line.limit, &line.unit)
+            ),
+            None => limit_text(&line.kind, line.limit, &line.unit),
+        };
+        let at = line
+            .at_v
+            .map(|a| format!(" at {}", si_exact(a, "V")))
+            .unwrap_or_default();
+        format!("{} {limit}{at}", metric_label(&line.metric))
+    }
+
+    /// [`LineChecks::describe`] with the line's frequency.
+    pub fn describe_with_frequency(&self) -> String {
+        format!(
+            "{}, {}",
+            self.describe(),
+            si_exact(self.line().frequency_hz, "Hz")
+        )
+    }
+
+    /// Where a check was made: `−40 °C` or `−40 °C, fast corner`.
+    pub fn case(&self, record: &BudgetRecord) -> String {
+        if self.has_corners() {
+            format!(
+                "{}, {} corner",
+                celsius(record.temperature_c),
+                record.corner
+            )
+        } else {
+            celsius(record.temperature_c)
+        }
+    }
+
+    /// The worst case in words: its value, where, its margin and how many checks pass.
+    pub fn worst_text(&self) -> String {
+        let worst = self.worst();
+        let value = match (worst.value, worst.value_dbm) {
+            (Some(v), Some(dbm)) => format!("{} ({})", level(dbm, "dBm"), si_short(v, &worst.unit)),
+            (Some(v), None) => level(v, &worst.unit),
+            (None, _) if worst.unit == "dBc" => "below the analysis floor".into(),
+            (None, _) => "unbounded".into(),
+        };
+        let mut text = if self.records.len() > 1 {
+            format!("worst {value} at {}", self.case(worst))
+        } else {
+            format!("{value} at {}", self.case(worst))
+        };
+        if let Some(m) = worst.margin {
+            text.push_str(&format!(" · margin {} dB", num(m, 1)));
+        }
+        if self.records.len() > 1 {
+            let passing = self.records.iter().filter(|r| r.pass).count();
+            text.push_str(&format!(
+                " · {passing} of {} checks pass",
+                self.records.len()
+            ));
+        }
+        text
+    }
+
+    /// The verdict row of the line with `swatch` as its symbol.
+    pub fn row(&self, swatch: Swatch, with_frequency: bool) -> VerdictRow {
+        VerdictRow {
+            swatch,
+            line: if with_frequency {
+                self.describe_with_frequency()
+            } else {
+                self.describe()
+            },
+            detail: self.worst_text(),
+            verdict: if self.pass() { "pass" } else { "FAIL" }.into(),
+            pass: self.pass(),
+        }
+    }
+}
+
+/// The budget lines of `stage`, each with its checks across temperatures and corners, in plan
+/// order.
+pub fn lines_of(report: &Report, stage: &str) -> Vec<LineChecks> {
+    let mut lines: Vec<LineChecks> = Vec::new();
+    for record in report.budget.iter().filter(|b| b.stage == stage) {
+        let same = |l: &&mut LineChecks| {
+            let first = l.line();
+            first.metric == record.metric
+                && first.kind == record.kind
+                && first.limit == record.limit
+                && first.at_v == record.at_v
+                && first.frequency_hz == record.frequency_hz
+        };
+        match lines.iter_mut().find(|l| same(l)) {
+            Some(line) => line.records.push(record.clone()),
+            None => lines.push(LineChecks {
+                records: vec![record.clone()],
+            }),
+        }
+    }
+    lines
+}
+
+/// Whether a line is drawn against amplitude in dBc (hdN, THD, IM3).
+pub fn is_amplitude_line(line: &BudgetRecord) -> bool {
+    line.at_v.is_some() && line.unit == "dBc"
+}
+
+/// Every budget line of a stage as a horizontal bar of its margin (dB) per temperature and
+/// corner, the limit at zero: the one figure where each line appears whatever its metric and
+/// frequency.
+pub struct MarginsPlot {
+    stage: String,
+    slug: String,
+    lines: Vec<LineChecks>,
+    /// The cases (temperature, corner) in report order.
+    cases: Vec<(f64, String)>,
+    axis: Axis,
+}
+
+/// Margins beyond this are drawn to the axis end (their value is in the table).
+const MARGIN_CLIP_DB: f64 = 60.0;
+
+impl MarginsPlot {
+    /// The figure, if the stage has budget lines.
+    pub fn new(report: &Report, stage: &str, slug: &str) -> Option<Self> {
+        let lines = lines_of(report, stage);
+        if lines.is_empty() {
+            return None;
+        }
+        let mut cases: Vec<(f64, String)> = Vec::new();
+        for r in lines.iter().flat_map(|l| &l.records) {
+            let case = (r.temperature_c, r.corner.clone());
+            if !cases.contains(&case) {
+                cases.push(case);
+            }
+        }
+        let margins = lines
+            .iter()
+            .flat_map(|l| &l.records)
+            .filter_map(|r| r.margin)
+            .map(|m| m.clamp(-MARGIN_CLIP_DB, MARGIN_CLIP_DB));
+        let (low, high) = margins.fold((0.0f64, 0.0f64), |(lo, hi), m| (lo.min(m), hi.max(m)));
+        let span = (high - low).max(10.0);
+        let axis = Axis::linear(low - 0.08 * span, high + 0.08 * span, 8);
+        Some(MarginsPlot {
+            stage: stage.to_owned(),
+            slug: slug.to_owned(),
+            lines,
+            cases,
+            axis,
+        })
+    }
+
+    fn has_corners(&self) -> bool {
+        self.cases.iter().any(|(_, c)| !is_typical(c))
+    }
+
+    fn case_label(&self, (t, corner): &(f64, String)) -> String {
+        if self.has_corners() {
+            format!("{}, {corner}", celsius(*t))
+        } else {
+            celsius(*t)
+        }
+    }
+
+    /// Colour and opacity of a case: with corners the colour names the corner and the
+    /// shade the temperature (so nine cases stay nine distinct swatches); without, the
+    /// colour names the temperature.
+    fn case_style(&self, index: usize) -> (RGBColor, f64) {
+        let (t, corner) = &self.cases[index];
+        let mut corners: Vec<&str> = Vec::new();
+        let mut temps: Vec<f64> = Vec::new();
+        for (ct, cc) in &self.cases {
+            if !corners.contains(&cc.as_str()) {
+                corners.push(cc);
+            }
+            if !temps.contains(ct) {
+                temps.push(*ct);
+            }
+        }
+        let ti = temps.iter().position(|x| x == t).unwrap_or(0);
+        if self.has_corners() {
+            let ci = corners.iter().position(|c| c == corner).unwrap_or(0);
+            (
+                SERIES[(ci * 2) % SERIES.len()],
+                [0.95, 0.6, 0.32, 0.18][ti % 4],
+            )
+        } else {
+            (SERIES[ti % SERIES.len()], 0.85)
+        }
+    }
+}
+
+impl Drawing for MarginsPlot {
+    fn kind(&self) -> PlotKind {
+        PlotKind::Margins
+    }
+    fn slug(&self) -> Option<&str> {
+        Some(&self.slug)
+    }
+    fn title(&self) -> String {
+        format!("Budget margins · {}", self.stage)
+    }
+    fn caption(&self) -> String {
+        format!(
+            "Margin of every budget line of “{}” in dB (positive passes; zero is the limit), one bar per temperature{}; margins beyond ±{} dB are drawn to the axis end.",
+            self.stage,
+            if self.has_corners() { " and process corner" } else { "" },
+            MARGIN_CLIP_DB
+        )
+    }
+    fn key(&self) -> Key {
+        let mut key = Key::default();
+        for (i, case) in self.cases.iter().enumerate() {
+            let (colour, alpha) = self.case_style(i);
+            key.entry(Swatch::Band { colour, alpha }, self.case_label(case));
+        }
+        key.verdict_heading = "Budget lines (worst case)".into();
+        key.verdicts = self
+            .lines
+            .iter()
+            .map(|l| l.row(Swatch::Verdict { pass: l.pass() }, true))
+            .collect();
+        key
+    }
+    fn axes(&self) -> Vec<Axis> {
+        vec![self.axis.clone()]
+    }
+
+    fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> DrawResult {
+        let failing = self.lines.iter().filter(|l| !l.pass()).count();
+        let subtitle = format!(
+            "{} budget lines · {} · every temperature{}",
+            self.lines.len(),
+            if failing == 0 {
+                "all pass".to_owned()
+            } else {
+                format!("{failing} fail")
+            },
+            if self.has_corners() {
+                " and corner"
+            } else {
+                ""
+            }
+        );
+        let body = frame(root, &self.title(), &subtitle)?;
+        let (plot, side) = split(&body);
+        draw_key(&side, &self.key())?;
+        let rows = self.lines.len() as f64;
+        let axis = &self.axis;
+        let mut chart = house_chart(&plot, 24, 330)
+            .build_cartesian_2d(axis.linear_range(), -0.5..rows - 0.5)?;
+        mesh_style(&mut chart.configure_mesh())
+            .disable_y_mesh()
+            .y_labels(0)
+            .x_desc("margin (dB), positive passes")
+            .x_label_formatter(&|v| axis.label(*v))
+            .draw()?;
+        chart.draw_series(std::iter::once(Rectangle::new(
+            [(axis.low, -0.5), (0.0, rows - 0.5)],
+            FAIL.mix(0.05).filled(),
+        )))?;
+        chart.draw_series(std::iter::once(PathElement::new(
+            vec![(0.0, -0.5), (0.0, rows - 0.5)],
+            INK.stroke_width(2),
+        )))?;
+        let cases = self.cases.len().max(1) as f64;
+        let band = 0.72 / cases;
+        for (row, line) in self.lines.iter().enumerate() {
+            // First line at the top.
+            let centre = rows - 1.0 - row as f64;
+            for record in &line.records {
+                let Some(index) = self
+                    .cases
+                    .iter()
+                    .position(|c| c.0 == record.temperature_c && c.1 == record.corner)
+                else {
+                    continue;
+                };
+                let top = centre + 0.36 - index as f64 * band;
+                let margin = record
+                    .margin
+                    .unwrap_or(MARGIN_CLIP_DB)
+                    .clamp(axis.low, axis.high);
+                let (colour, alpha) = self.case_style(index);
+                chart.draw_series(std::iter::once(Rectangle::new(
+                    [(0.0, top), (margin, top - band * 0.85)],
+                    colour.mix(alpha).filled(),
+                )))?;
+            }
+            let worst = line.worst();
+            if let Some(m) = worst.margin {
+                let at = chart.backend_coord(&(m.clamp(axis.low, axis.high), centre));
+                super::key::verdict_marker(root, (at.0, at.1), line.pass())?;
+            }
+            let label_at = chart.backend_coord(&(axis.low, centre));
+            root.draw(&Text::new(
+                line.describe(),
+                (label_at.0 - 12, label_at.1 - 11),
+                bold(LEGEND_PX)
+                    .color(&INK)
+                    .pos(Pos::new(HPos::Right, VPos::Center)),
+            ))?;
+            root.draw(&Text::new(
+                si_exact(line.line().frequency_hz, "Hz"),
+                (label_at.0 - 12, label_at.1 + 12),
+                text(LEGEND_PX - 2.0, MUTED).pos(Pos::new(HPos::Right, VPos::Center)),
+            ))?;
+        }
+        Ok(())
+    }
+}

@@ -1,0 +1,340 @@
+//! What a reviewer checks before accepting the figures and tables, on a plan with process
+//! corners, Monte Carlo, budget lines at several frequencies, an IM3 line and a limit in dBm:
+//! every budget line appears in a figure with its limit, legends are distinguishable, every
+//! axis is labelled at both ends, corners are named wherever records differ by corner, numbers
+//! carry SI prefixes and metrics their trade names, and SVG and PNG name one font.
+//!
+//! The checks read the figures' prepared data (axes, legend entries, verdict rows), not pixels.
+
+use linbudget::plots::{self, PlotKind};
+use linbudget::report::Report;
+use linbudget::run::{run, RunOptions, DEFAULT_MAX_WORK};
+use linbudget::{Stage, Transistor};
+use std::collections::BTreeSet;
+use std::fs;
+use std::path::PathBuf;
+
+/// A memoryless stage (frequency only labels the points, so budget lines at two frequencies
+/// cost nothing extra) over two temperatures and three corners, with Monte Carlo, two tones,
+/// a noise line, an IIP3 line in dBm and sizing.
+const REVIEW_PLAN: &str = "name: review-plan
+temperatures_c: [-40, 85]
+reference_impedance: 50
+stages:
+  - name: pair
+    tail_current: 400 uA
+    load_resistance: 5k
+    emitter_resistance: 150
+    supply: 5 V
+    input_common_mode: 2.5 V
+    transistor: {beta: 120, base_resistance: 100}
+    mismatch_sigma: {saturation_current: 1%, load_resistance: 0.5%}
+corners:
+  - {name: slow, saturation_current: -20%, beta: -30%, resistors: +15%}
+  - {name: fast, saturation_current: +20%, beta: +30%, resistors: -15%}
+drive:
+  amplitudes: [2 mV, 10 mV, 30 mV]
+  frequencies: [1 kHz, 100 kHz]
+  two_tone_spacing: 100 Hz
+monte_carlo: {runs: 60, seed: 3}
+budget:
+  - {metric: hd3, at: 30 mV, max: -50}
+  - {metric: hd2, at: 30 mV, max: -70}
+  - {metric: thd, at: 10 mV, frequency: 100 kHz, max: -60}
+  - {metric: im3, at: 10 mV, frequency: 100 kHz, max: -55}
+  - {metric: iip3, min: \"-15 dBm\"}
+  - {metric: gain, min: 15}
+  - {metric: input_noise, max: 12 nV}
+sizing:
+  emitter_resistance: {from: 0, to: 1k}
+";
+
+fn review() -> (tempfile::TempDir, Report, PathBuf) {
+    let dir = tempfile::tempdir().unwrap();
+    let plan = dir.path().join("review.yaml");
+    fs::write(&plan, REVIEW_PLAN).unwrap();
+    let options = RunOptions {
+        plan,
+        out: dir.path().join("out"),
+        json: false,
+        quiet: true,
+        max_work: DEFAULT_MAX_WORK,
+        figures: true,
+        as_planned: false,
+        overrides: Vec::new(),
+    };
+    let outcome = run(&options, &|_| {}).expect("the review plan runs");
+    (dir, outcome.report, outcome.folder)
+}
+
+#[test]
+fn every_budget_line_appears_in_a_figure_with_its_limit() {
+    let (_dir, report, _folder) = review();
+    let sketches = plots::sketches(&report);
+    let rows = |kind: PlotKind| -> Vec<String> {
+        sketches
+            .iter()
+            .filter(|s| s.kind() == kind)
+            .flat_map(|s| s.key().verdicts.iter().map(|v| v.line.clone()))
+            .collect()
+    };
+    // The margins figure holds every line, whatever its metric and frequency.
+    let margins = rows(PlotKind::Margins);
+    for wanted in [
+        "HD3 ≤ −50 dBc at 30 mV, 1 kHz",
+        "HD2 ≤ −70 dBc at 30 mV, 1 kHz",
+        "THD ≤ −60 dBc at 10 mV, 100 kHz",
+        "IM3 ≤ −55 dBc at 10 mV, 100 kHz",
+        "gain ≥ 15 dB, 1 kHz",
+        "input noise ≤ 12 nV/√Hz, 1 kHz",
+    ] {
+        assert!(
+            margins.iter().any(|r| r == wanted),
+            "{wanted} in {margins:?}"
+        );
+    }
+    // The IIP3 limit is shown in dBm with its voltage: 10^(−1.5)·1 mW into 50 Ω is
+    // sqrt(2·50·3.162e-5) = 56.2 mV peak (P = V²/2R, common practice).
+    assert!(
+        margins
+            .iter()
+            .any(|r| r == "IIP3 ≥ −15 dBm (56.2 mV), 1 kHz"),
+        "{margins:?}"
+    );
+    // Distortion lines are masks in the harmonics figure at their own frequency: the
+    // 100 kHz lines get a figure of their own.
+    let stems: BTreeSet<&str> = sketches.iter().map(|s| s.stem()).collect();
+    assert!(stems.contains("harmonics-pair") && stems.contains("harmonics-pair-100kHz"));
+    let at_100k = sketches
+        .iter()
+        .find(|s| s.stem() == "harmonics-pair-100kHz")
+        .unwrap();
+    let lines: Vec<&str> = at_100k
+        .key()
+        .verdicts
+        .iter()
+        .map(|v| v.line.as_str())
+        .collect();
+    assert_eq!(lines, ["THD ≤ −60 dBc at 10 mV", "IM3 ≤ −55 dBc at 10 mV"]);
+    // The IM3 line is drawn on the two-tone figure at its frequency.
+    let two_tone = sketches
+        .iter()
+        .find(|s| s.stem() == "two-tone-pair-100kHz")
+        .expect("a two-tone figure at the IM3 line's frequency");
+    assert!(two_tone
+        .key()
+        .verdicts
+        .iter()
+        .any(|v| v.line == "IM3 ≤ −55 dBc at 10 mV"));
+    // The distortion lines at the Monte Carlo frequency are drawn on its figure.
+    let mc = sketches
+        .iter()
+        .find(|s| s.kind() == PlotKind::MonteCarlo)
+        .unwrap();
+    let mc_lines: Vec<&str> = mc.key().verdicts.iter().map(|v| v.line.as_str()).collect();
+    assert!(mc_lines.contains(&"HD2 ≤ −70 dBc at 30 mV"), "{mc_lines:?}");
+    // The versus-frequency figure carries the lines at their frequencies.
+    let frequency = sketches
+        .iter()
+        .find(|s| s.kind() == PlotKind::Frequency)
+        .unwrap();
+    assert!(frequency
+        .key()
+        .verdicts
+        .iter()
+        .any(|v| v.line == "THD ≤ −60 dBc at 10 mV, 100 kHz"));
+}
+
+#[test]
+fn verdicts_and_legends_name_corners_and_read_as_the_trade_writes() {
+    let (_dir, report, _folder) = review();
+    let sketches = plots::sketches(&report);
+    for sketch in &sketches {
+        let key = sketch.key();
+        assert!(
+            key.look_alike().is_empty(),
+            "{}: legend entries {:?} look alike",
+            sketch.stem(),
+            key.look_alike()
+                .iter()
+                .map(|(a, b)| (&key.legend[*a].label, &key.legend[*b].label))
+                .collect::<Vec<_>>()
+        );
+        let words: Vec<&str> = key
+            .legend
+            .iter()
+            .map(|e| e.label.as_str())
+            .chain(
+                key.verdicts
+                    .iter()
+                    .flat_map(|v| [v.line.as_str(), v.detail.as_str()]),
+            )
+            .chain(key.notes.iter().map(String::as_str))
+            .collect();
+        for text in &words {
+            assert!(
+                !text.contains("INPUT_NOISE")
+                    && !text.contains("GAIN")
+                    && !text.contains("measured"),
+                "{}: {text}",
+                sketch.stem()
+            );
+        }
+        // A figure without budget lines says nothing about shading.
+        if key.verdicts.is_empty() {
+            assert!(
+                !sketch.caption().contains("forbidden"),
+                "{}: {}",
+                sketch.stem(),
+                sketch.caption()
+            );
+        }
+    }
+    // A verdict that rests on a corner names it.
+    let harmonics = sketches
+        .iter()
+        .find(|s| s.stem() == "harmonics-pair")
+        .unwrap();
+    for row in &harmonics.key().verdicts {
+        assert!(
+            ["typical corner", "slow corner", "fast corner"]
+                .iter()
+                .any(|c| row.detail.contains(c)),
+            "{}",
+            row.detail
+        );
+    }
+    // The sizing legend gives the noise limit as written (12 nV/√Hz), never rounded to 0.
+    let sizing = sketches
+        .iter()
+        .find(|s| s.kind() == PlotKind::Sizing)
+        .unwrap();
+    assert!(
+        sizing
+            .key()
+            .legend
+            .iter()
+            .any(|e| e.label == "input noise margin (≤ 12 nV/√Hz)"),
+        "{:?}",
+        sizing.key().legend
+    );
+}
+
+#[test]
+fn every_axis_is_labelled_at_both_ends() {
+    let (_dir, report, _folder) = review();
+    for sketch in plots::sketches(&report) {
+        for axis in sketch.axes() {
+            let labels = axis.labels();
+            assert_eq!(axis.ticks.first(), Some(&axis.low), "{}", sketch.stem());
+            assert_eq!(axis.ticks.last(), Some(&axis.high), "{}", sketch.stem());
+            assert!(
+                !labels[0].is_empty() && !labels[labels.len() - 1].is_empty(),
+                "{}: {labels:?}",
+                sketch.stem()
+            );
+        }
+    }
+    // The lowest drive amplitude carries its own label on the amplitude axes.
+    let sketches = plots::sketches(&report);
+    let harmonics = sketches
+        .iter()
+        .find(|s| s.stem() == "harmonics-pair")
+        .unwrap();
+    assert!(harmonics.axes()[0].labels().contains(&"2 mV".to_owned()));
+}
+
+#[test]
+fn tables_name_corners_and_use_si_prefixes_and_trade_names() {
+    let (_dir, report, folder) = review();
+    // points.csv: one row per (stage, corner, temperature, frequency, amplitude).
+    let mut reader = csv::Reader::from_path(folder.join("points.csv")).unwrap();
+    assert_eq!(&reader.headers().unwrap()[1], "corner");
+    let mut keys = BTreeSet::new();
+    let mut rows = 0;
+    for record in reader.records() {
+        let record = record.unwrap();
+        keys.insert((0..5).map(|i| record[i].to_owned()).collect::<Vec<_>>());
+        rows += 1;
+    }
+    assert_eq!(rows, report.points.len());
+    assert_eq!(keys.len(), rows, "a (stage, corner, T, f, A) key repeats");
+    // The planned stage and its recommended design (`pair@sized`), each over 3 corners,
+    // 2 temperatures, 2 frequencies and 3 amplitudes.
+    assert_eq!(rows, 2 * 3 * 2 * 2 * 3);
+
+    let summary = fs::read_to_string(folder.join("summary.md")).unwrap();
+    let header = summary
+        .lines()
+        .find(|l| l.starts_with("| corner | T (°C) | f | amplitude"))
+        .expect("the drive-point table has a corner column");
+    assert!(header.contains("HD3"));
+    assert!(
+        summary.contains("| slow | −40 | 100 kHz | 10 mV |"),
+        "SI-prefixed frequency and amplitude"
+    );
+    assert!(!summary.contains("100000") && !summary.contains("1000.0"));
+    assert!(summary.contains("| input noise |") && !summary.contains("input_noise |"));
+    assert!(!summary.contains("| hd3 |") && summary.contains("| HD3 |"));
+
+    let html = fs::read_to_string(folder.join("report.html")).unwrap();
+    assert!(!html.contains('`'), "report.html shows a literal backtick");
+    assert!(html.contains("<th>corner</th>"));
+    let markdown = fs::read_to_string(folder.join("report.md")).unwrap();
+    assert!(
+        markdown.contains("≥ −15 dBm (56.2 mV)"),
+        "the dBm line in the budget table"
+    );
+}
+
+#[test]
+fn svg_and_png_name_one_font_family() {
+    let (_dir, _report, folder) = review();
+    let svg = fs::read_to_string(folder.join("harmonics-pair.svg")).unwrap();
+    let families: BTreeSet<&str> = svg
+        .split("font-family=\"")
+        .skip(1)
+        .map(|rest| &rest[..rest.find('"').unwrap()])
+        .collect();
+    assert_eq!(
+        families.into_iter().collect::<Vec<_>>(),
+        [linbudget::plots::style_family()],
+        "one family in the SVG"
+    );
+    assert!(linbudget::plots::style_family().starts_with("DejaVu Sans"));
+}
+
+/// The white input noise of the strain-logger stage at 27 °C against the formula worked by
+/// hand in specs/README.md (standard bipolar noise analysis, from memory; CODATA 2018 k and
+/// q): 6.5935 nV/√Hz.
+#[test]
+fn input_noise_matches_the_worked_example_of_the_plan_reference() -> Result<(), linbudget::Error> {
+    let stage = Stage::new("bridge", 200e-6, 10e3)
+        .emitter_resistance(560.0)
+        .source_resistance(350.0)
+        .supply(5.0)
+        .input_common_mode(2.5)
+        .transistor(
+            Transistor::default()
+                .saturation_current(2e-17)
+                .beta(150.0)
+                .base_resistance(200.0),
+        );
+    let noise = stage.at(27.0)?.input_noise_v_rthz();
+    let (k, q) = (1.380649e-23, 1.602176634e-19);
+    let kt = k * 300.15;
+    let collector = 150.0 / 151.0 * 100e-6;
+    let gm = collector / (kt / q);
+    let g = gm / (1.0 + gm * 560.0);
+    let per_side = 4.0 * kt * (550.0 + 560.0)
+        + 2.0 * kt / gm
+        + 2.0 * q * (collector / 150.0) * 550.0f64.powi(2)
+        + 4.0 * kt / (g * g * 10e3);
+    let expected = (2.0 * per_side).sqrt();
+    assert!((expected - 6.5935e-9).abs() < 1e-12, "{expected}");
+    assert!(
+        (noise / expected - 1.0).abs() < 1e-6,
+        "{noise} vs {expected}"
+    );
+    Ok(())
+}
