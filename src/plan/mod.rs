@@ -91,6 +91,10 @@ const MISMATCH_KEYS: &[&str] = &[
     "load_resistance",
     "base_resistance",
     "beta",
+    "load_capacitance",
+    "emitter_junction_capacitance",
+    "collector_junction_capacitance",
+    "transit_time",
 ];
 const DRIVE_KEYS: &[&str] = &[
     "amplitudes",
@@ -711,6 +715,20 @@ fn read_mismatch(stage: &MapAt, key: &str, range: Range) -> Result<Mismatch, Pla
         load_resistance: map.quantity_or("load_resistance", Unit::Ratio, range, 0.0)?,
         base_resistance: map.quantity_or("base_resistance", Unit::Ratio, range, 0.0)?,
         beta: map.quantity_or("beta", Unit::Ratio, range, 0.0)?,
+        load_capacitance: map.quantity_or("load_capacitance", Unit::Ratio, range, 0.0)?,
+        emitter_junction_capacitance: map.quantity_or(
+            "emitter_junction_capacitance",
+            Unit::Ratio,
+            range,
+            0.0,
+        )?,
+        collector_junction_capacitance: map.quantity_or(
+            "collector_junction_capacitance",
+            Unit::Ratio,
+            range,
+            0.0,
+        )?,
+        transit_time: map.quantity_or("transit_time", Unit::Ratio, range, 0.0)?,
     })
 }
 
