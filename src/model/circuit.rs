@@ -62,6 +62,31 @@ pub struct StageCircuit {
     pub load_capacitance: f64,
     /// Tail-node capacitance, F.
     pub tail_capacitance: f64,
+    /// The P side's charge-storage elements relative to the M side's (nominal) ones.
+    pub p_charge_scale: ChargeScale,
+}
+
+/// Factors `1 + δ` on the P side's charge-storage elements (the M side is nominal).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct ChargeScale {
+    /// Load capacitance.
+    pub load_capacitance: f64,
+    /// Zero-bias base-emitter junction capacitance.
+    pub emitter_junction_capacitance: f64,
+    /// Zero-bias base-collector junction capacitance.
+    pub collector_junction_capacitance: f64,
+    /// Forward transit time.
+    pub transit_time: f64,
+}
+
+impl ChargeScale {
+    /// Both sides alike.
+    pub const MATCHED: ChargeScale = ChargeScale {
+        load_capacitance: 1.0,
+        emitter_junction_capacitance: 1.0,
+        collector_junction_capacitance: 1.0,
+        transit_time: 1.0,
+    };
 }
 
 fn scaled(nominal: f64, fraction: f64) -> f64 {
@@ -129,6 +154,12 @@ impl StageCircuit {
             charge: ChargeModel::of(t),
             load_capacitance: stage.load_capacitance,
             tail_capacitance: stage.tail_capacitance,
+            p_charge_scale: ChargeScale {
+                load_capacitance: 1.0 + mismatch.load_capacitance,
+                emitter_junction_capacitance: 1.0 + mismatch.emitter_junction_capacitance,
+                collector_junction_capacitance: 1.0 + mismatch.collector_junction_capacitance,
+                transit_time: 1.0 + mismatch.transit_time,
+            },
         }
     }
 

@@ -227,6 +227,14 @@ pub struct Mismatch {
     pub base_resistance: f64,
     /// Current gain β.
     pub beta: f64,
+    /// Load capacitance (charge storage: only stages with capacitance feel it).
+    pub load_capacitance: f64,
+    /// Zero-bias base-emitter junction capacitance.
+    pub emitter_junction_capacitance: f64,
+    /// Zero-bias base-collector junction capacitance.
+    pub collector_junction_capacitance: f64,
+    /// Forward transit time.
+    pub transit_time: f64,
 }
 
 quantity_builders!(Mismatch;
@@ -240,4 +248,12 @@ quantity_builders!(Mismatch;
     base_resistance,
     /// Sets the β fraction.
     beta,
+    /// Sets the load-capacitance fraction.
+    load_capacitance,
+    /// Sets the base-emitter junction-capacitance fraction.
+    emitter_junction_capacitance,
+    /// Sets the base-collector junction-capacitance fraction.
+    collector_junction_capacitance,
+    /// Sets the transit-time fraction.
+    transit_time,
 );

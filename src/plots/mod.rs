@@ -22,6 +22,7 @@ mod frequency;
 mod harmonics;
 pub mod key;
 mod monte_carlo;
+mod region;
 mod sizing;
 mod spectrum;
 pub(crate) mod style;
@@ -52,6 +53,11 @@ pub enum PlotKind {
     TwoTone,
     /// Budget margins versus emitter resistance with the chosen value.
     Sizing,
+    /// The map of tail current against emitter resistance: usable designs and the line
+    /// closing each edge.
+    SizingRegion,
+    /// Pareto fronts of supply current against input noise and the binding distortion.
+    SizingPareto,
     /// Harmonic stems at one drive point.
     Spectrum,
     /// Several stages overlaid.
@@ -72,6 +78,8 @@ impl PlotKind {
             PlotKind::Harmonics => "harmonics",
             PlotKind::TwoTone => "two-tone",
             PlotKind::Sizing => "sizing",
+            PlotKind::SizingRegion => "sizing-region",
+            PlotKind::SizingPareto => "sizing-pareto",
             PlotKind::Spectrum => "spectrum",
             PlotKind::StageComparison => "stage-comparison",
             PlotKind::Frequency => "frequency",
@@ -260,8 +268,8 @@ impl Sketch {
             | PlotKind::Frequency
             | PlotKind::Sizing
             | PlotKind::Margins => 5,
-            PlotKind::MonteCarlo => 4,
-            PlotKind::Spectrum => 3,
+            PlotKind::MonteCarlo | PlotKind::SizingRegion => 4,
+            PlotKind::Spectrum | PlotKind::SizingPareto => 3,
         }
     }
 }
@@ -351,6 +359,8 @@ pub fn sketches(report: &Report) -> Vec<Sketch> {
         per_stage!(two_tone::TwoTonePlot::all);
         per_stage!(spectrum::SpectrumPlot::new);
         per_stage!(sizing::SizingPlot::new);
+        per_stage!(region::RegionPlot::new);
+        per_stage!(region::ParetoPlot::new);
         per_stage!(frequency::FrequencyPlot::new);
         per_stage!(monte_carlo::MonteCarloPlot::new);
     }
