@@ -1,6 +1,8 @@
 //! Criterion benchmarks of the single-tone sweep engine: the symmetric quarter-period path
-//! against the general sample-by-sample path, for a degenerated and an undegenerated pair.
-//! Figures are recorded in benches/README.md.
+//! against the general sample-by-sample path, for a degenerated and an undegenerated pair, and
+//! the general forward-active solve (β, base resistance, the Early effect and a finite tail
+//! resistance, as in `benches/sweep-4096-general.yaml`). Figures are recorded in
+//! benches/README.md.
 
 use criterion::{criterion_group, criterion_main, Criterion};
 use linbudget::model::circuit::StageCircuit;
@@ -10,9 +12,9 @@ use linbudget::solve::transfer::StaticSolver;
 use linbudget::Plan;
 use std::hint::black_box;
 
-fn solver(emitter_resistance: &str) -> StaticSolver {
+fn solver(stage: &str) -> StaticSolver {
     let text = format!(
-        "name: b\nstages:\n  - {{name: s, tail_current: 1 mA, load_resistance: 2k, emitter_resistance: {emitter_resistance}}}\ndrive: {{amplitudes: [1 mV]}}\n"
+        "name: b\nstages:\n  - {{name: s, tail_current: 1 mA, load_resistance: 2k, {stage}}}\ndrive: {{amplitudes: [1 mV]}}\n"
     );
     let plan = Plan::from_yaml(&text, "bench.yaml").expect("bench plan");
     StaticSolver::new(StageCircuit::new(&plan.stages[0], 27.0))
@@ -28,7 +30,7 @@ fn amplitudes() -> Vec<f64> {
 fn sweeps(c: &mut Criterion) {
     let cache = FftCache::default();
     for (label, r_e) in [("degenerated", "200"), ("undegenerated", "0")] {
-        let s = solver(r_e);
+        let s = solver(&format!("emitter_resistance: {r_e}"));
         c.bench_function(&format!("sweep64/{label}/symmetric"), |b| {
             b.iter(|| {
                 for a in amplitudes() {
@@ -46,9 +48,23 @@ fn sweeps(c: &mut Criterion) {
     }
 }
 
+fn general_solve(c: &mut Criterion) {
+    let cache = FftCache::default();
+    let s = solver(
+        "emitter_resistance: 200, tail_resistance: 50k, supply: 5 V, input_common_mode: 1.5 V, transistor: {beta: 110, early_voltage: 70 V, base_resistance: 120}",
+    );
+    c.bench_function("sweep64/early-effect/general", |b| {
+        b.iter(|| {
+            for a in amplitudes() {
+                black_box(single_tone(&s, &cache, a, 40).expect("tone"));
+            }
+        })
+    });
+}
+
 criterion_group! {
     name = benches;
     config = Criterion::default().sample_size(10);
-    targets = sweeps
+    targets = sweeps, general_solve
 }
 criterion_main!(benches);

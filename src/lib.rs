@@ -54,7 +54,9 @@ pub use measure::solved::{SolvedStage, Tone, TwoTone};
 pub use model::budget::{BudgetLine, Limit, Metric};
 pub use model::corner::Corner;
 pub use model::drive::Drive;
-pub use model::plan::{MonteCarloSettings, NoiseBand, Plan, SizingSettings};
+pub use model::plan::{
+    MonteCarloSettings, NoiseBand, Plan, SizingSettings, SizingVariable, VariableRange,
+};
 pub use model::stage::{Mismatch, Stage};
 pub use model::tail::TailCurrentLaw;
 pub use model::topology::{MultiTanh, MultiTanhForm, TanhPair, Topology};

@@ -478,3 +478,63 @@ fn a_comparison_names_what_is_equal() {
         "input_noise",
     );
 }
+
+#[test]
+fn sizing_names_at_least_one_variable() {
+    let err = refused(&plan(
+        "drive: {amplitudes: [10 mV]}\nbudget:\n  - {metric: gain, min: 6}\nsizing:\n  guard_band_db: 1\n",
+    ));
+    assert_refusal(
+        &err,
+        "sizing",
+        8,
+        "sizing names no variable to choose",
+        "`emitter_resistance` or `tail_current`",
+    );
+}
+
+#[test]
+fn the_variable_to_minimise_is_one_sizing_chooses() {
+    let err = refused(&plan(
+        "drive: {amplitudes: [10 mV]}\nbudget:\n  - {metric: gain, min: 6}\nsizing:\n  emitter_resistance: {from: 0, to: 1k}\n  minimise: tail_current\n",
+    ));
+    assert_refusal(
+        &err,
+        "sizing.minimise",
+        9,
+        "`minimise: tail_current` needs `tail_current` among the sizing variables",
+        "`emitter_resistance`",
+    );
+    let err = refused(&plan(
+        "drive: {amplitudes: [10 mV]}\nbudget:\n  - {metric: gain, min: 6}\nsizing:\n  tail_current: {from: 0.1 mA, to: 2 mA}\n  minimise: power\n",
+    ));
+    assert_refusal(
+        &err,
+        "sizing.minimise",
+        9,
+        "`power` is not a sizing variable",
+        "`tail_current`",
+    );
+}
+
+#[test]
+fn a_tail_current_range_is_positive_and_runs_upwards() {
+    let err = refused(&plan(
+        "drive: {amplitudes: [10 mV]}\nbudget:\n  - {metric: gain, min: 6}\nsizing:\n  tail_current: {from: 2 mA, to: 1 mA}\n",
+    ));
+    assert_refusal(
+        &err,
+        "sizing.tail_current.to",
+        8,
+        "the tail-current sizing range is reversed",
+        "`from` below `to`",
+    );
+    let err = refused(&plan(
+        "drive: {amplitudes: [10 mV]}\nbudget:\n  - {metric: gain, min: 6}\nsizing:\n  tail_current: {from: 0, to: 1 mA}\n",
+    ));
+    assert_eq!(err.key_path, "sizing.tail_current.from", "{err}");
+    let err = refused(&plan(
+        "drive: {amplitudes: [10 mV]}\nbudget:\n  - {metric: gain, min: 6}\nsizing:\n  tail_current: {from: 1 kΩ, to: 2 kΩ}\n",
+    ));
+    assert_eq!(err.key_path, "sizing.tail_current.from", "{err}");
+}

@@ -338,3 +338,91 @@ fn input_noise_matches_the_worked_example_of_the_plan_reference() -> Result<(), 
     );
     Ok(())
 }
+
+/// A stage near saturation with a collector-base margin line (volts) and a yield line (a
+/// fraction): neither margin is in dB.
+const MIXED_UNITS_PLAN: &str = "name: mixed-units
+temperatures_c: [27]
+stages:
+  - name: pair
+    tail_current: 1 mA
+    load_resistance: 2.2k
+    emitter_resistance: 0
+    supply: 3.3 V
+    input_common_mode: 1.45 V
+    transistor: {beta: 110, base_resistance: 150}
+    mismatch_sigma: {saturation_current: 5%}
+drive:
+  amplitudes: [10 mV, 100 mV]
+  frequencies: [10 kHz]
+monte_carlo: {runs: 40, seed: 5}
+budget:
+  - {metric: hd2, at: 10 mV, max: -80}
+  - {metric: collector_base_margin, at: 100 mV, min: 200 mV}
+  - {metric: yield, min: 99%}
+  - {metric: gain, min: 10}
+";
+
+#[test]
+fn margins_name_their_own_unit_in_the_report_and_the_figure_key() {
+    let dir = tempfile::tempdir().unwrap();
+    let plan = dir.path().join("mixed.yaml");
+    fs::write(&plan, MIXED_UNITS_PLAN).unwrap();
+    let options = RunOptions {
+        plan,
+        out: dir.path().join("out"),
+        json: false,
+        quiet: true,
+        max_work: DEFAULT_MAX_WORK,
+        figures: false,
+        as_planned: false,
+        overrides: Vec::new(),
+    };
+    let report = run(&options, &|_| {})
+        .expect("the mixed-units plan runs")
+        .report;
+    let unit_of = |metric: &str| -> Vec<String> {
+        report
+            .budget
+            .iter()
+            .filter(|b| b.metric == metric)
+            .map(|b| b.margin_unit.clone())
+            .collect()
+    };
+    assert_eq!(unit_of("collector_base_margin"), ["V"]);
+    assert_eq!(unit_of("yield"), ["fraction"]);
+    assert_eq!(unit_of("gain"), ["dB"]);
+    let margins = plots::sketches(&report)
+        .into_iter()
+        .find(|s| s.kind() == PlotKind::Margins)
+        .expect("a margins figure");
+    let detail = |starts: &str| -> String {
+        margins
+            .key()
+            .verdicts
+            .iter()
+            .find(|v| v.line.starts_with(starts))
+            .unwrap_or_else(|| panic!("a verdict row for {starts}"))
+            .detail
+            .clone()
+    };
+    // Each row's margin carries the record's unit, never dB for volts or a yield.
+    let volts = detail("collector base margin");
+    let volts_margin = volts
+        .split(" · ")
+        .find(|part| part.starts_with("margin "))
+        .unwrap_or_default();
+    assert!(volts_margin.ends_with('V'), "{volts}");
+    assert!(!volts.contains(" dB"), "{volts}");
+    let yield_row = detail("yield");
+    assert!(yield_row.contains("%-points"), "{yield_row}");
+    assert!(!yield_row.contains(" dB"), "{yield_row}");
+    assert!(detail("gain").contains(" dB"));
+    // The yield margin in the key is the record's fraction in percentage points.
+    let record = report.budget.iter().find(|b| b.metric == "yield").unwrap();
+    let points = format!("{:.1}", 100.0 * record.margin.unwrap()).replace('-', "\u{2212}");
+    assert!(
+        yield_row.contains(&format!("margin {points} %-points")),
+        "{yield_row}"
+    );
+}

@@ -95,6 +95,31 @@ pub struct StageCircuit {
     /// White noise current density of a tail source carrying the whole tail current, A/√Hz
     /// (a source carrying the fraction `f` has `√f` of it).
     pub tail_noise_current: f64,
+    /// The P side's charge-storage elements relative to the M side's (nominal) ones.
+    pub p_charge_scale: ChargeScale,
+}
+
+/// Factors `1 + δ` on the P side's charge-storage elements (the M side is nominal).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct ChargeScale {
+    /// Load capacitance.
+    pub load_capacitance: f64,
+    /// Zero-bias base-emitter junction capacitance.
+    pub emitter_junction_capacitance: f64,
+    /// Zero-bias base-collector junction capacitance.
+    pub collector_junction_capacitance: f64,
+    /// Forward transit time.
+    pub transit_time: f64,
+}
+
+impl ChargeScale {
+    /// Both sides alike.
+    pub const MATCHED: ChargeScale = ChargeScale {
+        load_capacitance: 1.0,
+        emitter_junction_capacitance: 1.0,
+        collector_junction_capacitance: 1.0,
+        transit_time: 1.0,
+    };
 }
 
 /// The elements of a split tail before its transform to the emitter-resistor form.
@@ -286,6 +311,12 @@ impl StageCircuit {
             cell: Vec::new(),
             source_resistance: stage.source_resistance,
             tail_noise_current: stage.tail_noise_current,
+            p_charge_scale: ChargeScale {
+                load_capacitance: 1.0 + mismatch.load_capacitance,
+                emitter_junction_capacitance: 1.0 + mismatch.emitter_junction_capacitance,
+                collector_junction_capacitance: 1.0 + mismatch.collector_junction_capacitance,
+                transit_time: 1.0 + mismatch.transit_time,
+            },
         }
     }
 

@@ -171,13 +171,103 @@ pub struct NoiseBand {
     pub to: f64,
 }
 
-/// Degeneration sizing settings.
+/// A stage value sizing may choose. Each variant is one plan key under `sizing:`; a new
+/// variable (a multi-tanh cell's area ratio, say) is one more variant with its key, unit,
+/// getter and setter.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
+pub enum SizingVariable {
+    /// Emitter degeneration per side, Ω.
+    EmitterResistance,
+    /// Tail current (the pair's supply current), A.
+    TailCurrent,
+}
+
+impl SizingVariable {
+    /// Every variable, in the order the plan format lists them.
+    pub const ALL: [SizingVariable; 2] = [
+        SizingVariable::EmitterResistance,
+        SizingVariable::TailCurrent,
+    ];
+
+    /// The plan key (`emitter_resistance`, `tail_current`).
+    pub fn key(self) -> &'static str {
+        match self {
+            SizingVariable::EmitterResistance => "emitter_resistance",
+            SizingVariable::TailCurrent => "tail_current",
+        }
+    }
+
+    /// The variable a plan key names; `None` for any other key.
+    pub fn from_key(key: &str) -> Option<Self> {
+        Self::ALL.into_iter().find(|v| v.key() == key)
+    }
+
+    /// Unit symbol (`Ω`, `A`).
+    pub fn unit_symbol(self) -> &'static str {
+        match self {
+            SizingVariable::EmitterResistance => "Ω",
+            SizingVariable::TailCurrent => "A",
+        }
+    }
+
+    /// The symbol designers write for it (`R_E`, `I_tail`).
+    pub fn symbol(self) -> &'static str {
+        match self {
+            SizingVariable::EmitterResistance => "R_E",
+            SizingVariable::TailCurrent => "I_tail",
+        }
+    }
+
+    /// Whether its search grid is spaced geometrically (a quantity that only scales, with a
+    /// positive lower end) rather than evenly (a range that may start at zero).
+    pub fn geometric(self) -> bool {
+        matches!(self, SizingVariable::TailCurrent)
+    }
+
+    /// The stage's value of this variable.
+    pub fn value_of(self, stage: &Stage) -> f64 {
+        match self {
+            SizingVariable::EmitterResistance => stage.emitter_resistance,
+            SizingVariable::TailCurrent => stage.tail_current,
+        }
+    }
+
+    /// Sets this variable of `stage` to `value`.
+    pub fn set(self, stage: &mut Stage, value: f64) {
+        match self {
+            SizingVariable::EmitterResistance => stage.emitter_resistance = value,
+            SizingVariable::TailCurrent => stage.tail_current = value,
+        }
+    }
+}
+
+/// The range sizing may choose one variable from.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct VariableRange {
+    /// Which stage value.
+    pub variable: SizingVariable,
+    /// Lower end, in the variable's unit.
+    pub from: f64,
+    /// Upper end, in the variable's unit.
+    pub to: f64,
+}
+
+/// Degeneration sizing settings: the variables to choose, each with its range, the one to
+/// minimise, and how far inside every budget line the answer must stay.
+///
+/// ```
+/// use linbudget::{SizingSettings, SizingVariable};
+///
+/// let sizing = SizingSettings::new(0.0, 3e3).tail_current(0.2e-3, 5e-3);
+/// assert_eq!(sizing.minimise, SizingVariable::TailCurrent); // the default once current varies
+/// assert_eq!(sizing.range_of(SizingVariable::EmitterResistance), Some((0.0, 3e3)));
+/// ```
 #[derive(Debug, Clone, PartialEq)]
 pub struct SizingSettings {
-    /// Lower end of the emitter-resistance search, Ω.
-    pub from: f64,
-    /// Upper end of the emitter-resistance search, Ω.
-    pub to: f64,
+    /// The variables and their ranges, in plan order (at most one range per variable).
+    pub variables: Vec<VariableRange>,
+    /// The variable whose least value meeting every line is the answer.
+    pub minimise: SizingVariable,
     /// Rescale the load to hold the small-signal gain of the stage as planned.
     pub hold_gain: bool,
     /// Margin every line must keep at the recommended value, dB (0: the least value that
@@ -189,11 +279,51 @@ impl SizingSettings {
     /// Sizing of the emitter resistance over `from..=to` Ω, no guard band, load as planned.
     pub fn new(from: f64, to: f64) -> Self {
         SizingSettings {
-            from,
-            to,
+            variables: vec![VariableRange {
+                variable: SizingVariable::EmitterResistance,
+                from,
+                to,
+            }],
+            minimise: SizingVariable::EmitterResistance,
             hold_gain: false,
             guard_band_db: 0.0,
         }
+    }
+
+    /// Sizing of the tail current alone over `from..=to` A (degeneration as planned).
+    pub fn tail_current_only(from: f64, to: f64) -> Self {
+        SizingSettings {
+            variables: vec![VariableRange {
+                variable: SizingVariable::TailCurrent,
+                from,
+                to,
+            }],
+            minimise: SizingVariable::TailCurrent,
+            hold_gain: false,
+            guard_band_db: 0.0,
+        }
+    }
+
+    /// Adds the tail current over `from..=to` A as a variable and makes it the one to
+    /// minimise (the least supply current meeting every line).
+    #[must_use]
+    pub fn tail_current(mut self, from: f64, to: f64) -> Self {
+        self.variables
+            .retain(|v| v.variable != SizingVariable::TailCurrent);
+        self.variables.push(VariableRange {
+            variable: SizingVariable::TailCurrent,
+            from,
+            to,
+        });
+        self.minimise = SizingVariable::TailCurrent;
+        self
+    }
+
+    /// Sets the variable to minimise (it must be one of the variables).
+    #[must_use]
+    pub fn minimise(mut self, variable: SizingVariable) -> Self {
+        self.minimise = variable;
+        self
     }
 
     /// Sets the guard band, dB.
@@ -208,6 +338,29 @@ impl SizingSettings {
     pub fn hold_gain(mut self, hold_gain: bool) -> Self {
         self.hold_gain = hold_gain;
         self
+    }
+
+    /// The range of `variable`, if sizing chooses it.
+    pub fn range_of(&self, variable: SizingVariable) -> Option<(f64, f64)> {
+        self.variables
+            .iter()
+            .find(|v| v.variable == variable)
+            .map(|v| (v.from, v.to))
+    }
+
+    /// The emitter-resistance range, Ω (`(0, 0)` when the emitter resistance is not a
+    /// variable).
+    pub fn emitter_range(&self) -> (f64, f64) {
+        self.range_of(SizingVariable::EmitterResistance)
+            .unwrap_or((0.0, 0.0))
+    }
+
+    /// Whether this is the one-variable search of the least emitter resistance (scan,
+    /// windows and guard band), rather than a search over a region of several variables.
+    pub fn is_emitter_only(&self) -> bool {
+        self.variables.len() == 1
+            && self.variables[0].variable == SizingVariable::EmitterResistance
+            && self.minimise == SizingVariable::EmitterResistance
     }
 }
 

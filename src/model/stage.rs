@@ -258,6 +258,14 @@ pub struct Mismatch {
     pub beta: f64,
     /// Tail current of the P-side source over the M-side source (split tail only).
     pub tail_current: f64,
+    /// Load capacitance (charge storage: only stages with capacitance feel it).
+    pub load_capacitance: f64,
+    /// Zero-bias base-emitter junction capacitance.
+    pub emitter_junction_capacitance: f64,
+    /// Zero-bias base-collector junction capacitance.
+    pub collector_junction_capacitance: f64,
+    /// Forward transit time.
+    pub transit_time: f64,
 }
 
 quantity_builders!(Mismatch;
@@ -273,4 +281,12 @@ quantity_builders!(Mismatch;
     beta,
     /// Sets the split tail's source-current fraction.
     tail_current,
+    /// Sets the load-capacitance fraction.
+    load_capacitance,
+    /// Sets the base-emitter junction-capacitance fraction.
+    emitter_junction_capacitance,
+    /// Sets the base-collector junction-capacitance fraction.
+    collector_junction_capacitance,
+    /// Sets the transit-time fraction.
+    transit_time,
 );

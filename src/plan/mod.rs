@@ -21,7 +21,9 @@ use crate::model::bias::{temperature_supported, MODEL_TEMPERATURE_RANGE_C};
 use crate::model::budget::{BudgetLine, Limit, Metric, METRIC_NAMES};
 use crate::model::drive::{Drive, DEFAULT_THD_HARMONICS};
 use crate::model::plan::{ComparisonBasis, ComparisonSettings};
-use crate::model::plan::{MonteCarloSettings, NoiseBand, Plan, SizingSettings};
+use crate::model::plan::{
+    MonteCarloSettings, NoiseBand, Plan, SizingSettings, SizingVariable, VariableRange,
+};
 use crate::model::stage::{Mismatch, Stage};
 use crate::model::topology::{MultiTanh, MultiTanhForm, TanhPair, Topology};
 use crate::model::transistor::Transistor;
@@ -97,6 +99,10 @@ const MISMATCH_KEYS: &[&str] = &[
     "load_resistance",
     "base_resistance",
     "beta",
+    "load_capacitance",
+    "emitter_junction_capacitance",
+    "collector_junction_capacitance",
+    "transit_time",
     "tail_current",
 ];
 const DRIVE_KEYS: &[&str] = &[
@@ -107,7 +113,13 @@ const DRIVE_KEYS: &[&str] = &[
 ];
 const SWEEP_KEYS: &[&str] = &["from", "to", "points", "spacing"];
 const BUDGET_KEYS: &[&str] = &["metric", "at", "frequency", "max", "min"];
-const SIZING_KEYS: &[&str] = &["emitter_resistance", "hold_gain", "guard_band_db"];
+const SIZING_KEYS: &[&str] = &[
+    "emitter_resistance",
+    "tail_current",
+    "minimise",
+    "hold_gain",
+    "guard_band_db",
+];
 
 /// Tail currents a plan may name, A: refused outside (no single bipolar pair runs amperes, and
 /// below a picoampere the junction leakage the model leaves out dominates).
@@ -727,6 +739,20 @@ fn read_mismatch(stage: &MapAt, key: &str, range: Range) -> Result<Mismatch, Pla
         load_resistance: map.quantity_or("load_resistance", Unit::Ratio, range, 0.0)?,
         base_resistance: map.quantity_or("base_resistance", Unit::Ratio, range, 0.0)?,
         beta: map.quantity_or("beta", Unit::Ratio, range, 0.0)?,
+        load_capacitance: map.quantity_or("load_capacitance", Unit::Ratio, range, 0.0)?,
+        emitter_junction_capacitance: map.quantity_or(
+            "emitter_junction_capacitance",
+            Unit::Ratio,
+            range,
+            0.0,
+        )?,
+        collector_junction_capacitance: map.quantity_or(
+            "collector_junction_capacitance",
+            Unit::Ratio,
+            range,
+            0.0,
+        )?,
+        transit_time: map.quantity_or("transit_time", Unit::Ratio, range, 0.0)?,
         tail_current: map.quantity_or("tail_current", Unit::Ratio, range, 0.0)?,
     })
 }
@@ -1226,15 +1252,90 @@ fn reversed(map: &MapAt, what: &str, from: f64, to: f64, unit: Unit) -> PlanErro
     to_at.error(problem, "`from` below `to` (swap the two values)")
 }
 
+/// One sizing variable's `{from, to}` range, in its unit.
+fn read_variable_range(
+    map: &MapAt,
+    variable: SizingVariable,
+) -> Result<Option<VariableRange>, PlanError> {
+    let Some(range_at) = map.get(variable.key()) else {
+        return Ok(None);
+    };
+    let (unit, range_kind) = match variable {
+        SizingVariable::EmitterResistance => (Unit::Ohm, Range::NonNegative),
+        SizingVariable::TailCurrent => (Unit::Ampere, Range::Positive),
+    };
+    let range = range_at.map(&["from", "to"])?;
+    let from = range.quantity("from", unit, range_kind)?;
+    let to = range.quantity("to", unit, range_kind)?;
+    if to <= from {
+        let what = match variable {
+            SizingVariable::EmitterResistance => "sizing range",
+            SizingVariable::TailCurrent => "tail-current sizing range",
+        };
+        return Err(reversed(&range, what, from, to, unit));
+    }
+    Ok(Some(VariableRange { variable, from, to }))
+}
+
 fn read_sizing(at: &At) -> Result<SizingSettings, PlanError> {
     let map = at.map(SIZING_KEYS)?;
-    let range_at = map.required("emitter_resistance", "{from: 0, to: 5k}")?;
-    let range = range_at.map(&["from", "to"])?;
-    let from = range.quantity("from", Unit::Ohm, Range::NonNegative)?;
-    let to = range.quantity("to", Unit::Ohm, Range::NonNegative)?;
-    if to <= from {
-        return Err(reversed(&range, "sizing range", from, to, Unit::Ohm));
+    let mut variables = Vec::new();
+    for variable in SizingVariable::ALL {
+        if let Some(range) = read_variable_range(&map, variable)? {
+            variables.push(range);
+        }
     }
+    let names = SizingVariable::ALL
+        .iter()
+        .map(|v| format!("`{}`", v.key()))
+        .collect::<Vec<_>>()
+        .join(" or ");
+    if variables.is_empty() {
+        return Err(at.error(
+            "sizing names no variable to choose",
+            format!(
+                "at least one of {names}, each with {{from, to}}, e.g. `emitter_resistance: {{from: 0, to: 5k}}`"
+            ),
+        ));
+    }
+    let default_objective = if variables
+        .iter()
+        .any(|v| v.variable == SizingVariable::TailCurrent)
+    {
+        SizingVariable::TailCurrent
+    } else {
+        SizingVariable::EmitterResistance
+    };
+    let minimise = match map.get("minimise") {
+        None => default_objective,
+        Some(objective_at) => {
+            let listed = variables
+                .iter()
+                .map(|v| format!("`{}`", v.variable.key()))
+                .collect::<Vec<_>>()
+                .join(" or ");
+            let accepted = format!("one of the variables sizing chooses: {listed}");
+            let name = objective_at.text(&accepted)?;
+            match SizingVariable::from_key(name) {
+                Some(v) if variables.iter().any(|r| r.variable == v) => v,
+                Some(v) => {
+                    return Err(objective_at.error(
+                        format!(
+                            "`minimise: {}` needs `{}` among the sizing variables (with a range)",
+                            v.key(),
+                            v.key()
+                        ),
+                        accepted,
+                    ))
+                }
+                None => {
+                    return Err(
+                        objective_at.error(format!("`{name}` is not a sizing variable"), accepted)
+                    )
+                }
+            }
+        }
+    };
     let hold_gain = match map.get("hold_gain") {
         Some(h) => h.boolean()?,
         None => false,
@@ -1246,8 +1347,8 @@ fn read_sizing(at: &At) -> Result<SizingSettings, PlanError> {
         0.0,
     )?;
     Ok(SizingSettings {
-        from,
-        to,
+        variables,
+        minimise,
         hold_gain,
         guard_band_db,
     })

@@ -263,7 +263,13 @@ impl HarmonicsPlot {
             .filter(|(k, _)| points.iter().all(|p| p.values[*k].is_none()))
             .map(|(_, s)| s.label.clone())
             .collect();
-        let floor_dbc = report.analysis.analysis_floor_dbc;
+        // The points' own floor (a stage with capacitance is analysed to a higher floor than
+        // the plan-wide one); the highest applies to every point drawn.
+        let floor_dbc = here
+            .iter()
+            .map(|p| p.floor_dbc)
+            .reduce(f64::max)
+            .unwrap_or(report.analysis.analysis_floor_dbc);
         let bench: Vec<BenchMark> = bench_marks(report, Some(stage))
             .into_iter()
             .filter(|b| {

@@ -22,6 +22,7 @@ mod frequency;
 mod harmonics;
 pub mod key;
 mod monte_carlo;
+mod region;
 mod schemes;
 mod sizing;
 mod spectrum;
@@ -53,6 +54,11 @@ pub enum PlotKind {
     TwoTone,
     /// Budget margins versus emitter resistance with the chosen value.
     Sizing,
+    /// The map of tail current against emitter resistance: usable designs and the line
+    /// closing each edge.
+    SizingRegion,
+    /// Pareto fronts of supply current against input noise and the binding distortion.
+    SizingPareto,
     /// Harmonic stems at one drive point.
     Spectrum,
     /// Several stages overlaid.
@@ -75,6 +81,8 @@ impl PlotKind {
             PlotKind::Harmonics => "harmonics",
             PlotKind::TwoTone => "two-tone",
             PlotKind::Sizing => "sizing",
+            PlotKind::SizingRegion => "sizing-region",
+            PlotKind::SizingPareto => "sizing-pareto",
             PlotKind::Spectrum => "spectrum",
             PlotKind::StageComparison => "stage-comparison",
             PlotKind::Frequency => "frequency",
@@ -265,8 +273,8 @@ impl Sketch {
             | PlotKind::Sizing
             | PlotKind::Margins
             | PlotKind::Schemes => 5,
-            PlotKind::MonteCarlo => 4,
-            PlotKind::Spectrum => 3,
+            PlotKind::MonteCarlo | PlotKind::SizingRegion => 4,
+            PlotKind::Spectrum | PlotKind::SizingPareto => 3,
         }
     }
 }
@@ -356,6 +364,8 @@ pub fn sketches(report: &Report) -> Vec<Sketch> {
         per_stage!(two_tone::TwoTonePlot::all);
         per_stage!(spectrum::SpectrumPlot::new);
         per_stage!(sizing::SizingPlot::new);
+        per_stage!(region::RegionPlot::new);
+        per_stage!(region::ParetoPlot::new);
         per_stage!(frequency::FrequencyPlot::new);
         per_stage!(monte_carlo::MonteCarloPlot::new);
     }

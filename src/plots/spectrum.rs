@@ -65,7 +65,12 @@ impl SpectrumPlot {
             .cloned()
             .collect();
         let highest_order = points.iter().map(|p| p.harmonics.highest_order()).max()?;
-        let floor_dbc = report.analysis.analysis_floor_dbc;
+        // The points' own floor (higher than the plan-wide one for a stage with capacitance).
+        let floor_dbc = points
+            .iter()
+            .map(|p| p.floor_dbc)
+            .reduce(f64::max)
+            .unwrap_or(report.analysis.analysis_floor_dbc);
         let lowest = points
             .iter()
             .flat_map(|p| (2..=highest_order).filter_map(|k| p.harmonic(k)))

@@ -101,8 +101,8 @@ impl LineChecks {
         } else {
             format!("{value} at {}", self.case(worst))
         };
-        if let Some(m) = worst.margin {
-            text.push_str(&format!(" · margin {} dB", num(m, 1)));
+        if let Some(words) = margin_words(worst) {
+            text.push_str(&format!(" · {words}"));
         }
         if self.records.len() > 1 {
             let passing = self.records.iter().filter(|r| r.pass).count();
@@ -158,6 +158,44 @@ pub fn is_amplitude_line(line: &BudgetRecord) -> bool {
     line.at_v.is_some() && line.unit == "dBc"
 }
 
+/// Whether a record's margin is in dB (so it can share a dB axis with other lines).
+pub fn margin_in_db(record: &BudgetRecord) -> bool {
+    record.margin_unit == "dB"
+}
+
+/// A record's margin in words, in its own unit: `margin 1.5 dB`, `margin −594 mV`,
+/// `margin −30.9 %-points` for a yield, with `≥` when it is only a lower bound.
+pub fn margin_words(record: &BudgetRecord) -> Option<String> {
+    let m = record.margin.filter(|m| m.is_finite())?;
+    let value = match record.margin_unit.as_str() {
+        "dB" => format!("{} dB", num(m, 1)),
+        crate::report::YIELD_UNIT => format!("{} %-points", num(100.0 * m, 1)),
+        unit => si_short(m, unit),
+    };
+    let bound = if record.margin_at_least { "≥ " } else { "" };
+    Some(format!("margin {bound}{value}"))
+}
+
+/// Where a margin sits on the margins figure's dB axis. A dB margin is drawn as it is; a
+/// margin in another unit (volts, a yield's fraction) is drawn on its own scale: its share of
+/// the limit, the whole side of the axis standing for the whole limit (its true value and unit
+/// are in the key).
+pub fn margin_position(record: &BudgetRecord, margin: f64, axis: &Axis) -> f64 {
+    if margin_in_db(record) {
+        return margin.clamp(axis.low, axis.high);
+    }
+    let share = if record.limit.abs() > 0.0 {
+        (margin / record.limit.abs()).clamp(-1.0, 1.0)
+    } else {
+        margin.signum()
+    };
+    if share < 0.0 {
+        share * -axis.low
+    } else {
+        share * axis.high
+    }
+}
+
 /// Every budget line of a stage as a horizontal bar of its margin (dB) per temperature and
 /// corner, the limit at zero: the one figure where each line appears whatever its metric and
 /// frequency.
@@ -190,6 +228,7 @@ impl MarginsPlot {
         let margins = lines
             .iter()
             .flat_map(|l| &l.records)
+            .filter(|r| margin_in_db(r))
             .filter_map(|r| r.margin)
             .map(|m| m.clamp(-MARGIN_CLIP_DB, MARGIN_CLIP_DB));
         let (low, high) = margins.fold((0.0f64, 0.0f64), |(lo, hi), m| (lo.min(m), hi.max(m)));
@@ -255,11 +294,17 @@ impl Drawing for MarginsPlot {
         format!("Budget margins · {}", self.stage)
     }
     fn caption(&self) -> String {
+        let own_scale = self.lines.iter().any(|l| !margin_in_db(l.line()));
         format!(
-            "Margin of every budget line of “{}” in dB (positive passes; zero is the limit), one bar per temperature{}; margins beyond ±{} dB are drawn to the axis end.",
+            "Margin of every budget line of “{}” in dB (positive passes; zero is the limit), one bar per temperature{}; margins beyond ±{} dB are drawn to the axis end, an arrow marks a margin that is only a lower bound (the value is below the analysis floor){}.",
             self.stage,
             if self.has_corners() { " and process corner" } else { "" },
-            MARGIN_CLIP_DB
+            MARGIN_CLIP_DB,
+            if own_scale {
+                "; a hatched bar is a margin not in dB (volts, a yield's percentage points) drawn as its share of the limit, the whole side of the axis being the whole limit, its value in the key"
+            } else {
+                ""
+            }
         )
     }
     fn key(&self) -> Key {
@@ -267,6 +312,12 @@ impl Drawing for MarginsPlot {
         for (i, case) in self.cases.iter().enumerate() {
             let (colour, alpha) = self.case_style(i);
             key.entry(Swatch::Band { colour, alpha }, self.case_label(case));
+        }
+        if self.lines.iter().any(|l| !margin_in_db(l.line())) {
+            key.notes.push(
+                "Hatched: margin not in dB, drawn as a share of its limit (value in its row)."
+                    .into(),
+            );
         }
         key.verdict_heading = "Budget lines (worst case)".into();
         key.verdicts = self
@@ -322,28 +373,68 @@ impl Drawing for MarginsPlot {
         for (row, line) in self.lines.iter().enumerate() {
             // First line at the top.
             let centre = rows - 1.0 - row as f64;
-            for record in &line.records {
-                let Some(index) = self
-                    .cases
+            let own_scale = !margin_in_db(line.line());
+            let bar_top = |record: &BudgetRecord| {
+                self.cases
                     .iter()
                     .position(|c| c.0 == record.temperature_c && c.1 == record.corner)
-                else {
+                    .map(|index| (index, centre + 0.36 - index as f64 * band))
+            };
+            for record in &line.records {
+                let Some((index, top)) = bar_top(record) else {
                     continue;
                 };
-                let top = centre + 0.36 - index as f64 * band;
-                let margin = record
-                    .margin
-                    .unwrap_or(MARGIN_CLIP_DB)
-                    .clamp(axis.low, axis.high);
+                let margin = margin_position(record, record.margin.unwrap_or(MARGIN_CLIP_DB), axis);
                 let (colour, alpha) = self.case_style(index);
-                chart.draw_series(std::iter::once(Rectangle::new(
-                    [(0.0, top), (margin, top - band * 0.85)],
-                    colour.mix(alpha).filled(),
-                )))?;
+                let bottom = top - band * 0.85;
+                if own_scale {
+                    // Not in dB: a light bar with a hatched face and an outline.
+                    chart.draw_series(std::iter::once(Rectangle::new(
+                        [(0.0, top), (margin, bottom)],
+                        colour.mix(alpha * 0.3).filled(),
+                    )))?;
+                    let steps = 12;
+                    let hatch = (0..steps).map(|k| {
+                        let x = margin * k as f64 / steps as f64;
+                        let next = margin * (k as f64 + 0.5) / steps as f64;
+                        PathElement::new(
+                            vec![(x, bottom), (next, top)],
+                            colour.mix(alpha).stroke_width(1),
+                        )
+                    });
+                    chart.draw_series(hatch)?;
+                    chart.draw_series(std::iter::once(Rectangle::new(
+                        [(0.0, top), (margin, bottom)],
+                        colour.mix(alpha).stroke_width(1),
+                    )))?;
+                } else {
+                    chart.draw_series(std::iter::once(Rectangle::new(
+                        [(0.0, top), (margin, bottom)],
+                        colour.mix(alpha).filled(),
+                    )))?;
+                }
+                if record.margin_at_least {
+                    // Only a lower bound: an arrow pointing on past the bar's end.
+                    let tip = chart.backend_coord(&(margin, (top + bottom) / 2.0));
+                    let half = ((band * 0.85) * f64::from(chart.plotting_area().dim_in_pixel().1)
+                        / (rows + 0.0)
+                        / 2.0)
+                        .clamp(3.0, 9.0) as i32;
+                    root.draw(&Polygon::new(
+                        vec![
+                            (tip.0 + 2 * half, tip.1),
+                            (tip.0, tip.1 - half - 2),
+                            (tip.0, tip.1 + half + 2),
+                        ],
+                        INK.filled(),
+                    ))?;
+                }
             }
             let worst = line.worst();
-            if let Some(m) = worst.margin {
-                let at = chart.backend_coord(&(m.clamp(axis.low, axis.high), centre));
+            if let (Some(m), Some((_, top))) = (worst.margin, bar_top(worst)) {
+                // On the worst case's own bar.
+                let at = chart
+                    .backend_coord(&(margin_position(worst, m, axis), top - band * 0.85 / 2.0));
                 super::key::verdict_marker(root, (at.0, at.1), line.pass())?;
             }
             let label_at = chart.backend_coord(&(axis.low, centre));
@@ -354,8 +445,13 @@ impl Drawing for MarginsPlot {
                     .color(&INK)
                     .pos(Pos::new(HPos::Right, VPos::Center)),
             ))?;
+            let frequency = si_exact(line.line().frequency_hz, "Hz");
             root.draw(&Text::new(
-                si_exact(line.line().frequency_hz, "Hz"),
+                if own_scale {
+                    format!("{frequency} · bar: share of limit")
+                } else {
+                    frequency
+                },
                 (label_at.0 - 12, label_at.1 + 12),
                 text(LEGEND_PX - 2.0, MUTED).pos(Pos::new(HPos::Right, VPos::Center)),
             ))?;

@@ -5,13 +5,14 @@ use crate::error::Error;
 use crate::measure::small_signal::STEERING_FRACTION;
 use crate::model::budget::{BudgetLine, Limit, Metric};
 use crate::model::corner::TYPICAL;
-use crate::model::plan::{Plan, PlanCaution, SizingSettings};
+use crate::model::plan::{Plan, PlanCaution, SizingSettings, SizingVariable};
 use crate::model::stage::Stage;
 use crate::report::text::celsius;
 use crate::report::{
-    dbm, quantity_text, AnalysisRecord, BudgetRecord, DesignVerdictRecord, FailingCheckRecord,
-    FitRecord, FitSummaryRecord, Harmonics, InterceptRecord, MonteCarloRecord, PointRecord,
-    RecommendedStageRecord, RecommendedVerdictRecord, Region, Report, ResidualRecord,
+    dbm, quantity_text, AnalysisRecord, BudgetRecord, DesignVerdictRecord, DistortionFrontRecord,
+    FailingCheckRecord, FitRecord, FitSummaryRecord, FrontRecord, Harmonics, InterceptRecord,
+    MonteCarloRecord, PointRecord, RecommendedStageRecord, RecommendedVerdictRecord, Region,
+    RegionCellRecord, RegionRecord, RegionRowRecord, RegionSpanRecord, Report, ResidualRecord,
     ResidualSummaryRecord, SizingRecord, SizingScanRecord, SpreadRecord, StageRecord,
     TransferRecord, UnreachableRecord, VerdictRecord, YieldLineRecord, YieldRecord, CAUTION,
 };
@@ -22,6 +23,7 @@ use crate::study::corners::{CornerSpread, SpreadFigure};
 use crate::study::evaluate::{evaluate, PlanEvaluation, Progress, RecommendedStage};
 use crate::study::fit::{BenchComparison, FitOutcome, FitTermination};
 use crate::study::montecarlo::{Population, PopulationFigure};
+use crate::study::region::{Axis, FrontPoint, RegionOutcome, RegionPoint};
 use crate::study::sizing::{
     Basis, Binding, RangeEnd, RangeHint, SizingOutcome, Trial, Unreachable,
 };
@@ -72,12 +74,13 @@ pub fn build_judged(plan: &Plan, evaluation: PlanEvaluation, judged: Judged) -> 
         spread,
         population,
         sizing,
+        regions,
         recommended,
         fits,
         comparisons,
         schemes,
     } = evaluation;
-    let verdict = verdict_record(plan, &verdict, &recommended, &sizing, judged);
+    let verdict = verdict_record(plan, &verdict, &recommended, &sizing, &regions, judged);
     let met = verdict.met;
     let mut report = Report {
         plan: plan.name.clone(),
@@ -87,6 +90,7 @@ pub fn build_judged(plan: &Plan, evaluation: PlanEvaluation, judged: Judged) -> 
         yield_: Vec::new(),
         budget: Vec::new(),
         sizing: Vec::new(),
+        sizing_region: Vec::new(),
         corner_spread: spread.iter().map(|s| spread_record(plan, s)).collect(),
         stages: Vec::new(),
         fit: Vec::new(),
@@ -139,6 +143,10 @@ pub fn build_judged(plan: &Plan, evaluation: PlanEvaluation, judged: Judged) -> 
         report.warnings.extend(warnings);
     }
     report.sizing = sizing.into_iter().map(|s| sizing_record(plan, s)).collect();
+    for outcome in &regions {
+        report.sizing.extend(region_sizing_records(plan, outcome));
+        report.sizing_region.push(region_record(plan, outcome));
+    }
     for fit in &fits {
         let (parameters, summary, warnings) = fit_records(fit);
         report.fit.extend(parameters);
@@ -305,7 +313,7 @@ fn unreachable_record(
     };
     let advice = match unreachable.at_end {
         Some(RangeEnd::To) => "; it still improves at `to`: widen `to`".to_owned(),
-        Some(RangeEnd::From) if settings.from > 0.0 => {
+        Some(RangeEnd::From) if settings.emitter_range().0 > 0.0 => {
             "; it still improves at `from`: lower `from`".to_owned()
         }
         Some(RangeEnd::From) => "; no degeneration at all is the best it gets".to_owned(),
@@ -326,8 +334,8 @@ fn unreachable_record(
         text: format!(
             "{} cannot be met at any R_E from {} to {} for `{}` at {}; {best} at {}{corner}{advice}",
             line_text(line, at_v),
-            format_si(settings.from, "Ω"),
-            format_si(settings.to, "Ω"),
+            format_si(settings.emitter_range().0, "Ω"),
+            format_si(settings.emitter_range().1, "Ω"),
             outcome.stage,
             celsius(outcome.temperature_c),
             format_si(unreachable.at_emitter_resistance, "Ω"),
@@ -340,19 +348,19 @@ fn hint_text(settings: &SizingSettings, outcome: &SizingOutcome, hint: RangeHint
     match hint {
         RangeHint::AnswerAtFrom => format!(
             "{at}: the least value that holds is `from` itself ({}); a smaller one may hold too: lower `from`",
-            format_si(settings.from, "Ω")
+            format_si(settings.emitter_range().0, "Ω")
         ),
         RangeHint::AnswerNearTo => format!(
             "{at}: the only values that hold lie in the last scan step below `to` ({}): widen `to` to see how far the window extends",
-            format_si(settings.to, "Ω")
+            format_si(settings.emitter_range().1, "Ω")
         ),
         RangeHint::BestAt(RangeEnd::To) => format!(
             "{at}: no value holds every line, and the worst margin still improves at `to` ({}): widen `to`",
-            format_si(settings.to, "Ω")
+            format_si(settings.emitter_range().1, "Ω")
         ),
         RangeHint::BestAt(RangeEnd::From) => format!(
             "{at}: no value holds every line, and the worst margin still improves at `from` ({}): lower `from`",
-            format_si(settings.from, "Ω")
+            format_si(settings.emitter_range().0, "Ω")
         ),
     }
 }
@@ -363,6 +371,9 @@ fn basis_name(basis: Basis) -> &'static str {
         Basis::ReachableLines => "least_meeting_reachable_lines",
         Basis::BestWorstMargin => "best_worst_margin",
         Basis::YieldInWindow => "least_in_common_window_meeting_yield",
+        Basis::LeastInRegion => "least_in_region",
+        Basis::BestInRegion => "best_in_region",
+        Basis::YieldInRegion => "least_in_region_meeting_yield",
     }
 }
 
@@ -371,6 +382,7 @@ fn recommended_stage_record(
     settings: &SizingSettings,
     design: &RecommendedStage,
     sizing: &[SizingOutcome],
+    regions: &[RegionOutcome],
 ) -> RecommendedStageRecord {
     let r = &design.recommendation;
     let planned = &plan.stages[r.stage_index];
@@ -386,6 +398,16 @@ fn recommended_stage_record(
         hints.push(
             "no value tried in the usable windows brings the Monte Carlo yield up to the yield line: the yield is limited by matching, not by degeneration (tighten mismatch_sigma or relax the line)".into(),
         );
+    }
+    if let Some(region) = regions.iter().find(|o| o.stage_index == r.stage_index) {
+        hints.extend(region_hints(plan, region));
+        if r.basis == Basis::YieldInRegion {
+            hints.push(format!(
+                "the least {} holding every other line falls short of the yield line; {} is the first value of the map above it whose Monte Carlo population meets it",
+                region.primary.variable.key(),
+                variable_text(region.primary.variable, variable_value(region.primary.variable, r))
+            ));
+        }
     }
     if r.basis == Basis::YieldInWindow {
         hints.push(format!(
@@ -411,7 +433,9 @@ fn recommended_stage_record(
         evaluated_as: design.stage.name.clone(),
         emitter_resistance_ohm: r.emitter_resistance,
         load_resistance_ohm: r.load_resistance,
+        tail_current_a: r.tail_current,
         planned_emitter_resistance_ohm: planned.emitter_resistance,
+        planned_tail_current_a: planned.tail_current,
         planned_load_resistance_ohm: planned.load_resistance,
         found: r.met,
         basis: basis_name(r.basis).into(),
@@ -433,6 +457,7 @@ fn verdict_record(
     verdict: &Verdict,
     recommended: &[RecommendedStage],
     sizing: &[SizingOutcome],
+    regions: &[RegionOutcome],
     judged: Judged,
 ) -> VerdictRecord {
     let recommended_record = match (&verdict.recommended, &plan.sizing) {
@@ -444,7 +469,7 @@ fn verdict_record(
                 failing: design.failing,
                 stages: recommended
                     .iter()
-                    .map(|d| recommended_stage_record(plan, settings, d, sizing))
+                    .map(|d| recommended_stage_record(plan, settings, d, sizing, regions))
                     .collect(),
             })
         }
@@ -465,25 +490,30 @@ fn verdict_record(
 /// load where it differs from the plan's.
 fn values_text(stages: &[RecommendedStageRecord]) -> String {
     let one = |s: &RecommendedStageRecord| {
-        let load = if (s.load_resistance_ohm / s.planned_load_resistance_ohm - 1.0).abs() > 1e-9 {
-            format!(" and R_L = {}", format_si(s.load_resistance_ohm, "Ω"))
-        } else {
-            String::new()
-        };
-        (format_si(s.emitter_resistance_ohm, "Ω"), load)
+        let mut extra = String::new();
+        if (s.tail_current_a / s.planned_tail_current_a - 1.0).abs() > 1e-9 {
+            extra.push_str(&format!(", I_tail = {}", format_si(s.tail_current_a, "A")));
+        }
+        if (s.load_resistance_ohm / s.planned_load_resistance_ohm - 1.0).abs() > 1e-9 {
+            extra.push_str(&format!(
+                " and R_L = {}",
+                format_si(s.load_resistance_ohm, "Ω")
+            ));
+        }
+        (format_si(s.emitter_resistance_ohm, "Ω"), extra)
     };
     match stages {
         [single] => {
-            let (r_e, load) = one(single);
-            format!("R_E = {r_e}{load}")
+            let (r_e, extra) = one(single);
+            format!("R_E = {r_e}{extra}")
         }
         _ => format!(
             "R_E = {}",
             stages
                 .iter()
                 .map(|s| {
-                    let (r_e, load) = one(s);
-                    format!("{r_e}{load} for `{}`", s.stage)
+                    let (r_e, extra) = one(s);
+                    format!("{r_e}{extra} for `{}`", s.stage)
                 })
                 .collect::<Vec<_>>()
                 .join(", ")
@@ -503,13 +533,32 @@ fn failing_count(v: &DesignVerdictRecord) -> String {
     }
 }
 
+/// The failing check a headline names: the first failing line in report order, and of its
+/// checks (one stage, every temperature and corner) the one with the least margin — margins of
+/// one line share a unit, so they compare.
+fn worst_failure(failing: &[FailingCheckRecord]) -> Option<&FailingCheckRecord> {
+    let first = failing.first()?;
+    failing
+        .iter()
+        .filter(|f| {
+            f.stage == first.stage
+                && f.metric == first.metric
+                && f.at_v == first.at_v
+                && f.kind == first.kind
+                && f.limit == first.limit
+        })
+        .min_by(|a, b| {
+            a.margin
+                .unwrap_or(f64::INFINITY)
+                .total_cmp(&b.margin.unwrap_or(f64::INFINITY))
+        })
+}
+
 /// The answer in one line, naming the design that met (or did not).
 fn summary_line(v: &VerdictRecord, judged: Judged) -> String {
     let planned = &v.as_planned;
     let first_failure = |design: &DesignVerdictRecord| {
-        design
-            .failing
-            .first()
+        worst_failure(&design.failing)
             .map(|f| format!(" — {}", f.text))
             .unwrap_or_default()
     };
@@ -530,7 +579,7 @@ fn summary_line(v: &VerdictRecord, judged: Judged) -> String {
                     .flat_map(|s| s.unreachable.first())
                     .next()
                     .map(|u| format!(" — {}", u.text))
-                    .or_else(|| r.failing.first().map(|f| format!(" — {}", f.text)))
+                    .or_else(|| worst_failure(&r.failing).map(|f| format!(" — {}", f.text)))
                     .or_else(|| {
                         r.stages
                             .iter()
@@ -734,6 +783,9 @@ fn case_records(plan: &Plan, case: CaseEvaluation, derived_from: Option<String>)
                 corner: corner.clone(),
                 margin_unit: if line.metric.margin_in_volts() {
                     "V"
+                } else if line.metric == Metric::Yield {
+                    // A yield's margin is the pass fraction less the limit.
+                    crate::report::YIELD_UNIT
                 } else {
                     "dB"
                 }
@@ -957,6 +1009,7 @@ fn sizing_record(plan: &Plan, outcome: SizingOutcome) -> SizingRecord {
         stage: outcome.stage.clone(),
         temperature_c: outcome.temperature_c,
         emitter_resistance_ohm: Some(chosen.emitter_resistance),
+        tail_current_a: Some(chosen.tail_current),
         binding_metric: match outcome.binding {
             Binding::Headroom => "collector_base_margin".into(),
             Binding::TailCompliance => "tail_compliance".into(),
@@ -1000,6 +1053,224 @@ fn sizing_record(plan: &Plan, outcome: SizingOutcome) -> SizingRecord {
                 .collect(),
             None => Vec::new(),
         },
+    }
+}
+
+/// A binding in the report's words: the metric name (`collector_base_margin` for the implicit
+/// headroom of `hold_gain`, `none` for no line) and the line's index.
+fn binding_name(plan: &Plan, binding: Binding) -> (String, Option<usize>) {
+    match binding {
+        Binding::Line(index) => (plan.budget[index].metric.name(), Some(index)),
+        Binding::Headroom => ("collector_base_margin".into(), None),
+        Binding::TailCompliance => ("tail_compliance".into(), None),
+        Binding::Nothing => ("none".into(), None),
+    }
+}
+
+/// A sizing variable's value with its unit, SI-prefixed.
+fn variable_text(variable: SizingVariable, value: f64) -> String {
+    format_si(value, variable.unit_symbol())
+}
+
+/// A recommendation's value of `variable`.
+fn variable_value(variable: SizingVariable, r: &crate::study::sizing::Recommendation) -> f64 {
+    match variable {
+        SizingVariable::EmitterResistance => r.emitter_resistance,
+        SizingVariable::TailCurrent => r.tail_current,
+    }
+}
+
+/// A margin that JSON can hold: `None` when unbounded.
+fn finite(value: f64) -> Option<f64> {
+    value.is_finite().then_some(value)
+}
+
+/// Advice about a region search's ranges, in words.
+fn region_hints(plan: &Plan, region: &RegionOutcome) -> Vec<String> {
+    let _ = plan;
+    let key = region.primary.variable.key();
+    let mut hints = Vec::new();
+    if region.at_from {
+        hints.push(format!(
+            "the least {key} that holds is `from` itself ({}); a smaller one may hold too: lower `sizing.{key}.from`",
+            variable_text(region.primary.variable, region.primary.from)
+        ));
+    }
+    if region.near_to {
+        hints.push(format!(
+            "only the last grid step below `sizing.{key}.to` ({}) holds: widen `to` to see more of the region",
+            variable_text(region.primary.variable, region.primary.to)
+        ));
+    }
+    if !region.met {
+        let (metric, _) = binding_name(plan, region.chosen.limiting);
+        let other = region
+            .secondary
+            .as_ref()
+            .map(|a| format!(" and {}", a.variable.key()))
+            .unwrap_or_default();
+        hints.push(format!(
+            "no design in the ranges of {key}{other} holds every line by the guard band; the best one ({}) is limited by {} at {}",
+            design_text(&region.chosen),
+            metric.replace('_', " "),
+            celsius(region.chosen.limiting_temperature_c)
+        ));
+    }
+    hints
+}
+
+/// A region design in words: `I_tail = 1.2 mA, R_E = 350 Ω`.
+fn design_text(point: &RegionPoint) -> String {
+    format!(
+        "I_tail = {}, R_E = {}",
+        format_si(point.tail_current(), "A"),
+        format_si(point.emitter_resistance(), "Ω")
+    )
+}
+
+/// The sizing records of a region search: one per temperature, at the design found.
+fn region_sizing_records(plan: &Plan, region: &RegionOutcome) -> Vec<SizingRecord> {
+    let counted: Vec<bool> = plan
+        .budget
+        .iter()
+        .map(|l| !l.metric.is_population())
+        .collect();
+    let volts: Vec<bool> = plan
+        .budget
+        .iter()
+        .map(|l| l.metric.margin_in_volts())
+        .collect();
+    let reference = region.map.first();
+    region
+        .chosen
+        .trials
+        .iter()
+        .enumerate()
+        .map(|(k, trial)| {
+            let ((worst, binding), corner) = trial.worst_with_corner(&counted, &volts);
+            let binding = if trial.headroom_v.is_some_and(|h| h < 0.05) && worst > 0.5 {
+                Binding::Headroom
+            } else {
+                binding
+            };
+            let reference_gain = reference.and_then(|p| p.trials.get(k)).map(|t| t.gain_db);
+            SizingRecord {
+                stage: region.stage.clone(),
+                temperature_c: plan.temperatures_c[k],
+                emitter_resistance_ohm: Some(trial.emitter_resistance),
+                tail_current_a: Some(trial.tail_current),
+                binding_metric: binding_name(plan, binding).0,
+                met: region.met,
+                best_margin: worst,
+                gain_db: Some(trial.gain_db),
+                gain_cost_db: reference_gain.map(|g| g - trial.gain_db),
+                steering_range_v: Some(trial.steering_range_v),
+                load_resistance_ohm: Some(trial.load_resistance),
+                headroom_binds: binding == Binding::Headroom,
+                best_headroom_v: trial.headroom_v,
+                collector_base_margin_v: Some(trial.collector_base_margin_v),
+                scan: Vec::new(),
+                binding_corner: corner,
+                distortion_least_emitter_resistance_ohm: None,
+                noise_greatest_emitter_resistance_ohm: None,
+                conflict_gap_ohm: None,
+                guard_band_db: region.guard_band_db,
+                window_ohm: Vec::new(),
+                unreachable: Vec::new(),
+                hints: Vec::new(),
+            }
+        })
+        .collect()
+}
+
+fn front_record(point: &FrontPoint) -> FrontRecord {
+    FrontRecord {
+        tail_current_a: point.tail_current,
+        emitter_resistance_ohm: point.emitter_resistance,
+        value: point.value,
+        margin: point.margin,
+    }
+}
+
+/// The record of a region search: map, rows with their edges' lines, Pareto fronts.
+fn region_record(plan: &Plan, region: &RegionOutcome) -> RegionRecord {
+    let axes: Vec<&Axis> = std::iter::once(&region.primary)
+        .chain(region.secondary.as_ref())
+        .collect();
+    let name = |b: Binding| binding_name(plan, b).0;
+    let (binding_metric, binding_line) = binding_name(plan, region.chosen.limiting);
+    RegionRecord {
+        stage: region.stage.clone(),
+        minimise: region.primary.variable.key().into(),
+        variables: axes.iter().map(|a| a.variable.key().to_owned()).collect(),
+        units: axes
+            .iter()
+            .map(|a| a.variable.unit_symbol().to_owned())
+            .collect(),
+        grid: axes.iter().map(|a| a.grid.clone()).collect(),
+        met: region.met,
+        guard_band_db: region.guard_band_db,
+        tail_current_a: region.chosen.tail_current(),
+        emitter_resistance_ohm: region.chosen.emitter_resistance(),
+        load_resistance_ohm: region.chosen.load_resistance(),
+        binding_metric,
+        binding_line,
+        binding_temperature_c: region.chosen.limiting_temperature_c,
+        excess_db: finite(region.chosen.excess),
+        designs_evaluated: region.designs_evaluated,
+        cells: region
+            .map
+            .iter()
+            .map(|p| {
+                let (limiting_metric, limiting_line) = binding_name(plan, p.limiting);
+                RegionCellRecord {
+                    tail_current_a: p.tail_current(),
+                    emitter_resistance_ohm: p.emitter_resistance(),
+                    holds: p.holds,
+                    limiting_metric,
+                    limiting_line,
+                    limiting_temperature_c: p.limiting_temperature_c,
+                    excess_db: finite(p.excess),
+                    input_noise_v_rthz: finite(p.input_noise_v_rthz)
+                        .filter(|_| p.trials.iter().all(|t| t.biases)),
+                    gain_db: p.trials.first().and_then(|t| finite(t.gain_db)),
+                }
+            })
+            .collect(),
+        rows: region
+            .rows
+            .iter()
+            .map(|row| RegionRowRecord {
+                value: row.primary,
+                spans: row
+                    .spans
+                    .iter()
+                    .map(|span| RegionSpanRecord {
+                        low: span.low,
+                        high: span.high,
+                        below: span.below.map(name),
+                        above: span.above.map(name),
+                    })
+                    .collect(),
+                limiting_metric: row.limiting.map(name),
+            })
+            .collect(),
+        noise_front: region.noise_front.iter().map(front_record).collect(),
+        distortion_front: region.distortion_line.map(|index| {
+            let line = &plan.budget[index];
+            DistortionFrontRecord {
+                metric: line.metric.name(),
+                line: index,
+                at_v: line
+                    .metric
+                    .needs_amplitude()
+                    .then(|| plan.drive.amplitude_of(line)),
+                unit: line.metric.unit_label().into(),
+                limit: line.limit.value(),
+                points: region.distortion_front.iter().map(front_record).collect(),
+            }
+        }),
+        hints: region_hints(plan, region),
     }
 }
 
@@ -1486,5 +1757,32 @@ mod tests {
         assert!(default_bias_saturation_warnings(&biased, 27.0, &points).is_empty());
         let none: Vec<PointRecord> = [0.1, 0.2].iter().map(|&a| point(a, false)).collect();
         assert!(default_bias_saturation_warnings(&stage, 27.0, &none).is_empty());
+    }
+
+    #[test]
+    fn the_headline_names_the_failing_check_with_the_least_margin_of_its_line() {
+        // A check fails by its margin: of one line's failing checks, the worst is the one
+        // furthest past the limit (common practice), not the first in temperature order.
+        let check = |t: f64, metric: &str, value: f64, margin: f64| FailingCheckRecord {
+            stage: "pair".into(),
+            temperature_c: t,
+            corner: TYPICAL.into(),
+            metric: metric.into(),
+            at_v: Some(0.1),
+            kind: "max".into(),
+            limit: -45.0,
+            value: Some(value),
+            margin: Some(margin),
+            unit: "dBc".into(),
+            text: format!("{metric} at {t}"),
+        };
+        let failing = [
+            check(27.0, "hd3", -44.82, -0.18),
+            check(85.0, "hd3", -44.73, -0.27),
+            check(27.0, "thd", -30.0, -5.0),
+        ];
+        let worst = worst_failure(&failing).unwrap();
+        assert_eq!((worst.metric.as_str(), worst.temperature_c), ("hd3", 85.0));
+        assert!(worst_failure(&[]).is_none());
     }
 }

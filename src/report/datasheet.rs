@@ -403,6 +403,7 @@ pub fn sizing_table(report: &Report) -> Table {
         ("stage", false),
         ("T (°C)", true),
         ("R_E", true),
+        ("I_tail", true),
         ("binding line", false),
     ];
     if corners {
@@ -420,7 +421,10 @@ pub fn sizing_table(report: &Report) -> Table {
     let mut table = Table::new(columns);
     let ohms = |v: Option<f64>| v.map(|r| si_short(r, "Ω")).unwrap_or_else(|| "—".into());
     for s in &report.sizing {
-        let windows = if s.window_ohm.is_empty() {
+        let in_region = report.sizing_region.iter().any(|r| r.stage == s.stage);
+        let windows = if in_region {
+            "— (see the region)".to_owned()
+        } else if s.window_ohm.is_empty() {
             "none".to_owned()
         } else {
             s.window_ohm
@@ -433,6 +437,10 @@ pub fn sizing_table(report: &Report) -> Table {
             s.stage.as_str().into(),
             temperature_cell(s.temperature_c).into(),
             ohms(s.emitter_resistance_ohm).into(),
+            s.tail_current_a
+                .map(|i| si_short(i, "A"))
+                .unwrap_or_else(|| "—".into())
+                .into(),
             metric_label(&s.binding_metric).into(),
         ];
         if corners {
@@ -454,6 +462,8 @@ pub fn sizing_table(report: &Report) -> Table {
     }
     table
 }
+
+use super::sizing_region::{line_name, region_tables};
 
 fn list_of(values: &[f64], unit: &str) -> String {
     values
@@ -616,7 +626,7 @@ pub fn blocks(report: &Report, figures: &[EmbeddedFigure]) -> Vec<Block> {
             .map(|s| s.guard_band_db)
             .unwrap_or(0.0);
         out.push(Block::Paragraph(format!(
-            "Per temperature, the least emitter resistance per side that holds every budget line{} (or the best found when none does), and the usable windows: every value inside holds every line.",
+            "Per temperature, the least emitter resistance per side that holds every budget line{} (or the best found when none does), and the usable windows: every value inside holds every line. A stage whose tail current is sized too shows the design of least current instead (its region follows).",
             if guard > 0.0 { format!(" with {guard} dB of guard band") } else { String::new() }
         )));
         out.push(Block::Table(sizing_table(report)));
@@ -630,7 +640,37 @@ pub fn blocks(report: &Report, figures: &[EmbeddedFigure]) -> Vec<Block> {
                         format!("{} – {}", si_short(*low, "Ω"), si_short(*high, "Ω"))
                     })
                     .collect();
-                advice.push(if s.found {
+                let region_basis = s.basis.contains("in_region");
+                let minimised = report
+                    .sizing_region
+                    .iter()
+                    .find(|r| r.stage == s.stage)
+                    .map(|r| r.minimise.replace('_', " "))
+                    .unwrap_or_else(|| "tail current".into());
+                let least_text =
+                    format!("the least {minimised} holding every line at every temperature");
+                let yield_text = format!(
+                    "the least grid {minimised} above that whose Monte Carlo population meets the yield line too"
+                );
+                advice.push(if region_basis {
+                    format!(
+                        "{}: {} I_tail = {} and R_E = {} per side{} ({}).",
+                        s.stage,
+                        if recommended.met { "build" } else { "evaluated at" },
+                        crate::units::format_si(s.tail_current_a, "A"),
+                        crate::units::format_si(s.emitter_resistance_ohm, "Ω"),
+                        if (s.load_resistance_ohm / s.planned_load_resistance_ohm - 1.0).abs() > 1e-9 {
+                            format!(" with R_L = {}", crate::units::format_si(s.load_resistance_ohm, "Ω"))
+                        } else {
+                            String::new()
+                        },
+                        match s.basis.as_str() {
+                            "least_in_region" => least_text.as_str(),
+                            "least_in_region_meeting_yield" => yield_text.as_str(),
+                            _ => "no design holds every line; the one with the best worst-line margin",
+                        }
+                    )
+                } else if s.found {
                     format!(
                         "{}: {} R_E = {} ({}; usable at every temperature: {}).",
                         s.stage,
@@ -658,6 +698,43 @@ pub fn blocks(report: &Report, figures: &[EmbeddedFigure]) -> Vec<Block> {
                 advice.extend(s.hints.iter().cloned());
             }
             out.push(Block::Bullets(advice));
+        }
+    }
+    for region in &report.sizing_region {
+        out.push(Block::Heading(
+            2,
+            format!("Sizing current and degeneration · {}", region.stage),
+        ));
+        let si = crate::units::format_si;
+        out.push(Block::Paragraph(if region.met {
+            format!(
+                "The least {} holding every budget line at every temperature{}: I_tail = {}, R_E = {} per side, limited by {} at {} °C ({} designs evaluated). The map and the fronts below are on the search grid; the design itself is refined between grid values.",
+                region.minimise.replace('_', " "),
+                if region.guard_band_db > 0.0 {
+                    format!(" with {} dB of guard band", region.guard_band_db)
+                } else {
+                    String::new()
+                },
+                si(region.tail_current_a, "A"),
+                si(region.emitter_resistance_ohm, "Ω"),
+                line_name(Some(&region.binding_metric)),
+                region.binding_temperature_c,
+                region.designs_evaluated
+            )
+        } else {
+            format!(
+                "No design in the ranges holds every budget line at every temperature; the best (I_tail = {}, R_E = {}) is limited by {}.",
+                si(region.tail_current_a, "A"),
+                si(region.emitter_resistance_ohm, "Ω"),
+                line_name(Some(&region.binding_metric))
+            )
+        }));
+        for (text, table) in region_tables(region) {
+            out.push(Block::Paragraph(text));
+            out.push(Block::Table(table));
+        }
+        if !region.hints.is_empty() {
+            out.push(Block::Bullets(region.hints.clone()));
         }
     }
     correlation_blocks(report, &mut out);

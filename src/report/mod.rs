@@ -13,6 +13,7 @@ pub mod csv;
 pub mod datasheet;
 pub mod json;
 pub mod queries;
+pub mod sizing_region;
 pub mod summary;
 pub mod table;
 pub mod text;
@@ -98,6 +99,10 @@ pub struct Report {
     pub budget: Vec<BudgetRecord>,
     /// Degeneration sizing per stage and temperature.
     pub sizing: Vec<SizingRecord>,
+    /// Sizing over a region of several variables (tail current and emitter resistance), one
+    /// per stage: the map of the region, the edges' binding lines and the Pareto fronts.
+    #[serde(default)]
+    pub sizing_region: Vec<RegionRecord>,
     /// Typical, minimum and maximum of each figure across the process corners.
     #[serde(default)]
     pub corner_spread: Vec<SpreadRecord>,
@@ -274,15 +279,22 @@ pub struct RecommendedStageRecord {
     pub emitter_resistance_ohm: f64,
     /// Load resistance per side to build, Ω (rescaled with `hold_gain`).
     pub load_resistance_ohm: f64,
+    /// Tail current to build, A (the plan's unless sizing chooses it).
+    #[serde(default)]
+    pub tail_current_a: f64,
     /// The plan's emitter resistance, Ω.
     pub planned_emitter_resistance_ohm: f64,
+    /// The plan's tail current, A.
+    #[serde(default)]
+    pub planned_tail_current_a: f64,
     /// The plan's load resistance, Ω.
     pub planned_load_resistance_ohm: f64,
     /// Whether sizing found a value holding every line (by the guard band) at every
     /// temperature.
     pub found: bool,
-    /// How the value was found: `least_in_common_window`, `least_meeting_reachable_lines` or
-    /// `best_worst_margin`.
+    /// How the value was found: `least_in_common_window`, `least_meeting_reachable_lines`,
+    /// `best_worst_margin`, `least_in_common_window_meeting_yield`, or, for a region of
+    /// several variables, `least_in_region`, `best_in_region`, `least_in_region_meeting_yield`.
     pub basis: String,
     /// Windows of R_E holding every line at every temperature, Ω.
     pub window_ohm: Vec<[f64; 2]>,
@@ -832,8 +844,8 @@ pub struct BudgetRecord {
     pub kind: String,
     /// The measured value (null: below the analysis floor, or unbounded).
     pub value: Option<f64>,
-    /// Margin, positive when the line passes: in dB, or in volts for `collector_base_margin`
-    /// (see `margin_unit`).
+    /// Margin, positive when the line passes: in dB, in volts for `collector_base_margin`, a
+    /// fraction for `yield` (see `margin_unit`).
     pub margin: Option<f64>,
     /// Whether the line passes.
     pub pass: bool,
@@ -842,7 +854,8 @@ pub struct BudgetRecord {
     /// Process corner.
     #[serde(default)]
     pub corner: String,
-    /// Unit of `margin`: `dB`, or `V` for `collector_base_margin` lines.
+    /// Unit of `margin`: `dB`, `V` for `collector_base_margin` lines, or `fraction` for a
+    /// yield line (the pass fraction less the limit: −0.05 is 5 percentage points short).
     pub margin_unit: String,
     /// Operating region of the drive the value rests on: the tone or two tones at `at_v`,
     /// the P1dB answer, the IIP3 fit point, the steering points, or the bias point for
@@ -880,6 +893,9 @@ pub struct SizingRecord {
     pub temperature_c: f64,
     /// Least emitter resistance meeting every line (or the best found), Ω.
     pub emitter_resistance_ohm: Option<f64>,
+    /// Tail current of the design, A (sized when the plan makes it a variable).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub tail_current_a: Option<f64>,
     /// The line with the least margin at the chosen value (or the one that cannot be met).
     pub binding_metric: String,
     /// Whether a value meeting every line was found.
@@ -956,6 +972,132 @@ pub struct SpreadRecord {
     pub min_corner: String,
     /// Corner giving the greatest value.
     pub max_corner: String,
+}
+
+/// The sizing of one stage over a region of two variables.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+pub struct RegionRecord {
+    /// Stage name.
+    pub stage: String,
+    /// The variable minimised (`tail_current` or `emitter_resistance`).
+    pub minimise: String,
+    /// The variables in map order: the minimised one, then the other (when two are sized).
+    pub variables: Vec<String>,
+    /// Unit of each variable (`A`, `Ω`).
+    pub units: Vec<String>,
+    /// Grid values of each variable.
+    pub grid: Vec<Vec<f64>>,
+    /// Whether a design meeting every line by the guard band at every temperature was found.
+    pub met: bool,
+    /// The guard band, dB.
+    pub guard_band_db: f64,
+    /// The design found: tail current, A.
+    pub tail_current_a: f64,
+    /// The design found: emitter resistance per side, Ω.
+    pub emitter_resistance_ohm: f64,
+    /// The design found: load resistance per side at the first temperature, Ω.
+    pub load_resistance_ohm: f64,
+    /// The line limiting the design found (metric name, or `collector_base_margin` for the
+    /// implicit headroom of `hold_gain`).
+    pub binding_metric: String,
+    /// Index of that line in the plan's budget (`None`: the implicit headroom).
+    pub binding_line: Option<usize>,
+    /// Temperature where it is worst, °C.
+    pub binding_temperature_c: f64,
+    /// Its margin above the guard band, dB (`null`: unbounded).
+    pub excess_db: Option<f64>,
+    /// Designs evaluated (every temperature and corner each).
+    pub designs_evaluated: usize,
+    /// Every grid design, row by row (each value of the first variable, then the second).
+    pub cells: Vec<RegionCellRecord>,
+    /// The map row by row: where the second variable may lie and which line stops it.
+    pub rows: Vec<RegionRowRecord>,
+    /// Pareto front of supply (tail) current against input noise, among grid designs meeting
+    /// every line but the noise lines.
+    pub noise_front: Vec<FrontRecord>,
+    /// Pareto front of supply current against the binding distortion line's figure.
+    pub distortion_front: Option<DistortionFrontRecord>,
+    /// Advice about the ranges.
+    pub hints: Vec<String>,
+}
+
+/// One grid design of a sizing region.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+pub struct RegionCellRecord {
+    /// Tail current, A.
+    pub tail_current_a: f64,
+    /// Emitter resistance per side, Ω.
+    pub emitter_resistance_ohm: f64,
+    /// Every line holds by the guard band at every temperature.
+    pub holds: bool,
+    /// The line with the least margin above the guard band (for a failing design, the one
+    /// failing worst).
+    pub limiting_metric: String,
+    /// Index of that line in the plan's budget (`None`: the implicit headroom or no line).
+    pub limiting_line: Option<usize>,
+    /// Temperature where it is worst, °C.
+    pub limiting_temperature_c: f64,
+    /// Its margin above the guard band, dB (`null`: unbounded).
+    pub excess_db: Option<f64>,
+    /// Largest input noise density across temperatures, V/√Hz (`null`: the design cannot
+    /// bias, so it was not solved).
+    pub input_noise_v_rthz: Option<f64>,
+    /// Small-signal gain at the first temperature, dB (`null`: not solved).
+    pub gain_db: Option<f64>,
+}
+
+/// One value of the minimised variable: where the other may lie.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+pub struct RegionRowRecord {
+    /// Value of the minimised variable.
+    pub value: f64,
+    /// Runs of holding grid values of the other variable, with the line failing each side.
+    pub spans: Vec<RegionSpanRecord>,
+    /// When nothing in the row holds: the line limiting its best design.
+    pub limiting_metric: Option<String>,
+}
+
+/// A run of holding grid values of the second variable.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+pub struct RegionSpanRecord {
+    /// Least holding grid value.
+    pub low: f64,
+    /// Greatest holding grid value.
+    pub high: f64,
+    /// The line failing the grid value just below (`None`: the range's end).
+    pub below: Option<String>,
+    /// The line failing the grid value just above (`None`: the range's end).
+    pub above: Option<String>,
+}
+
+/// One point of a Pareto front.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+pub struct FrontRecord {
+    /// Tail current, A.
+    pub tail_current_a: f64,
+    /// Emitter resistance per side, Ω.
+    pub emitter_resistance_ohm: f64,
+    /// The figure (input noise V/√Hz, or the distortion line's value in its unit).
+    pub value: f64,
+    /// Its margin against the line, dB (`None`: the plan has no such line).
+    pub margin: Option<f64>,
+}
+
+/// The Pareto front against the binding distortion line.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+pub struct DistortionFrontRecord {
+    /// Metric name of the line.
+    pub metric: String,
+    /// Index of the line in the plan's budget.
+    pub line: usize,
+    /// Input amplitude of the line, V.
+    pub at_v: Option<f64>,
+    /// Unit of the values (`dBc`, `V`).
+    pub unit: String,
+    /// The line's limit.
+    pub limit: f64,
+    /// The front, in increasing current.
+    pub points: Vec<FrontRecord>,
 }
 
 /// One scanned emitter resistance.

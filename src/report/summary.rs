@@ -295,10 +295,15 @@ pub fn summary(report: &Report) -> String {
             };
             let _ = writeln!(
                 out,
-                "Sizing at {} °C: {} R_E = {} (binding: {}, worst margin {:.2} dB, gain {} dB, gain cost {} dB, steering range {}, load {}){}\n",
+                "Sizing at {} °C: {} R_E = {}{} (binding: {}, worst margin {:.2} dB, gain {} dB, gain cost {} dB, steering range {}, load {}){}\n",
                 temperature_cell(s.temperature_c),
-                if s.met { "least" } else { "no value meets every line; best" },
+                match (s.met, report.sizing_region.iter().any(|r| r.stage == s.stage)) {
+                    (true, false) => "least",
+                    (true, true) => "the design of least current has",
+                    (false, _) => "no value meets every line; best",
+                },
                 s.emitter_resistance_ohm.map(|r| si_short(r, "Ω")).unwrap_or_else(|| "—".into()),
+                s.tail_current_a.map(|i| format!(", I_tail = {}", si_short(i, "A"))).unwrap_or_default(),
                 markdown_text(&binding),
                 s.best_margin,
                 db(s.gain_db),
@@ -313,7 +318,40 @@ pub fn summary(report: &Report) -> String {
                 let _ = writeln!(out, "- {}", markdown_text(text));
             }
         }
-        if let Some(value) = value_to_build(report, name) {
+        if let Some(region) = report.sizing_region.iter().find(|r| r.stage == *name) {
+            let planned = report
+                .verdict
+                .recommended
+                .iter()
+                .flat_map(|r| &r.stages)
+                .find(|s| s.stage == *name);
+            if let Some(stage) = planned {
+                let _ = writeln!(
+                    out,
+                    "\n**{} for {}: I_tail = {}, R_E = {}** — {}; binding: {}.\n",
+                    if region.met {
+                        "To build"
+                    } else {
+                        "Best found (not met)"
+                    },
+                    markdown_text(name),
+                    si_short(stage.tail_current_a, "A"),
+                    si_short(stage.emitter_resistance_ohm, "Ω"),
+                    if region.met {
+                        format!(
+                            "the least {} holding every line at every temperature",
+                            region.minimise.replace('_', " ")
+                        )
+                    } else {
+                        "no design in the ranges holds every line".to_owned()
+                    },
+                    markdown_text(&metric_label(&region.binding_metric))
+                );
+            }
+            for (text, table) in super::sizing_region::region_tables(region) {
+                let _ = writeln!(out, "{}\n\n{}", markdown_text(&text), table.to_markdown());
+            }
+        } else if let Some(value) = value_to_build(report, name) {
             let windows = report
                 .verdict
                 .recommended

@@ -56,17 +56,22 @@ pub fn general_precision_v(circuit: &StageCircuit) -> f64 {
 /// a gain error near 1e-8 relative (the fourth-order term, (A/2φT)⁴ ≈ 6e-8 at most).
 pub fn general_direct_floor_v(circuit: &StageCircuit) -> f64 {
     let phi = circuit.thermal_voltage;
-    let side = &circuit.p;
-    // Gain g_m·R_L/(1 + g_m·(R_E + R_b/β)), a close estimate without the Early effect.
-    let transconductance = 0.5 * circuit.tail_current / phi;
-    let gain = side.load_resistance * transconductance
-        / (1.0
-            + transconductance
-                * (side.emitter_resistance + side.base_path_resistance * side.beta_inv));
     let for_precision =
         2.0 * crate::solve::spectrum::NOISE_MARGIN * 1e9 * general_precision_v(circuit)
-            / gain.max(f64::MIN_POSITIVE);
+            / estimated_gain(circuit).max(f64::MIN_POSITIVE);
     (1e-4 * phi).max(for_precision).min(3e-2 * phi)
+}
+
+/// The small-signal gain `g_m·R_L/(1 + g_m·(R_E + R_b/β))` of the P side's half circuit, a
+/// close estimate without the Early effect (half-circuit analysis, common practice): it scales
+/// an engine's precision to the input.
+pub fn estimated_gain(circuit: &StageCircuit) -> f64 {
+    let side = &circuit.p;
+    let transconductance = 0.5 * circuit.tail_current / circuit.thermal_voltage;
+    side.load_resistance * transconductance
+        / (1.0
+            + transconductance
+                * (side.emitter_resistance + side.base_path_resistance * side.beta_inv))
 }
 
 /// The general single-tone analysis: every sample of the period solved in turn (with the

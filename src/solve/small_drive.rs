@@ -154,26 +154,13 @@ impl SmallDriveEngine {
         frequency_hz: f64,
         harmonics: usize,
     ) -> Result<TonePair, SolveFailure> {
-        let key = (frequency_hz.to_bits(), harmonics);
-        let kept = self
-            .tones
-            .lock()
-            .unwrap_or_else(|poisoned| poisoned.into_inner())
-            .get(&key)
-            .cloned();
-        if let Some(pair) = kept {
-            return Ok(pair);
-        }
-        let upper = self.inner.tone(reference_v, frequency_hz, harmonics)?;
-        let lower = self
-            .inner
-            .tone(0.5 * reference_v, frequency_hz, harmonics)?;
-        let pair = Arc::new((upper, lower));
-        self.tones
-            .lock()
-            .unwrap_or_else(|poisoned| poisoned.into_inner())
-            .insert(key, pair.clone());
-        Ok(pair)
+        kept_or_solved(&self.tones, (frequency_hz.to_bits(), harmonics), || {
+            Ok((
+                self.inner.tone(reference_v, frequency_hz, harmonics)?,
+                self.inner
+                    .tone(0.5 * reference_v, frequency_hz, harmonics)?,
+            ))
+        })
     }
 
     fn reference_two_tones(
@@ -182,27 +169,34 @@ impl SmallDriveEngine {
         frequency_hz: f64,
         spacing_hz: f64,
     ) -> Result<TwoTonePair, SolveFailure> {
-        let key = (frequency_hz.to_bits(), spacing_hz.to_bits());
-        let kept = self
-            .two_tones
-            .lock()
-            .unwrap_or_else(|poisoned| poisoned.into_inner())
-            .get(&key)
-            .cloned();
-        if let Some(pair) = kept {
-            return Ok(pair);
-        }
-        let upper = self.inner.two_tone(reference_v, frequency_hz, spacing_hz)?;
-        let lower = self
-            .inner
-            .two_tone(0.5 * reference_v, frequency_hz, spacing_hz)?;
-        let pair = Arc::new((upper, lower));
-        self.two_tones
-            .lock()
-            .unwrap_or_else(|poisoned| poisoned.into_inner())
-            .insert(key, pair.clone());
-        Ok(pair)
+        kept_or_solved(
+            &self.two_tones,
+            (frequency_hz.to_bits(), spacing_hz.to_bits()),
+            || {
+                Ok((
+                    self.inner.two_tone(reference_v, frequency_hz, spacing_hz)?,
+                    self.inner
+                        .two_tone(0.5 * reference_v, frequency_hz, spacing_hz)?,
+                ))
+            },
+        )
     }
+}
+
+/// The pair kept under `key`, or the one `solve` returns, kept for the next call (a poisoned
+/// lock still holds whole pairs: each is inserted in one step).
+fn kept_or_solved<K: std::hash::Hash + Eq, T>(
+    kept: &Mutex<HashMap<K, Arc<T>>>,
+    key: K,
+    solve: impl FnOnce() -> Result<T, SolveFailure>,
+) -> Result<Arc<T>, SolveFailure> {
+    let lock = || kept.lock().unwrap_or_else(|poisoned| poisoned.into_inner());
+    if let Some(pair) = lock().get(&key).cloned() {
+        return Ok(pair);
+    }
+    let pair = Arc::new(solve()?);
+    lock().insert(key, pair.clone());
+    Ok(pair)
 }
 
 impl ResponseEngine for SmallDriveEngine {

@@ -23,8 +23,13 @@
 //!   which is strictly increasing in `y` and bracketed by `(v_d ± B)/φT`, where `B` bounds
 //!   the resistive drops.
 //! - *Forward-active general solve.* Otherwise (Early effect or a finite tail resistance) the
-//!   tail-node voltage is the outer unknown and each side's `ln J` an inner one, with the
-//!   collector voltage eliminated in closed form.
+//!   unknowns are the tail-node voltage and each side's `ln J`, with the collector voltage
+//!   eliminated in closed form. One Newton iteration on all three together, with the analytic
+//!   Jacobian, starts from the last two solutions extrapolated linearly in `v_d` (the samples
+//!   of a waveform are a smooth sequence; a first point starts from the reduced solution) and
+//!   converges in three or four steps. Where it does not within twelve steps, the
+//!   nested solve takes over: the tail voltage as the outer unknown of a bracketed safeguarded
+//!   Newton, each side's `ln J` the inner unknown of another at every outer iterate.
 //!
 //! **The whole model.** The tail-node voltage is the outer unknown; for each side `ln J` is
 //! the middle unknown (its base-emitter loop) and `V_BC` the inner one (its base-collector
@@ -35,7 +40,8 @@
 //!
 //! Tolerance: every unknown is converged to a few ulps (relative step ≤ 4ε), so the solution
 //! is exact to double precision; the analysis floor reported elsewhere (−200 dBc) sits far
-//! above that.
+//! above that. (The joint Newton also stops where a step of at most 64 such tolerances fails to
+//! halve the one before: the residuals' rounding sets the steps there.)
 
 use crate::error::SolveFailure;
 use crate::model::circuit::{Side, StageCircuit};
@@ -109,14 +115,64 @@ pub struct WarmStart {
     pair_points: Vec<OperatingPoint>,
     /// Last reduced unknown `y`.
     log_ratio: Option<f64>,
-    /// Last forward-active general solution: tail voltage and `ln J` per side.
-    general: Option<(f64, f64, f64)>,
+    /// The last two forward-active general solutions, newest first.
+    general: GeneralHistory,
     /// Last solution of the whole model.
     whole: Option<GeneralStart>,
     /// Whether the last point solved had a forward-biased collector-base junction: its
     /// neighbour then goes straight to the whole model.
     saturating: bool,
 }
+
+/// The unknowns of the forward-active general solve: the tail voltage and `ln J` of the P and
+/// M sides.
+type GeneralUnknowns = [f64; 3];
+
+/// The last two forward-active general solutions with their inputs, newest first: the next
+/// sample of a waveform starts from their linear extrapolation in `v_d`.
+#[derive(Debug, Clone, Copy, Default)]
+struct GeneralHistory {
+    solved: [Option<(f64, GeneralUnknowns)>; 2],
+    /// Points where the joint Newton handed over to the nested solve.
+    fallbacks: usize,
+}
+
+impl GeneralHistory {
+    fn push(&mut self, v_d: f64, unknowns: GeneralUnknowns) {
+        self.solved = [Some((v_d, unknowns)), self.solved[0]];
+    }
+
+    fn latest(&self) -> Option<GeneralUnknowns> {
+        self.solved[0].map(|(_, x)| x)
+    }
+
+    /// The unknowns at `v_d` extrapolated linearly from the last two solutions (the latest
+    /// alone where there is one, or where both were solved at the same input); `None`
+    /// before the first solution.
+    fn predict(&self, v_d: f64) -> Option<GeneralUnknowns> {
+        match self.solved {
+            [Some((v1, x1)), Some((v2, x2))] if v1 != v2 => {
+                let w = (v_d - v1) / (v1 - v2);
+                Some(std::array::from_fn(|i| x1[i] + w * (x1[i] - x2[i])))
+            }
+            [Some((_, x1)), _] => Some(x1),
+            _ => None,
+        }
+    }
+}
+
+/// How a forward-active general point was solved.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum GeneralRoute {
+    /// One Newton iteration on the three unknowns together.
+    Joint,
+    /// The nested bracketed solve, after the joint Newton did not converge.
+    Nested,
+}
+
+/// Newton steps the joint solve may take before the nested solve takes over. From the
+/// extrapolated start of a waveform sample it converges in three or four.
+const JOINT_NEWTON_STEPS: usize = 12;
 
 /// The unknowns of a solve of the whole model, as a warm start.
 #[derive(Debug, Clone, Copy)]
@@ -211,20 +267,26 @@ impl StaticSolver {
                 .solve_cell_pairs(v_d, false, warm)
                 .map(|points| self.combine_cell(&points));
         }
-        let reduced = self.solve_reduced(v_d, warm.log_ratio)?;
-        warm.log_ratio = Some(reduced.0);
-        if self.reducible && junctions_reverse_biased(&reduced.1) {
-            warm.saturating = false;
-            return Ok(reduced.1);
+        let general =
+            self.forward_law && !self.reducible && !(warm.saturating && warm.whole.is_some());
+        // The general solve starts from its own history when it has one: the reduced
+        // solution is then not needed.
+        let mut start = OperatingPoint::default();
+        if !general || warm.general.latest().is_none() {
+            let reduced = self.solve_reduced(v_d, warm.log_ratio)?;
+            warm.log_ratio = Some(reduced.0);
+            if self.reducible && junctions_reverse_biased(&reduced.1) {
+                warm.saturating = false;
+                return Ok(reduced.1);
+            }
+            start = reduced.1;
         }
-        let mut start = reduced.1;
-        if self.forward_law && !self.reducible && !(warm.saturating && warm.whole.is_some()) {
-            let point = self.solve_general(v_d, &reduced.1, warm.general)?;
-            warm.general = Some((
-                point.tail_voltage,
-                transport_log(&point.p, &self.circuit.p, self.circuit.thermal_voltage),
-                transport_log(&point.m, &self.circuit.m, self.circuit.thermal_voltage),
-            ));
+        if general {
+            let (point, unknowns, route) = self.solve_general(v_d, &start, &warm.general)?;
+            warm.general.push(v_d, unknowns);
+            if route == GeneralRoute::Nested {
+                warm.general.fallbacks += 1;
+            }
             if junctions_reverse_biased(&point) {
                 warm.saturating = false;
                 return Ok(point);
@@ -544,22 +606,173 @@ impl StaticSolver {
         ))
     }
 
-    /// The forward-active general problem: outer unknown the tail voltage, inner unknowns
-    /// `ln J` per side.
+    /// The forward-active general problem in the tail voltage and `ln J` per side: one Newton
+    /// iteration on all three together ([`Self::solve_joint`]) from the extrapolated history,
+    /// else from the reduced solution `reduced`; where that does not converge, the nested
+    /// bracketed solve ([`Self::solve_nested`]). Returns the point, its unknowns and the route.
     fn solve_general(
         &self,
         v_d: f64,
         reduced: &OperatingPoint,
-        warm: Option<(f64, f64, f64)>,
-    ) -> Result<OperatingPoint, SolveFailure> {
+        history: &GeneralHistory,
+    ) -> Result<(OperatingPoint, GeneralUnknowns, GeneralRoute), SolveFailure> {
+        let c = &self.circuit;
+        let from_reduced = || {
+            [
+                reduced.tail_voltage,
+                transport_log(&reduced.p, &c.p, c.thermal_voltage),
+                transport_log(&reduced.m, &c.m, c.thermal_voltage),
+            ]
+        };
+        let start = history.predict(v_d).unwrap_or_else(from_reduced);
+        if let Some((point, unknowns)) = self.solve_joint(v_d, start, JOINT_NEWTON_STEPS) {
+            return Ok((point, unknowns, GeneralRoute::Joint));
+        }
+        let start = history.latest().unwrap_or_else(from_reduced);
+        let (point, unknowns) = self.solve_nested(v_d, start)?;
+        Ok((point, unknowns, GeneralRoute::Nested))
+    }
+
+    /// The forward-active general problem as one Newton iteration on `x = (V_tail, u_P, u_M)`,
+    /// `u = ln J`, with the analytic Jacobian: both base-emitter loops
+    /// `g(u, V_tail) = R_B·I_B + φT·(u − ln I_S) + R_E·I_E + V_tail − V_in` and the tail node
+    /// `F = I_E,P + I_E,M − I_tail − V_tail/R_tail`. Each loop involves only its own `u` and
+    /// the tail voltage, so the 3×3 system is solved by eliminating `u_P`, `u_M` (the Schur
+    /// complement on the tail row). Steps are cut to 8 in `ln J` and 8 φT in the tail voltage
+    /// (junction limiting). Converged when a full step is at most `4ε·max(|x|, 1)` in every
+    /// unknown, the tolerance of the nested solve, or at most 64 such tolerances without
+    /// halving the step before (the residuals' rounding); `None` when neither happens within
+    /// `max_steps` steps or a value is not finite (the caller falls back to the nested solve).
+    fn solve_joint(
+        &self,
+        v_d: f64,
+        start: GeneralUnknowns,
+        max_steps: usize,
+    ) -> Option<(OperatingPoint, GeneralUnknowns)> {
+        let c = &self.circuit;
+        let phi = c.thermal_voltage;
+        let sides = [&c.p, &c.m];
+        let v_in = [
+            c.input_common_mode + 0.5 * v_d,
+            c.input_common_mode - 0.5 * v_d,
+        ];
+        let log_is = [c.p.saturation_current.ln(), c.m.saturation_current.ln()];
+        let tolerance = |x: f64| 4.0 * f64::EPSILON * x.abs().max(1.0);
+        let mut x = start;
+        // The largest step of the previous iteration in units of the tolerance.
+        let mut previous = f64::INFINITY;
+        for _ in 0..max_steps {
+            if !x.iter().all(|v| v.is_finite()) {
+                return None;
+            }
+            // Per side: the loop residual g, ∂g/∂u, ∂g/∂V_tail and ∂I_E/∂u; the tail node's
+            // residual and its partial derivative in the tail voltage.
+            let mut loops = [(0.0, 0.0, 0.0, 0.0); 2];
+            let mut node = -c.tail_current - c.tail_conductance * x[0];
+            let mut node_slope = -c.tail_conductance;
+            for k in 0..2 {
+                let side = sides[k];
+                let (_, base, emitter, d_emitter_du, d_collector_d_tail) =
+                    side_currents(c, side, x[k + 1], x[0]);
+                let value = side.base_path_resistance * base
+                    + phi * (x[k + 1] - log_is[k])
+                    + side.emitter_resistance * emitter
+                    + x[0]
+                    - v_in[k];
+                let d_u =
+                    side.base_path_resistance * base + phi + side.emitter_resistance * d_emitter_du;
+                let d_tail = side.emitter_resistance * d_collector_d_tail + 1.0;
+                loops[k] = (value, d_u, d_tail, d_emitter_du);
+                node += emitter;
+                node_slope += d_collector_d_tail;
+            }
+            // Newton step: du_k = −(g_k + ∂g_k/∂V_tail·dV_tail)/(∂g_k/∂u_k), and the tail row
+            // with those substituted.
+            let mut rhs = -node;
+            let mut pivot = node_slope;
+            for &(value, d_u, d_tail, d_emitter_du) in &loops {
+                rhs += d_emitter_du * value / d_u;
+                pivot -= d_emitter_du * d_tail / d_u;
+            }
+            let d_tail_v = rhs / pivot;
+            let mut step = [
+                d_tail_v,
+                -(loops[0].0 + loops[0].2 * d_tail_v) / loops[0].1,
+                -(loops[1].0 + loops[1].2 * d_tail_v) / loops[1].1,
+            ];
+            if !step.iter().all(|v| v.is_finite()) {
+                return None;
+            }
+            let cut = (step[0].abs() / (8.0 * phi))
+                .max(step[1].abs() / 8.0)
+                .max(step[2].abs() / 8.0);
+            // In units of the tolerance: converged at 1 or below, or where a step a few
+            // tolerances long is not half the previous one (the residuals' rounding, not the
+            // distance to the root, sets the steps there, and applying one is as good as it gets).
+            let size = (0..3)
+                .map(|i| step[i].abs() / tolerance(x[i]))
+                .fold(0.0, f64::max);
+            let converged = cut <= 1.0 && (size <= 1.0 || (size <= 64.0 && size > 0.5 * previous));
+            previous = size;
+            if cut > 1.0 {
+                step.iter_mut().for_each(|v| *v /= cut);
+            }
+            for i in 0..3 {
+                x[i] += step[i];
+            }
+            if converged {
+                return self.general_point(v_d, x).map(|point| (point, x));
+            }
+        }
+        None
+    }
+
+    /// The operating point at the general unknowns `x` (currents evaluated there); `None`
+    /// where a current is not finite.
+    fn general_point(&self, v_d: f64, x: GeneralUnknowns) -> Option<OperatingPoint> {
         let c = &self.circuit;
         let v_in_p = c.input_common_mode + 0.5 * v_d;
         let v_in_m = c.input_common_mode - 0.5 * v_d;
-        let (tail_guess, mut u_p, mut u_m) = warm.unwrap_or((
-            reduced.tail_voltage,
-            transport_log(&reduced.p, &c.p, c.thermal_voltage),
-            transport_log(&reduced.m, &c.m, c.thermal_voltage),
-        ));
+        let side = |side: &Side, u: f64| {
+            let (collector_current, base_current, emitter_current, _, _) =
+                side_currents(c, side, u, x[0]);
+            ForwardSide {
+                log_transport: u,
+                collector_current,
+                base_current,
+                emitter_current,
+                d_emitter_d_tail: 0.0,
+            }
+        };
+        let (sp, sm) = (side(&c.p, x[1]), side(&c.m, x[2]));
+        if !(sp.emitter_current.is_finite() && sm.emitter_current.is_finite()) {
+            return None;
+        }
+        Some(OperatingPoint {
+            p: sp.point(c, &c.p, v_in_p),
+            m: sm.point(c, &c.m, v_in_m),
+            tail_voltage: x[0],
+            output_voltage: differential_output(
+                &c.p,
+                &c.m,
+                sp.collector_current - sm.collector_current,
+                sp.collector_current + sm.collector_current,
+            ),
+        })
+    }
+
+    /// The forward-active general problem nested: outer unknown the tail voltage (bracketed
+    /// safeguarded Newton), inner unknowns `ln J` per side (the same, at each tail voltage),
+    /// from `start`.
+    fn solve_nested(
+        &self,
+        v_d: f64,
+        start: GeneralUnknowns,
+    ) -> Result<(OperatingPoint, GeneralUnknowns), SolveFailure> {
+        let c = &self.circuit;
+        let v_in_p = c.input_common_mode + 0.5 * v_d;
+        let v_in_m = c.input_common_mode - 0.5 * v_d;
+        let [tail_guess, mut u_p, mut u_m] = start;
         let mut inner_error: Option<SolveFailure> = None;
         // −(tail KCL residual) and its slope: increasing in the tail voltage.
         let mut outer = |v_tail: f64| -> (f64, f64) {
@@ -598,7 +811,7 @@ impl StaticSolver {
             .map_err(|e| root_failure(v_d, "P junction", e))?;
         let sm = solve_forward_side(c, &c.m, v_in_m, v_tail, u_m)
             .map_err(|e| root_failure(v_d, "M junction", e))?;
-        Ok(OperatingPoint {
+        let point = OperatingPoint {
             p: sp.point(c, &c.p, v_in_p),
             m: sm.point(c, &c.m, v_in_m),
             tail_voltage: v_tail,
@@ -608,7 +821,8 @@ impl StaticSolver {
                 sp.collector_current - sm.collector_current,
                 sp.collector_current + sm.collector_current,
             ),
-        })
+        };
+        Ok((point, [v_tail, sp.log_transport, sm.log_transport]))
     }
 
     /// The whole model: outer unknown the tail voltage, middle unknowns `ln J` per side,
@@ -1063,4 +1277,147 @@ fn failure(v_d: f64, reason: &str) -> SolveFailure {
 
 fn root_failure(v_d: f64, unknown: &str, err: RootFailure) -> SolveFailure {
     failure(v_d, &format!("{unknown}: {}", err.reason))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::model::stage::Stage;
+    use crate::model::transistor::Transistor;
+
+    /// A realistic general-path stage: β, base resistance, the Early effect, a finite tail
+    /// resistance and an I_S mismatch (so no fast path applies).
+    fn general_solver() -> StaticSolver {
+        let stage = Stage::new("general", 1e-3, 2e3)
+            .emitter_resistance(200.0)
+            .tail_resistance(50e3)
+            .supply(5.0)
+            .input_common_mode(1.5)
+            .transistor(
+                Transistor::default()
+                    .beta(110.0)
+                    .early_voltage(70.0)
+                    .base_resistance(120.0),
+            )
+            .mismatch(crate::model::stage::Mismatch::default().saturation_current(0.01));
+        StaticSolver::new(StageCircuit::new(&stage, 27.0))
+    }
+
+    /// Kirchhoff's current law at the tail node and the voltage law around each base-emitter
+    /// loop (common practice), as residuals relative to the tail current and the input.
+    fn kirchhoff_residuals(solver: &StaticSolver, v_d: f64, point: &OperatingPoint) -> [f64; 3] {
+        let c = solver.circuit();
+        let node = point.p.emitter_current + point.m.emitter_current
+            - c.tail_current
+            - c.tail_conductance * point.tail_voltage;
+        let lp = c.input_common_mode + 0.5 * v_d;
+        let lm = c.input_common_mode - 0.5 * v_d;
+        let loop_of = |s: &SidePoint, side: &Side, v_in: f64| {
+            side.base_path_resistance * s.base_current
+                + s.base_emitter_voltage
+                + side.emitter_resistance * s.emitter_current
+                + point.tail_voltage
+                - v_in
+        };
+        [
+            node / c.tail_current,
+            loop_of(&point.p, &c.p, lp) / lp,
+            loop_of(&point.m, &c.m, lm) / lm,
+        ]
+    }
+
+    fn assert_same_point(a: &OperatingPoint, b: &OperatingPoint, what: &str) {
+        let close = |x: f64, y: f64| (x - y).abs() <= 1e-13 * x.abs().max(y.abs());
+        assert!(
+            close(a.tail_voltage, b.tail_voltage),
+            "{what}: tail voltage"
+        );
+        assert!(
+            close(a.p.collector_current, b.p.collector_current)
+                && close(a.m.collector_current, b.m.collector_current),
+            "{what}: collector currents {:e}, {:e} vs {:e}, {:e}",
+            a.p.collector_current,
+            a.m.collector_current,
+            b.p.collector_current,
+            b.m.collector_current
+        );
+        assert!(
+            (a.output_voltage - b.output_voltage).abs() <= 1e-14 + 1e-13 * a.output_voltage.abs(),
+            "{what}: output"
+        );
+    }
+
+    /// An absurd start (a history extrapolated over a 1e-12 V step to a tail voltage of
+    /// thousands of volts) defeats the joint Newton within its step budget; the nested solve
+    /// takes over and returns the same point as the joint Newton from a good start, one that
+    /// satisfies Kirchhoff's laws to rounding.
+    #[test]
+    fn the_nested_solve_takes_over_where_the_joint_newton_does_not_converge() {
+        let solver = general_solver();
+        let v_d = 0.12;
+        let good = solver.solve_cold(v_d).unwrap();
+        let mut history = GeneralHistory::default();
+        history.push(0.0, [0.64, -8.0, -8.0]);
+        history.push(1e-12, [10.0, -7.0, -9.0]);
+        assert!(
+            history.predict(v_d).unwrap()[0] > 1e9,
+            "the start is absurd"
+        );
+        let (point, _, route) = solver
+            .solve_general(v_d, &OperatingPoint::default(), &history)
+            .unwrap();
+        assert_eq!(route, GeneralRoute::Nested);
+        assert_same_point(&point, &good, "fallback");
+        for r in kirchhoff_residuals(&solver, v_d, &point) {
+            assert!(r.abs() <= 1e-14, "residual {r:e}");
+        }
+        // From the last solution instead, the joint Newton converges.
+        let mut near = GeneralHistory::default();
+        near.push(0.11, [0.66, -7.6, -7.7]);
+        let (joint, _, route) = solver
+            .solve_general(v_d, &OperatingPoint::default(), &near)
+            .unwrap();
+        assert_eq!(route, GeneralRoute::Joint);
+        assert_same_point(&joint, &point, "joint against nested");
+    }
+
+    /// Over a sampled period from 1 mV to 1 V (every sample forward-active), every point is
+    /// solved by the joint Newton, agrees with the nested solve started afresh to 1e-13, and
+    /// meets Kirchhoff's laws to rounding.
+    #[test]
+    fn sampled_periods_take_the_joint_route_and_match_the_nested_solve() {
+        let solver = general_solver();
+        for amplitude in [1e-3, 0.05, 0.3, 1.0] {
+            let mut warm = WarmStart::default();
+            for i in 0..128 {
+                let v_d = amplitude * (std::f64::consts::TAU * i as f64 / 128.0).cos();
+                let point = solver.solve(v_d, &mut warm).unwrap();
+                assert!(junctions_reverse_biased(&point));
+                let (reduced_y, reduced) = solver.solve_reduced(v_d, None).unwrap();
+                assert!(reduced_y.is_finite());
+                let start = [
+                    reduced.tail_voltage,
+                    transport_log(
+                        &reduced.p,
+                        &solver.circuit.p,
+                        solver.circuit.thermal_voltage,
+                    ),
+                    transport_log(
+                        &reduced.m,
+                        &solver.circuit.m,
+                        solver.circuit.thermal_voltage,
+                    ),
+                ];
+                let (nested, _) = solver.solve_nested(v_d, start).unwrap();
+                assert_same_point(&point, &nested, &format!("A = {amplitude}, sample {i}"));
+                for r in kirchhoff_residuals(&solver, v_d, &point) {
+                    assert!(
+                        r.abs() <= 1e-14,
+                        "A = {amplitude}, sample {i}: residual {r:e}"
+                    );
+                }
+            }
+            assert_eq!(warm.general.fallbacks, 0, "A = {amplitude}");
+        }
+    }
 }

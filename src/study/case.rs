@@ -255,12 +255,17 @@ pub fn evaluate_case(
             measured.gain()?;
             measured.steering()?;
             measured.noise()?;
-            for &frequency in &plan.drive.frequencies {
-                measured.intercept(frequency)?;
-                measured.compression(frequency)?;
-                measured.gain_at(frequency)?;
-            }
-            Ok::<_, SolveFailure>(())
+            // Each frequency's searches are independent (and kept once computed): in
+            // parallel, which for a stage with capacitance is most of the case's work.
+            plan.drive
+                .frequencies
+                .par_iter()
+                .try_for_each(|&frequency| {
+                    measured.intercept(frequency)?;
+                    measured.compression(frequency)?;
+                    measured.gain_at(frequency)?;
+                    Ok::<_, SolveFailure>(())
+                })
         },
     );
     let mut points = points.map_err(fail)?;

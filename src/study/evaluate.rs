@@ -15,6 +15,7 @@ use crate::study::case::{evaluate_case, CaseEvaluation};
 use crate::study::corners::{spread, CornerSpread};
 use crate::study::fit::{self, BenchComparison, FitOutcome, FitProgress};
 use crate::study::montecarlo::{self, Population};
+use crate::study::region::{self, RegionOutcome, RegionPoint};
 use crate::study::sizing::{self, Recommendation, SizingOutcome};
 use crate::study::verdict::{DesignVerdict, Judged, Verdict};
 use crate::units::short_number;
@@ -126,8 +127,12 @@ pub struct PlanEvaluation {
     pub spread: Vec<CornerSpread>,
     /// The Monte Carlo population, when the plan asks for one.
     pub population: Option<Population>,
-    /// Sizing per stage and temperature, when the plan asks for it.
+    /// Sizing per stage and temperature, when the plan asks for the least emitter resistance
+    /// alone.
     pub sizing: Vec<SizingOutcome>,
+    /// Sizing over a region of several variables, one per planned stage, when the plan
+    /// names more than the emitter resistance (or minimises another variable).
+    pub regions: Vec<RegionOutcome>,
     /// The recommended design, one per planned stage, when the plan asks for sizing.
     pub recommended: Vec<RecommendedStage>,
     /// Every measured stage fitted to its bench data, when the plan asks for a fit (the
@@ -327,6 +332,111 @@ fn raise_for_yield(
     Ok(())
 }
 
+/// The design a region search recommends: its values, the load `hold_gain` asks for at the
+/// temperature nearest 27 °C, and how it was found.
+fn region_recommendation(
+    plan: &Plan,
+    settings: &SizingSettings,
+    found: &RegionOutcome,
+    design: &RegionPoint,
+    cache: &Arc<FftCache>,
+) -> Result<Recommendation, Error> {
+    let planned = &plan.stages[found.stage_index];
+    let mut base = planned.clone();
+    base.tail_current = design.tail_current();
+    let emitter_resistance = design.emitter_resistance();
+    let load_resistance = if settings.hold_gain {
+        sizing::held_load_from(
+            plan,
+            planned,
+            &base,
+            sizing::typical_temperature(&plan.temperatures_c),
+            emitter_resistance,
+            cache,
+        )?
+    } else {
+        planned.load_resistance
+    };
+    Ok(Recommendation {
+        stage_index: found.stage_index,
+        emitter_resistance,
+        tail_current: base.tail_current,
+        load_resistance,
+        met: found.met && design.holds,
+        windows: Vec::new(),
+        basis: if found.met {
+            sizing::Basis::LeastInRegion
+        } else {
+            sizing::Basis::BestInRegion
+        },
+        yield_short: false,
+    })
+}
+
+/// The region search does not draw a population per design either. When its answer misses a
+/// yield line, the map's grid rows above the answer are tried in turn, each at its best
+/// holding design, on the same dies (common random numbers); the first whose population meets
+/// every yield line at every temperature is recommended (grid resolution: no bisection).
+fn raise_region_for_yield(
+    plan: &Plan,
+    settings: &SizingSettings,
+    monte_carlo: &MonteCarloSettings,
+    design: &mut RecommendedStage,
+    found: &RegionOutcome,
+    cache: &Arc<FftCache>,
+) -> Result<(), Error> {
+    let yield_lines: Vec<_> = plan
+        .budget
+        .iter()
+        .filter(|l| l.metric.is_population())
+        .collect();
+    if yield_lines.is_empty() || !design.recommendation.met {
+        return Ok(());
+    }
+    let index = design.recommendation.stage_index;
+    let holds = |candidate: &Stage| -> Result<Option<bool>, Error> {
+        let population =
+            montecarlo::evaluate_stages(plan, monte_carlo, &[(index, candidate)], cache)?;
+        if population.stages.is_empty() {
+            return Ok(None);
+        }
+        Ok(Some(population.stages.iter().all(|drawn| {
+            let fraction = Some(drawn.yield_estimate.pass_fraction());
+            yield_lines
+                .iter()
+                .all(|line| judge(line, fraction, ANALYSIS_FLOOR_DBC).pass)
+        })))
+    };
+    if holds(&design.stage)? != Some(false) {
+        return Ok(());
+    }
+    let width = found.map.len() / found.primary.grid.len().max(1);
+    for row in found.map.chunks(width.max(1)) {
+        let Some(best) = row
+            .iter()
+            .filter(|p| p.holds && p.primary > found.chosen.primary)
+            .max_by(|a, b| a.excess.total_cmp(&b.excess))
+        else {
+            continue;
+        };
+        let recommendation = region_recommendation(plan, settings, found, best, cache)?;
+        let mut candidate = design.stage.clone();
+        candidate.emitter_resistance = recommendation.emitter_resistance;
+        candidate.tail_current = recommendation.tail_current;
+        candidate.load_resistance = recommendation.load_resistance;
+        if holds(&candidate)? == Some(true) {
+            design.stage = candidate;
+            design.recommendation = Recommendation {
+                basis: sizing::Basis::YieldInRegion,
+                ..recommendation
+            };
+            return Ok(());
+        }
+    }
+    design.recommendation.yield_short = true;
+    Ok(())
+}
+
 /// Judges every yield line of `cases` on the population drawn for its stage and temperature;
 /// a stage the population left out keeps its yield lines failing (not estimated).
 fn judge_yield(plan: &Plan, cases: &mut [CaseEvaluation], population: Option<&Population>) {
@@ -463,7 +573,7 @@ pub fn evaluate(
     let mut evaluated = evaluate_cases(plan, &planned, &cache, progress)?;
 
     let sizing = match &plan.sizing {
-        Some(settings) => {
+        Some(settings) if settings.is_emitter_only() => {
             progress(Progress::Sizing);
             let stage_temperatures: Vec<(usize, f64)> = plan
                 .stages
@@ -492,7 +602,16 @@ pub fn evaluate(
             counter.finish();
             outcomes
         }
-        None => Vec::new(),
+        _ => Vec::new(),
+    };
+    let regions = match &plan.sizing {
+        Some(settings) if !settings.is_emitter_only() => {
+            progress(Progress::Sizing);
+            (0..plan.stages.len())
+                .map(|index| region::size_region(plan, index, settings, &cache))
+                .collect::<Result<Vec<_>, Error>>()?
+        }
+        _ => Vec::new(),
     };
 
     // The recommended design: each planned stage with the values to build, as a stage of its own.
@@ -504,11 +623,15 @@ pub fn evaluate(
                 .iter()
                 .filter(|o| o.stage == planned_stage.name)
                 .collect();
-            let recommendation = sizing::recommend(plan, index, &outcomes, settings, &cache)?;
+            let recommendation = match regions.iter().find(|r| r.stage_index == index) {
+                Some(found) => region_recommendation(plan, settings, found, &found.chosen, &cache)?,
+                None => sizing::recommend(plan, index, &outcomes, settings, &cache)?,
+            };
             let mut stage = planned_stage.clone();
             stage.name = sizing::sized_name(&planned_stage.name, &taken);
             taken.push(stage.name.clone());
             stage.emitter_resistance = recommendation.emitter_resistance;
+            stage.tail_current = recommendation.tail_current;
             stage.load_resistance = recommendation.load_resistance;
             recommended.push(RecommendedStage {
                 recommendation,
@@ -523,7 +646,17 @@ pub fn evaluate(
                     .iter()
                     .filter(|o| o.stage == plan.stages[design.recommendation.stage_index].name)
                     .collect();
-                raise_for_yield(plan, settings, monte_carlo, design, &outcomes, &cache)?;
+                match regions
+                    .iter()
+                    .find(|r| r.stage_index == design.recommendation.stage_index)
+                {
+                    Some(found) => {
+                        raise_region_for_yield(plan, settings, monte_carlo, design, found, &cache)?
+                    }
+                    None => {
+                        raise_for_yield(plan, settings, monte_carlo, design, &outcomes, &cache)?
+                    }
+                }
             }
         }
         progress(Progress::Recommended {
@@ -584,6 +717,7 @@ pub fn evaluate(
         spread,
         population,
         sizing,
+        regions,
         recommended,
         fits,
         comparisons,

@@ -10,6 +10,7 @@ pub mod corners;
 pub mod evaluate;
 pub mod fit;
 pub mod montecarlo;
+pub mod region;
 pub mod schemes;
 pub mod sizing;
 pub mod verdict;

@@ -12,7 +12,11 @@
 //! `(seed, s, t)` on stream `r`, so each run's numbers depend only on the seed and its own
 //! indices, never on the thread count or the order in which rayon schedules the runs.
 //!
-//! Cost: a run evaluates each amplitude once (the stage is memoryless, so frequency only
+//! Stages with charge storage are drawn the same way (the same draws, the same fields); each
+//! run solves the periodic steady state of every frequency and amplitude with the dynamic
+//! engine, which carries the drawn values into both sides' elements.
+//!
+//! Cost: for a memoryless stage a run evaluates each amplitude once (frequency only
 //! labels the records) with the sample count the converged nominal analysis needed, one
 //! offset search, and only the budget figures the plan asks for (intercept or compression
 //! searches per run only when a budget line constrains them).
@@ -30,8 +34,9 @@ use crate::model::budget::Metric;
 use crate::model::circuit::StageCircuit;
 use crate::model::plan::{MonteCarloSettings, Plan};
 use crate::model::stage::{Mismatch, Stage};
+use crate::solve::engine::engine_for;
 use crate::solve::memoryless::{single_tone, two_tone, two_tone_grid, MemorylessEngine};
-use crate::solve::response::RegionCheck;
+use crate::solve::response::{RegionCheck, ResponseEngine};
 use crate::solve::spectrum::{FftCache, ANALYSIS_FLOOR_DBC};
 use crate::solve::transfer::{StaticSolver, WarmStart};
 use rand::SeedableRng;
@@ -54,7 +59,7 @@ pub fn run_rng(seed: u64, stage_index: usize, temperature_index: usize, run: u64
     rng
 }
 
-/// Draws one set of mismatch fractions (always five normals, in a fixed order, so adding a
+/// Draws one set of mismatch fractions (always nine normals, in a fixed order, so adding a
 /// sigma to one parameter does not shift the others' draws).
 pub fn draw_mismatch(rng: &mut ChaCha8Rng, mean: &Mismatch, sigma: &Mismatch) -> Mismatch {
     let mut one = |m: f64, s: f64| -> f64 {
@@ -72,6 +77,18 @@ pub fn draw_mismatch(rng: &mut ChaCha8Rng, mean: &Mismatch, sigma: &Mismatch) ->
         load_resistance: one(mean.load_resistance, sigma.load_resistance),
         base_resistance: one(mean.base_resistance, sigma.base_resistance),
         beta: one(mean.beta, sigma.beta),
+        // Charge-storage fractions, then the split tail's source difference, come after the
+        // first five, so populations drawn before they existed keep their dies.
+        load_capacitance: one(mean.load_capacitance, sigma.load_capacitance),
+        emitter_junction_capacitance: one(
+            mean.emitter_junction_capacitance,
+            sigma.emitter_junction_capacitance,
+        ),
+        collector_junction_capacitance: one(
+            mean.collector_junction_capacitance,
+            sigma.collector_junction_capacitance,
+        ),
+        transit_time: one(mean.transit_time, sigma.transit_time),
         tail_current: one(mean.tail_current, sigma.tail_current),
     }
 }
@@ -327,8 +344,8 @@ pub fn evaluate(
 /// plan index its draws are keyed by (a derived stage shares its planned stage's index, so both
 /// see the same dies). Stages with no `mismatch_sigma` have nothing to draw and are left out,
 /// unless the budget has a yield line (then every run is the nominal die and the yield is 0 or
-/// 1); stages with capacitance are left out and named (a periodic steady state per run would
-/// cost thousands of times more).
+/// 1). Stages with capacitance get a periodic steady state per run, frequency and amplitude
+/// ([`evaluate_one_with_charge`]).
 pub fn evaluate_stages(
     plan: &Plan,
     settings: &MonteCarloSettings,
@@ -369,14 +386,14 @@ pub fn evaluate_stages_observed(
             continue;
         }
         let stage = typical.apply(nominal);
-        if !StageCircuit::new(&stage, plan.temperatures_c[0]).is_memoryless() {
-            population
-                .left_out_with_capacitance
-                .push(stage.name.clone());
-            continue;
-        }
+        let memoryless = StageCircuit::new(&stage, plan.temperatures_c[0]).is_memoryless();
         for (temperature_index, &temperature_c) in plan.temperatures_c.iter().enumerate() {
-            population.stages.push(evaluate_one(
+            let evaluate = if memoryless {
+                evaluate_one
+            } else {
+                evaluate_one_with_charge
+            };
+            population.stages.push(evaluate(
                 plan,
                 settings,
                 &stage,
@@ -539,6 +556,207 @@ fn evaluate_one(
         for (index, &amplitude_v) in plan.drive.amplitudes.iter().enumerate() {
             for (k, figure) in POINT_FIGURES.iter().enumerate() {
                 if figure.needs_two_tones() && !two_tone_plan {
+                    continue;
+                }
+                let values = runs.iter().map(|r| r.points[index][k]).collect();
+                distributions.push(distribution(frequency_hz, amplitude_v, *figure, values));
+            }
+        }
+        let offsets = runs.iter().map(|r| r.offset_v).collect();
+        distributions.push(distribution(
+            frequency_hz,
+            0.0,
+            PopulationFigure::Offset,
+            offsets,
+        ));
+    }
+    let passes = runs
+        .iter()
+        .filter(|r| r.line_passes.iter().all(|p| *p))
+        .count() as u64;
+    let (low, high) = wilson_interval(passes, settings.runs, Z_95);
+    let least_collector_base_margin_v = runs
+        .iter()
+        .map(|r| r.least_margin_v)
+        .fold(f64::INFINITY, f64::min);
+    let saturating_runs = runs.iter().filter(|r| r.least_margin_v < 0.0).count() as u64;
+    let failing_runs = plan
+        .budget
+        .iter()
+        .enumerate()
+        .map(|(index, line)| {
+            (!line.metric.is_population())
+                .then(|| runs.iter().filter(|r| !r.line_passes[index]).count() as u64)
+        })
+        .collect();
+    Ok(StagePopulation {
+        stage: stage.name.clone(),
+        temperature_c,
+        corner: corner.to_owned(),
+        runs: settings.runs,
+        distributions,
+        yield_estimate: YieldEstimate {
+            passing_runs: passes,
+            runs: settings.runs,
+            low,
+            high,
+            failing_runs,
+        },
+        least_collector_base_margin_v,
+        saturating_runs,
+    })
+}
+
+/// The figures of one drive point of a stage with charge storage, in [`POINT_FIGURES`] order
+/// (±∞ for null), with the region of every drive evaluated.
+fn measure_point_with_charge(
+    engine: &dyn ResponseEngine,
+    amplitude_v: f64,
+    frequency_hz: f64,
+    spacing_hz: Option<f64>,
+    harmonics: usize,
+) -> Result<([f64; 8], Vec<f64>, RegionCheck), SolveFailure> {
+    let tone = engine.tone(amplitude_v, frequency_hz, harmonics)?;
+    let floor = tone.floor_dbc;
+    let level = |amplitude: f64, fundamental: f64| -> f64 {
+        let dbc = 20.0 * (amplitude / fundamental).log10();
+        if dbc.is_finite() && dbc >= floor.max(ANALYSIS_FLOOR_DBC) {
+            dbc
+        } else {
+            f64::NEG_INFINITY
+        }
+    };
+    let amplitudes = tone.differential.amplitudes.clone();
+    let fundamental = amplitudes[1];
+    let power: f64 = amplitudes.iter().skip(2).map(|h| h * h).sum();
+    let mut region = tone.region;
+    let mut values = [
+        level(amplitudes[2], fundamental),
+        level(amplitudes[3], fundamental),
+        level(power.sqrt(), fundamental),
+        20.0 * (fundamental / amplitude_v).log10(),
+        f64::NEG_INFINITY,
+        f64::NEG_INFINITY,
+        f64::INFINITY,
+        tone.region.collector_base_margin_v(),
+    ];
+    if let Some(spacing) = spacing_hz {
+        let two = engine.two_tone(amplitude_v, frequency_hz, spacing)?;
+        values[4] = level(two.im2_v, two.fundamental_v);
+        values[5] = level(two.im3_v, two.fundamental_v);
+        if values[4].is_finite() {
+            values[6] = amplitude_v * 10f64.powf(-values[4] / 20.0);
+        }
+        region.merge(&two.region);
+        values[7] = values[7].min(two.region.collector_base_margin_v());
+    }
+    Ok((values, amplitudes, region))
+}
+
+/// The population of a stage with charge storage at one temperature: every run draws its
+/// mismatch exactly as [`evaluate_one`] does (same keys, same order), and solves the periodic
+/// steady state of each frequency and amplitude, and each budget line, with the dynamic
+/// engine. Each solve is independent of every other (no state carried between runs or
+/// points), so the report does not depend on the thread count or scheduling.
+fn evaluate_one_with_charge(
+    plan: &Plan,
+    settings: &MonteCarloSettings,
+    stage: &Stage,
+    (stage_index, temperature_index, temperature_c): (usize, usize, f64),
+    cache: &Arc<FftCache>,
+    corner: &str,
+    run_done: &(dyn Fn() + Sync),
+) -> Result<StagePopulation, Error> {
+    let harmonics = plan.drive.thd_harmonics.max(9);
+    let drive_settings = DriveSettings::of(&plan.drive);
+    let frequencies = &plan.drive.frequencies;
+    let amplitudes = &plan.drive.amplitudes;
+    let spacing = plan.drive.two_tone_spacing;
+    struct ChargeRun {
+        /// Per (frequency, amplitude), frequency-major.
+        points: Vec<[f64; 8]>,
+        offset_v: f64,
+        line_passes: Vec<bool>,
+        least_margin_v: f64,
+    }
+    let runs: Vec<ChargeRun> = (0..settings.runs)
+        .into_par_iter()
+        .map(|run| {
+            let mut rng = run_rng(settings.seed, stage_index, temperature_index, run);
+            let mismatch = draw_mismatch(&mut rng, &stage.mismatch, &stage.mismatch_sigma);
+            let circuit = StageCircuit::with_mismatch(stage, temperature_c, &mismatch);
+            let engine = engine_for(circuit, cache.clone());
+            let mut points = Vec::with_capacity(frequencies.len() * amplitudes.len());
+            let mut least_margin_v = f64::INFINITY;
+            for &frequency_hz in frequencies {
+                for &amplitude_v in amplitudes {
+                    let (values, _, region) = measure_point_with_charge(
+                        engine.as_ref(),
+                        amplitude_v,
+                        frequency_hz,
+                        spacing,
+                        harmonics,
+                    )?;
+                    least_margin_v = least_margin_v.min(region.collector_base_margin_v());
+                    points.push(values);
+                }
+            }
+            let offset_v = offset_voltage(engine.static_solver())?;
+            let lines: Vec<_> = plan
+                .budget
+                .iter()
+                .filter(|l| !l.metric.is_population())
+                .collect();
+            let mut line_passes = Vec::with_capacity(plan.budget.len());
+            if lines.is_empty() {
+                line_passes.resize(plan.budget.len(), true);
+            } else {
+                let measured = StageMeasurements::new(engine, drive_settings);
+                for line in &plan.budget {
+                    if line.metric.is_population() {
+                        line_passes.push(true);
+                        continue;
+                    }
+                    let checked = measured.measure_checked(line)?;
+                    least_margin_v = least_margin_v.min(checked.region.collector_base_margin_v());
+                    line_passes.push(judge(line, checked.value, ANALYSIS_FLOOR_DBC).pass);
+                }
+            }
+            run_done();
+            Ok(ChargeRun {
+                points,
+                offset_v,
+                line_passes,
+                least_margin_v,
+            })
+        })
+        .collect::<Result<Vec<_>, SolveFailure>>()
+        .map_err(|failure| Error::Solve {
+            stage: stage.name.clone(),
+            temperature_c,
+            point: format!("Monte Carlo: {}", failure.point),
+            reason: failure.reason,
+        })?;
+
+    let distribution =
+        |frequency_hz: f64, amplitude_v: f64, figure: PopulationFigure, mut values: Vec<f64>| {
+            values.sort_by(f64::total_cmp);
+            FigureDistribution {
+                frequency_hz,
+                amplitude_v,
+                figure,
+                median: quantile(&values, 0.5),
+                p05: quantile(&values, 0.05),
+                p95: quantile(&values, 0.95),
+                below_floor_runs: values.iter().filter(|v| !v.is_finite()).count() as u64,
+            }
+        };
+    let mut distributions = Vec::new();
+    for (f_index, &frequency_hz) in frequencies.iter().enumerate() {
+        for (a_index, &amplitude_v) in amplitudes.iter().enumerate() {
+            let index = f_index * amplitudes.len() + a_index;
+            for (k, figure) in POINT_FIGURES.iter().enumerate() {
+                if figure.needs_two_tones() && spacing.is_none() {
                     continue;
                 }
                 let values = runs.iter().map(|r| r.points[index][k]).collect();

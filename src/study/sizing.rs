@@ -85,6 +85,10 @@ pub struct Trial {
     /// Least collector-base margin over every drive the trial evaluated, V (negative: a
     /// junction was forward-biased).
     pub collector_base_margin_v: f64,
+    /// Tail current of the trial, A.
+    pub tail_current: f64,
+    /// White input-referred noise density in the typical corner, V/√Hz.
+    pub input_noise_v_rthz: f64,
 }
 
 /// What decided a sizing result.
@@ -194,16 +198,16 @@ pub struct SizingOutcome {
 
 /// Which lines a holding test counts, and with what guard band.
 #[derive(Debug, Clone)]
-struct Criterion {
-    counted: Vec<bool>,
+pub(crate) struct Criterion {
+    pub(crate) counted: Vec<bool>,
     guard_band_db: f64,
     /// Lines whose margin is in volts (collector-base margin): they hold by their own limit,
     /// not by the guard band in dB.
-    volts: Vec<bool>,
+    pub(crate) volts: Vec<bool>,
 }
 
 impl Criterion {
-    fn all(plan: &Plan, guard_band_db: f64) -> Self {
+    pub(crate) fn all(plan: &Plan, guard_band_db: f64) -> Self {
         Criterion {
             counted: plan
                 .budget
@@ -216,7 +220,7 @@ impl Criterion {
     }
 
     /// The guard band a line's margin must clear: the dB band, or zero for a margin in volts.
-    fn band(&self, index: usize) -> f64 {
+    pub(crate) fn band(&self, index: usize) -> f64 {
         if self.volts[index] {
             0.0
         } else {
@@ -224,9 +228,20 @@ impl Criterion {
         }
     }
 
+    /// The same test with `lines` left out (a Pareto front's own axis).
+    pub(crate) fn without(&self, lines: &[usize]) -> Criterion {
+        let mut reduced = self.clone();
+        for &line in lines {
+            if let Some(c) = reduced.counted.get_mut(line) {
+                *c = false;
+            }
+        }
+        reduced
+    }
+
     /// A line's margin for comparing lines: a margin in volts counts 10 mV as 1 dB (only the
     /// secant steps compare across lines; every edge they find is verified).
-    fn comparable(&self, index: usize, margin: f64) -> f64 {
+    pub(crate) fn comparable(&self, index: usize, margin: f64) -> f64 {
         if self.volts[index] {
             100.0 * margin
         } else {
@@ -245,7 +260,7 @@ fn volts_lines(plan: &Plan) -> Vec<bool> {
 
 /// A margin as a number to compare: a missing margin sorts above everything when the line
 /// passes (an unbounded intercept) and below everything when it fails.
-fn margin_key(margin: Option<f64>, pass: bool) -> f64 {
+pub(crate) fn margin_key(margin: Option<f64>, pass: bool) -> f64 {
     margin.unwrap_or(if pass {
         f64::INFINITY
     } else {
@@ -255,7 +270,7 @@ fn margin_key(margin: Option<f64>, pass: bool) -> f64 {
 
 impl Trial {
     /// Whether every counted line passes by the guard band, and headroom holds.
-    fn holds(&self, criterion: &Criterion) -> bool {
+    pub(crate) fn holds(&self, criterion: &Criterion) -> bool {
         self.margins
             .iter()
             .zip(&self.passes)
@@ -269,7 +284,7 @@ impl Trial {
     }
 
     /// Least counted margin less the guard band (for the secant steps), dB.
-    fn excess(&self, criterion: &Criterion) -> f64 {
+    pub(crate) fn excess(&self, criterion: &Criterion) -> f64 {
         self.margins
             .iter()
             .zip(&self.passes)
@@ -284,7 +299,11 @@ impl Trial {
     /// Worst budget-line margin (dB) among the counted lines, its line, and the corner where
     /// it occurs. Margins in volts (collector-base margin lines, the hold-gain headroom) are
     /// judged separately: a failing one ranks below every dB margin, a passing one not at all.
-    fn worst_with_corner(&self, counted: &[bool], volts: &[bool]) -> ((f64, Binding), String) {
+    pub(crate) fn worst_with_corner(
+        &self,
+        counted: &[bool],
+        volts: &[bool],
+    ) -> ((f64, Binding), String) {
         let mut worst = (f64::INFINITY, Binding::Nothing);
         let mut corner = TYPICAL.to_owned();
         for (index, (margin, pass)) in self.margins.iter().zip(&self.passes).enumerate() {
@@ -393,20 +412,35 @@ pub fn held_load(
     emitter_resistance: f64,
     cache: &Arc<FftCache>,
 ) -> Result<f64, Error> {
-    let target = planned_gain(plan, stage, temperature_c, cache)?;
+    held_load_from(plan, stage, stage, temperature_c, emitter_resistance, cache)
+}
+
+/// The load that gives the `planned` stage's gain at `temperature_c` to `base` (the planned
+/// stage with other sized values, such as its tail current) with `emitter_resistance`.
+pub fn held_load_from(
+    plan: &Plan,
+    planned: &Stage,
+    base: &Stage,
+    temperature_c: f64,
+    emitter_resistance: f64,
+    cache: &Arc<FftCache>,
+) -> Result<f64, Error> {
+    let target = planned_gain(plan, planned, temperature_c, cache)?;
     stage_at(
         plan,
-        stage,
+        base,
         temperature_c,
         emitter_resistance,
         Some(target),
         cache,
     )
     .map(|s| s.load_resistance)
-    .map_err(|failure| Error::solve(&stage.name, temperature_c, failure))
+    .map_err(|failure| Error::solve(&planned.name, temperature_c, failure))
 }
 
-fn trial(
+/// Every budget line measured on `base` with `emitter_resistance` (and the load `hold_gain`
+/// asks for) at `temperature_c`, worst case over the process corners.
+pub(crate) fn trial(
     plan: &Plan,
     base: &Stage,
     temperature_c: f64,
@@ -447,6 +481,8 @@ fn trial(
             biases: false,
             // Not solved: no drive was evaluated.
             collector_base_margin_v: f64::NAN,
+            tail_current: trial_stage.tail_current,
+            input_noise_v_rthz: f64::NAN,
         });
     }
     // Worst case over the process corners, line by line.
@@ -486,7 +522,10 @@ fn trial(
     let measured = measurements(&in_corner, temperature_c, plan, cache);
     let gain = measured.gain().map_err(fail)?;
     let steering = measured.steering_range().map_err(fail)?;
+    let input_noise_v_rthz = measured.noise().map_err(fail)?;
     Ok(Trial {
+        tail_current: trial_stage.tail_current,
+        input_noise_v_rthz,
         emitter_resistance,
         load_resistance: trial_stage.load_resistance,
         margins,
@@ -735,6 +774,7 @@ pub fn size_stage_observed(
     cache: &Arc<FftCache>,
     trial_done: &(dyn Fn() + Sync),
 ) -> Result<SizingOutcome, Error> {
+    let (from, to) = settings.emitter_range();
     let target_gain = if settings.hold_gain {
         Some(planned_gain(plan, stage, temperature_c, cache)?)
     } else {
@@ -746,13 +786,11 @@ pub fn size_stage_observed(
         temperature_c,
         target_gain,
         cache,
-        floor_ohm: 1e-6 * (settings.to - settings.from),
+        floor_ohm: 1e-6 * (to - from),
         trial_done,
     };
     let grid: Vec<f64> = (0..SCAN_POINTS)
-        .map(|i| {
-            settings.from + (settings.to - settings.from) * i as f64 / (SCAN_POINTS - 1) as f64
-        })
+        .map(|i| from + (to - from) * i as f64 / (SCAN_POINTS - 1) as f64)
         .collect();
     let scan: Vec<Trial> = grid
         .par_iter()
@@ -814,7 +852,7 @@ pub fn size_stage_observed(
     let mut hints = Vec::new();
     let (chosen, headroom_binds) = match found.first() {
         Some((window, low)) => {
-            if window.low_at_end && settings.from > 0.0 {
+            if window.low_at_end && from > 0.0 {
                 hints.push(RangeHint::AnswerAtFrom);
             }
             if found.len() == 1 && window.high_at_end && window.low > grid[last - 1] {
@@ -878,7 +916,7 @@ pub fn size_stage_observed(
                     })
                     .unwrap_or(0);
                 if let Some(end) = end_of(best_index, last) {
-                    if end == RangeEnd::To || settings.from > 0.0 {
+                    if end == RangeEnd::To || from > 0.0 {
                         hints.push(RangeHint::BestAt(end));
                     }
                 }
@@ -983,6 +1021,15 @@ pub enum Basis {
     /// The least value in the common windows whose Monte Carlo population also meets every
     /// yield line (the least value holding the other lines did not).
     YieldInWindow,
+    /// Sizing over a region of several variables: the least value of the minimised variable
+    /// holding every line at every temperature, with the other variable where the worst
+    /// margin is greatest (`study::region`).
+    LeastInRegion,
+    /// No design of the region holds every line: the design with the best worst margin.
+    BestInRegion,
+    /// The least grid value of the minimised variable above the region's answer whose best
+    /// design's Monte Carlo population also meets every yield line.
+    YieldInRegion,
 }
 
 /// The design sizing recommends for one stage: one emitter resistance (and, with `hold_gain`,
@@ -993,6 +1040,8 @@ pub struct Recommendation {
     pub stage_index: usize,
     /// Emitter resistance per side to build, Ω.
     pub emitter_resistance: f64,
+    /// Tail current to build, A (the plan's, unless sizing chooses it).
+    pub tail_current: f64,
     /// Load resistance per side to build, Ω (the plan's, or rescaled with `hold_gain` at the
     /// typical temperature).
     pub load_resistance: f64,
@@ -1068,6 +1117,7 @@ pub fn recommend(
     Ok(Recommendation {
         stage_index,
         emitter_resistance,
+        tail_current: stage.tail_current,
         load_resistance,
         met: every_met && basis == Basis::CommonWindow,
         windows,
@@ -1080,7 +1130,7 @@ pub fn recommend(
 /// scanned the same grid).
 fn fallback(plan: &Plan, outcomes: &[&SizingOutcome], settings: &SizingSettings) -> (f64, Basis) {
     let Some(first) = outcomes.first() else {
-        return (settings.from, Basis::BestWorstMargin);
+        return (settings.emitter_range().0, Basis::BestWorstMargin);
     };
     let counted: Vec<bool> = plan
         .budget

@@ -10,14 +10,14 @@
 //! | piece | cost |
 //! |---|---|
 //! | single tone, matched memoryless pair (quarter-period fast path) | [`SYMMETRIC_TONE_S`] |
-//! | single tone, other memoryless stages (every sample solved, nested Newton) | [`GENERAL_TONE_S`] (×[`REDUCED_FACTOR`] when the one-unknown solve applies) |
+//! | single tone, other memoryless stages (every sample solved) | [`GENERAL_TONE_S`] (×[`REDUCED_FACTOR`] when the one-unknown solve applies) |
 //! | two tones, memoryless (2-D grids up to 64×64) | [`MEMORYLESS_TWO_TONE_S`] (same factor) |
 //! | single tone, stage with charge storage (periodic steady state) | [`DYNAMIC_TONE_S`] per 10 harmonics analysed |
 //! | two tones, stage with charge storage | [`DYNAMIC_TWO_TONE_CYCLE_S`] per upper-tone cycle of the common period |
 //! | stage-wide figures per frequency (IIP3 search, P1dB bisection) | [`INTERCEPT_TWO_TONES`] two-tone and [`COMPRESSION_TONES`] single-tone analyses |
 //! | stage-wide static figures per case (steering, offset, transfer curve, noise) | [`STATIC_CASE_S`] |
 //! | Monte Carlo, per run | the drive points at their nominal resolution, [`MONTE_CARLO_RUN_S`] fixed, and the stage-wide figures when a budget line needs them |
-//! | sizing | [`SIZING_TRIALS`] trials × corners × the measurements the budget lines need, then the recommended design evaluated in full (its population too, [`YIELD_SEARCH_POPULATIONS`] more with a yield line) |
+//! | sizing | [`SIZING_TRIALS`] trials ([`REGION_DESIGNS`] when the tail current is sized too) × corners × the measurements the budget lines need, then the recommended design evaluated in full (its population too, [`YIELD_SEARCH_POPULATIONS`] more with a yield line) |
 //! | a fit to bench data | [`FIT_EVALUATIONS`] single tones per bench point, then the fitted stage evaluated in full |
 //! | the report (tables and figures) | [`REPORT_S`] + [`REPORT_POINT_S`] per point, and [`PROCESS_S`] of wall time |
 //!
@@ -32,19 +32,22 @@ use crate::model::plan::Plan;
 use crate::model::products::common_period_cycles;
 use crate::model::stage::Stage;
 use crate::solve::symmetric;
+use crate::study::region::{PRIMARY_POINTS, SECONDARY_POINTS};
 use crate::study::sizing::SCAN_POINTS;
 
 /// One single tone through the matched-pair fast path, s.
 pub const SYMMETRIC_TONE_S: f64 = 5e-6;
 /// One single tone solved sample by sample (general memoryless stage), s.
-pub const GENERAL_TONE_S: f64 = 6e-4;
+pub const GENERAL_TONE_S: f64 = 3e-5;
 /// Added per harmonic analysed to a general single tone, s.
-pub const GENERAL_TONE_HARMONIC_S: f64 = 1.2e-5;
-/// Cost of the one-unknown solve (ideal tail, no Early effect, mismatched) against the nested
-/// general solve.
-pub const REDUCED_FACTOR: f64 = 0.05;
+pub const GENERAL_TONE_HARMONIC_S: f64 = 6e-7;
+/// Cost of the one-unknown solve (ideal tail, no Early effect, mismatched) against the general
+/// solve's joint Newton: the same at plan level (a 4,096-point sweep of each, 0.26 s and 0.28 s
+/// of CPU; benches/README.md), so the costs above, calibrated when the general solve was nested
+/// and 20× slower, stay as they were for the one-unknown solve.
+pub const REDUCED_FACTOR: f64 = 1.0;
 /// One memoryless two-tone analysis (general solve), s.
-pub const MEMORYLESS_TWO_TONE_S: f64 = 2e-2;
+pub const MEMORYLESS_TWO_TONE_S: f64 = 2.5e-3;
 /// One memoryless two-tone analysis of a matched pair with the one-unknown solve, s.
 pub const SYMMETRIC_TWO_TONE_S: f64 = 5e-4;
 /// One single tone of a stage with charge storage, per 10 harmonics analysed, s.
@@ -59,8 +62,9 @@ pub const DYNAMIC_TWO_TONE_CYCLE_S: f64 = 4.5e-3;
 pub const INTERCEPT_TWO_TONES: [f64; 3] = [6.0, 2.5, 8.0];
 /// Single tones of a P1dB search (bracketing and bisection).
 pub const COMPRESSION_TONES: f64 = 25.0;
-/// Static figures of one case (steering, offset, transfer curve, noise) through the nested
-/// general solve, s; a tenth of it with the one-unknown solve.
+/// Static figures of one case (steering, offset, transfer curve, noise) through the general
+/// solve, s (calibrated with the nested solve, now an upper bound); a tenth of it with the
+/// one-unknown solve.
 pub const STATIC_CASE_S: f64 = 5e-3;
 /// Fixed part of one Monte Carlo run (offset search, gain, noise), s.
 pub const MONTE_CARLO_RUN_S: f64 = 1e-5;
@@ -72,6 +76,23 @@ pub const MONTE_CARLO_POINT_FACTOR: f64 = 0.3;
 pub const YIELD_SEARCH_POPULATIONS: f64 = 1.5;
 /// Trial values of the emitter resistance a sizing search evaluates (scan plus refinement).
 pub const SIZING_TRIALS: f64 = SCAN_POINTS as f64 + 12.0;
+/// Designs a sizing search over two variables (tail current and emitter resistance)
+/// evaluates: the map, the refinement of the least value (about ten bisection steps, each a row
+/// of the other variable and a golden-section search), and the Pareto fronts' edges (about
+/// eight per grid row and front).
+pub const REGION_DESIGNS: f64 = (PRIMARY_POINTS * SECONDARY_POINTS) as f64
+    + 10.0 * (SECONDARY_POINTS as f64 + 20.0)
+    + 2.0 * 8.0 * PRIMARY_POINTS as f64;
+
+/// Trials the plan's sizing evaluates per stage and temperature: the one-variable scan, or the
+/// designs of a region search.
+pub fn sizing_trials(plan: &Plan) -> f64 {
+    match &plan.sizing {
+        Some(settings) if settings.is_emitter_only() => SIZING_TRIALS,
+        Some(_) => REGION_DESIGNS,
+        None => 0.0,
+    }
+}
 /// Writing the report: tables, documents and figures, s.
 pub const REPORT_S: f64 = 0.03;
 /// Writing the report, per drive point, s.
@@ -261,8 +282,9 @@ pub fn estimate(plan: &Plan) -> Workload {
                 .sum();
             let hold = plan.sizing.as_ref().is_some_and(|s| s.hold_gain);
             let headroom = if hold { engine.tone_s(3) } else { 0.0 };
-            sizing +=
-                temperatures * SIZING_TRIALS * (corners * (lines + headroom) + engine.static_s());
+            sizing += temperatures
+                * sizing_trials(plan)
+                * (corners * (lines + headroom) + engine.static_s());
         }
     }
     // A fit evaluates every measured point about FIT_EVALUATIONS times as a single tone, and
@@ -321,7 +343,7 @@ pub fn estimate(plan: &Plan) -> Workload {
     let cases = plan.stages.len() as f64 * temperatures * corners;
     let wall_seconds = sweep / spread(cases * (points / cases.max(1.0) + 1.0))
         + monte_carlo / spread(plan.monte_carlo.as_ref().map_or(1.0, |m| m.runs as f64))
-        + sizing / spread(SIZING_TRIALS * plan.stages.len() as f64 * temperatures)
+        + sizing / spread(sizing_trials(plan) * plan.stages.len() as f64 * temperatures)
         + fit / spread(cases)
         + recommended / spread(cases.max(plan.monte_carlo.as_ref().map_or(1.0, |m| m.runs as f64)))
         + report / spread(4.0)
@@ -339,7 +361,7 @@ pub fn estimate(plan: &Plan) -> Workload {
         breakdown.push_str(&format!(", {} Monte Carlo run(s)", mc.runs));
     }
     if plan.sizing.is_some() {
-        breakdown.push_str(&format!(", sizing ({SIZING_TRIALS} trials)"));
+        breakdown.push_str(&format!(", sizing ({} trials)", sizing_trials(plan)));
     }
     if fit > 0.0 {
         breakdown.push_str(&format!(
@@ -495,8 +517,8 @@ mod tests {
         let large = estimate(&plan(Stage::new("a", 1e-3, 2e3), 10_000));
         assert!(large.cpu_seconds > small.cpu_seconds);
         assert_eq!(large.dominant_key, "drive.amplitudes");
-        // The same sweep through the nested general solve (Early effect) costs more, and a
-        // stage with capacitance more again.
+        // The same sweep through the general solve (Early effect) costs more (about 4× at
+        // plan level, benches/README.md), and a stage with capacitance far more again.
         let early = estimate(&plan(
             Stage::new("a", 1e-3, 2e3).transistor(Transistor::default().early_voltage(50.0)),
             10_000,
@@ -505,7 +527,7 @@ mod tests {
             Stage::new("a", 1e-3, 2e3).load_capacitance(1e-12),
             10_000,
         ));
-        assert!(early.cpu_seconds > 10.0 * large.cpu_seconds);
+        assert!(early.cpu_seconds > 3.0 * large.cpu_seconds);
         assert!(capacitive.cpu_seconds > 10.0 * early.cpu_seconds);
     }
 
@@ -549,5 +571,29 @@ mod tests {
             let limit = parse_duration(&text).unwrap();
             assert!(limit >= seconds, "{text} for {seconds}");
         }
+    }
+
+    #[test]
+    fn sizing_the_current_costs_the_region_designs() {
+        use crate::model::budget::{BudgetLine, Limit, Metric};
+        use crate::model::drive::Drive;
+        use crate::model::plan::SizingSettings;
+        use crate::model::stage::Stage;
+        let line = BudgetLine::new(Metric::Harmonic(3), Limit::Max(-60.0)).at(0.1);
+        let base = Plan::new("w", vec![Stage::new("a", 1e-3, 2e3)], Drive::new(vec![0.1]))
+            .budget_line(line);
+        let none = estimate(&base.clone());
+        let one = estimate(&base.clone().sizing(SizingSettings::new(0.0, 1e3)));
+        let two = estimate(
+            &base
+                .clone()
+                .sizing(SizingSettings::new(0.0, 1e3).tail_current(1e-4, 1e-3)),
+        );
+        // The sizing part scales with the trials, the rest is the same plan.
+        let ratio = (two.cpu_seconds - none.cpu_seconds) / (one.cpu_seconds - none.cpu_seconds);
+        assert!(ratio > 0.5 * REGION_DESIGNS / SIZING_TRIALS, "{ratio}");
+        assert!(two
+            .breakdown
+            .contains(&format!("sizing ({REGION_DESIGNS} trials)")));
     }
 }

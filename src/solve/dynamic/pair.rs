@@ -25,6 +25,8 @@
 //! across each load and `Q_T = C_T·V_T`. The depletion charge follows the junction law
 //! `C(V) = C_j0·(1 − V/V_j)^(−m)` below `F_C·V_j` (`F_C` = 0.5) and its tangent line above, so
 //! it stays finite under forward bias; the charge is the exact integral of that capacitance.
+//! The P side's load and junction capacitances and transit time carry the stage's mismatch
+//! (`StageCircuit::p_charge_scale`); the M side's are nominal.
 
 use super::trapezoid::ChargeSystem;
 use crate::model::circuit::{Side, StageCircuit};
@@ -70,9 +72,10 @@ pub fn depletion_charge(v: f64, zero_bias_f: f64, potential_v: f64, grading: f64
     let knee = fc * potential_v;
     let below = |v: f64| -> (f64, f64) {
         let ratio = 1.0 - v / potential_v;
-        let charge =
-            zero_bias_f * potential_v / (1.0 - grading) * (1.0 - ratio.powf(1.0 - grading));
-        (charge, zero_bias_f * ratio.powf(-grading))
+        // ratio^(1 − m) = ratio·ratio^(−m): one power for the charge and the capacitance.
+        let inverse_power = ratio.powf(-grading);
+        let charge = zero_bias_f * potential_v / (1.0 - grading) * (1.0 - ratio * inverse_power);
+        (charge, zero_bias_f * inverse_power)
     };
     if v < knee {
         below(v)
@@ -291,6 +294,14 @@ impl<'a> PairSystem<'a> {
         }
     }
 
+    /// Intrinsic base-collector voltages (P, M) of a state, V.
+    pub fn base_collector_pair_v(&self, x: &[f64]) -> [f64; 2] {
+        [
+            x[B_P] - x[self.internal_collector[0]],
+            x[B_M] - x[self.internal_collector[1]],
+        ]
+    }
+
     /// The node voltages of a memoryless operating point (a start for shooting).
     pub fn state_from(&self, point: &crate::solve::transfer::OperatingPoint) -> Vec<f64> {
         let mut x = vec![0.0; self.unknowns];
@@ -317,20 +328,91 @@ impl ChargeSystem for PairSystem<'_> {
     }
 
     fn resistive(&self, x: &[f64], time_s: f64, f: &mut [f64], jacobian: &mut [f64]) {
+        let sides = self.sides(x);
+        self.resistive_with(&sides, x, time_s, f, jacobian);
+    }
+
+    fn charge(&self, x: &[f64], q: &mut [f64], jacobian: &mut [f64]) {
+        let sides = self.sides(x);
+        self.charge_with(&sides, x, q, jacobian);
+    }
+
+    fn evaluate(
+        &self,
+        x: &[f64],
+        time_s: f64,
+        f: &mut [f64],
+        f_jacobian: &mut [f64],
+        q: &mut [f64],
+        q_jacobian: &mut [f64],
+    ) {
+        let sides = self.sides(x);
+        self.resistive_with(&sides, x, time_s, f, f_jacobian);
+        self.charge_with(&sides, x, q, q_jacobian);
+    }
+
+    fn coupling(&self) -> &[f64] {
+        &self.coupling
+    }
+
+    fn step_fraction(&self, x: &[f64], dx: &[f64]) -> f64 {
+        self.limit_step(x, dx)
+    }
+
+    fn current_scale(&self) -> f64 {
+        self.tail_scale
+    }
+}
+
+impl PairSystem<'_> {
+    /// Both sides' currents at a state (P, M), evaluated once for the resistive part and
+    /// the charges.
+    fn sides(&self, x: &[f64]) -> [SideCurrents; 2] {
         let c = self.circuit;
         let phi = c.thermal_voltage;
+        let [ci_p, ci_m] = self.internal_collector;
+        [
+            side_currents(&c.p, phi, x[B_P], x[E_P], x[ci_p], self.whole),
+            side_currents(&c.m, phi, x[B_M], x[E_M], x[ci_m], self.whole),
+        ]
+    }
+
+    fn resistive_with(
+        &self,
+        sides: &[SideCurrents; 2],
+        x: &[f64],
+        time_s: f64,
+        f: &mut [f64],
+        jacobian: &mut [f64],
+    ) {
+        let c = self.circuit;
         let v_d = self.drive.differential_v(time_s);
         jacobian.fill(0.0);
         let n = self.unknowns;
         let st = self.tail_scale;
         f[TAIL] = -st * (c.tail_current + c.tail_conductance * x[TAIL]);
         jacobian[TAIL * n + TAIL] = -st * c.tail_conductance;
-        for (side, sign, b, e, col, ci) in [
-            (&c.p, 0.5, B_P, E_P, C_P, self.internal_collector[0]),
-            (&c.m, -0.5, B_M, E_M, C_M, self.internal_collector[1]),
+        for (side, s, sign, b, e, col, ci) in [
+            (
+                &c.p,
+                &sides[0],
+                0.5,
+                B_P,
+                E_P,
+                C_P,
+                self.internal_collector[0],
+            ),
+            (
+                &c.m,
+                &sides[1],
+                -0.5,
+                B_M,
+                E_M,
+                C_M,
+                self.internal_collector[1],
+            ),
         ] {
             let v_in = c.input_common_mode + sign * v_d;
-            let s = side_currents(side, phi, x[b], x[e], x[ci], self.whole);
             let (d_collector, d_base) = (s.d_collector, s.d_base);
             let nodes = [b, e, ci];
             f[b] = v_in - x[b] - side.base_path_resistance * s.base;
@@ -361,15 +443,22 @@ impl ChargeSystem for PairSystem<'_> {
         }
     }
 
-    fn charge(&self, x: &[f64], q: &mut [f64], jacobian: &mut [f64]) {
+    fn charge_with(
+        &self,
+        sides: &[SideCurrents; 2],
+        x: &[f64],
+        q: &mut [f64],
+        jacobian: &mut [f64],
+    ) {
         let c = self.circuit;
         let ch = &c.charge;
-        let phi = c.thermal_voltage;
         let n = self.unknowns;
         jacobian.fill(0.0);
-        for (side, b, e, col, ci, qbe, qbc, ql) in [
+        let matched = crate::model::circuit::ChargeScale::MATCHED;
+        for (s, scale, b, e, col, ci, qbe, qbc, ql) in [
             (
-                &c.p,
+                &sides[0],
+                &c.p_charge_scale,
                 B_P,
                 E_P,
                 C_P,
@@ -379,7 +468,8 @@ impl ChargeSystem for PairSystem<'_> {
                 Q_L_P,
             ),
             (
-                &c.m,
+                &sides[1],
+                &matched,
                 B_M,
                 E_M,
                 C_M,
@@ -389,22 +479,22 @@ impl ChargeSystem for PairSystem<'_> {
                 Q_L_M,
             ),
         ] {
-            let s = side_currents(side, phi, x[b], x[e], x[ci], self.whole);
             let (junction, capacitance) = depletion_charge(
                 x[b] - x[e],
-                ch.emitter_junction_capacitance,
+                ch.emitter_junction_capacitance * scale.emitter_junction_capacitance,
                 ch.emitter_junction_potential,
                 ch.emitter_grading,
             );
-            q[qbe] = ch.transit_time * s.forward_diffusion + junction;
+            let transit_time = ch.transit_time * scale.transit_time;
+            q[qbe] = transit_time * s.forward_diffusion + junction;
             for (k, &node) in [b, e, ci].iter().enumerate() {
-                jacobian[qbe * n + node] += ch.transit_time * s.d_forward_diffusion[k];
+                jacobian[qbe * n + node] += transit_time * s.d_forward_diffusion[k];
             }
             jacobian[qbe * n + b] += capacitance;
             jacobian[qbe * n + e] -= capacitance;
             let (junction, capacitance) = depletion_charge(
                 x[b] - x[ci],
-                ch.collector_junction_capacitance,
+                ch.collector_junction_capacitance * scale.collector_junction_capacitance,
                 ch.collector_junction_potential,
                 ch.collector_grading,
             );
@@ -412,18 +502,15 @@ impl ChargeSystem for PairSystem<'_> {
             let reverse_diffusion = ch.reverse_transit_time * s.d_reverse_transport;
             jacobian[qbc * n + b] += capacitance + reverse_diffusion;
             jacobian[qbc * n + ci] -= capacitance + reverse_diffusion;
-            q[ql] = c.load_capacitance * (c.supply - x[col]);
-            jacobian[ql * n + col] = -c.load_capacitance;
+            let load_capacitance = c.load_capacitance * scale.load_capacitance;
+            q[ql] = load_capacitance * (c.supply - x[col]);
+            jacobian[ql * n + col] = -load_capacitance;
         }
         q[Q_T] = c.tail_capacitance * x[TAIL];
         jacobian[Q_T * n + TAIL] = c.tail_capacitance;
     }
 
-    fn coupling(&self) -> &[f64] {
-        &self.coupling
-    }
-
-    fn step_fraction(&self, x: &[f64], dx: &[f64]) -> f64 {
+    fn limit_step(&self, x: &[f64], dx: &[f64]) -> f64 {
         // Junction limiting: no base-emitter voltage moves by more than 8·φT per iteration
         // (keeps the exponentials finite far from the solution), nor a base-collector voltage
         // that is or would become forward-biased; no node by more than 1 V.
@@ -448,10 +535,6 @@ impl ChargeSystem for PairSystem<'_> {
             fraction = fraction.min(1.0 / node);
         }
         fraction
-    }
-
-    fn current_scale(&self) -> f64 {
-        self.tail_scale
     }
 }
 

@@ -24,6 +24,16 @@
 //! [`SteadyTolerance::state`] of its start, and every charge current times
 //! [`ChargeSystem::current_scale`] likewise.
 //!
+//! **Cost.** Each period stores what the monodromy needs (the step matrices and charge
+//! Jacobians along the way), so the shooting matrix is built from a period already integrated
+//! only when a chord step stops converging — never by integrating the same period again. The
+//! Newton iteration of each step starts from a *guide*: the increment over the same step of a
+//! neighbouring trajectory (the previous shooting period, or the previous refinement level
+//! interpolated onto this grid), which is usually within the step tolerance already, so most
+//! steps take one Newton iteration. Guides and chord steps only choose where Newton starts:
+//! every accepted step still meets the step tolerance and every accepted period the
+//! steady-state criterion.
+//!
 //! The trapezoidal rule maps stiff modes (time constants far below the step) to an
 //! amplification near −1 per step. Over an *even* number of steps such a mode returns
 //! almost unchanged and the shooting matrix `∂Φ/∂s₀ − I` becomes nearly singular; over an
@@ -45,6 +55,20 @@ pub trait ChargeSystem {
     fn resistive(&self, x: &[f64], time_s: f64, f: &mut [f64], jacobian: &mut [f64]);
     /// Charges `q(x)` and their row-major Jacobian `∂q/∂x` (charges × unknowns).
     fn charge(&self, x: &[f64], q: &mut [f64], jacobian: &mut [f64]);
+    /// Resistive part and charges at once (one device evaluation where the two share it);
+    /// the same values as [`ChargeSystem::resistive`] followed by [`ChargeSystem::charge`].
+    fn evaluate(
+        &self,
+        x: &[f64],
+        time_s: f64,
+        f: &mut [f64],
+        f_jacobian: &mut [f64],
+        q: &mut [f64],
+        q_jacobian: &mut [f64],
+    ) {
+        self.resistive(x, time_s, f, f_jacobian);
+        self.charge(x, q, q_jacobian);
+    }
     /// The constant coupling `B`, row-major (unknowns × charges).
     fn coupling(&self) -> &[f64];
     /// Largest fraction of a Newton step taken from `x` along `dx` (junction limiting).
@@ -117,6 +141,7 @@ struct Workspace {
     current: Vec<f64>,
     matrix: Vec<f64>,
     delta: Vec<f64>,
+    lu: Lu,
 }
 
 impl Workspace {
@@ -131,6 +156,7 @@ impl Workspace {
             current: vec![0.0; m],
             matrix: vec![0.0; n * n],
             delta: vec![0.0; n],
+            lu: Lu::with_size(n),
         }
     }
 
@@ -145,8 +171,14 @@ impl Workspace {
         i_previous: &[f64],
     ) {
         let (n, m) = (self.n, self.m);
-        system.resistive(x, time_s, &mut self.f, &mut self.fx);
-        system.charge(x, &mut self.q, &mut self.qx);
+        system.evaluate(
+            x,
+            time_s,
+            &mut self.f,
+            &mut self.fx,
+            &mut self.q,
+            &mut self.qx,
+        );
         for k in 0..m {
             self.current[k] = rate * (self.q[k] - q_previous[k]) - i_previous[k];
         }
@@ -158,13 +190,98 @@ impl Workspace {
                 let coupling = b[row * m + k];
                 if coupling != 0.0 {
                     sum += coupling * self.current[k];
-                    for col in 0..n {
-                        self.matrix[row * n + col] += coupling * rate * self.qx[k * n + col];
+                    let scaled = coupling * rate;
+                    let target = &mut self.matrix[row * n..row * n + n];
+                    let source = &self.qx[k * n..k * n + n];
+                    for (t, s) in target.iter_mut().zip(source) {
+                        *t += scaled * s;
                     }
                 }
             }
             self.f[row] = sum;
         }
+    }
+}
+
+/// What one integrated period leaves behind for its monodromy matrix: the charge Jacobian
+/// at every point (`steps + 1` blocks of charges × unknowns) and the step matrix at every
+/// accepted point (`steps` blocks of unknowns × unknowns).
+#[derive(Debug, Clone, Default)]
+pub struct PeriodRecord {
+    steps: usize,
+    rate: f64,
+    charge_jacobians: Vec<f64>,
+    step_matrices: Vec<f64>,
+}
+
+impl PeriodRecord {
+    /// The monodromy matrix `∂end/∂start` over `(x, i)`, row-major, of the recorded period.
+    pub fn monodromy<S: ChargeSystem>(&self, system: &S) -> Result<Vec<f64>, IntegrationFailure> {
+        let (n, m) = (system.unknowns(), system.charges());
+        let d = n + m;
+        let rate = self.rate;
+        let b = system.coupling();
+        let mut s = vec![0.0; d * d];
+        for k in 0..d {
+            s[k * d + k] = 1.0;
+        }
+        let mut w = vec![0.0; m * d];
+        let mut bw = vec![0.0; n * d];
+        let mut scratch = Vec::new();
+        let mut lu = Lu::with_size(n);
+        for step in 0..self.steps {
+            let qx = &self.charge_jacobians[step * m * n..(step + 1) * m * n];
+            let qx_next = &self.charge_jacobians[(step + 1) * m * n..(step + 2) * m * n];
+            // W = rate·Qx(x_n)·S_x + S_i ;  S_x' = A⁻¹·B·W ;  S_i' = rate·Qx(x_{n+1})·S_x' − W
+            for k in 0..m {
+                let row = &mut w[k * d..k * d + d];
+                row.copy_from_slice(&s[(n + k) * d..(n + k) * d + d]);
+                for col in 0..n {
+                    let factor = rate * qx[k * n + col];
+                    if factor != 0.0 {
+                        for (r, v) in row.iter_mut().zip(&s[col * d..col * d + d]) {
+                            *r += factor * v;
+                        }
+                    }
+                }
+            }
+            for row in 0..n {
+                let target = &mut bw[row * d..row * d + d];
+                target.fill(0.0);
+                for k in 0..m {
+                    let coupling = b[row * m + k];
+                    if coupling != 0.0 {
+                        for (t, v) in target.iter_mut().zip(&w[k * d..k * d + d]) {
+                            *t += coupling * v;
+                        }
+                    }
+                }
+            }
+            let time_s = (step + 1) as f64 * 2.0 / rate;
+            if !lu.refactor(&self.step_matrices[step * n * n..(step + 1) * n * n]) {
+                return Err(IntegrationFailure {
+                    time_s,
+                    reason: "the step's Jacobian is singular".into(),
+                });
+            }
+            lu.solve_columns(&mut bw, d, &mut scratch);
+            s[..n * d].copy_from_slice(&bw);
+            for k in 0..m {
+                let row = &mut s[(n + k) * d..(n + k) * d + d];
+                for (r, v) in row.iter_mut().zip(&w[k * d..k * d + d]) {
+                    *r = -v;
+                }
+                for col in 0..n {
+                    let factor = rate * qx_next[k * n + col];
+                    if factor != 0.0 {
+                        for (r, v) in row.iter_mut().zip(&bw[col * d..col * d + d]) {
+                            *r += factor * v;
+                        }
+                    }
+                }
+            }
+        }
+        Ok(s)
     }
 }
 
@@ -189,8 +306,46 @@ pub fn integrate<S: ChargeSystem>(
     tolerance: StepTolerance,
     with_monodromy: bool,
 ) -> Result<PeriodRun, IntegrationFailure> {
+    let mut record = PeriodRecord::default();
+    let (end, trajectory) = integrate_guided(
+        system,
+        start,
+        t0_s,
+        span_s,
+        steps,
+        tolerance,
+        None,
+        with_monodromy.then_some(&mut record),
+    )?;
+    let monodromy = if with_monodromy {
+        Some(record.monodromy(system)?)
+    } else {
+        None
+    };
+    Ok(PeriodRun {
+        end,
+        trajectory,
+        monodromy,
+    })
+}
+
+/// Advances `start` over `steps` equal steps; each step's Newton iteration starts from the
+/// current point plus the increment of `guide` over that step (`guide` holds `steps` rows of
+/// unknowns on the same grid, periodic: row `steps` is row 0), or from a linear extrapolation
+/// of the last two points without a guide. With `record`, keeps what the monodromy needs.
+/// Returns the end state and the trajectory (rows `0..steps`).
+#[allow(clippy::too_many_arguments)]
+pub fn integrate_guided<S: ChargeSystem>(
+    system: &S,
+    start: &State,
+    t0_s: f64,
+    span_s: f64,
+    steps: usize,
+    tolerance: StepTolerance,
+    guide: Option<&[f64]>,
+    mut record: Option<&mut PeriodRecord>,
+) -> Result<(State, Vec<f64>), IntegrationFailure> {
     let (n, m) = (system.unknowns(), system.charges());
-    let d = n + m;
     let h = span_s / steps as f64;
     let rate = 2.0 / h;
     let mut work = Workspace::new(n, m);
@@ -199,42 +354,53 @@ pub fn integrate<S: ChargeSystem>(
     let mut q = vec![0.0; m];
     let mut qx = vec![0.0; m * n];
     system.charge(&x, &mut q, &mut qx);
+    if let Some(r) = record.as_deref_mut() {
+        r.steps = steps;
+        r.rate = rate;
+        r.charge_jacobians.clear();
+        r.charge_jacobians.reserve((steps + 1) * m * n);
+        r.charge_jacobians.extend_from_slice(&qx);
+        r.step_matrices.clear();
+        r.step_matrices.reserve(steps * n * n);
+    }
+    let guide = guide.filter(|g| g.len() == steps * n);
     let mut trajectory = Vec::with_capacity(steps * n);
     let mut previous_x = x.clone();
-    let mut sensitivity = with_monodromy.then(|| {
-        let mut s = vec![0.0; d * d];
-        for k in 0..d {
-            s[k * d + k] = 1.0;
-        }
-        s
-    });
-    let mut w = vec![0.0; m * d];
-    let mut bw = vec![0.0; n * d];
-    let mut scratch = Vec::new();
-    let mut guess = vec![0.0; n];
+    let mut candidate = vec![0.0; n];
     for step in 0..steps {
         trajectory.extend_from_slice(&x);
         let time_s = t0_s + (step + 1) as f64 * span_s / steps as f64;
-        // Linear predictor from the last two points.
-        for k in 0..n {
-            guess[k] = if step == 0 {
-                x[k]
-            } else {
-                2.0 * x[k] - previous_x[k]
-            };
+        match guide {
+            Some(g) => {
+                let next = if step + 1 == steps { 0 } else { step + 1 };
+                for k in 0..n {
+                    candidate[k] = x[k] + g[next * n + k] - g[step * n + k];
+                }
+            }
+            None => {
+                // Linear predictor from the last two points.
+                for k in 0..n {
+                    candidate[k] = if step == 0 {
+                        x[k]
+                    } else {
+                        2.0 * x[k] - previous_x[k]
+                    };
+                }
+            }
         }
-        let mut candidate = guess.clone();
         let mut converged = false;
         for _ in 0..tolerance.max_iterations {
             work.assemble(system, &candidate, time_s, rate, &q, &i);
-            let lu = Lu::factor(&work.matrix, n).ok_or_else(|| IntegrationFailure {
-                time_s,
-                reason: "the step's Jacobian is singular".into(),
-            })?;
+            if !work.lu.refactor(&work.matrix) {
+                return Err(IntegrationFailure {
+                    time_s,
+                    reason: "the step's Jacobian is singular".into(),
+                });
+            }
             for k in 0..n {
                 work.delta[k] = -work.f[k];
             }
-            lu.solve(&mut work.delta);
+            work.lu.solve(&mut work.delta);
             if work.delta.iter().any(|v| !v.is_finite()) {
                 return Err(IntegrationFailure {
                     time_s,
@@ -261,46 +427,22 @@ pub fn integrate<S: ChargeSystem>(
                 ),
             });
         }
-        // Charges, currents and Jacobian at the accepted point.
-        work.assemble(system, &candidate, time_s, rate, &q, &i);
-        if let Some(s) = sensitivity.as_mut() {
-            // W = rate·Qx(x_n)·S_x + S_i ;  S_x' = A⁻¹·B·W ;  S_i' = rate·Qx(x_{n+1})·S_x' − W
-            for k in 0..m {
-                for c in 0..d {
-                    let mut sum = s[(n + k) * d + c];
-                    for col in 0..n {
-                        sum += rate * qx[k * n + col] * s[col * d + c];
-                    }
-                    w[k * d + c] = sum;
-                }
+        // Charges and currents at the accepted point: the last Newton step moved it by at
+        // most the tolerance, so its charges are the assembled ones plus Qx·Δx (to Δx², the
+        // order of the accepted point's own error) — no second device evaluation. The
+        // charge moved is still exactly what the currents carry (they are defined from it).
+        // The Jacobians kept for the monodromy are those of the last iterate, Δx away.
+        for k in 0..m {
+            let mut charge = work.q[k];
+            for (d, dx) in work.qx[k * n..k * n + n].iter().zip(&work.delta) {
+                charge += d * dx;
             }
-            let b = system.coupling();
-            for row in 0..n {
-                for c in 0..d {
-                    let mut sum = 0.0;
-                    for k in 0..m {
-                        sum += b[row * m + k] * w[k * d + c];
-                    }
-                    bw[row * d + c] = sum;
-                }
-            }
-            let lu = Lu::factor(&work.matrix, n).ok_or_else(|| IntegrationFailure {
-                time_s,
-                reason: "the step's Jacobian is singular".into(),
-            })?;
-            lu.solve_columns(&mut bw, d, &mut scratch);
-            for row in 0..n {
-                s[row * d..row * d + d].copy_from_slice(&bw[row * d..row * d + d]);
-            }
-            for k in 0..m {
-                for c in 0..d {
-                    let mut sum = -w[k * d + c];
-                    for col in 0..n {
-                        sum += rate * work.qx[k * n + col] * bw[col * d + c];
-                    }
-                    s[(n + k) * d + c] = sum;
-                }
-            }
+            work.q[k] = charge;
+            work.current[k] = rate * (charge - q[k]) - i[k];
+        }
+        if let Some(r) = record.as_deref_mut() {
+            r.charge_jacobians.extend_from_slice(&work.qx);
+            r.step_matrices.extend_from_slice(&work.matrix);
         }
         previous_x.copy_from_slice(&x);
         x.copy_from_slice(&candidate);
@@ -308,11 +450,7 @@ pub fn integrate<S: ChargeSystem>(
         qx.copy_from_slice(&work.qx);
         i.copy_from_slice(&work.current);
     }
-    Ok(PeriodRun {
-        end: State { x, i },
-        trajectory,
-        monodromy: sensitivity,
-    })
+    Ok((State { x, i }, trajectory))
 }
 
 /// Periods a circuit is left to settle by plain integration when shooting makes no progress.
@@ -336,8 +474,12 @@ pub struct PeriodicSolution {
 }
 
 /// Finds the periodic steady state of period `period_s` with `steps` steps per period,
-/// starting from `guess`; `monodromy` carries a shooting matrix between calls (reused for
-/// chord steps, rebuilt when the residual does not fall at least tenfold per period).
+/// starting from `guess`; `monodromy` carries a shooting matrix between calls with the step
+/// count it was built for (reused for chord steps at that step count while the residual falls
+/// at least tenfold per period, rebuilt from the period just integrated otherwise: a matrix
+/// of another step count carries other stiff-mode factors and converges poorly). `guide` (a trajectory on this grid, see [`integrate_guided`])
+/// starts the first period's Newton iterations; later periods are guided by the one before.
+#[allow(clippy::too_many_arguments)]
 pub fn periodic_steady_state<S: ChargeSystem>(
     system: &S,
     guess: State,
@@ -345,14 +487,17 @@ pub fn periodic_steady_state<S: ChargeSystem>(
     steps: usize,
     step_tolerance: StepTolerance,
     steady: SteadyTolerance,
-    monodromy: &mut Option<Lu>,
+    monodromy: &mut Option<(usize, Lu)>,
+    guide: Option<Vec<f64>>,
 ) -> Result<PeriodicSolution, IntegrationFailure> {
     let (n, m) = (system.unknowns(), system.charges());
     let d = n + m;
     let scale = system.current_scale();
     let rate = 2.0 * steps as f64 / period_s;
     let mut start = guess;
+    let mut guide = guide;
     let mut last_residual = f64::INFINITY;
+    let mut record = PeriodRecord::default();
     let mut charges = vec![0.0; m];
     let mut charge_jacobian = vec![0.0; m * n];
     let mut best: Option<(State, f64, State)> = None;
@@ -373,26 +518,26 @@ pub fn periodic_steady_state<S: ChargeSystem>(
                     .max(ROUNDING_STEPS * f64::EPSILON * rate * q.abs() * scale)
             })
             .collect();
-        let rebuild = monodromy.is_none();
-        let run = integrate(
+        let (end, trajectory) = integrate_guided(
             system,
             &start,
             0.0,
             period_s,
             steps,
             step_tolerance,
-            rebuild,
+            guide.as_deref(),
+            Some(&mut record),
         )?;
         let mut change = vec![0.0; d];
         let mut residual: f64 = 0.0;
         let mut within = true;
         for k in 0..n {
-            change[k] = run.end.x[k] - start.x[k];
+            change[k] = end.x[k] - start.x[k];
             residual = residual.max(change[k].abs());
             within &= change[k].abs() <= steady.state;
         }
         for k in 0..m {
-            change[n + k] = run.end.i[k] - start.i[k];
+            change[n + k] = end.i[k] - start.i[k];
             let scaled = (change[n + k] * scale).abs();
             residual = residual.max(scaled);
             within &= scaled <= current_tolerance[k];
@@ -407,7 +552,7 @@ pub fn periodic_steady_state<S: ChargeSystem>(
         if within {
             return Ok(PeriodicSolution {
                 start,
-                trajectory: run.trajectory,
+                trajectory,
                 residual,
                 periods: iteration + 1,
             });
@@ -423,7 +568,7 @@ pub fn periodic_steady_state<S: ChargeSystem>(
         if within_rounding && residual > 0.1 * last_residual {
             return Ok(PeriodicSolution {
                 start,
-                trajectory: run.trajectory,
+                trajectory,
                 residual,
                 periods: iteration + 1,
             });
@@ -443,7 +588,7 @@ pub fn periodic_steady_state<S: ChargeSystem>(
         if diverged || slow_periods >= 3 {
             let mut state = match (&best, diverged) {
                 (Some((_, _, good_end)), true) => good_end.clone(),
-                _ => run.end.clone(),
+                _ => end.clone(),
             };
             for _ in 0..SETTLING_PERIODS {
                 state = integrate(system, &state, 0.0, period_s, steps, step_tolerance, false)?.end;
@@ -453,31 +598,30 @@ pub fn periodic_steady_state<S: ChargeSystem>(
             last_residual = f64::INFINITY;
             best = None;
             slow_periods = 0;
+            guide = None;
             continue;
         }
         if best.as_ref().is_none_or(|(_, good, _)| residual < *good) {
-            best = Some((start.clone(), residual, run.end.clone()));
+            best = Some((start.clone(), residual, end.clone()));
         }
-        if let Some(matrix) = run.monodromy {
-            let mut shifted = matrix;
+        let stale = monodromy.as_ref().is_none_or(|(built, _)| *built != steps);
+        if stale || residual > 0.1 * last_residual {
+            // No matrix for this step count yet, or the chord step is not converging fast:
+            // the Newton matrix of the period just integrated.
+            let mut shifted = record.monodromy(system)?;
             for k in 0..d {
                 shifted[k * d + k] -= 1.0;
             }
-            *monodromy = Lu::factor(&shifted, d);
+            *monodromy = Lu::factor(&shifted, d).map(|lu| (steps, lu));
             if monodromy.is_none() {
                 return Err(IntegrationFailure {
                     time_s: period_s,
                     reason: "the shooting matrix is singular (a mode with the period's own time constant)".into(),
                 });
             }
-        } else if residual > 0.1 * last_residual {
-            // The chord step is not converging fast: rebuild the matrix on the next period.
-            *monodromy = None;
-            last_residual = residual;
-            continue;
         }
         last_residual = residual;
-        if let Some(lu) = monodromy.as_ref() {
+        if let Some((_, lu)) = monodromy.as_ref() {
             let mut correction: Vec<f64> = change.iter().map(|c| -c).collect();
             lu.solve(&mut correction);
             let fraction = system.step_fraction(&start.x, &correction[..n]).min(1.0);
@@ -488,6 +632,7 @@ pub fn periodic_steady_state<S: ChargeSystem>(
                 start.i[k] += fraction * correction[n + k];
             }
         }
+        guide = Some(trajectory);
     }
     Err(IntegrationFailure {
         time_s: period_s,
