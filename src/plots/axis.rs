@@ -184,6 +184,49 @@ impl Axis {
         }
     }
 
+    /// The same log axis for a narrow panel (half a figure's width or less): at most
+    /// `most` labelled ticks — the ends and the decades between them, thinned to every other
+    /// decade when still too many — so no two labels run into each other.
+    #[must_use]
+    pub fn narrow(mut self, most: usize) -> Axis {
+        if !self.log || self.ticks.len() <= most {
+            return self;
+        }
+        let (low, high) = (self.low, self.high);
+        let span = (high / low).log10();
+        // Labels need about a sixth of a narrow panel each.
+        let gap = span / 6.0;
+        let clear = |t: f64, of: f64| (t / of).log10().abs() >= gap;
+        let decades: Vec<f64> = self
+            .ticks
+            .iter()
+            .chain(self.minor.iter())
+            .copied()
+            .filter(|t| (t.log10() - t.log10().round()).abs() < 1e-9)
+            .filter(|t| clear(*t, low) && clear(*t, high))
+            .collect();
+        let mut inner: Vec<f64> = Vec::new();
+        for d in decades {
+            if inner.iter().all(|k| clear(d, *k)) {
+                inner.push(d);
+            }
+        }
+        inner.sort_by(f64::total_cmp);
+        let mut ticks = vec![low];
+        ticks.extend(inner);
+        ticks.push(high);
+        let moved: Vec<f64> = self
+            .ticks
+            .iter()
+            .copied()
+            .filter(|t| ticks.iter().all(|k| (t / k - 1.0).abs() > 1e-9))
+            .collect();
+        self.minor.extend(moved);
+        self.minor.sort_by(f64::total_cmp);
+        self.ticks = ticks;
+        self
+    }
+
     /// The same axis with SI-prefixed tick labels in `unit`.
     #[must_use]
     pub fn in_unit(mut self, unit: &str) -> Axis {

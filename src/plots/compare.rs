@@ -101,7 +101,7 @@ impl ComparisonPlot {
             20.0,
         );
         let amplitudes: Vec<f64> = points.iter().map(|p| p.amplitude_v).collect();
-        let x_right = Axis::log(&amplitudes, "V");
+        let x_right = Axis::log(&amplitudes, "V").narrow(6);
         Some(ComparisonPlot {
             temperature_c,
             stages,

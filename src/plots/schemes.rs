@@ -48,7 +48,7 @@ impl SchemesPlot {
         let floor = report.analysis.analysis_floor_dbc;
         let y_hd3 = db_axis(&comparison, false, floor)?;
         let y_im3 = db_axis(&comparison, true, floor);
-        let x = Axis::log(&comparison.amplitudes_v, "V");
+        let x = Axis::log(&comparison.amplitudes_v, "V").narrow(6);
         Some(SchemesPlot {
             comparison,
             x,
