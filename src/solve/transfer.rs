@@ -678,6 +678,7 @@ impl StaticSolver {
                     + phi * (x[k + 1] - log_is[k])
                     + side.emitter_resistance * emitter
                     + x[0]
+                    - side.emitter_source_v
                     - v_in[k];
                 let d_u =
                     side.base_path_resistance * base + phi + side.emitter_resistance * d_emitter_du;
