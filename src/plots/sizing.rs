@@ -110,9 +110,15 @@ impl SizingPlot {
                     .at_v
                     .map(|a| format!(" at {}", si_exact(a, "V")))
                     .unwrap_or_default();
+                // A metric that is itself a margin is not called "… margin margin".
+                let name = metric_label(&line.metric);
+                let suffix = if name.ends_with("margin") {
+                    ""
+                } else {
+                    " margin"
+                };
                 format!(
-                    "{} margin ({}{at})",
-                    metric_label(&line.metric),
+                    "{name}{suffix} ({}{at})",
                     limit_text(&line.kind, line.limit, &line.unit),
                 )
             }
@@ -250,12 +256,9 @@ impl Drawing for SizingPlot {
             .records
             .iter()
             .map(|r| match (r.met, r.emitter_resistance_ohm) {
-                (true, Some(re)) => format!(
-                    "{}: R_E = {} (binding {})",
-                    celsius(r.temperature_c),
-                    si(re, "Ω"),
-                    r.binding_metric.to_uppercase()
-                ),
+                (true, Some(re)) => {
+                    format!("{}: R_E = {}", celsius(r.temperature_c), si(re, "Ω"))
+                }
                 (_, Some(re)) => format!(
                     "{}: not met, best R_E = {}",
                     celsius(r.temperature_c),
@@ -265,6 +268,8 @@ impl Drawing for SizingPlot {
             })
             .collect::<Vec<_>>()
             .join(" · ");
+        // The binding line of each temperature is in the key's verdicts.
+        let subtitle = format!("{subtitle} · binding lines in the key");
         let body = frame(root, &self.title(), &subtitle)?;
         let (plot, side) = split(&body);
         draw_key(&side, &self.key())?;
