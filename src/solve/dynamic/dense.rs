@@ -120,44 +120,14 @@ impl Lu {
 }
 
 /// Partial-pivoting LU of a row-major `N × N` matrix in place; `false` on a zero or
-/// non-finite pivot.
+/// non-finite pivot. The size is a constant here, so the inlined loops below are unrolled
+/// for the pair's 7 and 9 unknowns.
 fn factor_in_place<const N: usize>(a: &mut [f64], pivots: &mut [usize]) -> bool {
-    let a = &mut a[..N * N];
-    let pivots = &mut pivots[..N];
-    for col in 0..N {
-        let mut best = col;
-        let mut best_value = a[col * N + col].abs();
-        for row in col + 1..N {
-            let value = a[row * N + col].abs();
-            if value > best_value {
-                best = row;
-                best_value = value;
-            }
-        }
-        if best_value == 0.0 || !best_value.is_finite() {
-            return false;
-        }
-        pivots[col] = best;
-        if best != col {
-            for k in 0..N {
-                a.swap(col * N + k, best * N + k);
-            }
-        }
-        let pivot = a[col * N + col];
-        for row in col + 1..N {
-            let factor = a[row * N + col] / pivot;
-            a[row * N + col] = factor;
-            if factor != 0.0 {
-                for k in col + 1..N {
-                    a[row * N + k] -= factor * a[col * N + k];
-                }
-            }
-        }
-    }
-    true
+    factor_dynamic(&mut a[..N * N], &mut pivots[..N], N)
 }
 
 /// [`factor_in_place`] for any size.
+#[inline(always)]
 fn factor_dynamic(a: &mut [f64], pivots: &mut [usize], size: usize) -> bool {
     for col in 0..size {
         let mut best = col;
