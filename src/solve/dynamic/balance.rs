@@ -817,3 +817,131 @@ pub fn interpolate_spectral(
     }
     out
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use rustfft::FftPlanner;
+    use std::f64::consts::TAU;
+
+    /// A source `V·cos(ωt)` through `R` into `C`: `x − v_s(t) + R·dq/dt = 0`, `q = C·x`.
+    struct SeriesRc {
+        amplitude: f64,
+        frequency: f64,
+        resistance: f64,
+        capacitance: f64,
+        coupling: [f64; 1],
+    }
+
+    impl ChargeSystem for SeriesRc {
+        fn unknowns(&self) -> usize {
+            1
+        }
+        fn charges(&self) -> usize {
+            1
+        }
+        fn resistive(&self, x: &[f64], time_s: f64, f: &mut [f64], jacobian: &mut [f64]) {
+            f[0] = x[0] - self.amplitude * (TAU * self.frequency * time_s).cos();
+            jacobian[0] = 1.0;
+        }
+        fn charge(&self, x: &[f64], q: &mut [f64], jacobian: &mut [f64]) {
+            q[0] = self.capacitance * x[0];
+            jacobian[0] = self.capacitance;
+        }
+        fn coupling(&self) -> &[f64] {
+            &self.coupling
+        }
+    }
+
+    fn forward(n: usize) -> Arc<dyn Fft<f64>> {
+        FftPlanner::new().plan_fft_forward(n)
+    }
+
+    const TOLERANCE: BalanceTolerance = BalanceTolerance {
+        absolute: 1e-13,
+        max_newton: 10,
+        krylov_relative: 1e-10,
+        max_krylov: 60,
+    };
+
+    #[test]
+    fn a_driven_rc_matches_its_phasor_solution() {
+        // Linear circuit theory (common practice): the steady state of V·cos(ωt) through R
+        // into C is V·|H|·cos(ωt + arg H) with H = 1/(1 + jωRC). Harmonic balance of a
+        // linear circuit is exact once the drive's harmonic has its own bin.
+        let rc = SeriesRc {
+            amplitude: 0.7,
+            frequency: 3e6,
+            resistance: 1e3,
+            capacitance: 100e-12,
+            coupling: [1e3],
+        };
+        let samples = 16;
+        let period = 1.0 / rc.frequency;
+        let solution = periodic_balance(
+            &rc,
+            period,
+            &vec![0.0; samples],
+            forward(samples),
+            TOLERANCE,
+        )
+        .expect("converges");
+        let h = num_complex::Complex::new(1.0, TAU * rc.frequency * rc.resistance * rc.capacitance)
+            .inv();
+        for (k, x) in solution.trajectory.iter().enumerate() {
+            let phase = TAU * k as f64 / samples as f64;
+            let exact = rc.amplitude * h.norm() * (phase + h.arg()).cos();
+            assert!((x - exact).abs() < 1e-12, "sample {k}: {x} vs {exact}");
+        }
+        // A linear circuit: Newton lands in one step (plus the one that confirms it).
+        assert!(
+            solution.newton_iterations <= 2,
+            "{}",
+            solution.newton_iterations
+        );
+        assert!(solution.last_step <= TOLERANCE.absolute);
+    }
+
+    #[test]
+    fn a_newton_that_does_not_settle_is_a_failure_not_a_result() {
+        let rc = SeriesRc {
+            amplitude: 0.7,
+            frequency: 3e6,
+            resistance: 1e3,
+            capacitance: 100e-12,
+            coupling: [1e3],
+        };
+        let tolerance = BalanceTolerance {
+            max_newton: 1,
+            ..TOLERANCE
+        };
+        let result = periodic_balance(&rc, 1.0 / rc.frequency, &[0.0; 16], forward(16), tolerance);
+        let failure = result.expect_err("one iteration cannot confirm convergence");
+        assert!(
+            failure.reason.contains("did not settle"),
+            "{}",
+            failure.reason
+        );
+    }
+
+    #[test]
+    fn spectral_interpolation_is_exact_for_a_trigonometric_polynomial() {
+        // A trigonometric polynomial of degree 3 is fixed by 16 samples (sampling theorem):
+        // its interpolant at 64 points is the polynomial itself.
+        let value = |t: f64| 0.3 + (TAU * t).sin() - 0.25 * (3.0 * TAU * t).cos();
+        let from = 16;
+        let to = 64;
+        let rows: Vec<f64> = (0..from)
+            .flat_map(|k| {
+                let t = k as f64 / from as f64;
+                [value(t), -value(t)]
+            })
+            .collect();
+        let dense = interpolate_spectral(&rows, from, to, 2, &*forward(from), &*forward(to));
+        for k in 0..to {
+            let t = k as f64 / to as f64;
+            assert!((dense[2 * k] - value(t)).abs() < 1e-14);
+            assert!((dense[2 * k + 1] + value(t)).abs() < 1e-14);
+        }
+    }
+}
