@@ -208,6 +208,42 @@ fn mismatch_of(p: &serde_json::Value) -> Mismatch {
         .transit_time(get("transit_time"))
 }
 
+/// The stage of a reference case (absent or null keys: infinite, i.e. the element is absent)
+/// with the given P-over-M mismatch.
+fn stage_of(case: &serde_json::Value, mismatch: Mismatch) -> Stage {
+    let p = &case["stage"];
+    let get = |key: &str| p[key].as_f64().unwrap_or(f64::INFINITY);
+    Stage::new(
+        case["name"].as_str().unwrap(),
+        get("tail_current"),
+        get("load_resistance"),
+    )
+    .emitter_resistance(get("emitter_resistance"))
+    .source_resistance(get("source_resistance"))
+    .tail_resistance(get("tail_resistance"))
+    .load_capacitance(get("load_capacitance"))
+    .tail_capacitance(get("tail_capacitance"))
+    .supply(get("supply"))
+    .input_common_mode(get("input_common_mode"))
+    .mismatch(mismatch)
+    .transistor(
+        Transistor::default()
+            .saturation_current(get("saturation_current"))
+            .beta(get("beta"))
+            .reverse_beta(get("reverse_beta"))
+            .early_voltage(get("early_voltage"))
+            .reverse_early_voltage(get("reverse_early_voltage"))
+            .forward_knee_current(get("forward_knee_current"))
+            .reverse_knee_current(get("reverse_knee_current"))
+            .base_resistance(get("base_resistance"))
+            .collector_resistance(get("collector_resistance"))
+            .transit_time(get("transit_time"))
+            .reverse_transit_time(get("reverse_transit_time"))
+            .emitter_junction_capacitance(get("emitter_junction_capacitance"))
+            .collector_junction_capacitance(get("collector_junction_capacitance")),
+    )
+}
+
 /// The figures of an independent solve of the stated equations (general-purpose root finder
 /// and FFT for memoryless stages; Radau IIA collocation for stages with charge storage):
 /// static gain, HD2, HD3, HD5 and THD within 0.05 dB down to −120 dBc, dynamic ones within
@@ -222,36 +258,7 @@ fn figures_match_an_independent_solve_of_the_stated_equations() {
     let mut worst = [0.0f64; 2];
     for case in reference["cases"].as_array().unwrap() {
         let p = &case["stage"];
-        let get = |key: &str| p[key].as_f64().unwrap_or(f64::INFINITY);
-        let stage = Stage::new(
-            case["name"].as_str().unwrap(),
-            get("tail_current"),
-            get("load_resistance"),
-        )
-        .emitter_resistance(get("emitter_resistance"))
-        .source_resistance(get("source_resistance"))
-        .tail_resistance(get("tail_resistance"))
-        .load_capacitance(get("load_capacitance"))
-        .tail_capacitance(get("tail_capacitance"))
-        .supply(get("supply"))
-        .input_common_mode(get("input_common_mode"))
-        .mismatch(mismatch_of(p))
-        .transistor(
-            Transistor::default()
-                .saturation_current(get("saturation_current"))
-                .beta(get("beta"))
-                .reverse_beta(get("reverse_beta"))
-                .early_voltage(get("early_voltage"))
-                .reverse_early_voltage(get("reverse_early_voltage"))
-                .forward_knee_current(get("forward_knee_current"))
-                .reverse_knee_current(get("reverse_knee_current"))
-                .base_resistance(get("base_resistance"))
-                .collector_resistance(get("collector_resistance"))
-                .transit_time(get("transit_time"))
-                .reverse_transit_time(get("reverse_transit_time"))
-                .emitter_junction_capacitance(get("emitter_junction_capacitance"))
-                .collector_junction_capacitance(get("collector_junction_capacitance")),
-        );
+        let stage = stage_of(case, mismatch_of(p));
         let dynamic = case["dynamic"].as_bool().unwrap();
         let tolerance = if dynamic { 0.1 } else { 0.05 };
         let solved = stage.at(27.0).unwrap();
@@ -306,26 +313,7 @@ fn a_drawn_pair_at_high_frequency_matches_an_independent_integration() {
         .find(|c| c["name"] == "drawn-pair")
         .expect("drawn-pair case");
     let p = &case["stage"];
-    let get = |key: &str| p[key].as_f64().unwrap();
-    let stage = |mismatch: Mismatch| {
-        Stage::new("drawn", get("tail_current"), get("load_resistance"))
-            .emitter_resistance(get("emitter_resistance"))
-            .source_resistance(get("source_resistance"))
-            .load_capacitance(get("load_capacitance"))
-            .tail_capacitance(get("tail_capacitance"))
-            .supply(get("supply"))
-            .input_common_mode(get("input_common_mode"))
-            .mismatch(mismatch)
-            .transistor(
-                Transistor::default()
-                    .saturation_current(get("saturation_current"))
-                    .beta(get("beta"))
-                    .base_resistance(get("base_resistance"))
-                    .transit_time(get("transit_time"))
-                    .emitter_junction_capacitance(get("emitter_junction_capacitance"))
-                    .collector_junction_capacitance(get("collector_junction_capacitance")),
-            )
-    };
+    let stage = |mismatch: Mismatch| stage_of(case, mismatch);
     let drawn = mismatch_of(p);
     let static_only = drawn
         .load_capacitance(0.0)

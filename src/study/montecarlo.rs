@@ -519,12 +519,7 @@ fn evaluate_one(
             })
         })
         .collect::<Result<Vec<_>, SolveFailure>>()
-        .map_err(|failure| Error::Solve {
-            stage: stage.name.clone(),
-            temperature_c,
-            point: format!("Monte Carlo: {}", failure.point),
-            reason: failure.reason,
-        })?;
+        .map_err(|failure| run_failure(stage, temperature_c, failure))?;
 
     // The memoryless runs measured each amplitude once: every frequency shares it.
     Ok(summarise(
@@ -654,12 +649,7 @@ fn evaluate_one_with_charge(
             })
         })
         .collect::<Result<Vec<_>, SolveFailure>>()
-        .map_err(|failure| Error::Solve {
-            stage: stage.name.clone(),
-            temperature_c,
-            point: format!("Monte Carlo: {}", failure.point),
-            reason: failure.reason,
-        })?;
+        .map_err(|failure| run_failure(stage, temperature_c, failure))?;
 
     let per_frequency = amplitudes.len();
     Ok(summarise(
@@ -671,6 +661,16 @@ fn evaluate_one_with_charge(
         &runs,
         |f, a| f * per_frequency + a,
     ))
+}
+
+/// A run's solve failure, named as a Monte Carlo point of its stage and temperature.
+fn run_failure(stage: &Stage, temperature_c: f64, failure: SolveFailure) -> Error {
+    Error::Solve {
+        stage: stage.name.clone(),
+        temperature_c,
+        point: format!("Monte Carlo: {}", failure.point),
+        reason: failure.reason,
+    }
 }
 
 /// The mismatches of run `run`: one draw per pair of transistors (a multi-tanh cell's pairs

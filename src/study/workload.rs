@@ -238,7 +238,8 @@ pub fn estimate(plan: &Plan) -> Workload {
     let mut sweep_per_stage: Vec<f64> = Vec::with_capacity(plan.stages.len());
     for stage in &plan.stages {
         let engine = Engine::of(stage, reference_temperature);
-        let points: f64 = frequencies
+        // Every drive point once: its tone, and its two tones with two-tone drive.
+        let drive_points: f64 = frequencies
             .iter()
             .map(|&f| {
                 amplitudes
@@ -247,9 +248,13 @@ pub fn estimate(plan: &Plan) -> Workload {
                             .drive
                             .two_tone_spacing
                             .map_or(0.0, |s| engine.two_tone_s(f, s)))
-                    + engine.stage_wide_s(f, spacing(f))
             })
             .sum();
+        let points: f64 = drive_points
+            + frequencies
+                .iter()
+                .map(|&f| engine.stage_wide_s(f, spacing(f)))
+                .sum::<f64>();
         let stage_sweep = temperatures * corners * (points + engine.static_s());
         sweep += stage_sweep;
         sweep_per_stage.push(stage_sweep);
@@ -285,19 +290,8 @@ pub fn estimate(plan: &Plan) -> Workload {
             } else if draws {
                 // A stage with charge storage: every run solves the periodic steady state of
                 // each drive point at every frequency, then each budget line afresh.
-                let per_run = frequencies
-                    .iter()
-                    .map(|&f| {
-                        amplitudes
-                            * (engine.tone_s(harmonics)
-                                + plan
-                                    .drive
-                                    .two_tone_spacing
-                                    .map_or(0.0, |s| engine.two_tone_s(f, s)))
-                    })
-                    .sum::<f64>()
-                    + budget_lines_s(plan, engine, harmonics)
-                    + MONTE_CARLO_RUN_S;
+                let per_run =
+                    drive_points + budget_lines_s(plan, engine, harmonics) + MONTE_CARLO_RUN_S;
                 monte_carlo += mc.runs as f64 * temperatures * per_run;
             }
         }
