@@ -185,10 +185,52 @@ impl TwoTonePlot {
     /// drawn fundamental there.
     fn im3_limit_dbv(&self, line: &BudgetRecord) -> Option<(f64, f64)> {
         let at = line.at_v?;
-        let point = self.points.iter().find(|p| p.amplitude_v == at)?;
-        let fundamental = dbv(point.two_tone_fundamental_v.unwrap_or(point.fundamental_v));
+        let (fundamental, _) = self.fundamental_at(at)?;
         Some((dbv(at), fundamental + line.limit))
     }
+
+    /// The output fundamental per tone (dBV) at an input amplitude, as drawn: the point's own
+    /// at a sweep amplitude; between two sweep amplitudes, the drawn line between them (linear
+    /// in dBV); below the sweep, the 1:1 small-signal line (exact where the stage is linear).
+    /// Above the sweep nothing is drawn (`None`), the line's verdict is in the key.
+    fn fundamental_at(&self, at_v: f64) -> Option<(f64, Placement)> {
+        let drawn = measured(&self.points);
+        if let Some(point) = drawn.iter().find(|m| m.0 == dbv(at_v)) {
+            return Some((point.1, Placement::Sweep));
+        }
+        place_on(&drawn, dbv(at_v), self.intercept.small_signal_gain_db)
+    }
+}
+
+/// Where an IM3 line's amplitude falls on the drawn sweep.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Placement {
+    /// A sweep amplitude.
+    Sweep,
+    /// Between two sweep amplitudes (input dBV of each).
+    Between(f64, f64),
+    /// Below the sweep: on the small-signal 1:1 line.
+    BelowSweep,
+}
+
+/// The fundamental (dBV) at input `x` (dBV) on the drawn sweep `(input, fundamental, _)`:
+/// linear between the two neighbouring points, the 1:1 line `x + gain_db` below the sweep,
+/// nothing above it.
+pub fn place_on(
+    drawn: &[(f64, f64, Option<f64>)],
+    x: f64,
+    gain_db: f64,
+) -> Option<(f64, Placement)> {
+    let mut sorted: Vec<(f64, f64)> = drawn.iter().map(|m| (m.0, m.1)).collect();
+    sorted.sort_by(|a, b| a.0.total_cmp(&b.0));
+    let first = sorted.first()?;
+    if x < first.0 {
+        return Some((x + gain_db, Placement::BelowSweep));
+    }
+    let k = sorted.windows(2).position(|w| w[0].0 <= x && x <= w[1].0)?;
+    let (a, b) = (sorted[k], sorted[k + 1]);
+    let t = (x - a.0) / (b.0 - a.0);
+    Some((a.1 + t * (b.1 - a.1), Placement::Between(a.0, b.0)))
 }
 
 /// (input dBV, fundamental output dBV, IM3 output dBV) of each drawn point.
@@ -311,6 +353,29 @@ impl Drawing for TwoTonePlot {
                 "Markers show the drawn case ({}, typical corner); the table gives each line's worst case.",
                 celsius(self.temperature_c)
             ));
+            for l in &self.lines {
+                let line = l.line();
+                let Some(at) = line.at_v.filter(|_| line.metric == "im3") else {
+                    continue;
+                };
+                let name = format!("The IM3 line at {}", si_exact(at, "V"));
+                match self.fundamental_at(at).map(|f| f.1) {
+                    Some(Placement::Sweep) => {}
+                    Some(Placement::Between(a, b)) => key.notes.push(format!(
+                        "{name} is not a sweep amplitude: its bar and marker stand on the fundamental drawn between {} and {}; its value is the report's, solved at {}.",
+                        si_short(10f64.powf(a / 20.0), "V"),
+                        si_short(10f64.powf(b / 20.0), "V"),
+                        si_exact(at, "V")
+                    )),
+                    Some(Placement::BelowSweep) => key.notes.push(format!(
+                        "{name} is below the sweep: its bar and marker stand on the 1:1 small-signal line; its value is the report's, solved at {}.",
+                        si_exact(at, "V")
+                    )),
+                    None => key.notes.push(format!(
+                        "{name} is above the sweep and not drawn; its verdict is in the table."
+                    )),
+                }
+            }
         }
         key
     }
@@ -468,11 +533,9 @@ impl Drawing for TwoTonePlot {
             let position = match l.metric.as_str() {
                 "im3" => {
                     let Some(at) = l.at_v else { continue };
-                    let Some(point) = self.points.iter().find(|p| p.amplitude_v == at) else {
+                    let Some((fundamental, _)) = self.fundamental_at(at) else {
                         continue;
                     };
-                    let fundamental =
-                        dbv(point.two_tone_fundamental_v.unwrap_or(point.fundamental_v));
                     record.value.map(|v| (dbv(at), fundamental + v))
                 }
                 "iip3" | "oip3" => Some((x_ip, y_ip)),

@@ -742,6 +742,7 @@ fn case_records(plan: &Plan, case: CaseEvaluation, derived_from: Option<String>)
             .map(|s| TransferRecord {
                 input_v: s.input_v,
                 normalised_current: s.normalised_current,
+                emitter_split: s.emitter_split,
                 transconductance_s: s.transconductance_s,
                 output_v: s.output_v,
                 base_collector_v: s.base_collector_v,
@@ -1005,7 +1006,10 @@ fn scan_record(trial: &Trial) -> SizingScanRecord {
 
 fn sizing_record(plan: &Plan, outcome: SizingOutcome) -> SizingRecord {
     let chosen = &outcome.chosen;
+    let (binding_margin, binding_margin_unit) = binding_margin(plan, chosen, outcome.binding);
     SizingRecord {
+        binding_margin,
+        binding_margin_unit,
         stage: outcome.stage.clone(),
         temperature_c: outcome.temperature_c,
         emitter_resistance_ohm: Some(chosen.emitter_resistance),
@@ -1058,6 +1062,26 @@ fn sizing_record(plan: &Plan, outcome: SizingOutcome) -> SizingRecord {
 
 /// A binding in the report's words: the metric name (`collector_base_margin` for the implicit
 /// headroom of `hold_gain`, `none` for no line) and the line's index.
+/// The binding line's own margin at a trial and its unit (`dB`, or `V` for a collector-base
+/// margin, the hold-gain headroom and the tail compliance), which is not always the worst dB
+/// margin: a volts line binds while every dB line has room.
+fn binding_margin(plan: &Plan, trial: &Trial, binding: Binding) -> (Option<f64>, String) {
+    match binding {
+        Binding::Line(index) => {
+            let margin = trial.margins.get(index).copied().flatten().and_then(finite);
+            let unit = if plan.budget[index].metric.margin_in_volts() {
+                "V"
+            } else {
+                "dB"
+            };
+            (margin, if margin.is_some() { unit } else { "" }.into())
+        }
+        Binding::Headroom => (trial.headroom_v.and_then(finite), "V".into()),
+        Binding::TailCompliance => (finite(trial.tail_headroom_v), "V".into()),
+        Binding::Nothing => (None, String::new()),
+    }
+}
+
 fn binding_name(plan: &Plan, binding: Binding) -> (String, Option<usize>) {
     match binding {
         Binding::Line(index) => (plan.budget[index].metric.name(), Some(index)),
@@ -1154,7 +1178,10 @@ fn region_sizing_records(plan: &Plan, region: &RegionOutcome) -> Vec<SizingRecor
                 binding
             };
             let reference_gain = reference.and_then(|p| p.trials.get(k)).map(|t| t.gain_db);
+            let (binding_margin, binding_margin_unit) = binding_margin(plan, trial, binding);
             SizingRecord {
+                binding_margin,
+                binding_margin_unit,
                 stage: region.stage.clone(),
                 temperature_c: plan.temperatures_c[k],
                 emitter_resistance_ohm: Some(trial.emitter_resistance),

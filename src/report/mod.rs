@@ -726,6 +726,11 @@ pub struct TransferRecord {
     pub input_v: f64,
     /// (I_CP − I_CM)/I_tail.
     pub normalised_current: f64,
+    /// (I_EP − I_EM)/(I_EP + I_EM): how the emitter current divides, the quantity the
+    /// steering range is defined on (±0.9 at its 95 % edges); it parts from
+    /// `normalised_current` where a side saturates.
+    #[serde(default)]
+    pub emitter_split: f64,
     /// Incremental transconductance, S.
     pub transconductance_s: f64,
     /// Differential output voltage, V.
@@ -902,6 +907,14 @@ pub struct SizingRecord {
     pub met: bool,
     /// Best worst-line margin reached anywhere in the range, dB.
     pub best_margin: f64,
+    /// The binding line's own margin at the chosen value, in `binding_margin_unit` (`dB`, or
+    /// `V` for a collector-base margin, the hold-gain headroom or the tail compliance); it
+    /// differs from `best_margin` when a line in volts binds.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub binding_margin: Option<f64>,
+    /// Unit of `binding_margin`.
+    #[serde(default, skip_serializing_if = "String::is_empty")]
+    pub binding_margin_unit: String,
     /// Small-signal gain at the chosen value, dB.
     pub gain_db: Option<f64>,
     /// Gain cost relative to the range's lower end, dB.
