@@ -308,13 +308,13 @@ impl SizingPlot {
 /// dB margin where that is another line's, the gain, and saturation at the chosen value.
 pub fn per_temperature_detail(r: &SizingRecord, binding: &str) -> String {
     let own = match (r.binding_margin, r.binding_margin_unit.as_str()) {
-        (Some(m), "V") => Some(format!("margin {} mV", num(m * 1e3, 1))),
-        (Some(m), _) => Some(format!("margin {} dB", num(m, 1))),
+        (Some(m), "V") => Some(format!("{} mV", num(m * 1e3, 1))),
+        (Some(m), _) => Some(format!("{} dB", num(m, 1))),
         (None, _) => None,
     };
     let mut parts = match own {
-        Some(own) => vec![format!("binding {binding}, {own}")],
-        None => vec![format!("binding {binding}")],
+        Some(own) => vec![format!("binds: {binding}, {own}")],
+        None => vec![format!("binds: {binding}")],
     };
     let binding_in_db = r.binding_margin.is_some() && r.binding_margin_unit != "V";
     if !binding_in_db && r.best_margin.is_finite() {
@@ -344,7 +344,7 @@ impl Drawing for SizingPlot {
     }
     fn caption(&self) -> String {
         format!(
-            "Margin of each budget line of “{}” on the stage as planned with R_E swept (left axis, dB, positive passes; the worst corner at each value) and small-signal gain (right axis) versus emitter resistance per side; a margin in volts (collector-base margin) has a panel and axis of its own below; the vertical lines mark each temperature's least value, the green band the values usable at every temperature, the grey band the values at which the stage cannot bias at any temperature (not solved; a muted line marks where each temperature stops biasing), and bars along the top the values at which the stage saturates at a drive it was judged at.",
+            "Margin of each budget line of “{}” on the stage as planned with R_E swept (left axis, dB, positive passes; the worst corner at each value) and small-signal gain (right axis) versus emitter resistance per side; a margin in volts (collector-base margin) has a panel and axis of its own below; the vertical lines mark each temperature's least value, the green band the values usable at every temperature, the grey band the values at which the stage cannot bias at any temperature (the tail node below the tail source's compliance; not solved), a muted line where each temperature stops biasing, and bars along the top the values at which the stage saturates at a drive it was judged at.",
             self.stage
         )
     }
@@ -384,7 +384,7 @@ impl Drawing for SizingPlot {
                         alpha: 0.07,
                     },
                     format!(
-                        "from {} no temperature can bias (tail node below the source's compliance): not solved",
+                        "from {} no temperature can bias: not solved",
                         si(from, "Ω")
                     ),
                 ),
@@ -398,7 +398,7 @@ impl Drawing for SizingPlot {
                     pattern: pattern(0),
                     marker: None,
                 },
-                format!("curves end where each temperature stops biasing: {each}"),
+                format!("stops biasing (curves end): {each}"),
             );
         }
         let saturating = self.saturating_runs();
@@ -411,7 +411,7 @@ impl Drawing for SizingPlot {
                     pattern: pattern(0),
                     marker: None,
                 },
-                "top bars: R_E at which the stage saturates, one per temperature",
+                "top bars: the stage saturates, per temperature",
             );
         }
         key.entry(
@@ -436,7 +436,7 @@ impl Drawing for SizingPlot {
                     metric_label(&r.binding_metric)
                 } else {
                     format!(
-                        "{} in the {} corner",
+                        "{}, {} corner",
                         metric_label(&r.binding_metric),
                         r.binding_corner
                     )
@@ -471,7 +471,7 @@ impl Drawing for SizingPlot {
         }
         if !self.yield_lines.is_empty() {
             key.notes.push(format!(
-                "A yield line is judged on one design (“{}”), not per R_E: a sizing trial draws no Monte Carlo population, so “met” above leaves yield out.",
+                "Sizing trials draw no population: yield is judged on “{}” only.",
                 self.yield_stage
             ));
         }

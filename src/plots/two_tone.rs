@@ -10,7 +10,7 @@ use super::key::{draw_key, hatch_pixels, split, verdict_marker, Key, Swatch};
 use super::style::*;
 use super::verdicts::{lines_of, LineChecks};
 use super::{DrawResult, Drawing, PlotKind};
-use crate::report::{BudgetRecord, InterceptRecord, PointRecord, Report};
+use crate::report::{BudgetRecord, InterceptRecord, PointRecord, Region, Report};
 use plotters::coord::Shift;
 use plotters::prelude::*;
 
@@ -30,6 +30,8 @@ pub struct TwoTonePlot {
     lines: Vec<LineChecks>,
     /// Bench IM3 products as (input dBV, output dBV) at the drawn temperature.
     bench_im3: Vec<(f64, f64)>,
+    /// Operating region at rest (zero input) at the drawn temperature, typical corner.
+    at_rest: Option<Region>,
     x: Axis,
     y: Axis,
 }
@@ -43,6 +45,20 @@ const FUNDAMENTAL: RGBColor = SERIES[0];
 const IM3: RGBColor = SERIES[3];
 /// The fit region's shade.
 const FIT: RGBColor = SERIES[6];
+/// Opacity of the bar along the top that marks an operating region (as in the sizing
+/// figure): a band would look like the fit region's.
+const REGION_BAR_ALPHA: f64 = 0.55;
+/// Width of that bar, px.
+const REGION_BAR_PX: u32 = 7;
+
+/// The bar's pattern: solid for saturation, dashed for high-level injection.
+fn region_pattern(region: Region) -> (i32, i32) {
+    if region == Region::Saturating {
+        pattern(0)
+    } else {
+        (16, 9)
+    }
+}
 
 impl TwoTonePlot {
     /// The figures of a stage: at its first frequency and at each frequency an IM3, IIP3 or
@@ -167,7 +183,13 @@ impl TwoTonePlot {
             (lo.min(y), hi.max(y))
         });
         let y = Axis::linear_step((y_min - 10.0).max(y_max - 220.0), y_max + 10.0, 20.0);
+        let at_rest = report
+            .stages
+            .iter()
+            .find(|s| s.stage == stage && s.temperature_c == typical && is_typical(&s.corner))
+            .map(|s| s.rest_region);
         Some(TwoTonePlot {
+            at_rest,
             stage: stage.to_owned(),
             slug: slug.to_owned(),
             temperature_c: typical,
@@ -179,6 +201,41 @@ impl TwoTonePlot {
             x,
             y,
         })
+    }
+
+    /// Operating regions beyond forward-active over the two-tone drive of the drawn points:
+    /// (region, words, least input in dBV where it is reached). High injection ends where
+    /// saturation starts, as in the harmonics figure.
+    fn region_bands(&self) -> Vec<(Region, &'static str, f64)> {
+        let onset = |region: Region| {
+            self.points
+                .iter()
+                .filter(|p| p.two_tone_region.unwrap_or(p.region) == region)
+                .map(|p| dbv(p.amplitude_v))
+                .reduce(f64::min)
+        };
+        [
+            (Region::HighInjection, "high-level injection"),
+            (
+                Region::Saturating,
+                "saturating (collector-base junction forward-biased)",
+            ),
+        ]
+        .into_iter()
+        .filter_map(|(region, words)| onset(region).map(|x| (region, words, x)))
+        .collect()
+    }
+
+    /// A region band in words, for the key.
+    fn band_words(&self, region: Region, words: &str, onset_dbv: f64) -> String {
+        if self.at_rest == Some(region) {
+            format!("bar along the top: {words} over the two tones at every amplitude, already at bias; figures there include it")
+        } else {
+            format!(
+                "bar along the top: {words} over the two tones from {} per tone (dashed: onset); figures there include it",
+                si_short(10f64.powf(onset_dbv / 20.0), "V")
+            )
+        }
     }
 
     /// The IM3 product's output level (dBV) that an IM3 line allows at its amplitude, from the
@@ -318,6 +375,18 @@ impl Drawing for TwoTonePlot {
             );
         }
         key.entry(Swatch::Ring, "third-order intercept");
+        for (region, words, onset) in self.region_bands() {
+            key.entry(
+                Swatch::Line {
+                    colour: MUTED,
+                    alpha: REGION_BAR_ALPHA,
+                    width: REGION_BAR_PX,
+                    pattern: region_pattern(region),
+                    marker: None,
+                },
+                self.band_words(region, words, onset),
+            );
+        }
         if !self.bench_im3.is_empty() {
             key.entry(
                 Swatch::Open {
@@ -430,6 +499,35 @@ impl Drawing for TwoTonePlot {
             chart.draw_series(std::iter::once(Rectangle::new(
                 [(fit_lo.max(x_low), y_low), (fit_hi.min(x_high), y_high)],
                 FIT.mix(0.14).filled(),
+            )))?;
+        }
+        // Operating-region bands from their onset to the right edge (high injection stops
+        // where saturation starts), with a dashed onset; the key names them.
+        let bands = self.region_bands();
+        let saturation_onset = bands
+            .iter()
+            .find(|b| b.0 == Region::Saturating)
+            .map(|b| b.2);
+        let bar_y = y_high - 0.02 * (y_high - y_low);
+        for (region, _, onset) in &bands {
+            let end = match (region, saturation_onset) {
+                (Region::HighInjection, Some(s)) => s,
+                _ => x_high,
+            };
+            let from = if self.at_rest == Some(*region) {
+                x_low
+            } else {
+                onset.max(x_low)
+            };
+            chart.draw_series(std::iter::once(dashed(
+                vec![(from, bar_y), (end.min(x_high), bar_y)],
+                region_pattern(*region),
+                MUTED.mix(REGION_BAR_ALPHA).stroke_width(REGION_BAR_PX),
+            )))?;
+            chart.draw_series(std::iter::once(dashed(
+                vec![(from, y_low), (from, y_high)],
+                (6, 6),
+                MUTED.mix(0.8).stroke_width(2),
             )))?;
         }
         for line in &self.lines {

@@ -732,6 +732,7 @@ fn case_records(plan: &Plan, case: CaseEvaluation, derived_from: Option<String>)
         steering_high_v: steer_high,
         steering_rule_of_thumb_v: operating.steering_rule_of_thumb_v,
         steering_region: region(&operating.steering_region),
+        rest_region: region(&operating.rest_region),
         steering_collector_base_margin_v: operating.steering_region.collector_base_margin_v(),
         collector_currents_a: [zero.p.collector_current, zero.m.collector_current],
         collector_voltages_v: [zero.p.collector_voltage, zero.m.collector_voltage],

@@ -531,6 +531,11 @@ impl Region {
     pub fn is_forward_active(self) -> bool {
         self == Region::ForwardActive
     }
+
+    /// Forward-active (the default of records written before a field existed).
+    pub fn forward_active() -> Region {
+        Region::ForwardActive
+    }
 }
 
 /// Highest harmonic order read back from a report (a guard against absurd field names).
@@ -665,6 +670,10 @@ pub struct StageRecord {
     pub steering_region: Region,
     /// The least collector-base reverse bias at the steering points, V.
     pub steering_collector_base_margin_v: f64,
+    /// Operating region at zero input (the bias point): `high-injection` when the stage is
+    /// already past the knee at rest, whatever the drive.
+    #[serde(default = "Region::forward_active")]
+    pub rest_region: Region,
     /// Collector currents at zero input, A.
     pub collector_currents_a: [f64; 2],
     /// Collector voltages at zero input, V.
