@@ -277,10 +277,9 @@ impl SizingPlot {
                         " — off scale: above {} dB at every R_E",
                         num(self.y.high, 0)
                     ),
-                    Some(OffScale::Below) => format!(
-                        " — off scale: below {} dB at every R_E",
-                        num(self.y.low, 0)
-                    ),
+                    Some(OffScale::Below) => {
+                        format!(" — off scale: below {} dB at every R_E", num(self.y.low, 0))
+                    }
                     None => String::new(),
                 };
                 format!(
@@ -383,10 +382,7 @@ impl Drawing for SizingPlot {
                         colour: INK,
                         alpha: 0.07,
                     },
-                    format!(
-                        "from {} no temperature can bias: not solved",
-                        si(from, "Ω")
-                    ),
+                    format!("from {} no temperature can bias: not solved", si(from, "Ω")),
                 ),
                 None => {}
             }
@@ -674,7 +670,10 @@ impl Drawing for SizingPlot {
 type RChart<'a, DB> = ChartContext<
     'a,
     DB,
-    Cartesian2d<Ticked<plotters::coord::types::RangedCoordf64>, Ticked<plotters::coord::types::RangedCoordf64>>,
+    Cartesian2d<
+        Ticked<plotters::coord::types::RangedCoordf64>,
+        Ticked<plotters::coord::types::RangedCoordf64>,
+    >,
 >;
 
 impl SizingPlot {

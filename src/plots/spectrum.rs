@@ -216,7 +216,11 @@ impl Drawing for SpectrumPlot {
         let mut subtitle = format!("fundamental {} · {}", si_exact(f, "Hz"), thd.join(" · "));
         if self.points.iter().any(|p| p.region == Region::Saturating) {
             subtitle.push_str(" · saturating (see key)");
-        } else if self.points.iter().any(|p| p.region == Region::HighInjection) {
+        } else if self
+            .points
+            .iter()
+            .any(|p| p.region == Region::HighInjection)
+        {
             subtitle.push_str(" · high-level injection (see key)");
         }
         let body = frame(root, &self.title(), &subtitle)?;

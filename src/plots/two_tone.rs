@@ -653,3 +653,25 @@ impl Drawing for TwoTonePlot {
         Ok(())
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::{place_on, Placement};
+
+    /// A sweep whose fundamental is a straight line in dBV (a linear stage, gain 20 dB):
+    /// linear interpolation is exact on it, below the sweep the 1:1 line is the same line,
+    /// and above the sweep nothing is placed (no extrapolation into compression).
+    #[test]
+    fn an_amplitude_between_sweep_points_lands_on_the_drawn_line() {
+        let drawn: Vec<(f64, f64, Option<f64>)> = [-46.0, -28.0, -16.5]
+            .iter()
+            .map(|x| (*x, x + 20.0, None))
+            .collect();
+        let (y, placed) = place_on(&drawn, -21.9, 20.0).unwrap();
+        assert!((y - (-1.9)).abs() < 1e-12);
+        assert_eq!(placed, Placement::Between(-28.0, -16.5));
+        let (y, placed) = place_on(&drawn, -60.0, 20.0).unwrap();
+        assert_eq!((y, placed), (-40.0, Placement::BelowSweep));
+        assert_eq!(place_on(&drawn, -10.0, 20.0), None);
+    }
+}
