@@ -376,15 +376,14 @@ impl Drawing for SizingPlot {
                 .map(|(ti, from)| format!("{} {}", celsius(temps[*ti]), si(*from, "Ω")))
                 .collect::<Vec<_>>()
                 .join(", ");
-            match self.unbiased_everywhere_from() {
-                Some(from) => key.entry(
+            if let Some(from) = self.unbiased_everywhere_from() {
+                key.entry(
                     Swatch::Band {
                         colour: INK,
                         alpha: 0.07,
                     },
                     format!("from {} no temperature can bias: not solved", si(from, "Ω")),
-                ),
-                None => {}
+                );
             }
             key.entry(
                 Swatch::Line {
