@@ -792,21 +792,12 @@ fn read_topology(map: &MapAt, stage: &mut Stage) -> Result<(), PlanError> {
         }
         (_, None) => {}
     }
-    let stores_charge = !crate::model::transistor::ChargeModel::of(&stage.transistor)
-        .is_memoryless()
-        || stage.load_capacitance > 0.0;
     match stage.topology {
         Topology::SplitTail if stage.tail_capacitance > 0.0 => {
             let at = map.get("tail_capacitance").expect("read above");
             Err(at.error(
                 "a split tail's source capacitances are not modelled yet (the dynamic engine has one tail node)",
                 "tail_capacitance 0 with topology: split_tail",
-            ))
-        }
-        Topology::MultiTanh if stores_charge || stage.tail_capacitance > 0.0 => {
-            Err(cell_at.expect("read above").error(
-                "a multi-tanh cell with charge storage is not solved yet: only the memoryless engine couples its pairs",
-                "multi_tanh stages without capacitances and transit times",
             ))
         }
         _ => Ok(()),

@@ -154,7 +154,7 @@ pub struct PairSystem<'a> {
 /// A side's currents at the node voltages of a state, with their derivatives with respect to
 /// `(V_B, V_E, V_C')`.
 pub(super) struct SideCurrents {
-    collector: f64,
+    pub collector: f64,
     base: f64,
     d_collector: [f64; 3],
     d_base: [f64; 3],
@@ -164,7 +164,7 @@ pub(super) struct SideCurrents {
     /// `I_EC` (τ_R times it is the reverse diffusion charge) and `∂/∂V_BC`.
     reverse_transport: f64,
     d_reverse_transport: f64,
-    injection: f64,
+    pub injection: f64,
 }
 
 /// A side's currents: the forward-active form `I_C = J·(1 + V_CE/V_AF)`, `I_B = J/β_F` where

@@ -1,0 +1,146 @@
+//! The charge system of a stage: the emitter-coupled pair ([`super::pair`]) or a multi-tanh
+//! cell of several pairs ([`super::cell`]), picked from the circuit, with what the engine
+//! reads from a state (output, P collector, operating region) asked of either alike.
+
+use super::cell::CellSystem;
+use super::pair::{Drive, PairSystem};
+use super::trapezoid::ChargeSystem;
+use crate::error::SolveFailure;
+use crate::model::circuit::StageCircuit;
+use crate::solve::response::RegionCheck;
+use crate::solve::transfer::StaticSolver;
+
+/// A stage under a drive, as a [`ChargeSystem`].
+#[derive(Debug, Clone)]
+pub enum StageSystem<'a> {
+    /// One emitter-coupled pair (emitter resistors or a split tail).
+    Pair(PairSystem<'a>),
+    /// A multi-tanh cell.
+    Cell(CellSystem<'a>),
+}
+
+impl<'a> StageSystem<'a> {
+    /// The system of `circuit` driven by `drive`: a cell when the circuit has pairs of its
+    /// own, the pair otherwise; `whole` evaluates the whole core everywhere.
+    pub fn new(circuit: &'a StageCircuit, drive: Drive, whole: bool) -> Self {
+        if circuit.cell.is_empty() {
+            StageSystem::Pair(PairSystem::new(circuit, drive, whole))
+        } else {
+            StageSystem::Cell(CellSystem::new(circuit, drive, whole))
+        }
+    }
+
+    /// The node voltages of the memoryless solve at `v_d` (a start for shooting).
+    pub fn start_state(&self, solver: &StaticSolver, v_d: f64) -> Result<Vec<f64>, SolveFailure> {
+        match self {
+            StageSystem::Pair(pair) => Ok(pair.state_from(&solver.solve_cold(v_d)?)),
+            StageSystem::Cell(cell) => cell.start_state(solver, v_d),
+        }
+    }
+
+    /// Differential output `V_C,M − V_C,P` of a state, V.
+    pub fn output_v(&self, x: &[f64]) -> f64 {
+        match self {
+            StageSystem::Pair(_) => PairSystem::output_v(x),
+            StageSystem::Cell(_) => CellSystem::output_v(x),
+        }
+    }
+
+    /// P-side collector terminal voltage of a state, V.
+    pub fn p_collector_v(&self, x: &[f64]) -> f64 {
+        match self {
+            StageSystem::Pair(_) => PairSystem::p_collector_v(x),
+            StageSystem::Cell(_) => CellSystem::p_collector_v(x),
+        }
+    }
+
+    /// Includes a state in a region check.
+    pub fn include_region(&self, x: &[f64], region: &mut RegionCheck) {
+        match self {
+            StageSystem::Pair(pair) => pair.include_region(x, region),
+            StageSystem::Cell(cell) => cell.include_region(x, region),
+        }
+    }
+
+    /// Number of transistors, the width of [`StageSystem::base_collector_v`].
+    pub fn transistors(&self) -> usize {
+        match self {
+            StageSystem::Pair(_) => 2,
+            StageSystem::Cell(cell) => cell.transistors(),
+        }
+    }
+
+    /// Every transistor's intrinsic base-collector voltage at a state, V.
+    pub fn base_collector_v(&self, x: &[f64]) -> Vec<f64> {
+        match self {
+            StageSystem::Pair(pair) => pair.base_collector_pair_v(x).to_vec(),
+            StageSystem::Cell(cell) => cell.base_collector_v(x),
+        }
+    }
+}
+
+impl ChargeSystem for StageSystem<'_> {
+    fn unknowns(&self) -> usize {
+        match self {
+            StageSystem::Pair(s) => s.unknowns(),
+            StageSystem::Cell(s) => s.unknowns(),
+        }
+    }
+
+    fn charges(&self) -> usize {
+        match self {
+            StageSystem::Pair(s) => s.charges(),
+            StageSystem::Cell(s) => s.charges(),
+        }
+    }
+
+    fn resistive(&self, x: &[f64], time_s: f64, f: &mut [f64], jacobian: &mut [f64]) {
+        match self {
+            StageSystem::Pair(s) => s.resistive(x, time_s, f, jacobian),
+            StageSystem::Cell(s) => s.resistive(x, time_s, f, jacobian),
+        }
+    }
+
+    fn charge(&self, x: &[f64], q: &mut [f64], jacobian: &mut [f64]) {
+        match self {
+            StageSystem::Pair(s) => s.charge(x, q, jacobian),
+            StageSystem::Cell(s) => s.charge(x, q, jacobian),
+        }
+    }
+
+    fn evaluate(
+        &self,
+        x: &[f64],
+        time_s: f64,
+        f: &mut [f64],
+        f_jacobian: &mut [f64],
+        q: &mut [f64],
+        q_jacobian: &mut [f64],
+    ) {
+        match self {
+            StageSystem::Pair(s) => s.evaluate(x, time_s, f, f_jacobian, q, q_jacobian),
+            StageSystem::Cell(s) => s.evaluate(x, time_s, f, f_jacobian, q, q_jacobian),
+        }
+    }
+
+    fn coupling(&self) -> &[f64] {
+        match self {
+            StageSystem::Pair(s) => s.coupling(),
+            StageSystem::Cell(s) => s.coupling(),
+        }
+    }
+
+    fn step_fraction(&self, x: &[f64], dx: &[f64]) -> f64 {
+        match self {
+            StageSystem::Pair(s) => s.step_fraction(x, dx),
+            StageSystem::Cell(s) => s.step_fraction(x, dx),
+        }
+    }
+
+    fn current_scale(&self) -> f64 {
+        match self {
+            StageSystem::Pair(s) => s.current_scale(),
+            StageSystem::Cell(s) => s.current_scale(),
+        }
+    }
+}
