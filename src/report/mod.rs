@@ -287,6 +287,12 @@ pub struct RecommendedStageRecord {
     /// The plan's tail current, A.
     #[serde(default)]
     pub planned_tail_current_a: f64,
+    /// Multi-tanh area ratio to build, when sizing chooses it (`null` otherwise).
+    #[serde(default)]
+    pub area_ratio: Option<f64>,
+    /// The plan's multi-tanh area ratio, when sizing chooses it.
+    #[serde(default)]
+    pub planned_area_ratio: Option<f64>,
     /// The plan's load resistance, Ω.
     pub planned_load_resistance_ohm: f64,
     /// Whether sizing found a value holding every line (by the guard band) at every

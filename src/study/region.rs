@@ -540,6 +540,22 @@ pub fn size_region(
     cache: &Arc<FftCache>,
 ) -> Result<RegionOutcome, Error> {
     let stage = &plan.stages[stage_index];
+    if let Some(range) = settings
+        .variables
+        .iter()
+        .find(|v| !v.variable.applies_to(stage))
+    {
+        return Err(Error::Argument {
+            name: format!("sizing `{}`", range.variable.key()),
+            problem: format!(
+                "stage `{}` has no {} to choose (topology {})",
+                stage.name,
+                range.variable.symbol(),
+                stage.topology.name()
+            ),
+            accepted: "the area ratio only for multi-tanh doublets and triplets".into(),
+        });
+    }
     let (from, to) = settings.range_of(settings.minimise).unwrap_or_else(|| {
         let v = settings.minimise.value_of(stage);
         (v, v)
