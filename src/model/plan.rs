@@ -319,13 +319,14 @@ impl SizingSettings {
 
     /// Sizing of the tail current alone over `from..=to` A (degeneration as planned).
     pub fn tail_current_only(from: f64, to: f64) -> Self {
+        Self::only(SizingVariable::TailCurrent, from, to)
+    }
+
+    /// Sizing of one variable alone over `from..=to`, minimised.
+    pub fn only(variable: SizingVariable, from: f64, to: f64) -> Self {
         SizingSettings {
-            variables: vec![VariableRange {
-                variable: SizingVariable::TailCurrent,
-                from,
-                to,
-            }],
-            minimise: SizingVariable::TailCurrent,
+            variables: vec![VariableRange { variable, from, to }],
+            minimise: variable,
             hold_gain: false,
             guard_band_db: 0.0,
         }
@@ -334,44 +335,30 @@ impl SizingSettings {
     /// Adds the tail current over `from..=to` A as a variable and makes it the one to
     /// minimise (the least supply current meeting every line).
     #[must_use]
-    pub fn tail_current(mut self, from: f64, to: f64) -> Self {
-        self.variables
-            .retain(|v| v.variable != SizingVariable::TailCurrent);
-        self.variables.push(VariableRange {
-            variable: SizingVariable::TailCurrent,
-            from,
-            to,
-        });
-        self.minimise = SizingVariable::TailCurrent;
-        self
+    pub fn tail_current(self, from: f64, to: f64) -> Self {
+        let mut settings = self.with_variable(SizingVariable::TailCurrent, from, to);
+        settings.minimise = SizingVariable::TailCurrent;
+        settings
     }
 
     /// Sizing of a multi-tanh doublet's or triplet's area ratio alone over `from..=to`: the
     /// least ratio meeting every line (the rest of the stage as planned).
     pub fn area_ratio_only(from: f64, to: f64) -> Self {
-        SizingSettings {
-            variables: vec![VariableRange {
-                variable: SizingVariable::AreaRatio,
-                from,
-                to,
-            }],
-            minimise: SizingVariable::AreaRatio,
-            hold_gain: false,
-            guard_band_db: 0.0,
-        }
+        Self::only(SizingVariable::AreaRatio, from, to)
     }
 
     /// Adds a multi-tanh cell's area ratio over `from..=to` as a variable (the variable to
     /// minimise stays as it is).
     #[must_use]
-    pub fn area_ratio(mut self, from: f64, to: f64) -> Self {
-        self.variables
-            .retain(|v| v.variable != SizingVariable::AreaRatio);
-        self.variables.push(VariableRange {
-            variable: SizingVariable::AreaRatio,
-            from,
-            to,
-        });
+    pub fn area_ratio(self, from: f64, to: f64) -> Self {
+        self.with_variable(SizingVariable::AreaRatio, from, to)
+    }
+
+    /// Adds `variable` over `from..=to` (replacing its range if it is one already).
+    #[must_use]
+    pub fn with_variable(mut self, variable: SizingVariable, from: f64, to: f64) -> Self {
+        self.variables.retain(|v| v.variable != variable);
+        self.variables.push(VariableRange { variable, from, to });
         self
     }
 

@@ -26,9 +26,8 @@
 
 use super::pair::{
     couple_transistor, junction_step_fraction, side_currents, stamp_transistor, transistor_charges,
-    Drive, SideCurrents, Terminals,
+    Drive, Linearised, SideCurrents, Terminals, TransistorCircuit,
 };
-use super::trapezoid::ChargeSystem;
 use crate::error::SolveFailure;
 use crate::model::circuit::{ChargeScale, StageCircuit};
 use crate::solve::response::RegionCheck;
@@ -211,7 +210,7 @@ impl<'a> CellSystem<'a> {
     /// voltage and injection level over its transistors, and the side's collector current
     /// (summed over the pairs, as the loads see it) as a fraction of the stage's tail current.
     pub fn include_region(&self, x: &[f64], region: &mut RegionCheck) {
-        let currents = self.currents(x);
+        let currents = self.transistor_currents(x);
         for side in 0..2 {
             let mut collector = 0.0;
             let mut base_collector = f64::NEG_INFINITY;
@@ -260,7 +259,7 @@ impl<'a> CellSystem<'a> {
     }
 
     /// Every transistor's currents at a state, pair by pair, P before M.
-    fn currents(&self, x: &[f64]) -> Vec<SideCurrents> {
+    fn transistor_currents(&self, x: &[f64]) -> Vec<SideCurrents> {
         let phi = self.circuit.thermal_voltage;
         self.circuit
             .cell
@@ -286,14 +285,8 @@ impl<'a> CellSystem<'a> {
             .collect()
     }
 
-    fn resistive_with(
-        &self,
-        currents: &[SideCurrents],
-        x: &[f64],
-        time_s: f64,
-        f: &mut [f64],
-        jacobian: &mut [f64],
-    ) {
+    fn resistive_terms(&self, currents: &[SideCurrents], x: &[f64], time_s: f64, out: Linearised) {
+        let Linearised { value: f, jacobian } = out;
         let c = self.circuit;
         let n = self.unknowns;
         let st = self.tail_scale;
@@ -331,13 +324,8 @@ impl<'a> CellSystem<'a> {
         }
     }
 
-    fn charge_with(
-        &self,
-        currents: &[SideCurrents],
-        x: &[f64],
-        q: &mut [f64],
-        jacobian: &mut [f64],
-    ) {
+    fn charge_terms(&self, currents: &[SideCurrents], x: &[f64], out: Linearised) {
+        let Linearised { value: q, jacobian } = out;
         let c = self.circuit;
         let n = self.unknowns;
         jacobian.fill(0.0);
@@ -374,48 +362,41 @@ impl<'a> CellSystem<'a> {
     }
 }
 
-impl ChargeSystem for CellSystem<'_> {
-    fn unknowns(&self) -> usize {
-        self.unknowns
+impl TransistorCircuit for CellSystem<'_> {
+    type Currents = Vec<SideCurrents>;
+
+    fn currents(&self, x: &[f64]) -> Vec<SideCurrents> {
+        self.transistor_currents(x)
     }
 
-    fn charges(&self) -> usize {
-        SHARED_CHARGES + PAIR_CHARGES * self.circuit.cell.len()
-    }
-
-    fn resistive(&self, x: &[f64], time_s: f64, f: &mut [f64], jacobian: &mut [f64]) {
-        let currents = self.currents(x);
-        self.resistive_with(&currents, x, time_s, f, jacobian);
-    }
-
-    fn charge(&self, x: &[f64], q: &mut [f64], jacobian: &mut [f64]) {
-        let currents = self.currents(x);
-        self.charge_with(&currents, x, q, jacobian);
-    }
-
-    fn evaluate(
+    fn resistive_with(
         &self,
+        currents: &Vec<SideCurrents>,
         x: &[f64],
         time_s: f64,
-        f: &mut [f64],
-        f_jacobian: &mut [f64],
-        q: &mut [f64],
-        q_jacobian: &mut [f64],
+        out: Linearised,
     ) {
-        let currents = self.currents(x);
-        self.resistive_with(&currents, x, time_s, f, f_jacobian);
-        self.charge_with(&currents, x, q, q_jacobian);
+        self.resistive_terms(currents, x, time_s, out);
     }
 
-    fn coupling(&self) -> &[f64] {
-        &self.coupling
+    fn charge_with(&self, currents: &Vec<SideCurrents>, x: &[f64], out: Linearised) {
+        self.charge_terms(currents, x, out);
     }
 
-    fn step_fraction(&self, x: &[f64], dx: &[f64]) -> f64 {
+    fn sizes(&self) -> (usize, usize) {
+        let charges = SHARED_CHARGES + PAIR_CHARGES * self.circuit.cell.len();
+        (self.unknowns, charges)
+    }
+
+    fn tail_scale(&self) -> f64 {
+        self.tail_scale
+    }
+
+    fn limit_step(&self, x: &[f64], dx: &[f64]) -> f64 {
         junction_step_fraction(self.circuit.thermal_voltage, self.all_terminals(), x, dx)
     }
 
-    fn current_scale(&self) -> f64 {
-        self.tail_scale
+    fn charge_coupling(&self) -> &[f64] {
+        &self.coupling
     }
 }

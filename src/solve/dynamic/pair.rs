@@ -153,7 +153,8 @@ pub struct PairSystem<'a> {
 
 /// A side's currents at the node voltages of a state, with their derivatives with respect to
 /// `(V_B, V_E, V_C')`.
-pub(super) struct SideCurrents {
+pub struct SideCurrents {
+    /// Collector current, A.
     pub collector: f64,
     base: f64,
     d_collector: [f64; 3],
@@ -164,6 +165,7 @@ pub(super) struct SideCurrents {
     /// `I_EC` (τ_R times it is the reverse diffusion charge) and `∂/∂V_BC`.
     reverse_transport: f64,
     d_reverse_transport: f64,
+    /// Injection level `q_2`.
     pub injection: f64,
 }
 
@@ -497,23 +499,54 @@ impl<'a> PairSystem<'a> {
     }
 }
 
-impl ChargeSystem for PairSystem<'_> {
+/// A residual vector and its row-major Jacobian, written by one evaluation.
+pub struct Linearised<'a> {
+    /// Values (residuals or charges).
+    pub value: &'a mut [f64],
+    /// Their derivatives with respect to the unknowns.
+    pub jacobian: &'a mut [f64],
+}
+
+/// A circuit of transistors in charge-based form whose device currents are evaluated once per
+/// state and shared by the resistive part and the charges; every such circuit is a
+/// [`ChargeSystem`].
+pub trait TransistorCircuit {
+    /// Every transistor's currents at a state.
+    type Currents;
+    /// Numbers of unknowns and of charges.
+    fn sizes(&self) -> (usize, usize);
+    /// Every transistor's currents at `x`.
+    fn currents(&self, x: &[f64]) -> Self::Currents;
+    /// The resistive part `f(x, t)` and its Jacobian, from the currents at `x`.
+    fn resistive_with(&self, currents: &Self::Currents, x: &[f64], time_s: f64, out: Linearised);
+    /// The charges `q(x)` and their Jacobian, from the currents at `x`.
+    fn charge_with(&self, currents: &Self::Currents, x: &[f64], out: Linearised);
+    /// The constant coupling of the charges' currents into the equations (unknowns × charges).
+    fn charge_coupling(&self) -> &[f64];
+    /// Junction limiting of a Newton step (see [`junction_step_fraction`]).
+    fn limit_step(&self, x: &[f64], dx: &[f64]) -> f64;
+    /// The impedance converting a charge current to volts for the steady-state criterion.
+    fn tail_scale(&self) -> f64;
+}
+
+impl<T: TransistorCircuit> ChargeSystem for T {
     fn unknowns(&self) -> usize {
-        self.unknowns
+        self.sizes().0
     }
 
     fn charges(&self) -> usize {
-        CHARGES
+        self.sizes().1
     }
 
     fn resistive(&self, x: &[f64], time_s: f64, f: &mut [f64], jacobian: &mut [f64]) {
-        let sides = self.sides(x);
-        self.resistive_with(&sides, x, time_s, f, jacobian);
+        let currents = self.currents(x);
+        let out = Linearised { value: f, jacobian };
+        self.resistive_with(&currents, x, time_s, out);
     }
 
     fn charge(&self, x: &[f64], q: &mut [f64], jacobian: &mut [f64]) {
-        let sides = self.sides(x);
-        self.charge_with(&sides, x, q, jacobian);
+        let currents = self.currents(x);
+        self.charge_with(&currents, x, Linearised { value: q, jacobian });
     }
 
     fn evaluate(
@@ -525,13 +558,21 @@ impl ChargeSystem for PairSystem<'_> {
         q: &mut [f64],
         q_jacobian: &mut [f64],
     ) {
-        let sides = self.sides(x);
-        self.resistive_with(&sides, x, time_s, f, f_jacobian);
-        self.charge_with(&sides, x, q, q_jacobian);
+        let currents = self.currents(x);
+        let resistive = Linearised {
+            value: f,
+            jacobian: f_jacobian,
+        };
+        self.resistive_with(&currents, x, time_s, resistive);
+        let charges = Linearised {
+            value: q,
+            jacobian: q_jacobian,
+        };
+        self.charge_with(&currents, x, charges);
     }
 
     fn coupling(&self) -> &[f64] {
-        &self.coupling
+        self.charge_coupling()
     }
 
     fn step_fraction(&self, x: &[f64], dx: &[f64]) -> f64 {
@@ -539,14 +580,19 @@ impl ChargeSystem for PairSystem<'_> {
     }
 
     fn current_scale(&self) -> f64 {
-        self.tail_scale
+        self.tail_scale()
     }
 }
 
-impl PairSystem<'_> {
-    /// Both sides' currents at a state (P, M), evaluated once for the resistive part and
-    /// the charges.
-    fn sides(&self, x: &[f64]) -> [SideCurrents; 2] {
+impl TransistorCircuit for PairSystem<'_> {
+    type Currents = [SideCurrents; 2];
+
+    fn sizes(&self) -> (usize, usize) {
+        (self.unknowns, CHARGES)
+    }
+
+    /// Both sides' currents at a state (P, M).
+    fn currents(&self, x: &[f64]) -> [SideCurrents; 2] {
         let c = self.circuit;
         let phi = c.thermal_voltage;
         let [ci_p, ci_m] = self.internal_collector;
@@ -556,14 +602,8 @@ impl PairSystem<'_> {
         ]
     }
 
-    fn resistive_with(
-        &self,
-        sides: &[SideCurrents; 2],
-        x: &[f64],
-        time_s: f64,
-        f: &mut [f64],
-        jacobian: &mut [f64],
-    ) {
+    fn resistive_with(&self, sides: &[SideCurrents; 2], x: &[f64], time_s: f64, out: Linearised) {
+        let Linearised { value: f, jacobian } = out;
         let c = self.circuit;
         let v_d = self.drive.differential_v(time_s);
         jacobian.fill(0.0);
@@ -583,13 +623,8 @@ impl PairSystem<'_> {
         }
     }
 
-    fn charge_with(
-        &self,
-        sides: &[SideCurrents; 2],
-        x: &[f64],
-        q: &mut [f64],
-        jacobian: &mut [f64],
-    ) {
+    fn charge_with(&self, sides: &[SideCurrents; 2], x: &[f64], out: Linearised) {
+        let Linearised { value: q, jacobian } = out;
         let c = self.circuit;
         let ch = &c.charge;
         let n = self.unknowns;
@@ -613,6 +648,14 @@ impl PairSystem<'_> {
     fn limit_step(&self, x: &[f64], dx: &[f64]) -> f64 {
         let transistors = (0..2).map(|k| Self::terminals(self.internal_collector, k));
         junction_step_fraction(self.circuit.thermal_voltage, transistors, x, dx)
+    }
+
+    fn charge_coupling(&self) -> &[f64] {
+        &self.coupling
+    }
+
+    fn tail_scale(&self) -> f64 {
+        self.tail_scale
     }
 }
 

@@ -3,8 +3,7 @@
 //! reads from a state (output, P collector, operating region) asked of either alike.
 
 use super::cell::CellSystem;
-use super::pair::{Drive, PairSystem};
-use super::trapezoid::ChargeSystem;
+use super::pair::{Drive, Linearised, PairSystem, SideCurrents, TransistorCircuit};
 use crate::error::SolveFailure;
 use crate::model::circuit::StageCircuit;
 use crate::solve::response::RegionCheck;
@@ -79,68 +78,65 @@ impl<'a> StageSystem<'a> {
     }
 }
 
-impl ChargeSystem for StageSystem<'_> {
-    fn unknowns(&self) -> usize {
+/// Every transistor's currents of a [`StageSystem`]'s state.
+pub enum StageCurrents {
+    /// The pair's two transistors.
+    Pair([SideCurrents; 2]),
+    /// The cell's transistors, pair by pair.
+    Cell(Vec<SideCurrents>),
+}
+
+impl TransistorCircuit for StageSystem<'_> {
+    type Currents = StageCurrents;
+
+    fn currents(&self, x: &[f64]) -> StageCurrents {
         match self {
-            StageSystem::Pair(s) => s.unknowns(),
-            StageSystem::Cell(s) => s.unknowns(),
+            StageSystem::Pair(pair) => StageCurrents::Pair(pair.currents(x)),
+            StageSystem::Cell(cell) => StageCurrents::Cell(cell.currents(x)),
         }
     }
 
-    fn charges(&self) -> usize {
-        match self {
-            StageSystem::Pair(s) => s.charges(),
-            StageSystem::Cell(s) => s.charges(),
+    fn resistive_with(&self, currents: &StageCurrents, x: &[f64], t: f64, out: Linearised) {
+        match (self, currents) {
+            (StageSystem::Pair(pair), StageCurrents::Pair(c)) => pair.resistive_with(c, x, t, out),
+            (StageSystem::Cell(cell), StageCurrents::Cell(c)) => cell.resistive_with(c, x, t, out),
+            _ => unreachable!("currents are evaluated by the same system"),
         }
     }
 
-    fn resistive(&self, x: &[f64], time_s: f64, f: &mut [f64], jacobian: &mut [f64]) {
-        match self {
-            StageSystem::Pair(s) => s.resistive(x, time_s, f, jacobian),
-            StageSystem::Cell(s) => s.resistive(x, time_s, f, jacobian),
+    fn charge_with(&self, currents: &StageCurrents, x: &[f64], out: Linearised) {
+        match (self, currents) {
+            (StageSystem::Pair(pair), StageCurrents::Pair(c)) => pair.charge_with(c, x, out),
+            (StageSystem::Cell(cell), StageCurrents::Cell(c)) => cell.charge_with(c, x, out),
+            _ => unreachable!("currents are evaluated by the same system"),
         }
     }
 
-    fn charge(&self, x: &[f64], q: &mut [f64], jacobian: &mut [f64]) {
+    fn sizes(&self) -> (usize, usize) {
         match self {
-            StageSystem::Pair(s) => s.charge(x, q, jacobian),
-            StageSystem::Cell(s) => s.charge(x, q, jacobian),
+            StageSystem::Pair(pair) => pair.sizes(),
+            StageSystem::Cell(cell) => cell.sizes(),
         }
     }
 
-    fn evaluate(
-        &self,
-        x: &[f64],
-        time_s: f64,
-        f: &mut [f64],
-        f_jacobian: &mut [f64],
-        q: &mut [f64],
-        q_jacobian: &mut [f64],
-    ) {
+    fn charge_coupling(&self) -> &[f64] {
         match self {
-            StageSystem::Pair(s) => s.evaluate(x, time_s, f, f_jacobian, q, q_jacobian),
-            StageSystem::Cell(s) => s.evaluate(x, time_s, f, f_jacobian, q, q_jacobian),
+            StageSystem::Pair(pair) => pair.charge_coupling(),
+            StageSystem::Cell(cell) => cell.charge_coupling(),
         }
     }
 
-    fn coupling(&self) -> &[f64] {
+    fn limit_step(&self, x: &[f64], dx: &[f64]) -> f64 {
         match self {
-            StageSystem::Pair(s) => s.coupling(),
-            StageSystem::Cell(s) => s.coupling(),
+            StageSystem::Pair(pair) => pair.limit_step(x, dx),
+            StageSystem::Cell(cell) => cell.limit_step(x, dx),
         }
     }
 
-    fn step_fraction(&self, x: &[f64], dx: &[f64]) -> f64 {
+    fn tail_scale(&self) -> f64 {
         match self {
-            StageSystem::Pair(s) => s.step_fraction(x, dx),
-            StageSystem::Cell(s) => s.step_fraction(x, dx),
-        }
-    }
-
-    fn current_scale(&self) -> f64 {
-        match self {
-            StageSystem::Pair(s) => s.current_scale(),
-            StageSystem::Cell(s) => s.current_scale(),
+            StageSystem::Pair(pair) => pair.tail_scale(),
+            StageSystem::Cell(cell) => cell.tail_scale(),
         }
     }
 }
