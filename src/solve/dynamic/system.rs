@@ -79,6 +79,8 @@ impl<'a> StageSystem<'a> {
 }
 
 /// Every transistor's currents of a [`StageSystem`]'s state.
+// Lives on the stack for one evaluation; boxing the pair's would allocate at every Newton step.
+#[allow(clippy::large_enum_variant)]
 pub enum StageCurrents {
     /// The pair's two transistors.
     Pair([SideCurrents; 2]),
