@@ -1218,6 +1218,7 @@ fn region_record(plan: &Plan, region: &RegionOutcome) -> RegionRecord {
         guard_band_db: region.guard_band_db,
         tail_current_a: region.chosen.tail_current(),
         emitter_resistance_ohm: region.chosen.emitter_resistance(),
+        area_ratio: region.value_at(&region.chosen, SizingVariable::AreaRatio),
         load_resistance_ohm: region.chosen.load_resistance(),
         binding_metric,
         binding_line,
@@ -1232,6 +1233,7 @@ fn region_record(plan: &Plan, region: &RegionOutcome) -> RegionRecord {
                 RegionCellRecord {
                     tail_current_a: p.tail_current(),
                     emitter_resistance_ohm: p.emitter_resistance(),
+                    area_ratio: region.value_at(p, SizingVariable::AreaRatio),
                     holds: p.holds,
                     limiting_metric,
                     limiting_line,

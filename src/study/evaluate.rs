@@ -344,16 +344,7 @@ fn region_recommendation(
     let planned = &plan.stages[found.stage_index];
     let mut base = planned.clone();
     base.tail_current = design.tail_current();
-    // The area ratio, when it is one of the region's variables.
-    let area_ratio = std::iter::once((found.primary.variable, Some(design.primary)))
-        .chain(
-            found
-                .secondary
-                .as_ref()
-                .map(|axis| (axis.variable, design.secondary)),
-        )
-        .find(|(variable, _)| *variable == SizingVariable::AreaRatio)
-        .and_then(|(_, value)| value);
+    let area_ratio = found.value_at(design, SizingVariable::AreaRatio);
     if let Some(ratio) = area_ratio {
         base.multi_tanh.area_ratio = ratio;
     }

@@ -219,6 +219,23 @@ pub struct RegionOutcome {
     pub designs_evaluated: usize,
 }
 
+impl RegionOutcome {
+    /// A design's value of `variable`, when it is one of the region's variables.
+    pub fn value_at(&self, design: &RegionPoint, variable: SizingVariable) -> Option<f64> {
+        if self.primary.variable == variable {
+            Some(design.primary)
+        } else if self
+            .secondary
+            .as_ref()
+            .is_some_and(|a| a.variable == variable)
+        {
+            design.secondary
+        } else {
+            None
+        }
+    }
+}
+
 /// Whether a metric is a distortion figure (harmonics, THD, IM3, intercepts, compression).
 pub fn is_distortion(metric: Metric) -> bool {
     matches!(
