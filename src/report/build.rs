@@ -137,10 +137,9 @@ pub fn build_judged(plan: &Plan, evaluation: PlanEvaluation, judged: Judged) -> 
             .flat_map(|design| design.spread.iter().map(|s| spread_record(plan, s))),
     );
     if let Some(population) = population {
-        let (distributions, yields, warnings) = population_records(plan, population);
+        let (distributions, yields) = population_records(plan, population);
         report.monte_carlo = distributions;
         report.yield_ = yields;
-        report.warnings.extend(warnings);
     }
     report.sizing = sizing.into_iter().map(|s| sizing_record(plan, s)).collect();
     for outcome in &regions {
@@ -927,14 +926,7 @@ fn population_name(figure: PopulationFigure) -> (&'static str, &'static str) {
 fn population_records(
     plan: &Plan,
     population: Population,
-) -> (Vec<MonteCarloRecord>, Vec<YieldRecord>, Vec<String>) {
-    let warnings = population
-        .left_out_with_capacitance
-        .iter()
-        .map(|name| format!(
-            "stage `{name}`: Monte Carlo left out because the stage has capacitance; mismatch statistics are drawn on memoryless stages (evaluate a copy without capacitance for the low-frequency spread)"
-        ))
-        .collect();
+) -> (Vec<MonteCarloRecord>, Vec<YieldRecord>) {
     let mut distributions = Vec::new();
     let mut yields = Vec::new();
     for stage in population.stages {
@@ -991,7 +983,7 @@ fn population_records(
             lines,
         });
     }
-    (distributions, yields, warnings)
+    (distributions, yields)
 }
 
 fn scan_record(trial: &Trial) -> SizingScanRecord {
