@@ -435,6 +435,8 @@ fn recommended_stage_record(
         tail_current_a: r.tail_current,
         planned_emitter_resistance_ohm: planned.emitter_resistance,
         planned_tail_current_a: planned.tail_current,
+        area_ratio: r.area_ratio,
+        planned_area_ratio: r.area_ratio.map(|_| planned.multi_tanh.area_ratio),
         planned_load_resistance_ohm: planned.load_resistance,
         found: r.met,
         basis: basis_name(r.basis).into(),
@@ -492,6 +494,9 @@ fn values_text(stages: &[RecommendedStageRecord]) -> String {
         let mut extra = String::new();
         if (s.tail_current_a / s.planned_tail_current_a - 1.0).abs() > 1e-9 {
             extra.push_str(&format!(", I_tail = {}", format_si(s.tail_current_a, "A")));
+        }
+        if let Some(ratio) = s.area_ratio {
+            extra.push_str(&format!(", area ratio A_E = {ratio:.4}"));
         }
         if (s.load_resistance_ohm / s.planned_load_resistance_ohm - 1.0).abs() > 1e-9 {
             extra.push_str(&format!(
@@ -1094,6 +1099,7 @@ fn variable_value(variable: SizingVariable, r: &crate::study::sizing::Recommenda
     match variable {
         SizingVariable::EmitterResistance => r.emitter_resistance,
         SizingVariable::TailCurrent => r.tail_current,
+        SizingVariable::AreaRatio => r.area_ratio.unwrap_or(f64::NAN),
     }
 }
 
@@ -1232,6 +1238,7 @@ fn region_record(plan: &Plan, region: &RegionOutcome) -> RegionRecord {
         guard_band_db: region.guard_band_db,
         tail_current_a: region.chosen.tail_current(),
         emitter_resistance_ohm: region.chosen.emitter_resistance(),
+        area_ratio: region.value_at(&region.chosen, SizingVariable::AreaRatio),
         load_resistance_ohm: region.chosen.load_resistance(),
         binding_metric,
         binding_line,
@@ -1246,6 +1253,7 @@ fn region_record(plan: &Plan, region: &RegionOutcome) -> RegionRecord {
                 RegionCellRecord {
                     tail_current_a: p.tail_current(),
                     emitter_resistance_ohm: p.emitter_resistance(),
+                    area_ratio: region.value_at(p, SizingVariable::AreaRatio),
                     holds: p.holds,
                     limiting_metric,
                     limiting_line,

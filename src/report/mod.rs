@@ -287,6 +287,12 @@ pub struct RecommendedStageRecord {
     /// The plan's tail current, A.
     #[serde(default)]
     pub planned_tail_current_a: f64,
+    /// Multi-tanh area ratio to build, when sizing chooses it (`null` otherwise).
+    #[serde(default)]
+    pub area_ratio: Option<f64>,
+    /// The plan's multi-tanh area ratio, when sizing chooses it.
+    #[serde(default)]
+    pub planned_area_ratio: Option<f64>,
     /// The plan's load resistance, Ω.
     pub planned_load_resistance_ohm: f64,
     /// Whether sizing found a value holding every line (by the guard band) at every
@@ -1001,11 +1007,11 @@ pub struct SpreadRecord {
 pub struct RegionRecord {
     /// Stage name.
     pub stage: String,
-    /// The variable minimised (`tail_current` or `emitter_resistance`).
+    /// The variable minimised (`tail_current`, `emitter_resistance` or `area_ratio`).
     pub minimise: String,
     /// The variables in map order: the minimised one, then the other (when two are sized).
     pub variables: Vec<String>,
-    /// Unit of each variable (`A`, `Ω`).
+    /// Unit of each variable (`A`, `Ω`; empty for the area ratio).
     pub units: Vec<String>,
     /// Grid values of each variable.
     pub grid: Vec<Vec<f64>>,
@@ -1017,6 +1023,9 @@ pub struct RegionRecord {
     pub tail_current_a: f64,
     /// The design found: emitter resistance per side, Ω.
     pub emitter_resistance_ohm: f64,
+    /// The design found: multi-tanh area ratio, when it is one of the variables.
+    #[serde(default)]
+    pub area_ratio: Option<f64>,
     /// The design found: load resistance per side at the first temperature, Ω.
     pub load_resistance_ohm: f64,
     /// The line limiting the design found (metric name, or `collector_base_margin` for the
@@ -1050,6 +1059,9 @@ pub struct RegionCellRecord {
     pub tail_current_a: f64,
     /// Emitter resistance per side, Ω.
     pub emitter_resistance_ohm: f64,
+    /// Multi-tanh area ratio, when it is one of the variables (`null` otherwise).
+    #[serde(default)]
+    pub area_ratio: Option<f64>,
     /// Every line holds by the guard band at every temperature.
     pub holds: bool,
     /// The line with the least margin above the guard band (for a failing design, the one
