@@ -73,8 +73,10 @@
 //! a nearby spacing would be wrong in general: the tail node responds at `Δ`.)
 
 pub mod balance;
+pub mod cell;
 pub mod dense;
 pub mod pair;
+pub mod system;
 pub mod trapezoid;
 
 use crate::error::SolveFailure;
@@ -85,8 +87,9 @@ use crate::solve::spectrum::{FftCache, Spectrum};
 use crate::solve::transfer::StaticSolver;
 use dense::Lu;
 use num_complex::Complex;
-use pair::{Drive, PairSystem};
+use pair::Drive;
 use std::sync::Arc;
+use system::StageSystem;
 use trapezoid::ChargeSystem;
 use trapezoid::{periodic_steady_state, State, SteadyTolerance, StepTolerance};
 
@@ -241,7 +244,7 @@ impl DynamicEngine {
             Drive::TwoTone { amplitude_v, .. } => 2.0 * amplitude_v,
         };
         let whole = self.solver.saturates_within(peak_v)?;
-        let system = PairSystem::new(circuit, drive, whole);
+        let system = StageSystem::new(circuit, drive, whole);
         let fail = |reason: String| SolveFailure {
             point: label.to_owned(),
             reason,
@@ -251,10 +254,10 @@ impl DynamicEngine {
                 return Ok(refined);
             }
         }
-        let start = self.solver.solve_cold(drive.differential_v(0.0))?;
+        let start = system.start_state(&self.solver, drive.differential_v(0.0))?;
         let mut guess = State {
-            x: system.state_from(&start),
-            i: vec![0.0; pair::CHARGES],
+            x: start.clone(),
+            i: vec![0.0; system.charges()],
         };
         let mut monodromy: Option<(usize, Lu)> = None;
         // Start states of the last two levels (for the h² extrapolation of the next start)
@@ -306,8 +309,8 @@ impl DynamicEngine {
                     }
                     retries += 1;
                     guess = State {
-                        x: system.state_from(&start),
-                        i: vec![0.0; pair::CHARGES],
+                        x: start.clone(),
+                        i: vec![0.0; system.charges()],
                     };
                     monodromy = None;
                     starts.clear();
@@ -319,8 +322,8 @@ impl DynamicEngine {
                 }
             };
             let rows = solution.trajectory.chunks_exact(system.unknowns());
-            let differential: Vec<f64> = rows.clone().map(PairSystem::output_v).collect();
-            let single: Vec<f64> = rows.map(PairSystem::p_collector_v).collect();
+            let differential: Vec<f64> = rows.clone().map(|x| system.output_v(x)).collect();
+            let single: Vec<f64> = rows.map(|x| system.p_collector_v(x)).collect();
             let raw_differential = self.cache.harmonic_phasors(&differential, bins);
             let raw_single = self.cache.harmonic_phasors(&single, bins);
             starts.push((steps, solution.start.clone()));
@@ -371,10 +374,14 @@ impl DynamicEngine {
                         let junctions: Vec<f64> = solution
                             .trajectory
                             .chunks_exact(system.unknowns())
-                            .flat_map(|x| system.base_collector_pair_v(x))
+                            .flat_map(|x| system.base_collector_v(x))
                             .collect();
-                        let dense =
-                            resample_periodic(&junctions, steps, REGION_OVERSAMPLING * steps, 2);
+                        let dense = resample_periodic(
+                            &junctions,
+                            steps,
+                            REGION_OVERSAMPLING * steps,
+                            system.transistors(),
+                        );
                         for v in dense {
                             region.max_base_collector_v = region.max_base_collector_v.max(v);
                         }
@@ -427,7 +434,7 @@ impl DynamicEngine {
     /// [`MAX_BALANCE_SAMPLES`]: the caller then solves the point by shooting.
     fn refine_balance(
         &self,
-        system: &PairSystem,
+        system: &StageSystem,
         drive: Drive,
         period_s: f64,
         bins: usize,
@@ -467,12 +474,17 @@ impl DynamicEngine {
         let mut start = Vec::with_capacity(samples * width);
         for k in 0..samples {
             let v_d = drive.differential_v(k as f64 * period_s / samples as f64);
-            let point = self.solver.solve(v_d, &mut warm).ok()?;
-            let fraction = point.p_fraction();
-            if fraction.min(1.0 - fraction) < BALANCE_STEERING_LIMIT {
-                return None;
+            match system {
+                StageSystem::Pair(pair) => {
+                    let point = self.solver.solve(v_d, &mut warm).ok()?;
+                    let fraction = point.p_fraction();
+                    if fraction.min(1.0 - fraction) < BALANCE_STEERING_LIMIT {
+                        return None;
+                    }
+                    start.extend(pair.state_from(&point));
+                }
+                StageSystem::Cell(_) => start.extend(system.start_state(&self.solver, v_d).ok()?),
             }
-            start.extend(system.state_from(&point));
         }
         let mut previous: Option<Vec<f64>> = None;
         let last = (samples << (MAX_BALANCE_LEVELS - 1)).min(MAX_BALANCE_SAMPLES);
@@ -481,7 +493,7 @@ impl DynamicEngine {
             let solution =
                 balance::periodic_balance(system, period_s, &start, fft.clone(), tolerance).ok()?;
             let rows = solution.trajectory.chunks_exact(width);
-            let differential: Vec<f64> = rows.clone().map(PairSystem::output_v).collect();
+            let differential: Vec<f64> = rows.clone().map(|x| system.output_v(x)).collect();
             let raw = self.cache.harmonic_phasors(&differential, bins);
             let current = figures(&raw);
             if let Some(before) = &previous {
@@ -491,7 +503,7 @@ impl DynamicEngine {
                     .map(|(a, b)| if a == b { 0.0 } else { (a - b).abs() })
                     .fold(0.0, f64::max);
                 if change <= ACCEPTED_ERROR_ESTIMATE_DB {
-                    let single: Vec<f64> = rows.map(PairSystem::p_collector_v).collect();
+                    let single: Vec<f64> = rows.map(|x| system.p_collector_v(x)).collect();
                     // The operating region between the samples too: the trajectory's own
                     // trigonometric interpolant, at least REGION_OVERSAMPLING times as dense
                     // and at least BALANCE_REGION_POINTS points a period.
@@ -529,22 +541,6 @@ impl DynamicEngine {
             samples = finer;
         }
         None
-    }
-}
-
-impl DynamicEngine {
-    /// A multi-tanh cell with charge storage is not solved yet (its pairs couple through the
-    /// shared collector nodes at every instant); the plan reader refuses it, and a library
-    /// caller gets this failure rather than a pair solved alone.
-    fn refuse_cell(&self, label: &str) -> Result<(), SolveFailure> {
-        if self.static_solver().cell().is_empty() {
-            Ok(())
-        } else {
-            Err(SolveFailure {
-                point: label.to_owned(),
-                reason: "a multi-tanh cell with charge storage is not solved yet: remove its capacitances and transit times".into(),
-            })
-        }
     }
 }
 
@@ -618,7 +614,6 @@ impl ResponseEngine for DynamicEngine {
             crate::units::short_number(amplitude_v),
             crate::units::short_number(frequency_hz)
         );
-        self.refuse_cell(&label)?;
         if !(frequency_hz.is_finite() && frequency_hz > 0.0) {
             return Err(SolveFailure {
                 point: label,
@@ -680,7 +675,6 @@ impl ResponseEngine for DynamicEngine {
             v(frequency_hz),
             v(frequency_hz + spacing_hz)
         );
-        self.refuse_cell(&label)?;
         let suggestion = || match separating_spacing(frequency_hz, spacing_hz) {
             Some(s) => format!("for example {} Hz", v(s)),
             None => "for example a spacing that divides the frequency".into(),
