@@ -31,6 +31,7 @@ use crate::model::circuit::StageCircuit;
 use crate::model::plan::Plan;
 use crate::model::products::common_period_cycles;
 use crate::model::stage::Stage;
+use crate::model::topology::Topology;
 use crate::solve::symmetric;
 use crate::study::region::{PRIMARY_POINTS, SECONDARY_POINTS};
 use crate::study::sizing::SCAN_POINTS;
@@ -50,12 +51,15 @@ pub const REDUCED_FACTOR: f64 = 1.0;
 pub const MEMORYLESS_TWO_TONE_S: f64 = 2.5e-3;
 /// One memoryless two-tone analysis of a matched pair with the one-unknown solve, s.
 pub const SYMMETRIC_TWO_TONE_S: f64 = 5e-4;
-/// One single tone of a stage with charge storage, per 10 harmonics analysed, s.
-pub const DYNAMIC_TONE_S: f64 = 4e-3;
+/// One single tone of a stage with charge storage, s: harmonic balance settles a mild point
+/// in about 0.3–0.4 ms whatever the harmonics analysed; a fully steered or saturating point
+/// goes to the shooting solve, several times dearer (benches/README.md).
+pub const DYNAMIC_TONE_S: f64 = 6e-4;
 /// Added per harmonic analysed to a single tone with charge storage, s.
-pub const DYNAMIC_TONE_HARMONIC_S: f64 = 3.5e-4;
-/// One two-tone periodic steady state, per upper-tone cycle of the common period, s.
-pub const DYNAMIC_TWO_TONE_CYCLE_S: f64 = 4.5e-3;
+pub const DYNAMIC_TONE_HARMONIC_S: f64 = 1e-5;
+/// One two-tone periodic steady state, per upper-tone cycle of the common period, s (about
+/// 2 ms for 11 cycles by harmonic balance).
+pub const DYNAMIC_TWO_TONE_CYCLE_S: f64 = 3e-4;
 /// Two-tone analyses an IIP3 search costs (halving until the slope is 3:1), per engine: the
 /// matched pair's grids grow as the drive falls, the general solve's shrink, and the periodic
 /// steady state refines further at each level.
@@ -238,23 +242,32 @@ pub fn estimate(plan: &Plan) -> Workload {
     let mut sweep_per_stage: Vec<f64> = Vec::with_capacity(plan.stages.len());
     for stage in &plan.stages {
         let engine = Engine::of(stage, reference_temperature);
+        // A multi-tanh cell with charge storage solves every pair's nodes at once: about
+        // one pair's cost per pair (the doublet demo's steady states cost 2.3× the pair's).
+        let cell = if engine == Engine::Dynamic && stage.topology == Topology::MultiTanh {
+            stage.multi_tanh.pairs().len().max(1) as f64
+        } else {
+            1.0
+        };
         // Every drive point once: its tone, and its two tones with two-tone drive.
-        let drive_points: f64 = frequencies
-            .iter()
-            .map(|&f| {
-                amplitudes
-                    * (engine.tone_s(harmonics)
-                        + plan
-                            .drive
-                            .two_tone_spacing
-                            .map_or(0.0, |s| engine.two_tone_s(f, s)))
-            })
-            .sum();
-        let points: f64 = drive_points
-            + frequencies
+        let drive_points: f64 = cell
+            * frequencies
                 .iter()
-                .map(|&f| engine.stage_wide_s(f, spacing(f)))
+                .map(|&f| {
+                    amplitudes
+                        * (engine.tone_s(harmonics)
+                            + plan
+                                .drive
+                                .two_tone_spacing
+                                .map_or(0.0, |s| engine.two_tone_s(f, s)))
+                })
                 .sum::<f64>();
+        let points: f64 = drive_points
+            + cell
+                * frequencies
+                    .iter()
+                    .map(|&f| engine.stage_wide_s(f, spacing(f)))
+                    .sum::<f64>();
         let stage_sweep = temperatures * corners * (points + engine.static_s());
         sweep += stage_sweep;
         sweep_per_stage.push(stage_sweep);
@@ -290,8 +303,9 @@ pub fn estimate(plan: &Plan) -> Workload {
             } else if draws {
                 // A stage with charge storage: every run solves the periodic steady state of
                 // each drive point at every frequency, then each budget line afresh.
-                let per_run =
-                    drive_points + budget_lines_s(plan, engine, harmonics) + MONTE_CARLO_RUN_S;
+                let per_run = drive_points
+                    + cell * budget_lines_s(plan, engine, harmonics)
+                    + MONTE_CARLO_RUN_S;
                 monte_carlo += mc.runs as f64 * temperatures * per_run;
             }
         }
@@ -302,7 +316,7 @@ pub fn estimate(plan: &Plan) -> Workload {
             let headroom = if hold { engine.tone_s(3) } else { 0.0 };
             sizing += temperatures
                 * sizing_trials(plan)
-                * (corners * (lines + headroom) + engine.static_s());
+                * (corners * cell * (lines + headroom) + engine.static_s());
         }
     }
     // A fit evaluates every measured point about FIT_EVALUATIONS times as a single tone, and
