@@ -360,8 +360,9 @@ pub fn hatch_pixels<DB: DrawingBackend>(
     Ok(())
 }
 
-/// Splits `text` into lines no wider than `width` px in `style`.
-fn wrap<DB: DrawingBackend>(
+/// Splits `text` into lines no wider than `width` px in `style` (a single word wider than
+/// `width` keeps a line of its own).
+pub fn wrap<DB: DrawingBackend>(
     area: &DrawingArea<DB, Shift>,
     text: &str,
     style: &TextStyle,

@@ -3,7 +3,7 @@
 //! line of a stage whatever its metric and frequency.
 
 use super::axis::Axis;
-use super::key::{draw_key, split, Key, Swatch, VerdictRow};
+use super::key::{draw_key, split, wrap, Key, Swatch, VerdictRow};
 use super::style::*;
 use super::{DrawResult, Drawing, PlotKind};
 use crate::report::{BudgetRecord, Report};
@@ -210,6 +210,12 @@ pub struct MarginsPlot {
 
 /// Margins beyond this are drawn to the axis end (their value is in the table).
 const MARGIN_CLIP_DB: f64 = 60.0;
+/// Gap between a row label and the plot, px.
+const LABEL_GAP_PX: u32 = 12;
+/// Narrowest row-label column, px.
+const MIN_LABEL_PX: u32 = 200;
+/// Line pitch of a row label, px.
+const LABEL_LINE_PX: i32 = 23;
 
 impl MarginsPlot {
     /// The figure, if the stage has budget lines.
@@ -352,7 +358,21 @@ impl Drawing for MarginsPlot {
         draw_key(&side, &self.key())?;
         let rows = self.lines.len() as f64;
         let axis = &self.axis;
-        let mut chart = house_chart(&plot, 24, 330)
+        // The row labels' column: as wide as the longest label needs, up to a share of the
+        // plot; a label wider than that wraps onto further lines rather than run off the edge.
+        let label_style = bold(LEGEND_PX).color(&INK);
+        let widest = self
+            .lines
+            .iter()
+            .map(|l| plot.estimate_text_size(&l.describe(), &label_style))
+            .collect::<Result<Vec<_>, _>>()?
+            .into_iter()
+            .map(|(w, _)| w)
+            .max()
+            .unwrap_or(0);
+        let most = plot.dim_in_pixel().0 * 2 / 5;
+        let label_px = (widest + LABEL_GAP_PX + 8).clamp(MIN_LABEL_PX, most);
+        let mut chart = house_chart(&plot, 24, label_px)
             .build_cartesian_2d(axis.linear_range(), -0.5..rows - 0.5)?;
         mesh_style(&mut chart.configure_mesh())
             .disable_y_mesh()
@@ -438,23 +458,40 @@ impl Drawing for MarginsPlot {
                 super::key::verdict_marker(root, (at.0, at.1), line.pass())?;
             }
             let label_at = chart.backend_coord(&(axis.low, centre));
-            root.draw(&Text::new(
-                line.describe(),
-                (label_at.0 - 12, label_at.1 - 11),
-                bold(LEGEND_PX)
-                    .color(&INK)
-                    .pos(Pos::new(HPos::Right, VPos::Center)),
-            ))?;
+            let room = label_px as i32 - LABEL_GAP_PX as i32 - 8;
+            let head = wrap(root, &line.describe(), &label_style, room)?;
             let frequency = si_exact(line.line().frequency_hz, "Hz");
-            root.draw(&Text::new(
-                if own_scale {
+            let detail_style = text(LEGEND_PX - 2.0, MUTED);
+            let detail = wrap(
+                root,
+                &if own_scale {
                     format!("{frequency} · bar: share of limit")
                 } else {
                     frequency
                 },
-                (label_at.0 - 12, label_at.1 + 12),
-                text(LEGEND_PX - 2.0, MUTED).pos(Pos::new(HPos::Right, VPos::Center)),
-            ))?;
+                &detail_style,
+                room,
+            )?;
+            // The block of lines centred on the row, the head above its detail.
+            let count = (head.len() + detail.len()) as i32;
+            let mut y = label_at.1 - (count - 1) * LABEL_LINE_PX / 2;
+            let x = label_at.0 - LABEL_GAP_PX as i32;
+            for words in head {
+                root.draw(&Text::new(
+                    words,
+                    (x, y),
+                    label_style.pos(Pos::new(HPos::Right, VPos::Center)),
+                ))?;
+                y += LABEL_LINE_PX;
+            }
+            for words in detail {
+                root.draw(&Text::new(
+                    words,
+                    (x, y),
+                    detail_style.pos(Pos::new(HPos::Right, VPos::Center)),
+                ))?;
+                y += LABEL_LINE_PX;
+            }
         }
         Ok(())
     }
