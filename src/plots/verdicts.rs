@@ -205,6 +205,8 @@ pub struct MarginsPlot {
     lines: Vec<LineChecks>,
     /// The cases (temperature, corner) in report order.
     cases: Vec<(f64, String)>,
+    /// The report's temperatures (they fix each temperature's colour).
+    plan_temps: Vec<f64>,
     axis: Axis,
 }
 
@@ -245,6 +247,7 @@ impl MarginsPlot {
             slug: slug.to_owned(),
             lines,
             cases,
+            plan_temps: temperatures(report),
             axis,
         })
     }
@@ -261,30 +264,55 @@ impl MarginsPlot {
         }
     }
 
-    /// Colour and opacity of a case: with corners the colour names the corner and the
-    /// shade the temperature (so nine cases stay nine distinct swatches); without, the
-    /// colour names the temperature.
-    fn case_style(&self, index: usize) -> (RGBColor, f64) {
+    /// How a case's bars look: the colour names the temperature (the report-wide temperature
+    /// colour every figure uses); with corners, the fill names the corner (solid for the
+    /// first, then a light fill with an outline, then an outline alone), so a colour never
+    /// has to be told apart from a paler copy of another.
+    fn case_look(&self, index: usize) -> CaseLook {
         let (t, corner) = &self.cases[index];
+        let colour = temperature_colour(*t, &self.plan_temps);
         let mut corners: Vec<&str> = Vec::new();
-        let mut temps: Vec<f64> = Vec::new();
-        for (ct, cc) in &self.cases {
+        for (_, cc) in &self.cases {
             if !corners.contains(&cc.as_str()) {
                 corners.push(cc);
             }
-            if !temps.contains(ct) {
-                temps.push(*ct);
-            }
         }
-        let ti = temps.iter().position(|x| x == t).unwrap_or(0);
-        if self.has_corners() {
-            let ci = corners.iter().position(|c| c == corner).unwrap_or(0);
-            (
-                SERIES[(ci * 2) % SERIES.len()],
-                [0.95, 0.6, 0.32, 0.18][ti % 4],
-            )
+        let ci = if self.has_corners() {
+            corners.iter().position(|c| c == corner).unwrap_or(0)
         } else {
-            (SERIES[ti % SERIES.len()], 0.85)
+            0
+        };
+        let (fill, outlined) = [(0.85, false), (0.3, true), (0.0, true), (0.6, true)][ci % 4];
+        CaseLook {
+            colour,
+            fill,
+            outlined,
+        }
+    }
+}
+
+/// How the bars of one case (temperature and corner) are drawn.
+#[derive(Debug, Clone, Copy)]
+struct CaseLook {
+    colour: RGBColor,
+    /// Opacity of the fill.
+    fill: f64,
+    /// Whether the bar has an outline in the full colour.
+    outlined: bool,
+}
+
+impl CaseLook {
+    fn swatch(self) -> Swatch {
+        if self.outlined {
+            Swatch::Outline {
+                colour: self.colour,
+                fill: self.fill,
+            }
+        } else {
+            Swatch::Band {
+                colour: self.colour,
+                alpha: self.fill,
+            }
         }
     }
 }
@@ -316,8 +344,7 @@ impl Drawing for MarginsPlot {
     fn key(&self) -> Key {
         let mut key = Key::default();
         for (i, case) in self.cases.iter().enumerate() {
-            let (colour, alpha) = self.case_style(i);
-            key.entry(Swatch::Band { colour, alpha }, self.case_label(case));
+            key.entry(self.case_look(i).swatch(), self.case_label(case));
         }
         if self.lines.iter().any(|l| !margin_in_db(l.line())) {
             key.notes.push(
@@ -405,7 +432,8 @@ impl Drawing for MarginsPlot {
                     continue;
                 };
                 let margin = margin_position(record, record.margin.unwrap_or(MARGIN_CLIP_DB), axis);
-                let (colour, alpha) = self.case_style(index);
+                let look = self.case_look(index);
+                let (colour, alpha) = (look.colour, look.fill.max(0.6));
                 let bottom = top - band * 0.85;
                 if own_scale {
                     // Not in dB: a light bar with a hatched face and an outline.
@@ -430,8 +458,14 @@ impl Drawing for MarginsPlot {
                 } else {
                     chart.draw_series(std::iter::once(Rectangle::new(
                         [(0.0, top), (margin, bottom)],
-                        colour.mix(alpha).filled(),
+                        colour.mix(look.fill).filled(),
                     )))?;
+                    if look.outlined {
+                        chart.draw_series(std::iter::once(Rectangle::new(
+                            [(0.0, top), (margin, bottom)],
+                            colour.stroke_width(2),
+                        )))?;
+                    }
                 }
                 if record.margin_at_least {
                     // Only a lower bound: an arrow pointing on past the bar's end.
