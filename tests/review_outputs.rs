@@ -661,6 +661,13 @@ fn html_tables_keep_units_with_numbers_and_cells_short() {
         assert_eq!(*cell, record.region.name(), "region name only");
     }
     assert!(prose.contains("The least collector-base reverse bias over these checks is"));
+    // A region name never breaks at its hyphen ("forward-" / "active").
+    assert!(prose.contains("td.num, td.unbroken { white-space: nowrap; }"));
+    assert_eq!(
+        budget.matches("unbroken\">").count(),
+        report.budget.len(),
+        "every region cell is kept on one line"
+    );
     for code_case in ["input_noise", "emitter_resistors", "collector_base_margin<"] {
         assert!(!prose.contains(code_case), "{code_case} in the HTML");
     }

@@ -363,7 +363,7 @@ pub fn budget_table(report: &Report) -> Table {
         ("verdict", false),
         ("operating region", false),
     ]);
-    let mut table = Table::new(columns);
+    let mut table = Table::new(columns).unbroken("operating region");
     for b in &report.budget {
         // The region's name only: the collector-base margin behind it is in the note under
         // the table (the least one) and in report.json (every one).
@@ -967,7 +967,7 @@ table { border-collapse: collapse; width: 100%; margin: 8px 0 16px; font-size: 1
 th, td { padding: 5px 9px; border-bottom: 1px solid var(--rule); text-align: left; vertical-align: top; }
 th { background: #f3f5f8; font-weight: 600; }
 td.num, th.num { text-align: right; font-variant-numeric: tabular-nums; }
-td.num { white-space: nowrap; }
+td.num, td.unbroken { white-space: nowrap; }
 td.fail { color: var(--fail); font-weight: bold; }
 td.pass { color: var(--pass); }
 figure { margin: 18px 0 28px; page-break-inside: avoid; break-inside: avoid; }

@@ -39,7 +39,7 @@ impl BudgetRecord {
                 let number = if self.unit == YIELD_UNIT {
                     format!("{:.2}", 100.0 * m)
                 } else if self.margin_unit == "V" {
-                    format!("{m:.3} V")
+                    crate::report::text::si_short(m, "V")
                 } else {
                     format!("{m:.2}")
                 };

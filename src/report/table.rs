@@ -11,6 +11,9 @@ pub struct Column {
     pub title: String,
     /// Whether the column holds numbers.
     pub numeric: bool,
+    /// Whether its cells stay on one line in HTML (short words a browser would otherwise
+    /// break at a hyphen: `forward-active`).
+    pub unbroken: bool,
 }
 
 /// How a cell is set apart.
@@ -94,10 +97,19 @@ impl Table {
                 .map(|(title, numeric)| Column {
                     title: title.to_owned(),
                     numeric,
+                    unbroken: false,
                 })
                 .collect(),
             rows: Vec::new(),
         }
+    }
+
+    /// Keeps the cells of the column titled `title` on one line in HTML.
+    pub fn unbroken(mut self, title: &str) -> Table {
+        for column in self.columns.iter_mut().filter(|c| c.title == title) {
+            column.unbroken = true;
+        }
+        self
     }
 
     /// Appends a row.
@@ -155,11 +167,19 @@ impl Table {
         for row in &self.rows {
             out.push_str("<tr>");
             for (cell, column) in row.iter().zip(&self.columns) {
-                let class = match (cell.mark, column.numeric) {
-                    (Mark::Fail, _) => " class=\"fail\"",
-                    (Mark::Pass, _) => " class=\"pass\"",
-                    (Mark::Plain, true) => " class=\"num\"",
-                    (Mark::Plain, false) => "",
+                let mut classes: Vec<&str> = match (cell.mark, column.numeric) {
+                    (Mark::Fail, _) => vec!["fail"],
+                    (Mark::Pass, _) => vec!["pass"],
+                    (Mark::Plain, true) => vec!["num"],
+                    (Mark::Plain, false) => vec![],
+                };
+                if column.unbroken {
+                    classes.push("unbroken");
+                }
+                let class = if classes.is_empty() {
+                    String::new()
+                } else {
+                    format!(" class=\"{}\"", classes.join(" "))
                 };
                 let _ = write!(out, "<td{class}>{}</td>", html_words(&cell.text));
             }
