@@ -700,3 +700,49 @@ drive:
     amplitudes.dedup();
     assert_eq!(amplitudes.len(), 13, "report.json keeps every amplitude");
 }
+
+/// The datasheet gives a quantity in volts with the prefix that suits it: a row whose values
+/// reach 1 V reads in V (the schemes demo's resistor stages have IIP3 above 1 V, once printed
+/// as 1251.1 mV).
+#[test]
+fn datasheet_rows_in_millivolts_stay_below_a_volt() {
+    let plan = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("specs/sediment-sonar-schemes.yaml");
+    let dir = tempfile::tempdir().unwrap();
+    let options = RunOptions {
+        plan,
+        out: dir.path().join("out"),
+        json: false,
+        quiet: true,
+        max_work: DEFAULT_MAX_WORK,
+        figures: false,
+        as_planned: false,
+        overrides: Vec::new(),
+    };
+    let outcome = run(&options, &|_| {}).expect("the demo runs");
+    assert!(
+        outcome
+            .report
+            .intercepts
+            .iter()
+            .any(|i| i.iip3_v.is_some_and(|v| v > 1.0)),
+        "the demo has an IIP3 above 1 V"
+    );
+    let markdown = fs::read_to_string(outcome.folder.join("report.md")).unwrap();
+    let mut volts_rows = 0;
+    for line in markdown.lines().filter(|l| l.contains(" IIP3 |")) {
+        let cells: Vec<&str> = line.split('|').map(str::trim).collect();
+        // | parameter | symbol | conditions | min | typ | max | unit | min / max at |
+        let unit = cells[7];
+        let values: Vec<f64> = cells[4..7]
+            .iter()
+            .filter_map(|c| c.replace('−', "-").parse().ok())
+            .collect();
+        if unit == "mV" {
+            assert!(values.iter().all(|v| v.abs() < 1000.0), "{line}");
+        }
+        if unit == "V" {
+            volts_rows += 1;
+        }
+    }
+    assert!(volts_rows > 0, "IIP3 above 1 V reads in V");
+}

@@ -237,29 +237,48 @@ pub fn datasheet_table(report: &Report, stage: &str) -> Table {
         2,
         "dBV",
     );
+    // A row in volts reads in mV while every value is below 1 V, else in V (never 1251.1 mV).
+    fn volts(values: Vec<CaseValue<'_>>) -> (Vec<CaseValue<'_>>, usize, &'static str) {
+        let largest = values
+            .iter()
+            .filter_map(|(_, _, v)| *v)
+            .fold(0.0f64, |m, v| m.max(v.abs()));
+        if largest < 1.0 {
+            let scaled = values
+                .into_iter()
+                .map(|(t, c, v)| (t, c, v.map(|v| v * 1e3)))
+                .collect::<Vec<_>>();
+            (scaled, 1, "mV")
+        } else {
+            (values, 3, "V")
+        }
+    }
+    let (values, decimals, unit) = volts(by_t(&|i| i.iip3_v));
     row(
         "input third-order intercept",
         "IIP3",
         format!("per tone, peak, {f_text}{fit_note}"),
-        by_t(&|i| i.iip3_v.map(|v| v * 1e3)),
-        1,
-        "mV",
+        values,
+        decimals,
+        unit,
     );
+    let (values, decimals, unit) = volts(by_t(&|i| i.oip3_v));
     row(
         "output third-order intercept",
         "OIP3",
         format!("per tone, peak, {f_text}{fit_note}"),
-        by_t(&|i| i.oip3_v),
-        3,
-        "V",
+        values,
+        decimals,
+        unit,
     );
+    let (values, decimals, unit) = volts(by_t(&|i| i.p1db_v));
     row(
         "input 1 dB compression",
         "P1dB",
         format!("peak, {f_text}{p1db_note}"),
-        by_t(&|i| i.p1db_v.map(|v| v * 1e3)),
-        1,
-        "mV",
+        values,
+        decimals,
+        unit,
     );
 
     // Distortion at the budget's amplitudes (those the plan drove) and at the largest drive.
