@@ -156,10 +156,6 @@ impl Stage {
     /// Refuses cells and topologies the engines do not solve (the plan reader says where).
     fn check_topology(&self) -> Result<(), Error> {
         use crate::model::topology::Topology;
-        let stores_charge = !crate::model::transistor::ChargeModel::of(&self.transistor)
-            .is_memoryless()
-            || self.load_capacitance > 0.0
-            || self.tail_capacitance > 0.0;
         match self.topology {
             Topology::EmitterResistors => Ok(()),
             Topology::SplitTail if self.tail_capacitance > 0.0 => Err(self.invalid(
@@ -168,11 +164,6 @@ impl Stage {
                 "0 with a split tail (its source capacitances are not modelled yet)",
             )),
             Topology::SplitTail => Ok(()),
-            Topology::MultiTanh if stores_charge => Err(Error::Argument {
-                name: format!("stage `{}`: multi_tanh", self.name),
-                problem: "a multi-tanh cell with charge storage is not solved yet".into(),
-                accepted: "multi_tanh stages without capacitances and transit times".into(),
-            }),
             Topology::MultiTanh => {
                 let pairs = self.multi_tanh.pairs();
                 let total: f64 = pairs.iter().map(|p| p.tail_fraction).sum();

@@ -18,7 +18,8 @@
 //! **Multi-tanh.** Each pair is a circuit of its own (its tail source, areas, degeneration);
 //! the pairs share the input nodes (through the source resistance) and the collector nodes
 //! (through the loads), which [`crate::solve::transfer::StaticSolver`] couples exactly.
-//! A transistor of emitter area `a` has `a·I_S`, `a·I_KF`, `a·I_KR`, `r_b/a` and `r_c/a`.
+//! A transistor of emitter area `a` has `a·I_S`, `a·I_KF`, `a·I_KR`, `r_b/a` and `r_c/a`, and
+//! (in the dynamic engine) `a·C_je` and `a·C_jc`; its transit time does not change.
 
 use super::stage::{Mismatch, Stage};
 use super::topology::Topology;
@@ -120,6 +121,16 @@ impl ChargeScale {
         collector_junction_capacitance: 1.0,
         transit_time: 1.0,
     };
+
+    /// The same factors for a transistor of emitter area `area` (relative to a unit device):
+    /// its junction capacitances scale with the area, its transit time does not.
+    pub fn with_area(self, area: f64) -> ChargeScale {
+        ChargeScale {
+            emitter_junction_capacitance: self.emitter_junction_capacitance * area,
+            collector_junction_capacitance: self.collector_junction_capacitance * area,
+            ..self
+        }
+    }
 }
 
 /// The elements of a split tail before its transform to the emitter-resistor form.
@@ -142,6 +153,10 @@ pub struct CellPair {
     pub circuit: StageCircuit,
     /// Its share of the stage's tail current.
     pub tail_fraction: f64,
+    /// Emitter areas of its P and M transistors relative to a unit device (their junction
+    /// capacitances scale with them; the saturation currents and resistances in
+    /// [`CellPair::circuit`] already do).
+    pub areas: [f64; 2],
 }
 
 fn scaled(nominal: f64, fraction: f64) -> f64 {
@@ -212,6 +227,7 @@ impl StageCircuit {
                         CellPair {
                             circuit: part,
                             tail_fraction: pair.tail_fraction,
+                            areas: [pair.area_p, pair.area_m],
                         }
                     })
                     .collect();

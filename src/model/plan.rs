@@ -172,28 +172,32 @@ pub struct NoiseBand {
 }
 
 /// A stage value sizing may choose. Each variant is one plan key under `sizing:`; a new
-/// variable (a multi-tanh cell's area ratio, say) is one more variant with its key, unit,
-/// getter and setter.
+/// variable is one more variant with its key, unit, getter and setter.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
 pub enum SizingVariable {
     /// Emitter degeneration per side, Ω.
     EmitterResistance,
     /// Tail current (the pair's supply current), A.
     TailCurrent,
+    /// Emitter-area ratio `A` of a multi-tanh doublet's or triplet's offset pairs
+    /// (dimensionless; the offset is `φT·ln A`).
+    AreaRatio,
 }
 
 impl SizingVariable {
     /// Every variable, in the order the plan format lists them.
-    pub const ALL: [SizingVariable; 2] = [
+    pub const ALL: [SizingVariable; 3] = [
         SizingVariable::EmitterResistance,
         SizingVariable::TailCurrent,
+        SizingVariable::AreaRatio,
     ];
 
-    /// The plan key (`emitter_resistance`, `tail_current`).
+    /// The plan key (`emitter_resistance`, `tail_current`, `area_ratio`).
     pub fn key(self) -> &'static str {
         match self {
             SizingVariable::EmitterResistance => "emitter_resistance",
             SizingVariable::TailCurrent => "tail_current",
+            SizingVariable::AreaRatio => "area_ratio",
         }
     }
 
@@ -202,24 +206,29 @@ impl SizingVariable {
         Self::ALL.into_iter().find(|v| v.key() == key)
     }
 
-    /// Unit symbol (`Ω`, `A`).
+    /// Unit symbol (`Ω`, `A`; empty for the dimensionless area ratio).
     pub fn unit_symbol(self) -> &'static str {
         match self {
             SizingVariable::EmitterResistance => "Ω",
             SizingVariable::TailCurrent => "A",
+            SizingVariable::AreaRatio => "",
         }
     }
 
-    /// The symbol designers write for it (`R_E`, `I_tail`).
+    /// The symbol designers write for it (`R_E`, `I_tail`, `A_E` for the area ratio, so it
+    /// is not read as amperes).
     pub fn symbol(self) -> &'static str {
         match self {
             SizingVariable::EmitterResistance => "R_E",
             SizingVariable::TailCurrent => "I_tail",
+            SizingVariable::AreaRatio => "A_E",
         }
     }
 
     /// Whether its search grid is spaced geometrically (a quantity that only scales, with a
-    /// positive lower end) rather than evenly (a range that may start at zero).
+    /// positive lower end) rather than evenly (a range that may start at zero). The area
+    /// ratio is spaced evenly: its offset `φT·ln A` and the cubic null near `A = 2 + √3` want
+    /// no crowding at the low end.
     pub fn geometric(self) -> bool {
         matches!(self, SizingVariable::TailCurrent)
     }
@@ -229,6 +238,7 @@ impl SizingVariable {
         match self {
             SizingVariable::EmitterResistance => stage.emitter_resistance,
             SizingVariable::TailCurrent => stage.tail_current,
+            SizingVariable::AreaRatio => stage.multi_tanh.area_ratio,
         }
     }
 
@@ -237,6 +247,23 @@ impl SizingVariable {
         match self {
             SizingVariable::EmitterResistance => stage.emitter_resistance = value,
             SizingVariable::TailCurrent => stage.tail_current = value,
+            SizingVariable::AreaRatio => stage.multi_tanh.area_ratio = value,
+        }
+    }
+
+    /// Whether `stage` has this value to choose: the area ratio only belongs to a multi-tanh
+    /// doublet or triplet (a listed cell has an area per transistor instead).
+    pub fn applies_to(self, stage: &Stage) -> bool {
+        match self {
+            SizingVariable::AreaRatio => {
+                stage.topology == crate::model::topology::Topology::MultiTanh
+                    && matches!(
+                        stage.multi_tanh.form,
+                        crate::model::topology::MultiTanhForm::Doublet
+                            | crate::model::topology::MultiTanhForm::Triplet
+                    )
+            }
+            _ => true,
         }
     }
 }
@@ -292,13 +319,14 @@ impl SizingSettings {
 
     /// Sizing of the tail current alone over `from..=to` A (degeneration as planned).
     pub fn tail_current_only(from: f64, to: f64) -> Self {
+        Self::only(SizingVariable::TailCurrent, from, to)
+    }
+
+    /// Sizing of one variable alone over `from..=to`, minimised.
+    pub fn only(variable: SizingVariable, from: f64, to: f64) -> Self {
         SizingSettings {
-            variables: vec![VariableRange {
-                variable: SizingVariable::TailCurrent,
-                from,
-                to,
-            }],
-            minimise: SizingVariable::TailCurrent,
+            variables: vec![VariableRange { variable, from, to }],
+            minimise: variable,
             hold_gain: false,
             guard_band_db: 0.0,
         }
@@ -307,15 +335,30 @@ impl SizingSettings {
     /// Adds the tail current over `from..=to` A as a variable and makes it the one to
     /// minimise (the least supply current meeting every line).
     #[must_use]
-    pub fn tail_current(mut self, from: f64, to: f64) -> Self {
-        self.variables
-            .retain(|v| v.variable != SizingVariable::TailCurrent);
-        self.variables.push(VariableRange {
-            variable: SizingVariable::TailCurrent,
-            from,
-            to,
-        });
-        self.minimise = SizingVariable::TailCurrent;
+    pub fn tail_current(self, from: f64, to: f64) -> Self {
+        let mut settings = self.with_variable(SizingVariable::TailCurrent, from, to);
+        settings.minimise = SizingVariable::TailCurrent;
+        settings
+    }
+
+    /// Sizing of a multi-tanh doublet's or triplet's area ratio alone over `from..=to`: the
+    /// least ratio meeting every line (the rest of the stage as planned).
+    pub fn area_ratio_only(from: f64, to: f64) -> Self {
+        Self::only(SizingVariable::AreaRatio, from, to)
+    }
+
+    /// Adds a multi-tanh cell's area ratio over `from..=to` as a variable (the variable to
+    /// minimise stays as it is).
+    #[must_use]
+    pub fn area_ratio(self, from: f64, to: f64) -> Self {
+        self.with_variable(SizingVariable::AreaRatio, from, to)
+    }
+
+    /// Adds `variable` over `from..=to` (replacing its range if it is one already).
+    #[must_use]
+    pub fn with_variable(mut self, variable: SizingVariable, from: f64, to: f64) -> Self {
+        self.variables.retain(|v| v.variable != variable);
+        self.variables.push(VariableRange { variable, from, to });
         self
     }
 

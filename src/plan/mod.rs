@@ -116,6 +116,7 @@ const BUDGET_KEYS: &[&str] = &["metric", "at", "frequency", "max", "min"];
 const SIZING_KEYS: &[&str] = &[
     "emitter_resistance",
     "tail_current",
+    "area_ratio",
     "minimise",
     "hold_gain",
     "guard_band_db",
@@ -368,13 +369,14 @@ impl Plan {
             None => Vec::new(),
         };
         let sizing = top.get("sizing").map(|at| read_sizing(&at)).transpose()?;
-        if let Some(sizing_at) = top.get("sizing") {
+        if let (Some(sizing_at), Some(settings)) = (top.get("sizing"), &sizing) {
             if budget.is_empty() {
                 return Err(sizing_at.error(
                     "sizing needs budget lines to meet",
                     "a `budget` list alongside `sizing`",
                 ));
             }
+            check_sizing_applies(&sizing_at, settings, &stages)?;
         }
         let noise_band = top
             .get("noise_band")
@@ -792,21 +794,12 @@ fn read_topology(map: &MapAt, stage: &mut Stage) -> Result<(), PlanError> {
         }
         (_, None) => {}
     }
-    let stores_charge = !crate::model::transistor::ChargeModel::of(&stage.transistor)
-        .is_memoryless()
-        || stage.load_capacitance > 0.0;
     match stage.topology {
         Topology::SplitTail if stage.tail_capacitance > 0.0 => {
             let at = map.get("tail_capacitance").expect("read above");
             Err(at.error(
                 "a split tail's source capacitances are not modelled yet (the dynamic engine has one tail node)",
                 "tail_capacitance 0 with topology: split_tail",
-            ))
-        }
-        Topology::MultiTanh if stores_charge || stage.tail_capacitance > 0.0 => {
-            Err(cell_at.expect("read above").error(
-                "a multi-tanh cell with charge storage is not solved yet: only the memoryless engine couples its pairs",
-                "multi_tanh stages without capacitances and transit times",
             ))
         }
         _ => Ok(()),
@@ -1263,6 +1256,10 @@ fn read_variable_range(
     let (unit, range_kind) = match variable {
         SizingVariable::EmitterResistance => (Unit::Ohm, Range::NonNegative),
         SizingVariable::TailCurrent => (Unit::Ampere, Range::Positive),
+        SizingVariable::AreaRatio => (
+            Unit::Number,
+            Range::Within(AREA_RATIO_RANGE.0, AREA_RATIO_RANGE.1),
+        ),
     };
     let range = range_at.map(&["from", "to"])?;
     let from = range.quantity("from", unit, range_kind)?;
@@ -1271,10 +1268,42 @@ fn read_variable_range(
         let what = match variable {
             SizingVariable::EmitterResistance => "sizing range",
             SizingVariable::TailCurrent => "tail-current sizing range",
+            SizingVariable::AreaRatio => "area-ratio sizing range",
         };
         return Err(reversed(&range, what, from, to, unit));
     }
     Ok(Some(VariableRange { variable, from, to }))
+}
+
+/// Refuses a sizing variable that some stage does not have (the area ratio of a stage that is
+/// not a multi-tanh doublet or triplet), at the variable's key.
+fn check_sizing_applies(
+    sizing_at: &At,
+    settings: &SizingSettings,
+    stages: &[Stage],
+) -> Result<(), PlanError> {
+    let map = sizing_at.map(SIZING_KEYS)?;
+    for range in &settings.variables {
+        if let Some(stage) = stages.iter().find(|s| !range.variable.applies_to(s)) {
+            let at = map.get(range.variable.key()).expect("read above");
+            let what = match stage.topology {
+                Topology::MultiTanh => format!(
+                    "a multi-tanh cell of form `{}`",
+                    stage.multi_tanh.form.name()
+                ),
+                other => format!("topology `{}`", other.name()),
+            };
+            return Err(at.error(
+                format!(
+                    "sizing `{}` needs every stage to have one, but stage `{}` is {what}",
+                    range.variable.key(),
+                    stage.name
+                ),
+                "area_ratio only when every stage is `topology: multi_tanh` with `form: doublet` or `form: triplet`",
+            ));
+        }
+    }
+    Ok(())
 }
 
 fn read_sizing(at: &At) -> Result<SizingSettings, PlanError> {
@@ -1290,6 +1319,18 @@ fn read_sizing(at: &At) -> Result<SizingSettings, PlanError> {
         .map(|v| format!("`{}`", v.key()))
         .collect::<Vec<_>>()
         .join(" or ");
+    if variables.len() > 2 {
+        let third = map.get(variables[2].variable.key()).expect("read above");
+        return Err(third.error(
+            format!(
+                "sizing searches at most two variables together, and `{}`, `{}` and `{}` are given",
+                variables[0].variable.key(),
+                variables[1].variable.key(),
+                variables[2].variable.key()
+            ),
+            format!("one or two of {names}"),
+        ));
+    }
     if variables.is_empty() {
         return Err(at.error(
             "sizing names no variable to choose",

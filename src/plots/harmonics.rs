@@ -109,6 +109,8 @@ pub struct HarmonicsPlot {
     floor_dbc: f64,
     /// Bench values of the series' metrics at this frequency and the figure's temperatures.
     bench: Vec<BenchMark>,
+    /// Operating region at rest (zero input) per temperature, typical corner.
+    at_rest: Vec<Option<Region>>,
     x: Axis,
     y: Axis,
 }
@@ -320,7 +322,18 @@ impl HarmonicsPlot {
             .chain(bench.iter().map(|b| b.amplitude_v))
             .collect();
         let x = Axis::log(&amplitudes, "V");
+        let at_rest = temps
+            .iter()
+            .map(|t| {
+                report
+                    .stages
+                    .iter()
+                    .find(|s| s.stage == stage && s.temperature_c == *t && is_typical(&s.corner))
+                    .map(|s| s.rest_region)
+            })
+            .collect();
         Some(HarmonicsPlot {
+            at_rest,
             stage: stage.to_owned(),
             slug: slug.to_owned(),
             frequency_hz,
@@ -349,6 +362,7 @@ const REGION_ALPHA: f64 = 0.10;
 
 /// Drives of one operating region beyond forward-active operation, as drawn.
 struct RegionBand {
+    region: Region,
     label: &'static str,
     colour: RGBColor,
     /// Least amplitude in the region at any temperature, V.
@@ -398,6 +412,7 @@ impl HarmonicsPlot {
                 _ => x_high,
             };
             bands.push(RegionBand {
+                region,
                 label,
                 colour,
                 first,
@@ -406,6 +421,48 @@ impl HarmonicsPlot {
             });
         }
         bands
+    }
+}
+
+impl HarmonicsPlot {
+    /// A region band in words: from its onset, or at every amplitude where the stage is in
+    /// that region already at rest (the smallest drive cannot leave it).
+    fn at_rest_everywhere(&self, region: Region) -> bool {
+        !self.at_rest.is_empty() && self.at_rest.iter().all(|r| *r == Some(region))
+    }
+
+    fn band_words(&self, band: &RegionBand) -> String {
+        let at_rest: Vec<String> = self
+            .temps
+            .iter()
+            .zip(&self.at_rest)
+            .filter(|(_, r)| **r == Some(band.region))
+            .map(|(t, _)| celsius(*t))
+            .collect();
+        if !at_rest.is_empty() && at_rest.len() == self.temps.len() {
+            format!(
+                "{} at every amplitude: already at bias{}; figures there include it",
+                band.label,
+                if self.temps.len() > 1 {
+                    " at every temperature"
+                } else {
+                    ""
+                }
+            )
+        } else if !at_rest.is_empty() {
+            format!(
+                "{} from {} (already at bias at {}; dashed: onset per temperature); figures there include it",
+                band.label,
+                si(band.first, "V"),
+                at_rest.join(", ")
+            )
+        } else {
+            format!(
+                "{} from {} (dashed: onset per temperature); figures there include it",
+                band.label,
+                si(band.first, "V")
+            )
+        }
     }
 }
 
@@ -484,11 +541,7 @@ impl Drawing for HarmonicsPlot {
                     colour: band.colour,
                     fill: REGION_ALPHA,
                 },
-                format!(
-                    "{} from {} (dashed: onset per temperature); figures there include it",
-                    band.label,
-                    si(band.first, "V")
-                ),
+                self.band_words(&band),
             );
         }
         key.temperatures(&self.temps);
@@ -631,8 +684,14 @@ impl Drawing for HarmonicsPlot {
         // (high injection stops where saturation starts), with a dashed onset per temperature;
         // the key names them.
         for band in self.region_bands(x.high) {
+            // In the region already at rest: the whole axis, not only from the least drive.
+            let from = if self.at_rest_everywhere(band.region) {
+                x.low
+            } else {
+                band.first
+            };
             chart.draw_series(std::iter::once(Rectangle::new(
-                [(band.first, y_low), (band.end, y_high)],
+                [(from, y_low), (band.end, y_high)],
                 band.colour.mix(REGION_ALPHA).filled(),
             )))?;
             for (ti, onset) in &band.onsets {

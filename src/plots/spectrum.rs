@@ -4,7 +4,7 @@ use super::axis::Axis;
 use super::key::{draw_key, split, Key, Swatch};
 use super::style::*;
 use super::{DrawResult, Drawing, PlotKind};
-use crate::report::{PointRecord, Report};
+use crate::report::{PointRecord, Region, Report};
 use plotters::coord::Shift;
 use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, Pos, VPos};
@@ -88,6 +88,52 @@ impl SpectrumPlot {
     }
 }
 
+impl SpectrumPlot {
+    /// The operating region of the drawn drive in words, when it is not forward-active at
+    /// some temperature: `Operating region at 147 mV: saturating at 27 °C (…)`.
+    pub fn region_words(&self) -> Option<String> {
+        let mut parts: Vec<String> = Vec::new();
+        for (region, words) in [
+            (
+                Region::Saturating,
+                "saturating (a collector-base junction forward-biased by up to",
+            ),
+            (Region::HighInjection, "high-level injection"),
+        ] {
+            let here: Vec<&PointRecord> =
+                self.points.iter().filter(|p| p.region == region).collect();
+            if here.is_empty() {
+                continue;
+            }
+            let temps = if here.len() == self.points.len() && self.points.len() > 1 {
+                "every temperature".to_owned()
+            } else {
+                here.iter()
+                    .map(|p| celsius(p.temperature_c))
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            };
+            parts.push(match region {
+                Region::Saturating => {
+                    let worst = here
+                        .iter()
+                        .map(|p| -p.collector_base_margin_v)
+                        .fold(0.0, f64::max);
+                    format!("{words} {} mV) at {temps}", num(worst * 1e3, 0))
+                }
+                _ => format!("{words} at {temps}"),
+            });
+        }
+        (!parts.is_empty()).then(|| {
+            format!(
+                "Operating region at {}: {}; the levels include it.",
+                si_exact(self.amplitude_v, "V"),
+                parts.join("; ")
+            )
+        })
+    }
+}
+
 impl Drawing for SpectrumPlot {
     fn kind(&self) -> PlotKind {
         PlotKind::Spectrum
@@ -112,6 +158,9 @@ impl Drawing for SpectrumPlot {
     }
     fn key(&self) -> Key {
         let mut key = Key::default();
+        if let Some(words) = self.region_words() {
+            key.notes.push(words);
+        }
         for p in &self.points {
             key.entry(
                 Swatch::Dot {
@@ -163,7 +212,16 @@ impl Drawing for SpectrumPlot {
                 )
             })
             .collect();
-        let subtitle = format!("fundamental {} · {}", si_exact(f, "Hz"), thd.join(" · "));
+        let mut subtitle = format!("fundamental {} · {}", si_exact(f, "Hz"), thd.join(" · "));
+        if self.points.iter().any(|p| p.region == Region::Saturating) {
+            subtitle.push_str(" · saturating (see key)");
+        } else if self
+            .points
+            .iter()
+            .any(|p| p.region == Region::HighInjection)
+        {
+            subtitle.push_str(" · high-level injection (see key)");
+        }
         let body = frame(root, &self.title(), &subtitle)?;
         let (plot, side) = split(&body);
         draw_key(&side, &self.key())?;

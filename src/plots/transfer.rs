@@ -23,6 +23,13 @@ pub struct TransferPlot {
 
 const CURRENT: RGBColor = SERIES[0];
 const GM: RGBColor = SERIES[1];
+/// The emitter-current split, drawn where it parts from the collector-current curve.
+const SPLIT: RGBColor = SERIES[2];
+
+/// How far (on the normalised axis) the emitter split must part from the collector-current
+/// curve before it is drawn as a line of its own: below this the two coincide to within a
+/// line's width and the steering edges sit where the drawn curve crosses ±0.9.
+const SPLIT_SHOWN_FROM: f64 = 0.02;
 
 impl TransferPlot {
     /// The figure, if the report carries a transfer curve for the stage.
@@ -86,8 +93,21 @@ impl TransferPlot {
     }
 }
 
+/// Dash pattern of the ±0.9 levels (the emitter split at the steering edges).
+const LEVEL_PATTERN: (i32, i32) = (3, 6);
+
 /// Opacity of the band where a side saturates.
 const SATURATION_ALPHA: f64 = 0.13;
+
+/// Whether the emitter-current split parts visibly from the collector-current curve within
+/// `±x_end_mv` (a side saturates: its emitter current flows partly out of its base, so the
+/// collector difference falls short of the split the steering range is defined on).
+pub fn split_parts(transfer: &[crate::report::TransferRecord], x_end_mv: f64) -> bool {
+    transfer
+        .iter()
+        .filter(|t| (t.input_v * 1e3).abs() <= x_end_mv)
+        .any(|t| (t.emitter_split - t.normalised_current).abs() > SPLIT_SHOWN_FROM)
+}
 
 /// Whether either side's collector-base junction is forward-biased anywhere on the curve.
 fn reference_saturates(transfer: &[crate::report::TransferRecord]) -> bool {
@@ -108,10 +128,11 @@ impl Drawing for TransferPlot {
     }
     fn caption(&self) -> String {
         format!(
-            "Normalised differential output current (left axis) and incremental transconductance (right axis) of “{}” versus differential input; the shaded band is the steering range, where each side carries between {:.0} % and {:.0} % of the tail current; grey hatching at either end marks inputs where that side saturates (its collector-base junction forward-biased) at the typical temperature.",
+            "Normalised differential output current (left axis) and incremental transconductance (right axis) of “{}” versus differential input; the shaded band is the steering range, where each side carries between {:.0} % and {:.0} % of the emitter current (the split (I_EP − I_EM)/(I_EP + I_EM) within ±{:.1}, dotted levels); where a side saturates the collector difference falls short of that split, which is then drawn as a line of its own; grey shading at either end marks inputs where that side saturates (its collector-base junction forward-biased) at the typical temperature.",
             self.stage,
             100.0 * (1.0 - self.steering_fraction),
-            100.0 * self.steering_fraction
+            100.0 * self.steering_fraction,
+            2.0 * self.steering_fraction - 1.0
         ) + if self.corners { " Typical process corner." } else { "" }
     }
     fn key(&self) -> Key {
@@ -120,19 +141,39 @@ impl Drawing for TransferPlot {
         let mut key = Key::default();
         key.entry(
             Swatch::line(CURRENT, 3, None),
-            "normalised output current (left axis)",
+            "collector-current difference (I_CP − I_CM)/I_tail (left axis)",
         );
         key.entry(Swatch::line(GM, 3, None), "incremental g_m (right axis)");
+        let level = 2.0 * self.steering_fraction - 1.0;
+        if split_parts(&self.reference().1.transfer, self.x.high) {
+            key.entry(
+                Swatch::line(SPLIT, 2, None),
+                format!(
+                    "emitter-current split (I_EP − I_EM)/(I_EP + I_EM) at {} (left axis); the steering edges are where it crosses ±{level:.1}",
+                    celsius(typical)
+                ),
+            );
+        }
         key.entry(
             Swatch::Band {
                 colour: ACCENT,
                 alpha: 0.1,
             },
             format!(
-                "steering range at {} ({:.0} % of the tail current on one side at its edges)",
+                "steering range at {}: one side carries {:.0} % of the emitter current at its edges (dashed: each temperature's edges)",
                 celsius(typical),
                 100.0 * self.steering_fraction
             ),
+        );
+        key.entry(
+            Swatch::Line {
+                colour: MUTED,
+                alpha: 0.7,
+                width: 1,
+                pattern: LEVEL_PATTERN,
+                marker: None,
+            },
+            format!("±{level:.1}: the emitter split at the steering edges"),
         );
         if reference_saturates(&self.reference().1.transfer) {
             key.entry(
@@ -160,10 +201,11 @@ impl Drawing for TransferPlot {
     fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> DrawResult {
         let (typical, reference) = self.reference();
         let subtitle = format!(
-            "steering range {} to {} at {} · small-signal g_m {} · φT {}",
+            "steering range {} to {} at {} ({:.0} % of the emitter current) · small-signal g_m {} · φT {}",
             si_short(reference.steering_low_v, "V"),
             si_short(reference.steering_high_v, "V"),
             celsius(typical),
+            100.0 * self.steering_fraction,
             si_short(reference.transconductance_s, "S"),
             si_short(reference.thermal_voltage_v, "V"),
         );
@@ -241,7 +283,7 @@ impl Drawing for TransferPlot {
         for y in [-level, level] {
             chart.draw_series(std::iter::once(dashed(
                 vec![(x_low, y), (x_high, y)],
-                (3, 6),
+                LEVEL_PATTERN,
                 MUTED.mix(0.7).stroke_width(1),
             )))?;
         }
@@ -279,6 +321,29 @@ impl Drawing for TransferPlot {
                 pattern(i),
                 GM.stroke_width(3),
             )))?;
+        }
+        // The split the steering range is defined on, where it parts from the drawn curve.
+        if split_parts(&reference.transfer, x_high) {
+            let split: Vec<(f64, Option<f64>)> = trim_x(
+                &reference
+                    .transfer
+                    .iter()
+                    .map(|t| (t.input_v * 1e3, t.emitter_split))
+                    .collect::<Vec<_>>(),
+                x_low,
+                x_high,
+            )
+            .into_iter()
+            .map(|(a, b)| (a, Some(b)))
+            .collect();
+            draw_runs(
+                &mut chart,
+                &split,
+                y_range,
+                false,
+                pattern(0),
+                SPLIT.stroke_width(2),
+            )?;
         }
         Ok(())
     }

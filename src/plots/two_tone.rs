@@ -10,7 +10,7 @@ use super::key::{draw_key, hatch_pixels, split, verdict_marker, Key, Swatch};
 use super::style::*;
 use super::verdicts::{lines_of, LineChecks};
 use super::{DrawResult, Drawing, PlotKind};
-use crate::report::{BudgetRecord, InterceptRecord, PointRecord, Report};
+use crate::report::{BudgetRecord, InterceptRecord, PointRecord, Region, Report};
 use plotters::coord::Shift;
 use plotters::prelude::*;
 
@@ -30,6 +30,8 @@ pub struct TwoTonePlot {
     lines: Vec<LineChecks>,
     /// Bench IM3 products as (input dBV, output dBV) at the drawn temperature.
     bench_im3: Vec<(f64, f64)>,
+    /// Operating region at rest (zero input) at the drawn temperature, typical corner.
+    at_rest: Option<Region>,
     x: Axis,
     y: Axis,
 }
@@ -43,6 +45,20 @@ const FUNDAMENTAL: RGBColor = SERIES[0];
 const IM3: RGBColor = SERIES[3];
 /// The fit region's shade.
 const FIT: RGBColor = SERIES[6];
+/// Opacity of the bar along the top that marks an operating region (as in the sizing
+/// figure): a band would look like the fit region's.
+const REGION_BAR_ALPHA: f64 = 0.55;
+/// Width of that bar, px.
+const REGION_BAR_PX: u32 = 7;
+
+/// The bar's pattern: solid for saturation, dashed for high-level injection.
+fn region_pattern(region: Region) -> (i32, i32) {
+    if region == Region::Saturating {
+        pattern(0)
+    } else {
+        (16, 9)
+    }
+}
 
 impl TwoTonePlot {
     /// The figures of a stage: at its first frequency and at each frequency an IM3, IIP3 or
@@ -167,7 +183,13 @@ impl TwoTonePlot {
             (lo.min(y), hi.max(y))
         });
         let y = Axis::linear_step((y_min - 10.0).max(y_max - 220.0), y_max + 10.0, 20.0);
+        let at_rest = report
+            .stages
+            .iter()
+            .find(|s| s.stage == stage && s.temperature_c == typical && is_typical(&s.corner))
+            .map(|s| s.rest_region);
         Some(TwoTonePlot {
+            at_rest,
             stage: stage.to_owned(),
             slug: slug.to_owned(),
             temperature_c: typical,
@@ -181,14 +203,91 @@ impl TwoTonePlot {
         })
     }
 
+    /// Operating regions beyond forward-active over the two-tone drive of the drawn points:
+    /// (region, words, least input in dBV where it is reached). High injection ends where
+    /// saturation starts, as in the harmonics figure.
+    fn region_bands(&self) -> Vec<(Region, &'static str, f64)> {
+        let onset = |region: Region| {
+            self.points
+                .iter()
+                .filter(|p| p.two_tone_region.unwrap_or(p.region) == region)
+                .map(|p| dbv(p.amplitude_v))
+                .reduce(f64::min)
+        };
+        [
+            (Region::HighInjection, "high-level injection"),
+            (
+                Region::Saturating,
+                "saturating (collector-base junction forward-biased)",
+            ),
+        ]
+        .into_iter()
+        .filter_map(|(region, words)| onset(region).map(|x| (region, words, x)))
+        .collect()
+    }
+
+    /// A region band in words, for the key.
+    fn band_words(&self, region: Region, words: &str, onset_dbv: f64) -> String {
+        if self.at_rest == Some(region) {
+            format!("bar along the top: {words} over the two tones at every amplitude, already at bias; figures there include it")
+        } else {
+            format!(
+                "bar along the top: {words} over the two tones from {} per tone (dashed: onset); figures there include it",
+                si_short(10f64.powf(onset_dbv / 20.0), "V")
+            )
+        }
+    }
+
     /// The IM3 product's output level (dBV) that an IM3 line allows at its amplitude, from the
     /// drawn fundamental there.
     fn im3_limit_dbv(&self, line: &BudgetRecord) -> Option<(f64, f64)> {
         let at = line.at_v?;
-        let point = self.points.iter().find(|p| p.amplitude_v == at)?;
-        let fundamental = dbv(point.two_tone_fundamental_v.unwrap_or(point.fundamental_v));
+        let (fundamental, _) = self.fundamental_at(at)?;
         Some((dbv(at), fundamental + line.limit))
     }
+
+    /// The output fundamental per tone (dBV) at an input amplitude, as drawn: the point's own
+    /// at a sweep amplitude; between two sweep amplitudes, the drawn line between them (linear
+    /// in dBV); below the sweep, the 1:1 small-signal line (exact where the stage is linear).
+    /// Above the sweep nothing is drawn (`None`), the line's verdict is in the key.
+    fn fundamental_at(&self, at_v: f64) -> Option<(f64, Placement)> {
+        let drawn = measured(&self.points);
+        if let Some(point) = drawn.iter().find(|m| m.0 == dbv(at_v)) {
+            return Some((point.1, Placement::Sweep));
+        }
+        place_on(&drawn, dbv(at_v), self.intercept.small_signal_gain_db)
+    }
+}
+
+/// Where an IM3 line's amplitude falls on the drawn sweep.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Placement {
+    /// A sweep amplitude.
+    Sweep,
+    /// Between two sweep amplitudes (input dBV of each).
+    Between(f64, f64),
+    /// Below the sweep: on the small-signal 1:1 line.
+    BelowSweep,
+}
+
+/// The fundamental (dBV) at input `x` (dBV) on the drawn sweep `(input, fundamental, _)`:
+/// linear between the two neighbouring points, the 1:1 line `x + gain_db` below the sweep,
+/// nothing above it.
+pub fn place_on(
+    drawn: &[(f64, f64, Option<f64>)],
+    x: f64,
+    gain_db: f64,
+) -> Option<(f64, Placement)> {
+    let mut sorted: Vec<(f64, f64)> = drawn.iter().map(|m| (m.0, m.1)).collect();
+    sorted.sort_by(|a, b| a.0.total_cmp(&b.0));
+    let first = sorted.first()?;
+    if x < first.0 {
+        return Some((x + gain_db, Placement::BelowSweep));
+    }
+    let k = sorted.windows(2).position(|w| w[0].0 <= x && x <= w[1].0)?;
+    let (a, b) = (sorted[k], sorted[k + 1]);
+    let t = (x - a.0) / (b.0 - a.0);
+    Some((a.1 + t * (b.1 - a.1), Placement::Between(a.0, b.0)))
 }
 
 /// (input dBV, fundamental output dBV, IM3 output dBV) of each drawn point.
@@ -276,6 +375,18 @@ impl Drawing for TwoTonePlot {
             );
         }
         key.entry(Swatch::Ring, "third-order intercept");
+        for (region, words, onset) in self.region_bands() {
+            key.entry(
+                Swatch::Line {
+                    colour: MUTED,
+                    alpha: REGION_BAR_ALPHA,
+                    width: REGION_BAR_PX,
+                    pattern: region_pattern(region),
+                    marker: None,
+                },
+                self.band_words(region, words, onset),
+            );
+        }
         if !self.bench_im3.is_empty() {
             key.entry(
                 Swatch::Open {
@@ -311,6 +422,29 @@ impl Drawing for TwoTonePlot {
                 "Markers show the drawn case ({}, typical corner); the table gives each line's worst case.",
                 celsius(self.temperature_c)
             ));
+            for l in &self.lines {
+                let line = l.line();
+                let Some(at) = line.at_v.filter(|_| line.metric == "im3") else {
+                    continue;
+                };
+                let name = format!("The IM3 line at {}", si_exact(at, "V"));
+                match self.fundamental_at(at).map(|f| f.1) {
+                    Some(Placement::Sweep) => {}
+                    Some(Placement::Between(a, b)) => key.notes.push(format!(
+                        "{name} is not a sweep amplitude: its bar and marker stand on the fundamental drawn between {} and {}; its value is the report's, solved at {}.",
+                        si_short(10f64.powf(a / 20.0), "V"),
+                        si_short(10f64.powf(b / 20.0), "V"),
+                        si_exact(at, "V")
+                    )),
+                    Some(Placement::BelowSweep) => key.notes.push(format!(
+                        "{name} is below the sweep: its bar and marker stand on the 1:1 small-signal line; its value is the report's, solved at {}.",
+                        si_exact(at, "V")
+                    )),
+                    None => key.notes.push(format!(
+                        "{name} is above the sweep and not drawn; its verdict is in the table."
+                    )),
+                }
+            }
         }
         key
     }
@@ -365,6 +499,35 @@ impl Drawing for TwoTonePlot {
             chart.draw_series(std::iter::once(Rectangle::new(
                 [(fit_lo.max(x_low), y_low), (fit_hi.min(x_high), y_high)],
                 FIT.mix(0.14).filled(),
+            )))?;
+        }
+        // Operating-region bands from their onset to the right edge (high injection stops
+        // where saturation starts), with a dashed onset; the key names them.
+        let bands = self.region_bands();
+        let saturation_onset = bands
+            .iter()
+            .find(|b| b.0 == Region::Saturating)
+            .map(|b| b.2);
+        let bar_y = y_high - 0.02 * (y_high - y_low);
+        for (region, _, onset) in &bands {
+            let end = match (region, saturation_onset) {
+                (Region::HighInjection, Some(s)) => s,
+                _ => x_high,
+            };
+            let from = if self.at_rest == Some(*region) {
+                x_low
+            } else {
+                onset.max(x_low)
+            };
+            chart.draw_series(std::iter::once(dashed(
+                vec![(from, bar_y), (end.min(x_high), bar_y)],
+                region_pattern(*region),
+                MUTED.mix(REGION_BAR_ALPHA).stroke_width(REGION_BAR_PX),
+            )))?;
+            chart.draw_series(std::iter::once(dashed(
+                vec![(from, y_low), (from, y_high)],
+                (6, 6),
+                MUTED.mix(0.8).stroke_width(2),
             )))?;
         }
         for line in &self.lines {
@@ -468,11 +631,9 @@ impl Drawing for TwoTonePlot {
             let position = match l.metric.as_str() {
                 "im3" => {
                     let Some(at) = l.at_v else { continue };
-                    let Some(point) = self.points.iter().find(|p| p.amplitude_v == at) else {
+                    let Some((fundamental, _)) = self.fundamental_at(at) else {
                         continue;
                     };
-                    let fundamental =
-                        dbv(point.two_tone_fundamental_v.unwrap_or(point.fundamental_v));
                     record.value.map(|v| (dbv(at), fundamental + v))
                 }
                 "iip3" | "oip3" => Some((x_ip, y_ip)),
@@ -490,5 +651,27 @@ impl Drawing for TwoTonePlot {
             }
         }
         Ok(())
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::{place_on, Placement};
+
+    /// A sweep whose fundamental is a straight line in dBV (a linear stage, gain 20 dB):
+    /// linear interpolation is exact on it, below the sweep the 1:1 line is the same line,
+    /// and above the sweep nothing is placed (no extrapolation into compression).
+    #[test]
+    fn an_amplitude_between_sweep_points_lands_on_the_drawn_line() {
+        let drawn: Vec<(f64, f64, Option<f64>)> = [-46.0, -28.0, -16.5]
+            .iter()
+            .map(|x| (*x, x + 20.0, None))
+            .collect();
+        let (y, placed) = place_on(&drawn, -21.9, 20.0).unwrap();
+        assert!((y - (-1.9)).abs() < 1e-12);
+        assert_eq!(placed, Placement::Between(-28.0, -16.5));
+        let (y, placed) = place_on(&drawn, -60.0, 20.0).unwrap();
+        assert_eq!((y, placed), (-40.0, Placement::BelowSweep));
+        assert_eq!(place_on(&drawn, -10.0, 20.0), None);
     }
 }

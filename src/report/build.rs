@@ -137,10 +137,9 @@ pub fn build_judged(plan: &Plan, evaluation: PlanEvaluation, judged: Judged) -> 
             .flat_map(|design| design.spread.iter().map(|s| spread_record(plan, s))),
     );
     if let Some(population) = population {
-        let (distributions, yields, warnings) = population_records(plan, population);
+        let (distributions, yields) = population_records(plan, population);
         report.monte_carlo = distributions;
         report.yield_ = yields;
-        report.warnings.extend(warnings);
     }
     report.sizing = sizing.into_iter().map(|s| sizing_record(plan, s)).collect();
     for outcome in &regions {
@@ -436,6 +435,8 @@ fn recommended_stage_record(
         tail_current_a: r.tail_current,
         planned_emitter_resistance_ohm: planned.emitter_resistance,
         planned_tail_current_a: planned.tail_current,
+        area_ratio: r.area_ratio,
+        planned_area_ratio: r.area_ratio.map(|_| planned.multi_tanh.area_ratio),
         planned_load_resistance_ohm: planned.load_resistance,
         found: r.met,
         basis: basis_name(r.basis).into(),
@@ -493,6 +494,9 @@ fn values_text(stages: &[RecommendedStageRecord]) -> String {
         let mut extra = String::new();
         if (s.tail_current_a / s.planned_tail_current_a - 1.0).abs() > 1e-9 {
             extra.push_str(&format!(", I_tail = {}", format_si(s.tail_current_a, "A")));
+        }
+        if let Some(ratio) = s.area_ratio {
+            extra.push_str(&format!(", area ratio A_E = {ratio:.4}"));
         }
         if (s.load_resistance_ohm / s.planned_load_resistance_ohm - 1.0).abs() > 1e-9 {
             extra.push_str(&format!(
@@ -732,6 +736,7 @@ fn case_records(plan: &Plan, case: CaseEvaluation, derived_from: Option<String>)
         steering_high_v: steer_high,
         steering_rule_of_thumb_v: operating.steering_rule_of_thumb_v,
         steering_region: region(&operating.steering_region),
+        rest_region: region(&operating.rest_region),
         steering_collector_base_margin_v: operating.steering_region.collector_base_margin_v(),
         collector_currents_a: [zero.p.collector_current, zero.m.collector_current],
         collector_voltages_v: [zero.p.collector_voltage, zero.m.collector_voltage],
@@ -742,6 +747,7 @@ fn case_records(plan: &Plan, case: CaseEvaluation, derived_from: Option<String>)
             .map(|s| TransferRecord {
                 input_v: s.input_v,
                 normalised_current: s.normalised_current,
+                emitter_split: s.emitter_split,
                 transconductance_s: s.transconductance_s,
                 output_v: s.output_v,
                 base_collector_v: s.base_collector_v,
@@ -922,14 +928,7 @@ fn population_name(figure: PopulationFigure) -> (&'static str, &'static str) {
 fn population_records(
     plan: &Plan,
     population: Population,
-) -> (Vec<MonteCarloRecord>, Vec<YieldRecord>, Vec<String>) {
-    let warnings = population
-        .left_out_with_capacitance
-        .iter()
-        .map(|name| format!(
-            "stage `{name}`: Monte Carlo left out because the stage has capacitance; mismatch statistics are drawn on memoryless stages (evaluate a copy without capacitance for the low-frequency spread)"
-        ))
-        .collect();
+) -> (Vec<MonteCarloRecord>, Vec<YieldRecord>) {
     let mut distributions = Vec::new();
     let mut yields = Vec::new();
     for stage in population.stages {
@@ -986,7 +985,7 @@ fn population_records(
             lines,
         });
     }
-    (distributions, yields, warnings)
+    (distributions, yields)
 }
 
 fn scan_record(trial: &Trial) -> SizingScanRecord {
@@ -1005,7 +1004,10 @@ fn scan_record(trial: &Trial) -> SizingScanRecord {
 
 fn sizing_record(plan: &Plan, outcome: SizingOutcome) -> SizingRecord {
     let chosen = &outcome.chosen;
+    let (binding_margin, binding_margin_unit) = binding_margin(plan, chosen, outcome.binding);
     SizingRecord {
+        binding_margin,
+        binding_margin_unit,
         stage: outcome.stage.clone(),
         temperature_c: outcome.temperature_c,
         emitter_resistance_ohm: Some(chosen.emitter_resistance),
@@ -1058,6 +1060,26 @@ fn sizing_record(plan: &Plan, outcome: SizingOutcome) -> SizingRecord {
 
 /// A binding in the report's words: the metric name (`collector_base_margin` for the implicit
 /// headroom of `hold_gain`, `none` for no line) and the line's index.
+/// The binding line's own margin at a trial and its unit (`dB`, or `V` for a collector-base
+/// margin, the hold-gain headroom and the tail compliance), which is not always the worst dB
+/// margin: a volts line binds while every dB line has room.
+fn binding_margin(plan: &Plan, trial: &Trial, binding: Binding) -> (Option<f64>, String) {
+    match binding {
+        Binding::Line(index) => {
+            let margin = trial.margins.get(index).copied().flatten().and_then(finite);
+            let unit = if plan.budget[index].metric.margin_in_volts() {
+                "V"
+            } else {
+                "dB"
+            };
+            (margin, if margin.is_some() { unit } else { "" }.into())
+        }
+        Binding::Headroom => (trial.headroom_v.and_then(finite), "V".into()),
+        Binding::TailCompliance => (finite(trial.tail_headroom_v), "V".into()),
+        Binding::Nothing => (None, String::new()),
+    }
+}
+
 fn binding_name(plan: &Plan, binding: Binding) -> (String, Option<usize>) {
     match binding {
         Binding::Line(index) => (plan.budget[index].metric.name(), Some(index)),
@@ -1077,6 +1099,7 @@ fn variable_value(variable: SizingVariable, r: &crate::study::sizing::Recommenda
     match variable {
         SizingVariable::EmitterResistance => r.emitter_resistance,
         SizingVariable::TailCurrent => r.tail_current,
+        SizingVariable::AreaRatio => r.area_ratio.unwrap_or(f64::NAN),
     }
 }
 
@@ -1154,7 +1177,10 @@ fn region_sizing_records(plan: &Plan, region: &RegionOutcome) -> Vec<SizingRecor
                 binding
             };
             let reference_gain = reference.and_then(|p| p.trials.get(k)).map(|t| t.gain_db);
+            let (binding_margin, binding_margin_unit) = binding_margin(plan, trial, binding);
             SizingRecord {
+                binding_margin,
+                binding_margin_unit,
                 stage: region.stage.clone(),
                 temperature_c: plan.temperatures_c[k],
                 emitter_resistance_ohm: Some(trial.emitter_resistance),
@@ -1212,6 +1238,7 @@ fn region_record(plan: &Plan, region: &RegionOutcome) -> RegionRecord {
         guard_band_db: region.guard_band_db,
         tail_current_a: region.chosen.tail_current(),
         emitter_resistance_ohm: region.chosen.emitter_resistance(),
+        area_ratio: region.value_at(&region.chosen, SizingVariable::AreaRatio),
         load_resistance_ohm: region.chosen.load_resistance(),
         binding_metric,
         binding_line,
@@ -1226,6 +1253,7 @@ fn region_record(plan: &Plan, region: &RegionOutcome) -> RegionRecord {
                 RegionCellRecord {
                     tail_current_a: p.tail_current(),
                     emitter_resistance_ohm: p.emitter_resistance(),
+                    area_ratio: region.value_at(p, SizingVariable::AreaRatio),
                     holds: p.holds,
                     limiting_metric,
                     limiting_line,

@@ -652,12 +652,16 @@ pub fn blocks(report: &Report, figures: &[EmbeddedFigure]) -> Vec<Block> {
         ));
         if let Some(d) = derived {
             out.push(Block::Paragraph(format!(
-                "Derived stage: {} as planned, with R_E = {} per side (planned {}) and R_L = {} per side (planned {}), the values sizing recommends. Every figure below is the model's prediction for that design.",
+                "Derived stage: {} as planned, with R_E = {} per side (planned {}) and R_L = {} per side (planned {}){}, the values sizing recommends. Every figure below is the model's prediction for that design.",
                 d.stage,
                 si_short(d.emitter_resistance_ohm, "Ω"),
                 si_short(d.planned_emitter_resistance_ohm, "Ω"),
                 si_short(d.load_resistance_ohm, "Ω"),
                 si_short(d.planned_load_resistance_ohm, "Ω"),
+                match (d.area_ratio, d.planned_area_ratio) {
+                    (Some(a), Some(planned)) => format!(", area ratio {a:.4} (planned {planned})"),
+                    _ => String::new(),
+                },
             )));
         }
         out.push(Block::Paragraph(format!(
@@ -787,12 +791,25 @@ pub fn blocks(report: &Report, figures: &[EmbeddedFigure]) -> Vec<Block> {
     for region in &report.sizing_region {
         out.push(Block::Heading(
             2,
-            format!("Sizing current and degeneration · {}", region.stage),
+            format!(
+                "Sizing {} · {}",
+                region
+                    .variables
+                    .iter()
+                    .map(|v| v.replace('_', " "))
+                    .collect::<Vec<_>>()
+                    .join(" and "),
+                region.stage
+            ),
         ));
+        let ratio = region
+            .area_ratio
+            .map(|a| format!(", area ratio {a:.4}"))
+            .unwrap_or_default();
         let si = crate::units::format_si;
         out.push(Block::Paragraph(if region.met {
             format!(
-                "The least {} holding every budget line at every temperature{}: I_tail = {}, R_E = {} per side, limited by {} at {} °C ({} designs evaluated). The map and the fronts below are on the search grid; the design itself is refined between grid values.",
+                "The least {} holding every budget line at every temperature{}: I_tail = {}, R_E = {} per side{ratio}, limited by {} at {} °C ({} designs evaluated). The map and the fronts below are on the search grid; the design itself is refined between grid values.",
                 region.minimise.replace('_', " "),
                 if region.guard_band_db > 0.0 {
                     format!(" with {} dB of guard band", region.guard_band_db)
@@ -807,7 +824,7 @@ pub fn blocks(report: &Report, figures: &[EmbeddedFigure]) -> Vec<Block> {
             )
         } else {
             format!(
-                "No design in the ranges holds every budget line at every temperature; the best (I_tail = {}, R_E = {}) is limited by {}.",
+                "No design in the ranges holds every budget line at every temperature; the best (I_tail = {}, R_E = {}{ratio}) is limited by {}.",
                 si(region.tail_current_a, "A"),
                 si(region.emitter_resistance_ohm, "Ω"),
                 line_name(Some(&region.binding_metric))

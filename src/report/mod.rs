@@ -287,6 +287,12 @@ pub struct RecommendedStageRecord {
     /// The plan's tail current, A.
     #[serde(default)]
     pub planned_tail_current_a: f64,
+    /// Multi-tanh area ratio to build, when sizing chooses it (`null` otherwise).
+    #[serde(default)]
+    pub area_ratio: Option<f64>,
+    /// The plan's multi-tanh area ratio, when sizing chooses it.
+    #[serde(default)]
+    pub planned_area_ratio: Option<f64>,
     /// The plan's load resistance, Ω.
     pub planned_load_resistance_ohm: f64,
     /// Whether sizing found a value holding every line (by the guard band) at every
@@ -531,6 +537,11 @@ impl Region {
     pub fn is_forward_active(self) -> bool {
         self == Region::ForwardActive
     }
+
+    /// Forward-active (the default of records written before a field existed).
+    pub fn forward_active() -> Region {
+        Region::ForwardActive
+    }
 }
 
 /// Highest harmonic order read back from a report (a guard against absurd field names).
@@ -665,6 +676,10 @@ pub struct StageRecord {
     pub steering_region: Region,
     /// The least collector-base reverse bias at the steering points, V.
     pub steering_collector_base_margin_v: f64,
+    /// Operating region at zero input (the bias point): `high-injection` when the stage is
+    /// already past the knee at rest, whatever the drive.
+    #[serde(default = "Region::forward_active")]
+    pub rest_region: Region,
     /// Collector currents at zero input, A.
     pub collector_currents_a: [f64; 2],
     /// Collector voltages at zero input, V.
@@ -726,6 +741,11 @@ pub struct TransferRecord {
     pub input_v: f64,
     /// (I_CP − I_CM)/I_tail.
     pub normalised_current: f64,
+    /// (I_EP − I_EM)/(I_EP + I_EM): how the emitter current divides, the quantity the
+    /// steering range is defined on (±0.9 at its 95 % edges); it parts from
+    /// `normalised_current` where a side saturates.
+    #[serde(default)]
+    pub emitter_split: f64,
     /// Incremental transconductance, S.
     pub transconductance_s: f64,
     /// Differential output voltage, V.
@@ -902,6 +922,14 @@ pub struct SizingRecord {
     pub met: bool,
     /// Best worst-line margin reached anywhere in the range, dB.
     pub best_margin: f64,
+    /// The binding line's own margin at the chosen value, in `binding_margin_unit` (`dB`, or
+    /// `V` for a collector-base margin, the hold-gain headroom or the tail compliance); it
+    /// differs from `best_margin` when a line in volts binds.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub binding_margin: Option<f64>,
+    /// Unit of `binding_margin`.
+    #[serde(default, skip_serializing_if = "String::is_empty")]
+    pub binding_margin_unit: String,
     /// Small-signal gain at the chosen value, dB.
     pub gain_db: Option<f64>,
     /// Gain cost relative to the range's lower end, dB.
@@ -979,11 +1007,11 @@ pub struct SpreadRecord {
 pub struct RegionRecord {
     /// Stage name.
     pub stage: String,
-    /// The variable minimised (`tail_current` or `emitter_resistance`).
+    /// The variable minimised (`tail_current`, `emitter_resistance` or `area_ratio`).
     pub minimise: String,
     /// The variables in map order: the minimised one, then the other (when two are sized).
     pub variables: Vec<String>,
-    /// Unit of each variable (`A`, `Ω`).
+    /// Unit of each variable (`A`, `Ω`; empty for the area ratio).
     pub units: Vec<String>,
     /// Grid values of each variable.
     pub grid: Vec<Vec<f64>>,
@@ -995,6 +1023,9 @@ pub struct RegionRecord {
     pub tail_current_a: f64,
     /// The design found: emitter resistance per side, Ω.
     pub emitter_resistance_ohm: f64,
+    /// The design found: multi-tanh area ratio, when it is one of the variables.
+    #[serde(default)]
+    pub area_ratio: Option<f64>,
     /// The design found: load resistance per side at the first temperature, Ω.
     pub load_resistance_ohm: f64,
     /// The line limiting the design found (metric name, or `collector_base_margin` for the
@@ -1028,6 +1059,9 @@ pub struct RegionCellRecord {
     pub tail_current_a: f64,
     /// Emitter resistance per side, Ω.
     pub emitter_resistance_ohm: f64,
+    /// Multi-tanh area ratio, when it is one of the variables (`null` otherwise).
+    #[serde(default)]
+    pub area_ratio: Option<f64>,
     /// Every line holds by the guard band at every temperature.
     pub holds: bool,
     /// The line with the least margin above the guard band (for a failing design, the one

@@ -234,10 +234,11 @@ pub fn summary(report: &Report) -> String {
                 Some(d) => {
                     let _ = writeln!(
                         out,
-                        "Budget lines checked on the recommended design (derived: `{}` with R_E = {}, R_L = {}):\n",
+                        "Budget lines checked on the recommended design (derived: `{}` with R_E = {}, R_L = {}{}):\n",
                         markdown_text(&d.stage),
                         si_short(d.emitter_resistance_ohm, "Ω"),
-                        si_short(d.load_resistance_ohm, "Ω")
+                        si_short(d.load_resistance_ohm, "Ω"),
+                        area_ratio_text(d.area_ratio)
                     );
                 }
                 None if !report.sizing.is_empty() => {
@@ -299,7 +300,7 @@ pub fn summary(report: &Report) -> String {
                 temperature_cell(s.temperature_c),
                 match (s.met, report.sizing_region.iter().any(|r| r.stage == s.stage)) {
                     (true, false) => "least",
-                    (true, true) => "the design of least current has",
+                    (true, true) => "the design found has",
                     (false, _) => "no value meets every line; best",
                 },
                 s.emitter_resistance_ohm.map(|r| si_short(r, "Ω")).unwrap_or_else(|| "—".into()),
@@ -328,7 +329,7 @@ pub fn summary(report: &Report) -> String {
             if let Some(stage) = planned {
                 let _ = writeln!(
                     out,
-                    "\n**{} for {}: I_tail = {}, R_E = {}** — {}; binding: {}.\n",
+                    "\n**{} for {}: I_tail = {}, R_E = {}{}** — {}; binding: {}.\n",
                     if region.met {
                         "To build"
                     } else {
@@ -337,6 +338,7 @@ pub fn summary(report: &Report) -> String {
                     markdown_text(name),
                     si_short(stage.tail_current_a, "A"),
                     si_short(stage.emitter_resistance_ohm, "Ω"),
+                    area_ratio_text(stage.area_ratio),
                     if region.met {
                         format!(
                             "the least {} holding every line at every temperature",
@@ -588,6 +590,13 @@ fn population_sections(report: &Report, out: &mut String) {
             s.conflict_gap_ohm.map(|r| si_short(r, "Ω")).unwrap_or_default()
         );
     }
+}
+
+/// `, area ratio A_E = 4.28` when sizing chose a multi-tanh cell's area ratio.
+fn area_ratio_text(ratio: Option<f64>) -> String {
+    ratio
+        .map(|a| format!(", area ratio A_E = {a:.3}"))
+        .unwrap_or_default()
 }
 
 #[cfg(test)]

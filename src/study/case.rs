@@ -141,6 +141,8 @@ pub struct OperatingFigures {
     pub steering_v: (f64, f64),
     /// Operating region at the steering points (static).
     pub steering_region: RegionCheck,
+    /// Operating region at zero input: the bias point itself.
+    pub rest_region: RegionCheck,
     /// 3φT + 0.9·I_tail·R_E, V.
     pub steering_rule_of_thumb_v: f64,
     /// Tail current at this temperature and corner, A.
@@ -324,6 +326,7 @@ pub fn evaluate_case(
         input_offset_v,
         steering_v: steering,
         steering_region: measured.steering_region().map_err(fail)?,
+        rest_region: measured.zero_input_region().map_err(fail)?,
         steering_rule_of_thumb_v: 3.0 * circuit.thermal_voltage
             + 0.9 * circuit.tail_current * stage.emitter_resistance,
         tail_current_a: circuit.tail_current,

@@ -6,7 +6,7 @@ use crate::error::Error;
 use crate::measure::budget::judge;
 use crate::model::bias::{bias_problem, temperature_supported, MODEL_TEMPERATURE_RANGE_C};
 use crate::model::circuit::StageCircuit;
-use crate::model::plan::{MonteCarloSettings, Plan, SizingSettings};
+use crate::model::plan::{MonteCarloSettings, Plan, SizingSettings, SizingVariable};
 use crate::model::products::{refused_collision, separating_spacing, PeriodTooLong};
 use crate::model::stage::Stage;
 use crate::solve::spectrum::FftCache;
@@ -344,6 +344,10 @@ fn region_recommendation(
     let planned = &plan.stages[found.stage_index];
     let mut base = planned.clone();
     base.tail_current = design.tail_current();
+    let area_ratio = found.value_at(design, SizingVariable::AreaRatio);
+    if let Some(ratio) = area_ratio {
+        base.multi_tanh.area_ratio = ratio;
+    }
     let emitter_resistance = design.emitter_resistance();
     let load_resistance = if settings.hold_gain {
         sizing::held_load_from(
@@ -362,6 +366,7 @@ fn region_recommendation(
         emitter_resistance,
         tail_current: base.tail_current,
         load_resistance,
+        area_ratio,
         met: found.met && design.holds,
         windows: Vec::new(),
         basis: if found.met {
@@ -421,9 +426,7 @@ fn raise_region_for_yield(
         };
         let recommendation = region_recommendation(plan, settings, found, best, cache)?;
         let mut candidate = design.stage.clone();
-        candidate.emitter_resistance = recommendation.emitter_resistance;
-        candidate.tail_current = recommendation.tail_current;
-        candidate.load_resistance = recommendation.load_resistance;
+        recommendation.apply(&mut candidate);
         if holds(&candidate)? == Some(true) {
             design.stage = candidate;
             design.recommendation = Recommendation {
@@ -630,9 +633,7 @@ pub fn evaluate(
             let mut stage = planned_stage.clone();
             stage.name = sizing::sized_name(&planned_stage.name, &taken);
             taken.push(stage.name.clone());
-            stage.emitter_resistance = recommendation.emitter_resistance;
-            stage.tail_current = recommendation.tail_current;
-            stage.load_resistance = recommendation.load_resistance;
+            recommendation.apply(&mut stage);
             recommended.push(RecommendedStage {
                 recommendation,
                 stage,

@@ -245,8 +245,6 @@ pub struct StagePopulation {
 pub struct Population {
     /// Per stage with something to draw and temperature.
     pub stages: Vec<StagePopulation>,
-    /// Stages left out because they store charge (names).
-    pub left_out_with_capacitance: Vec<String>,
 }
 
 /// Sample counts of one amplitude, taken from the converged nominal analysis.
@@ -259,7 +257,8 @@ struct Resolution {
 
 /// What one run measured.
 struct RunResult {
-    /// Per resolution (amplitude), the POINT_FIGURES values (±∞ for null).
+    /// The POINT_FIGURES values (±∞ for null) per amplitude (memoryless: the same at every
+    /// frequency) or per (frequency, amplitude), frequency-major (charge storage).
     points: Vec<[f64; 8]>,
     offset_v: f64,
     /// Whether the run meets each budget line (yield lines count as met).
@@ -455,17 +454,7 @@ fn evaluate_one(
     let runs: Vec<RunResult> = (0..settings.runs)
         .into_par_iter()
         .map(|run| {
-            let mut rng = run_rng(settings.seed, stage_index, temperature_index, run);
-            // One draw per pair of transistors: a multi-tanh cell's pairs are drawn on their
-            // own, in pair order after the first (which keeps every other stage's draws).
-            let pairs = if stage.topology == crate::model::topology::Topology::MultiTanh {
-                stage.multi_tanh.pairs().len().max(1)
-            } else {
-                1
-            };
-            let mismatches: Vec<Mismatch> = (0..pairs)
-                .map(|_| draw_mismatch(&mut rng, &stage.mismatch, &stage.mismatch_sigma))
-                .collect();
+            let mismatches = run_mismatches(settings, stage, (stage_index, temperature_index), run);
             let circuit = StageCircuit::with_mismatches(stage, temperature_c, &mismatches);
             let solver = StaticSolver::new(circuit.clone());
             let mut points = Vec::with_capacity(resolutions.len());
@@ -530,81 +519,18 @@ fn evaluate_one(
             })
         })
         .collect::<Result<Vec<_>, SolveFailure>>()
-        .map_err(|failure| Error::Solve {
-            stage: stage.name.clone(),
-            temperature_c,
-            point: format!("Monte Carlo: {}", failure.point),
-            reason: failure.reason,
-        })?;
+        .map_err(|failure| run_failure(stage, temperature_c, failure))?;
 
-    let mut distributions = Vec::new();
-    let two_tone_plan = plan.drive.two_tone_spacing.is_some();
-    let distribution =
-        |frequency_hz: f64, amplitude_v: f64, figure: PopulationFigure, mut values: Vec<f64>| {
-            values.sort_by(f64::total_cmp);
-            FigureDistribution {
-                frequency_hz,
-                amplitude_v,
-                figure,
-                median: quantile(&values, 0.5),
-                p05: quantile(&values, 0.05),
-                p95: quantile(&values, 0.95),
-                below_floor_runs: values.iter().filter(|v| !v.is_finite()).count() as u64,
-            }
-        };
-    for &frequency_hz in &plan.drive.frequencies {
-        for (index, &amplitude_v) in plan.drive.amplitudes.iter().enumerate() {
-            for (k, figure) in POINT_FIGURES.iter().enumerate() {
-                if figure.needs_two_tones() && !two_tone_plan {
-                    continue;
-                }
-                let values = runs.iter().map(|r| r.points[index][k]).collect();
-                distributions.push(distribution(frequency_hz, amplitude_v, *figure, values));
-            }
-        }
-        let offsets = runs.iter().map(|r| r.offset_v).collect();
-        distributions.push(distribution(
-            frequency_hz,
-            0.0,
-            PopulationFigure::Offset,
-            offsets,
-        ));
-    }
-    let passes = runs
-        .iter()
-        .filter(|r| r.line_passes.iter().all(|p| *p))
-        .count() as u64;
-    let (low, high) = wilson_interval(passes, settings.runs, Z_95);
-    let least_collector_base_margin_v = runs
-        .iter()
-        .map(|r| r.least_margin_v)
-        .fold(f64::INFINITY, f64::min);
-    let saturating_runs = runs.iter().filter(|r| r.least_margin_v < 0.0).count() as u64;
-    let failing_runs = plan
-        .budget
-        .iter()
-        .enumerate()
-        .map(|(index, line)| {
-            (!line.metric.is_population())
-                .then(|| runs.iter().filter(|r| !r.line_passes[index]).count() as u64)
-        })
-        .collect();
-    Ok(StagePopulation {
-        stage: stage.name.clone(),
+    // The memoryless runs measured each amplitude once: every frequency shares it.
+    Ok(summarise(
+        plan,
+        settings,
+        stage,
         temperature_c,
-        corner: corner.to_owned(),
-        runs: settings.runs,
-        distributions,
-        yield_estimate: YieldEstimate {
-            passing_runs: passes,
-            runs: settings.runs,
-            low,
-            high,
-            failing_runs,
-        },
-        least_collector_base_margin_v,
-        saturating_runs,
-    })
+        corner,
+        &runs,
+        |_, a| a,
+    ))
 }
 
 /// The figures of one drive point of a stage with charge storage, in [`POINT_FIGURES`] order
@@ -672,19 +598,11 @@ fn evaluate_one_with_charge(
     let frequencies = &plan.drive.frequencies;
     let amplitudes = &plan.drive.amplitudes;
     let spacing = plan.drive.two_tone_spacing;
-    struct ChargeRun {
-        /// Per (frequency, amplitude), frequency-major.
-        points: Vec<[f64; 8]>,
-        offset_v: f64,
-        line_passes: Vec<bool>,
-        least_margin_v: f64,
-    }
-    let runs: Vec<ChargeRun> = (0..settings.runs)
+    let runs: Vec<RunResult> = (0..settings.runs)
         .into_par_iter()
         .map(|run| {
-            let mut rng = run_rng(settings.seed, stage_index, temperature_index, run);
-            let mismatch = draw_mismatch(&mut rng, &stage.mismatch, &stage.mismatch_sigma);
-            let circuit = StageCircuit::with_mismatch(stage, temperature_c, &mismatch);
+            let mismatches = run_mismatches(settings, stage, (stage_index, temperature_index), run);
+            let circuit = StageCircuit::with_mismatches(stage, temperature_c, &mismatches);
             let engine = engine_for(circuit, cache.clone());
             let mut points = Vec::with_capacity(frequencies.len() * amplitudes.len());
             let mut least_margin_v = f64::INFINITY;
@@ -723,7 +641,7 @@ fn evaluate_one_with_charge(
                 }
             }
             run_done();
-            Ok(ChargeRun {
+            Ok(RunResult {
                 points,
                 offset_v,
                 line_passes,
@@ -731,13 +649,62 @@ fn evaluate_one_with_charge(
             })
         })
         .collect::<Result<Vec<_>, SolveFailure>>()
-        .map_err(|failure| Error::Solve {
-            stage: stage.name.clone(),
-            temperature_c,
-            point: format!("Monte Carlo: {}", failure.point),
-            reason: failure.reason,
-        })?;
+        .map_err(|failure| run_failure(stage, temperature_c, failure))?;
 
+    let per_frequency = amplitudes.len();
+    Ok(summarise(
+        plan,
+        settings,
+        stage,
+        temperature_c,
+        corner,
+        &runs,
+        |f, a| f * per_frequency + a,
+    ))
+}
+
+/// A run's solve failure, named as a Monte Carlo point of its stage and temperature.
+fn run_failure(stage: &Stage, temperature_c: f64, failure: SolveFailure) -> Error {
+    Error::Solve {
+        stage: stage.name.clone(),
+        temperature_c,
+        point: format!("Monte Carlo: {}", failure.point),
+        reason: failure.reason,
+    }
+}
+
+/// The mismatches of run `run`: one draw per pair of transistors (a multi-tanh cell's pairs
+/// are drawn on their own, in pair order after the first, which keeps every other stage's
+/// draws), from the run's own stream.
+fn run_mismatches(
+    settings: &MonteCarloSettings,
+    stage: &Stage,
+    (stage_index, temperature_index): (usize, usize),
+    run: u64,
+) -> Vec<Mismatch> {
+    let mut rng = run_rng(settings.seed, stage_index, temperature_index, run);
+    let pairs = if stage.topology == crate::model::topology::Topology::MultiTanh {
+        stage.multi_tanh.pairs().len().max(1)
+    } else {
+        1
+    };
+    (0..pairs)
+        .map(|_| draw_mismatch(&mut rng, &stage.mismatch, &stage.mismatch_sigma))
+        .collect()
+}
+
+/// The population's distributions (per frequency, amplitude and figure, plus the offset),
+/// its yield and its least collector-base margin. `point(f, a)` is the index into a run's
+/// `points` of frequency `f` and amplitude `a` (indices into the plan's drive lists).
+fn summarise(
+    plan: &Plan,
+    settings: &MonteCarloSettings,
+    stage: &Stage,
+    temperature_c: f64,
+    corner: &str,
+    runs: &[RunResult],
+    point: impl Fn(usize, usize) -> usize,
+) -> StagePopulation {
     let distribution =
         |frequency_hz: f64, amplitude_v: f64, figure: PopulationFigure, mut values: Vec<f64>| {
             values.sort_by(f64::total_cmp);
@@ -751,12 +718,13 @@ fn evaluate_one_with_charge(
                 below_floor_runs: values.iter().filter(|v| !v.is_finite()).count() as u64,
             }
         };
+    let two_tone_plan = plan.drive.two_tone_spacing.is_some();
     let mut distributions = Vec::new();
-    for (f_index, &frequency_hz) in frequencies.iter().enumerate() {
-        for (a_index, &amplitude_v) in amplitudes.iter().enumerate() {
-            let index = f_index * amplitudes.len() + a_index;
+    for (f_index, &frequency_hz) in plan.drive.frequencies.iter().enumerate() {
+        for (a_index, &amplitude_v) in plan.drive.amplitudes.iter().enumerate() {
+            let index = point(f_index, a_index);
             for (k, figure) in POINT_FIGURES.iter().enumerate() {
-                if figure.needs_two_tones() && spacing.is_none() {
+                if figure.needs_two_tones() && !two_tone_plan {
                     continue;
                 }
                 let values = runs.iter().map(|r| r.points[index][k]).collect();
@@ -790,7 +758,7 @@ fn evaluate_one_with_charge(
                 .then(|| runs.iter().filter(|r| !r.line_passes[index]).count() as u64)
         })
         .collect();
-    Ok(StagePopulation {
+    StagePopulation {
         stage: stage.name.clone(),
         temperature_c,
         corner: corner.to_owned(),
@@ -805,5 +773,5 @@ fn evaluate_one_with_charge(
         },
         least_collector_base_margin_v,
         saturating_runs,
-    })
+    }
 }

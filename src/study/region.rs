@@ -219,6 +219,23 @@ pub struct RegionOutcome {
     pub designs_evaluated: usize,
 }
 
+impl RegionOutcome {
+    /// A design's value of `variable`, when it is one of the region's variables.
+    pub fn value_at(&self, design: &RegionPoint, variable: SizingVariable) -> Option<f64> {
+        if self.primary.variable == variable {
+            Some(design.primary)
+        } else if self
+            .secondary
+            .as_ref()
+            .is_some_and(|a| a.variable == variable)
+        {
+            design.secondary
+        } else {
+            None
+        }
+    }
+}
+
 /// Whether a metric is a distortion figure (harmonics, THD, IM3, intercepts, compression).
 pub fn is_distortion(metric: Metric) -> bool {
     matches!(
@@ -540,6 +557,22 @@ pub fn size_region(
     cache: &Arc<FftCache>,
 ) -> Result<RegionOutcome, Error> {
     let stage = &plan.stages[stage_index];
+    if let Some(range) = settings
+        .variables
+        .iter()
+        .find(|v| !v.variable.applies_to(stage))
+    {
+        return Err(Error::Argument {
+            name: format!("sizing `{}`", range.variable.key()),
+            problem: format!(
+                "stage `{}` has no {} to choose (topology {})",
+                stage.name,
+                range.variable.symbol(),
+                stage.topology.name()
+            ),
+            accepted: "the area ratio only for multi-tanh doublets and triplets".into(),
+        });
+    }
     let (from, to) = settings.range_of(settings.minimise).unwrap_or_else(|| {
         let v = settings.minimise.value_of(stage);
         (v, v)

@@ -1045,6 +1045,8 @@ pub struct Recommendation {
     /// Load resistance per side to build, Ω (the plan's, or rescaled with `hold_gain` at the
     /// typical temperature).
     pub load_resistance: f64,
+    /// Multi-tanh area ratio to build, when sizing chooses it.
+    pub area_ratio: Option<f64>,
     /// Whether sizing found a value holding every line at every temperature.
     pub met: bool,
     /// The windows common to every temperature, Ω (`[low, high]`).
@@ -1054,6 +1056,18 @@ pub struct Recommendation {
     /// The yield lines fail at the least value holding the other lines, and at every value of
     /// the common windows tried above it.
     pub yield_short: bool,
+}
+
+impl Recommendation {
+    /// Sets the values to build on `stage` (a copy of the planned one).
+    pub fn apply(&self, stage: &mut Stage) {
+        stage.emitter_resistance = self.emitter_resistance;
+        stage.tail_current = self.tail_current;
+        stage.load_resistance = self.load_resistance;
+        if let Some(ratio) = self.area_ratio {
+            stage.multi_tanh.area_ratio = ratio;
+        }
+    }
 }
 
 /// Intersection of two lists of increasing, disjoint intervals.
@@ -1119,6 +1133,7 @@ pub fn recommend(
         emitter_resistance,
         tail_current: stage.tail_current,
         load_resistance,
+        area_ratio: None,
         met: every_met && basis == Basis::CommonWindow,
         windows,
         basis,

@@ -16,7 +16,7 @@
 //! | two tones, stage with charge storage | [`DYNAMIC_TWO_TONE_CYCLE_S`] per upper-tone cycle of the common period |
 //! | stage-wide figures per frequency (IIP3 search, P1dB bisection) | [`INTERCEPT_TWO_TONES`] two-tone and [`COMPRESSION_TONES`] single-tone analyses |
 //! | stage-wide static figures per case (steering, offset, transfer curve, noise) | [`STATIC_CASE_S`] |
-//! | Monte Carlo, per run | the drive points at their nominal resolution, [`MONTE_CARLO_RUN_S`] fixed, and the stage-wide figures when a budget line needs them |
+//! | Monte Carlo, per run | the drive points at their nominal resolution, [`MONTE_CARLO_RUN_S`] fixed, and the stage-wide figures when a budget line needs them; a stage with charge storage: every drive point at every frequency and the measurements of every budget line, as a sizing trial |
 //! | sizing | [`SIZING_TRIALS`] trials ([`REGION_DESIGNS`] when the tail current is sized too) × corners × the measurements the budget lines need, then the recommended design evaluated in full (its population too, [`YIELD_SEARCH_POPULATIONS`] more with a yield line) |
 //! | a fit to bench data | [`FIT_EVALUATIONS`] single tones per bench point, then the fitted stage evaluated in full |
 //! | the report (tables and figures) | [`REPORT_S`] + [`REPORT_POINT_S`] per point, and [`PROCESS_S`] of wall time |
@@ -193,6 +193,35 @@ impl Engine {
     }
 }
 
+/// Measurements the plan's budget lines need of one design at one corner and temperature
+/// (a sizing trial, a Monte Carlo run of a stage with charge storage), s.
+fn budget_lines_s(plan: &Plan, engine: Engine, harmonics: usize) -> f64 {
+    let first = plan.drive.frequencies.first().copied().unwrap_or(1e3);
+    let spacing = |f: f64| plan.drive.spacing_at(f);
+    plan.budget
+        .iter()
+        .map(|line| {
+            let f = line.frequency.unwrap_or(first);
+            match line.metric {
+                Metric::Harmonic(_) | Metric::Thd | Metric::CollectorBaseMargin => {
+                    engine.tone_s(harmonics)
+                }
+                Metric::Im3 => engine.two_tone_s(f, spacing(f)),
+                Metric::Iip3 | Metric::Oip3 => engine.intercept_s(f, spacing(f)),
+                Metric::P1db => COMPRESSION_TONES * engine.tone_s(9),
+                Metric::Gain => {
+                    if engine == Engine::Dynamic {
+                        engine.tone_s(3)
+                    } else {
+                        0.0
+                    }
+                }
+                Metric::SteeringRange | Metric::InputNoise | Metric::Yield => 0.0,
+            }
+        })
+        .sum()
+}
+
 /// Estimates the work of `plan` (see the module docs for the cost model).
 pub fn estimate(plan: &Plan) -> Workload {
     let temperatures = plan.temperatures_c.len() as f64;
@@ -209,7 +238,8 @@ pub fn estimate(plan: &Plan) -> Workload {
     let mut sweep_per_stage: Vec<f64> = Vec::with_capacity(plan.stages.len());
     for stage in &plan.stages {
         let engine = Engine::of(stage, reference_temperature);
-        let points: f64 = frequencies
+        // Every drive point once: its tone, and its two tones with two-tone drive.
+        let drive_points: f64 = frequencies
             .iter()
             .map(|&f| {
                 amplitudes
@@ -218,9 +248,13 @@ pub fn estimate(plan: &Plan) -> Workload {
                             .drive
                             .two_tone_spacing
                             .map_or(0.0, |s| engine.two_tone_s(f, s)))
-                    + engine.stage_wide_s(f, spacing(f))
             })
             .sum();
+        let points: f64 = drive_points
+            + frequencies
+                .iter()
+                .map(|&f| engine.stage_wide_s(f, spacing(f)))
+                .sum::<f64>();
         let stage_sweep = temperatures * corners * (points + engine.static_s());
         sweep += stage_sweep;
         sweep_per_stage.push(stage_sweep);
@@ -253,33 +287,17 @@ pub fn estimate(plan: &Plan) -> Workload {
                         0.0
                     };
                 monte_carlo += mc.runs as f64 * temperatures * per_run;
+            } else if draws {
+                // A stage with charge storage: every run solves the periodic steady state of
+                // each drive point at every frequency, then each budget line afresh.
+                let per_run =
+                    drive_points + budget_lines_s(plan, engine, harmonics) + MONTE_CARLO_RUN_S;
+                monte_carlo += mc.runs as f64 * temperatures * per_run;
             }
         }
 
         if plan.sizing.is_some() {
-            let lines: f64 = plan
-                .budget
-                .iter()
-                .map(|line| {
-                    let f = line.frequency.unwrap_or(frequencies[0]);
-                    match line.metric {
-                        Metric::Harmonic(_) | Metric::Thd | Metric::CollectorBaseMargin => {
-                            engine.tone_s(harmonics)
-                        }
-                        Metric::Im3 => engine.two_tone_s(f, spacing(f)),
-                        Metric::Iip3 | Metric::Oip3 => engine.intercept_s(f, spacing(f)),
-                        Metric::P1db => COMPRESSION_TONES * engine.tone_s(9),
-                        Metric::Gain => {
-                            if engine == Engine::Dynamic {
-                                engine.tone_s(3)
-                            } else {
-                                0.0
-                            }
-                        }
-                        Metric::SteeringRange | Metric::InputNoise | Metric::Yield => 0.0,
-                    }
-                })
-                .sum();
+            let lines = budget_lines_s(plan, engine, harmonics);
             let hold = plan.sizing.as_ref().is_some_and(|s| s.hold_gain);
             let headroom = if hold { engine.tone_s(3) } else { 0.0 };
             sizing += temperatures
@@ -542,6 +560,44 @@ mod tests {
         }));
         assert!(many.cpu_seconds > 1e6 * base.cpu_seconds);
         assert_eq!(many.dominant_key, "monte_carlo.runs");
+    }
+
+    #[test]
+    fn a_population_of_a_stage_with_charge_storage_is_costed_per_run_and_frequency() {
+        // Each run of such a stage solves its own periodic steady state at every frequency, so
+        // the population costs about runs × frequencies × one dynamic tone (it was costed as
+        // nothing, and a plan of a million runs passed any limit).
+        let stage = Stage::new("a", 1e-3, 2e3)
+            .load_capacitance(1e-12)
+            .mismatch_sigma(Mismatch::default().load_capacitance(0.02));
+        let with_runs = |runs: u64, frequencies: Vec<f64>| {
+            estimate(
+                &Plan::new(
+                    "w",
+                    vec![stage.clone()],
+                    Drive::new(vec![0.05]).frequencies(frequencies),
+                )
+                .monte_carlo(MonteCarloSettings { runs, seed: 1 }),
+            )
+        };
+        let base = estimate(&Plan::new(
+            "w",
+            vec![stage.clone()],
+            Drive::new(vec![0.05]).frequencies(vec![1e7]),
+        ));
+        let one = with_runs(1000, vec![1e7]);
+        let two = with_runs(1000, vec![1e7, 2e7]);
+        let tone = Engine::Dynamic.tone_s(crate::model::drive::DEFAULT_THD_HARMONICS.max(9));
+        let population = one.cpu_seconds - base.cpu_seconds;
+        assert!(
+            population > 500.0 * tone && population < 2000.0 * tone,
+            "{population} s"
+        );
+        assert!(two.cpu_seconds - one.cpu_seconds > 900.0 * tone);
+        assert_eq!(
+            with_runs(1_000_000, vec![1e7]).dominant_key,
+            "monte_carlo.runs"
+        );
     }
 
     #[test]

@@ -31,6 +31,7 @@ Jacobian, period after period until the state repeats to 1e-11 V; harmonics from
 the last period's step values (checked by halving the step).
 
 Usage:  python3 gummel_poon_pair.py            # writes gummel_poon_pair.json beside itself
+        python3 gummel_poon_pair.py drawn-pair # recomputes that case only
 Needs numpy and scipy (pip install numpy scipy).
 """
 import json
@@ -53,18 +54,33 @@ def inv(x):
     return 0.0 if math.isinf(x) else 1.0 / x
 
 
+MISMATCHED = ["saturation_current", "beta", "base_resistance", "emitter_resistance",
+              "load_resistance", "load_capacitance", "emitter_junction_capacitance",
+              "collector_junction_capacitance", "transit_time"]
+
+
 class Side:
+    """One side's elements. Mismatch is stated as P over M: the P side (sign +1) takes the
+    nominal value times (1 + delta) for each `mismatch_<element>` key; the M side is nominal.
+    A source resistance is outside the device and is not mismatched."""
+
     def __init__(self, c, sign):
-        mm = c.get("mismatch_saturation_current", 0.0) if sign > 0 else 0.0
+        def value(key):
+            delta = c.get("mismatch_" + key, 0.0) if sign > 0 else 0.0
+            return c[key] * (1.0 + delta)
         self.sign = sign
-        self.i_s = c["saturation_current"] * (1.0 + mm)
-        self.bf, self.br = inv(c["beta"]), inv(c["reverse_beta"])
+        self.i_s = value("saturation_current")
+        self.bf, self.br = inv(value("beta")), inv(c["reverse_beta"])
         self.vaf, self.var = inv(c["early_voltage"]), inv(c["reverse_early_voltage"])
         self.ikf, self.ikr = inv(c["forward_knee_current"]), inv(c["reverse_knee_current"])
-        self.r_b = c["source_resistance"] + c["base_resistance"]
-        self.r_e = c["emitter_resistance"]
-        self.r_l = c["load_resistance"]
+        self.r_b = c["source_resistance"] + value("base_resistance")
+        self.r_e = value("emitter_resistance")
+        self.r_l = value("load_resistance")
         self.r_c = c["collector_resistance"]
+        self.c_l = value("load_capacitance")
+        self.c_je = value("emitter_junction_capacitance")
+        self.c_jc = value("collector_junction_capacitance")
+        self.tau_f = value("transit_time")
 
     def currents(self, vbe, vbc):
         ef, er = math.exp(vbe / PHI), math.exp(vbc / PHI)
@@ -213,11 +229,10 @@ class DynamicPair(Pair):
         for k, s in enumerate(self.sides):
             b, e, col, ci = x[1 + 4 * k], x[2 + 4 * k], x[3 + 4 * k], x[4 + 4 * k]
             _, _, forward, reverse = s.currents(b - e, b - ci)
-            out[3 * k] = c["transit_time"] * forward + junction_charge(
-                b - e, c["emitter_junction_capacitance"], 0.75, 0.33)
+            out[3 * k] = s.tau_f * forward + junction_charge(b - e, s.c_je, 0.75, 0.33)
             out[3 * k + 1] = c["reverse_transit_time"] * reverse + junction_charge(
-                b - ci, c["collector_junction_capacitance"], 0.75, 0.33)
-            out[3 * k + 2] = c["load_capacitance"] * (c["supply"] - col)
+                b - ci, s.c_jc, 0.75, 0.33)
+            out[3 * k + 2] = s.c_l * (c["supply"] - col)
         out[6] = c["tail_capacitance"] * x[0]
         return out
 
@@ -327,8 +342,8 @@ STAGE_DEFAULTS = {
     "collector_resistance": 0.0, "tail_resistance": INF, "transit_time": 0.0,
     "reverse_transit_time": 0.0, "emitter_junction_capacitance": 0.0,
     "collector_junction_capacitance": 0.0, "load_capacitance": 0.0, "tail_capacitance": 0.0,
-    "mismatch_saturation_current": 0.0,
 }
+STAGE_DEFAULTS.update({"mismatch_" + key: 0.0 for key in MISMATCHED})
 
 CASES = [
     # Low supply, hard drive: saturation from about 60 mV; slight I_S mismatch for HD2.
@@ -359,12 +374,40 @@ CASES = [
                "tail_capacitance": 1e-12, "tail_resistance": 20e3,
                "mismatch_saturation_current": 0.01},
      "amplitudes": [0.05, 0.4], "frequencies": [2e6, 20e6]},
+    # One drawn pair of a capacitive stage at high frequency: every element of the P side off
+    # by a fraction of the size one Monte Carlo draw gives (invented values), so the even
+    # harmonics come from unequal charges as much as from the static offset.
+    {"name": "drawn-pair", "dynamic": True,
+     "stage": {"tail_current": 2e-3, "load_resistance": 1e3, "emitter_resistance": 50.0,
+               "source_resistance": 50.0, "base_resistance": 80.0, "beta": 100.0,
+               "supply": 5.0, "input_common_mode": 2.5, "transit_time": 10e-12,
+               "emitter_junction_capacitance": 80e-15,
+               "collector_junction_capacitance": 40e-15, "load_capacitance": 0.5e-12,
+               "tail_capacitance": 1e-12,
+               "mismatch_saturation_current": 0.003, "mismatch_beta": 0.01,
+               "mismatch_base_resistance": -0.01, "mismatch_emitter_resistance": 0.002,
+               "mismatch_load_resistance": -0.002, "mismatch_load_capacitance": 0.03,
+               "mismatch_emitter_junction_capacitance": -0.02,
+               "mismatch_collector_junction_capacitance": 0.03,
+               "mismatch_transit_time": 0.04},
+     "amplitudes": [0.02, 0.1], "frequencies": [100e6]},
 ]
 
 
 def main():
+    # Case names on the command line recompute only those cases and keep the others from the
+    # JSON already written.
+    only = set(sys.argv[1:])
+    path = os.path.join(os.path.dirname(os.path.abspath(__file__)), "gummel_poon_pair.json")
+    kept = {}
+    if only:
+        with open(path) as f:
+            kept = {c["name"]: c for c in json.load(f)["cases"]}
     cases = []
     for case in CASES:
+        if only and case["name"] not in only:
+            cases.append(kept[case["name"]])
+            continue
         stage = dict(STAGE_DEFAULTS, **case["stage"])
         results = []
         if not case["dynamic"]:
@@ -390,7 +433,6 @@ def main():
                      for k, v in stage.items()}
         cases.append({"name": case["name"], "dynamic": case["dynamic"], "stage": stage_out,
                       "temperature_c": 27.0, "results": results})
-    path = os.path.join(os.path.dirname(os.path.abspath(__file__)), "gummel_poon_pair.json")
     with open(path, "w") as f:
         json.dump({"generated_by": "tests/reference/gummel_poon_pair.py",
                    "thermal_voltage_v": PHI, "cases": cases}, f, indent=1)

@@ -59,8 +59,10 @@
 //! a message saying how long the common period is and what spacing would work. (Substituting
 //! a nearby spacing would be wrong in general: the tail node responds at `Δ`.)
 
+pub mod cell;
 pub mod dense;
 pub mod pair;
+pub mod system;
 pub mod trapezoid;
 
 use crate::error::SolveFailure;
@@ -71,8 +73,9 @@ use crate::solve::spectrum::{FftCache, Spectrum};
 use crate::solve::transfer::StaticSolver;
 use dense::Lu;
 use num_complex::Complex;
-use pair::{Drive, PairSystem};
+use pair::Drive;
 use std::sync::Arc;
+use system::StageSystem;
 use trapezoid::ChargeSystem;
 use trapezoid::{periodic_steady_state, State, SteadyTolerance, StepTolerance};
 
@@ -227,15 +230,15 @@ impl DynamicEngine {
             Drive::TwoTone { amplitude_v, .. } => 2.0 * amplitude_v,
         };
         let whole = self.solver.saturates_within(peak_v)?;
-        let system = PairSystem::new(circuit, drive, whole);
+        let system = StageSystem::new(circuit, drive, whole);
         let fail = |reason: String| SolveFailure {
             point: label.to_owned(),
             reason,
         };
-        let start = self.solver.solve_cold(drive.differential_v(0.0))?;
+        let start = system.start_state(&self.solver, drive.differential_v(0.0))?;
         let mut guess = State {
-            x: system.state_from(&start),
-            i: vec![0.0; pair::CHARGES],
+            x: start.clone(),
+            i: vec![0.0; system.charges()],
         };
         let mut monodromy: Option<(usize, Lu)> = None;
         // Start states of the last two levels (for the h² extrapolation of the next start)
@@ -287,8 +290,8 @@ impl DynamicEngine {
                     }
                     retries += 1;
                     guess = State {
-                        x: system.state_from(&start),
-                        i: vec![0.0; pair::CHARGES],
+                        x: start.clone(),
+                        i: vec![0.0; system.charges()],
                     };
                     monodromy = None;
                     starts.clear();
@@ -300,8 +303,8 @@ impl DynamicEngine {
                 }
             };
             let rows = solution.trajectory.chunks_exact(system.unknowns());
-            let differential: Vec<f64> = rows.clone().map(PairSystem::output_v).collect();
-            let single: Vec<f64> = rows.map(PairSystem::p_collector_v).collect();
+            let differential: Vec<f64> = rows.clone().map(|x| system.output_v(x)).collect();
+            let single: Vec<f64> = rows.map(|x| system.p_collector_v(x)).collect();
             let raw_differential = self.cache.harmonic_phasors(&differential, bins);
             let raw_single = self.cache.harmonic_phasors(&single, bins);
             starts.push((steps, solution.start.clone()));
@@ -352,10 +355,14 @@ impl DynamicEngine {
                         let junctions: Vec<f64> = solution
                             .trajectory
                             .chunks_exact(system.unknowns())
-                            .flat_map(|x| system.base_collector_pair_v(x))
+                            .flat_map(|x| system.base_collector_v(x))
                             .collect();
-                        let dense =
-                            resample_periodic(&junctions, steps, REGION_OVERSAMPLING * steps, 2);
+                        let dense = resample_periodic(
+                            &junctions,
+                            steps,
+                            REGION_OVERSAMPLING * steps,
+                            system.transistors(),
+                        );
                         for v in dense {
                             region.max_base_collector_v = region.max_base_collector_v.max(v);
                         }
@@ -376,22 +383,6 @@ impl DynamicEngine {
         Err(fail(format!(
             "results did not settle to {REFINEMENT_TOLERANCE_DB} dB with up to {MAX_STEPS} steps per period (last error estimate {last_change:.2e} dB)"
         )))
-    }
-}
-
-impl DynamicEngine {
-    /// A multi-tanh cell with charge storage is not solved yet (its pairs couple through the
-    /// shared collector nodes at every instant); the plan reader refuses it, and a library
-    /// caller gets this failure rather than a pair solved alone.
-    fn refuse_cell(&self, label: &str) -> Result<(), SolveFailure> {
-        if self.static_solver().cell().is_empty() {
-            Ok(())
-        } else {
-            Err(SolveFailure {
-                point: label.to_owned(),
-                reason: "a multi-tanh cell with charge storage is not solved yet: remove its capacitances and transit times".into(),
-            })
-        }
     }
 }
 
@@ -465,7 +456,6 @@ impl ResponseEngine for DynamicEngine {
             crate::units::short_number(amplitude_v),
             crate::units::short_number(frequency_hz)
         );
-        self.refuse_cell(&label)?;
         if !(frequency_hz.is_finite() && frequency_hz > 0.0) {
             return Err(SolveFailure {
                 point: label,
@@ -527,7 +517,6 @@ impl ResponseEngine for DynamicEngine {
             v(frequency_hz),
             v(frequency_hz + spacing_hz)
         );
-        self.refuse_cell(&label)?;
         let suggestion = || match separating_spacing(frequency_hz, spacing_hz) {
             Some(s) => format!("for example {} Hz", v(s)),
             None => "for example a spacing that divides the frequency".into(),

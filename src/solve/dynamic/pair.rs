@@ -29,7 +29,8 @@
 //! (`StageCircuit::p_charge_scale`); the M side's are nominal.
 
 use super::trapezoid::ChargeSystem;
-use crate::model::circuit::{Side, StageCircuit};
+use crate::model::circuit::{ChargeScale, Side, StageCircuit};
+use crate::model::transistor::ChargeModel;
 use crate::solve::device::gummel_poon;
 use crate::solve::response::RegionCheck;
 use std::f64::consts::TAU;
@@ -152,8 +153,9 @@ pub struct PairSystem<'a> {
 
 /// A side's currents at the node voltages of a state, with their derivatives with respect to
 /// `(V_B, V_E, V_C')`.
-struct SideCurrents {
-    collector: f64,
+pub struct SideCurrents {
+    /// Collector current, A.
+    pub collector: f64,
     base: f64,
     d_collector: [f64; 3],
     d_base: [f64; 3],
@@ -163,7 +165,8 @@ struct SideCurrents {
     /// `I_EC` (τ_R times it is the reverse diffusion charge) and `∂/∂V_BC`.
     reverse_transport: f64,
     d_reverse_transport: f64,
-    injection: f64,
+    /// Injection level `q_2`.
+    pub injection: f64,
 }
 
 /// A side's currents: the forward-active form `I_C = J·(1 + V_CE/V_AF)`, `I_B = J/β_F` where
@@ -171,7 +174,14 @@ struct SideCurrents {
 /// currents or reverse Early voltage (the terms it leaves out are of order I_S, see
 /// [`crate::solve::transfer`]), the whole Gummel–Poon core otherwise, and always when
 /// `whole` (a drive that saturates somewhere keeps one form over its period).
-fn side_currents(side: &Side, phi: f64, vb: f64, ve: f64, vci: f64, whole: bool) -> SideCurrents {
+pub(super) fn side_currents(
+    side: &Side,
+    phi: f64,
+    vb: f64,
+    ve: f64,
+    vci: f64,
+    whole: bool,
+) -> SideCurrents {
     if !whole && vb - vci <= 0.0 && side.forward_law() {
         let j = side.saturation_current * ((vb - ve) / phi).exp();
         let early = 1.0 + (vci - ve) * side.early_inv;
@@ -208,12 +218,191 @@ fn side_currents(side: &Side, phi: f64, vb: f64, ve: f64, vci: f64, whole: bool)
     }
 }
 
+/// Where one transistor sits among a system's unknowns: its intrinsic base and emitter, the
+/// collector terminal below the load, the intrinsic collector (the terminal itself without
+/// r_c) and the tail node its emitter resistor returns to.
+#[derive(Debug, Clone, Copy)]
+pub(super) struct Terminals {
+    pub base: usize,
+    pub emitter: usize,
+    pub collector: usize,
+    pub internal_collector: usize,
+    pub tail: usize,
+}
+
+impl Terminals {
+    /// The nodes the device currents depend on, in the order of their derivatives.
+    fn device_nodes(&self) -> [usize; 3] {
+        [self.base, self.emitter, self.internal_collector]
+    }
+}
+
+/// Adds one transistor's resistive terms to a system: each of `base_rows` (a row and the
+/// resistance the base current flows through on it; the caller has written the row's drive)
+/// loses `R·I_B`, the collector row (whose load top the caller has written) loses `R_L·I_C`,
+/// the emitter row and the r_c row are written whole, and the tail row gains
+/// `tail_scale·(I_C + I_B)`. `n` is the number of unknowns.
+#[allow(clippy::too_many_arguments)]
+pub(super) fn stamp_transistor(
+    side: &Side,
+    s: &SideCurrents,
+    t: Terminals,
+    base_rows: &[(usize, f64)],
+    x: &[f64],
+    n: usize,
+    tail_scale: f64,
+    f: &mut [f64],
+    jacobian: &mut [f64],
+) {
+    let (e, col, ci) = (t.emitter, t.collector, t.internal_collector);
+    for &(row, resistance) in base_rows {
+        f[row] -= resistance * s.base;
+    }
+    // An emitter-lead source e (the split tail's source difference) lowers the
+    // transistor's emitter below the resistor's drop.
+    f[e] =
+        x[e] - x[t.tail] - side.emitter_resistance * (s.collector + s.base) + side.emitter_source_v;
+    jacobian[e * n + e] += 1.0;
+    jacobian[e * n + t.tail] -= 1.0;
+    f[col] -= side.load_resistance * s.collector;
+    if ci != col {
+        f[ci] = x[col] - x[ci] - side.collector_resistance * s.collector;
+        jacobian[ci * n + col] += 1.0;
+        jacobian[ci * n + ci] -= 1.0;
+    }
+    f[t.tail] += tail_scale * (s.collector + s.base);
+    let (d_collector, d_base) = (s.d_collector, s.d_base);
+    for (k, &node) in t.device_nodes().iter().enumerate() {
+        for &(row, resistance) in base_rows {
+            jacobian[row * n + node] -= resistance * d_base[k];
+        }
+        jacobian[e * n + node] -= side.emitter_resistance * (d_collector[k] + d_base[k]);
+        jacobian[col * n + node] -= side.load_resistance * d_collector[k];
+        if ci != col {
+            jacobian[ci * n + node] -= side.collector_resistance * d_collector[k];
+        }
+        jacobian[t.tail * n + node] += tail_scale * (d_collector[k] + d_base[k]);
+    }
+}
+
+/// How one transistor's two junction charges (indices `[Q_BE, Q_BC]`) enter a system's
+/// equations: through every base row (with its resistance), the emitter resistor, the load
+/// and r_c, and the tail row (scaled). `charges` is the number of charges.
+pub(super) fn couple_transistor(
+    side: &Side,
+    t: Terminals,
+    junction_charges: [usize; 2],
+    base_rows: &[(usize, f64)],
+    tail_scale: f64,
+    charges: usize,
+    coupling: &mut [f64],
+) {
+    let [qbe, qbc] = junction_charges;
+    let mut set = |row: usize, charge: usize, value: f64| coupling[row * charges + charge] = value;
+    for &(row, resistance) in base_rows {
+        set(row, qbe, -resistance);
+        set(row, qbc, -resistance);
+    }
+    set(t.emitter, qbe, -side.emitter_resistance);
+    set(t.collector, qbc, side.load_resistance);
+    if t.internal_collector != t.collector {
+        set(t.internal_collector, qbc, side.collector_resistance);
+    }
+    set(t.tail, qbe, tail_scale);
+}
+
+/// One transistor's charges `Q_BE` and `Q_BC` (indices `[Q_BE, Q_BC]`) and their rows of the
+/// charge Jacobian (added to), from its currents, the charge model and the scale of its
+/// junction capacitances and transit time. `n` is the number of unknowns.
+#[allow(clippy::too_many_arguments)]
+pub(super) fn transistor_charges(
+    s: &SideCurrents,
+    ch: &ChargeModel,
+    scale: &ChargeScale,
+    t: Terminals,
+    junction_charges: [usize; 2],
+    x: &[f64],
+    n: usize,
+    q: &mut [f64],
+    jacobian: &mut [f64],
+) {
+    let [qbe, qbc] = junction_charges;
+    let (b, e, ci) = (t.base, t.emitter, t.internal_collector);
+    let (junction, capacitance) = depletion_charge(
+        x[b] - x[e],
+        ch.emitter_junction_capacitance * scale.emitter_junction_capacitance,
+        ch.emitter_junction_potential,
+        ch.emitter_grading,
+    );
+    let transit_time = ch.transit_time * scale.transit_time;
+    q[qbe] = transit_time * s.forward_diffusion + junction;
+    for (k, &node) in t.device_nodes().iter().enumerate() {
+        jacobian[qbe * n + node] += transit_time * s.d_forward_diffusion[k];
+    }
+    jacobian[qbe * n + b] += capacitance;
+    jacobian[qbe * n + e] -= capacitance;
+    let (junction, capacitance) = depletion_charge(
+        x[b] - x[ci],
+        ch.collector_junction_capacitance * scale.collector_junction_capacitance,
+        ch.collector_junction_potential,
+        ch.collector_grading,
+    );
+    q[qbc] = ch.reverse_transit_time * s.reverse_transport + junction;
+    let reverse_diffusion = ch.reverse_transit_time * s.d_reverse_transport;
+    jacobian[qbc * n + b] += capacitance + reverse_diffusion;
+    jacobian[qbc * n + ci] -= capacitance + reverse_diffusion;
+}
+
+/// Junction limiting of a Newton step over a set of transistors: no base-emitter voltage
+/// moves by more than 8·φT per iteration (keeps the exponentials finite far from the
+/// solution), nor a base-collector voltage that is or would become forward-biased; no node
+/// by more than 1 V. Returns the fraction of the step to take.
+pub(super) fn junction_step_fraction(
+    phi: f64,
+    transistors: impl Iterator<Item = Terminals> + Clone,
+    x: &[f64],
+    dx: &[f64],
+) -> f64 {
+    let limit = 8.0 * phi;
+    let junction = transistors
+        .clone()
+        .fold(0.0f64, |a, t| a.max((dx[t.base] - dx[t.emitter]).abs()));
+    let node = dx.iter().fold(0.0f64, |a, v| a.max(v.abs()));
+    let mut fraction: f64 = 1.0;
+    if junction > limit {
+        fraction = fraction.min(limit / junction);
+    }
+    for t in transistors {
+        let (b, ci) = (t.base, t.internal_collector);
+        let change = dx[b] - dx[ci];
+        let now = x[b] - x[ci];
+        if change.abs() > limit && now.max(now + change) > 0.0 {
+            fraction = fraction.min(limit / change.abs());
+        }
+    }
+    if node > 1.0 {
+        fraction = fraction.min(1.0 / node);
+    }
+    fraction
+}
+
 /// `∂/∂(V_B, V_E, V_C')` of a quantity from its `∂/∂(V_BE, V_BC)`.
 fn by_node(d: [f64; 2]) -> [f64; 3] {
     [d[0] + d[1], -d[0], -d[1]]
 }
 
 impl<'a> PairSystem<'a> {
+    /// The terminals of the P (`side` 0) or M (`side` 1) transistor.
+    fn terminals(internal_collector: [usize; 2], side: usize) -> Terminals {
+        Terminals {
+            base: [B_P, B_M][side],
+            emitter: [E_P, E_M][side],
+            collector: [C_P, C_M][side],
+            internal_collector: internal_collector[side],
+            tail: TAIL,
+        }
+    }
+
     /// The stage `circuit` driven by `drive`; `whole` evaluates the whole core everywhere (for
     /// drives that saturate somewhere).
     pub fn new(circuit: &'a StageCircuit, drive: Drive, whole: bool) -> Self {
@@ -225,41 +414,33 @@ impl<'a> PairSystem<'a> {
         };
         let mut coupling = vec![0.0; unknowns * CHARGES];
         let tail_scale = 0.5 * (circuit.p.load_resistance + circuit.m.load_resistance);
-        let mut set =
-            |row: usize, charge: usize, value: f64| coupling[row * CHARGES + charge] = value;
-        for (side, b, e, c, ci, qbe, qbc, ql) in [
+        for (side, terminals, charges, ql) in [
             (
                 &circuit.p,
-                B_P,
-                E_P,
-                C_P,
-                internal_collector[0],
-                Q_BE_P,
-                Q_BC_P,
+                Self::terminals(internal_collector, 0),
+                [Q_BE_P, Q_BC_P],
                 Q_L_P,
             ),
             (
                 &circuit.m,
-                B_M,
-                E_M,
-                C_M,
-                internal_collector[1],
-                Q_BE_M,
-                Q_BC_M,
+                Self::terminals(internal_collector, 1),
+                [Q_BE_M, Q_BC_M],
                 Q_L_M,
             ),
         ] {
-            set(b, qbe, -side.base_path_resistance);
-            set(b, qbc, -side.base_path_resistance);
-            set(e, qbe, -side.emitter_resistance);
-            set(c, ql, side.load_resistance);
-            set(c, qbc, side.load_resistance);
-            if ci != c {
-                set(ci, qbc, side.collector_resistance);
-            }
-            set(TAIL, qbe, tail_scale);
+            let base_rows = [(terminals.base, side.base_path_resistance)];
+            couple_transistor(
+                side,
+                terminals,
+                charges,
+                &base_rows,
+                tail_scale,
+                CHARGES,
+                &mut coupling,
+            );
+            coupling[terminals.collector * CHARGES + ql] = side.load_resistance;
         }
-        set(TAIL, Q_T, -tail_scale);
+        coupling[TAIL * CHARGES + Q_T] = -tail_scale;
         PairSystem {
             circuit,
             drive,
@@ -318,23 +499,54 @@ impl<'a> PairSystem<'a> {
     }
 }
 
-impl ChargeSystem for PairSystem<'_> {
+/// A residual vector and its row-major Jacobian, written by one evaluation.
+pub struct Linearised<'a> {
+    /// Values (residuals or charges).
+    pub value: &'a mut [f64],
+    /// Their derivatives with respect to the unknowns.
+    pub jacobian: &'a mut [f64],
+}
+
+/// A circuit of transistors in charge-based form whose device currents are evaluated once per
+/// state and shared by the resistive part and the charges; every such circuit is a
+/// [`ChargeSystem`].
+pub trait TransistorCircuit {
+    /// Every transistor's currents at a state.
+    type Currents;
+    /// Numbers of unknowns and of charges.
+    fn sizes(&self) -> (usize, usize);
+    /// Every transistor's currents at `x`.
+    fn currents(&self, x: &[f64]) -> Self::Currents;
+    /// The resistive part `f(x, t)` and its Jacobian, from the currents at `x`.
+    fn resistive_with(&self, currents: &Self::Currents, x: &[f64], time_s: f64, out: Linearised);
+    /// The charges `q(x)` and their Jacobian, from the currents at `x`.
+    fn charge_with(&self, currents: &Self::Currents, x: &[f64], out: Linearised);
+    /// The constant coupling of the charges' currents into the equations (unknowns × charges).
+    fn charge_coupling(&self) -> &[f64];
+    /// Junction limiting of a Newton step (see [`junction_step_fraction`]).
+    fn limit_step(&self, x: &[f64], dx: &[f64]) -> f64;
+    /// The impedance converting a charge current to volts for the steady-state criterion.
+    fn tail_scale(&self) -> f64;
+}
+
+impl<T: TransistorCircuit> ChargeSystem for T {
     fn unknowns(&self) -> usize {
-        self.unknowns
+        self.sizes().0
     }
 
     fn charges(&self) -> usize {
-        CHARGES
+        self.sizes().1
     }
 
     fn resistive(&self, x: &[f64], time_s: f64, f: &mut [f64], jacobian: &mut [f64]) {
-        let sides = self.sides(x);
-        self.resistive_with(&sides, x, time_s, f, jacobian);
+        let currents = self.currents(x);
+        let out = Linearised { value: f, jacobian };
+        self.resistive_with(&currents, x, time_s, out);
     }
 
     fn charge(&self, x: &[f64], q: &mut [f64], jacobian: &mut [f64]) {
-        let sides = self.sides(x);
-        self.charge_with(&sides, x, q, jacobian);
+        let currents = self.currents(x);
+        self.charge_with(&currents, x, Linearised { value: q, jacobian });
     }
 
     fn evaluate(
@@ -346,13 +558,21 @@ impl ChargeSystem for PairSystem<'_> {
         q: &mut [f64],
         q_jacobian: &mut [f64],
     ) {
-        let sides = self.sides(x);
-        self.resistive_with(&sides, x, time_s, f, f_jacobian);
-        self.charge_with(&sides, x, q, q_jacobian);
+        let currents = self.currents(x);
+        let resistive = Linearised {
+            value: f,
+            jacobian: f_jacobian,
+        };
+        self.resistive_with(&currents, x, time_s, resistive);
+        let charges = Linearised {
+            value: q,
+            jacobian: q_jacobian,
+        };
+        self.charge_with(&currents, x, charges);
     }
 
     fn coupling(&self) -> &[f64] {
-        &self.coupling
+        self.charge_coupling()
     }
 
     fn step_fraction(&self, x: &[f64], dx: &[f64]) -> f64 {
@@ -360,14 +580,19 @@ impl ChargeSystem for PairSystem<'_> {
     }
 
     fn current_scale(&self) -> f64 {
-        self.tail_scale
+        self.tail_scale()
     }
 }
 
-impl PairSystem<'_> {
-    /// Both sides' currents at a state (P, M), evaluated once for the resistive part and
-    /// the charges.
-    fn sides(&self, x: &[f64]) -> [SideCurrents; 2] {
+impl TransistorCircuit for PairSystem<'_> {
+    type Currents = [SideCurrents; 2];
+
+    fn sizes(&self) -> (usize, usize) {
+        (self.unknowns, CHARGES)
+    }
+
+    /// Both sides' currents at a state (P, M).
+    fn currents(&self, x: &[f64]) -> [SideCurrents; 2] {
         let c = self.circuit;
         let phi = c.thermal_voltage;
         let [ci_p, ci_m] = self.internal_collector;
@@ -377,14 +602,8 @@ impl PairSystem<'_> {
         ]
     }
 
-    fn resistive_with(
-        &self,
-        sides: &[SideCurrents; 2],
-        x: &[f64],
-        time_s: f64,
-        f: &mut [f64],
-        jacobian: &mut [f64],
-    ) {
+    fn resistive_with(&self, sides: &[SideCurrents; 2], x: &[f64], time_s: f64, out: Linearised) {
+        let Linearised { value: f, jacobian } = out;
         let c = self.circuit;
         let v_d = self.drive.differential_v(time_s);
         jacobian.fill(0.0);
@@ -392,149 +611,51 @@ impl PairSystem<'_> {
         let st = self.tail_scale;
         f[TAIL] = -st * (c.tail_current + c.tail_conductance * x[TAIL]);
         jacobian[TAIL * n + TAIL] = -st * c.tail_conductance;
-        for (side, s, sign, b, e, col, ci) in [
-            (
-                &c.p,
-                &sides[0],
-                0.5,
-                B_P,
-                E_P,
-                C_P,
-                self.internal_collector[0],
-            ),
-            (
-                &c.m,
-                &sides[1],
-                -0.5,
-                B_M,
-                E_M,
-                C_M,
-                self.internal_collector[1],
-            ),
-        ] {
-            let v_in = c.input_common_mode + sign * v_d;
-            let (d_collector, d_base) = (s.d_collector, s.d_base);
-            let nodes = [b, e, ci];
-            f[b] = v_in - x[b] - side.base_path_resistance * s.base;
+        for (k, (side, sign)) in [(&c.p, 0.5), (&c.m, -0.5)].into_iter().enumerate() {
+            let t = Self::terminals(self.internal_collector, k);
+            let (b, col) = (t.base, t.collector);
+            f[b] = c.input_common_mode + sign * v_d - x[b];
             jacobian[b * n + b] -= 1.0;
-            // An emitter-lead source e (the split tail's source difference) lowers the
-            // transistor's emitter below the resistor's drop.
-            f[e] = x[e] - x[TAIL] - side.emitter_resistance * (s.collector + s.base)
-                + side.emitter_source_v;
-            jacobian[e * n + e] += 1.0;
-            jacobian[e * n + TAIL] -= 1.0;
-            f[col] = side.load_top_v(c.supply) - x[col] - side.load_resistance * s.collector;
+            f[col] = side.load_top_v(c.supply) - x[col];
             jacobian[col * n + col] -= 1.0;
-            if ci != col {
-                f[ci] = x[col] - x[ci] - side.collector_resistance * s.collector;
-                jacobian[ci * n + col] += 1.0;
-                jacobian[ci * n + ci] -= 1.0;
-            }
-            f[TAIL] += st * (s.collector + s.base);
-            for (k, &node) in nodes.iter().enumerate() {
-                jacobian[b * n + node] -= side.base_path_resistance * d_base[k];
-                jacobian[e * n + node] -= side.emitter_resistance * (d_collector[k] + d_base[k]);
-                jacobian[col * n + node] -= side.load_resistance * d_collector[k];
-                if ci != col {
-                    jacobian[ci * n + node] -= side.collector_resistance * d_collector[k];
-                }
-                jacobian[TAIL * n + node] += st * (d_collector[k] + d_base[k]);
-            }
+            let base_rows = [(b, side.base_path_resistance)];
+            stamp_transistor(side, &sides[k], t, &base_rows, x, n, st, f, jacobian);
         }
     }
 
-    fn charge_with(
-        &self,
-        sides: &[SideCurrents; 2],
-        x: &[f64],
-        q: &mut [f64],
-        jacobian: &mut [f64],
-    ) {
+    fn charge_with(&self, sides: &[SideCurrents; 2], x: &[f64], out: Linearised) {
+        let Linearised { value: q, jacobian } = out;
         let c = self.circuit;
         let ch = &c.charge;
         let n = self.unknowns;
         jacobian.fill(0.0);
-        let matched = crate::model::circuit::ChargeScale::MATCHED;
-        for (s, scale, b, e, col, ci, qbe, qbc, ql) in [
-            (
-                &sides[0],
-                &c.p_charge_scale,
-                B_P,
-                E_P,
-                C_P,
-                self.internal_collector[0],
-                Q_BE_P,
-                Q_BC_P,
-                Q_L_P,
-            ),
-            (
-                &sides[1],
-                &matched,
-                B_M,
-                E_M,
-                C_M,
-                self.internal_collector[1],
-                Q_BE_M,
-                Q_BC_M,
-                Q_L_M,
-            ),
-        ] {
-            let (junction, capacitance) = depletion_charge(
-                x[b] - x[e],
-                ch.emitter_junction_capacitance * scale.emitter_junction_capacitance,
-                ch.emitter_junction_potential,
-                ch.emitter_grading,
-            );
-            let transit_time = ch.transit_time * scale.transit_time;
-            q[qbe] = transit_time * s.forward_diffusion + junction;
-            for (k, &node) in [b, e, ci].iter().enumerate() {
-                jacobian[qbe * n + node] += transit_time * s.d_forward_diffusion[k];
-            }
-            jacobian[qbe * n + b] += capacitance;
-            jacobian[qbe * n + e] -= capacitance;
-            let (junction, capacitance) = depletion_charge(
-                x[b] - x[ci],
-                ch.collector_junction_capacitance * scale.collector_junction_capacitance,
-                ch.collector_junction_potential,
-                ch.collector_grading,
-            );
-            q[qbc] = ch.reverse_transit_time * s.reverse_transport + junction;
-            let reverse_diffusion = ch.reverse_transit_time * s.d_reverse_transport;
-            jacobian[qbc * n + b] += capacitance + reverse_diffusion;
-            jacobian[qbc * n + ci] -= capacitance + reverse_diffusion;
+        let matched = ChargeScale::MATCHED;
+        for (k, (scale, ql)) in [(&c.p_charge_scale, Q_L_P), (&matched, Q_L_M)]
+            .into_iter()
+            .enumerate()
+        {
+            let t = Self::terminals(self.internal_collector, k);
+            let charges = [[Q_BE_P, Q_BC_P], [Q_BE_M, Q_BC_M]][k];
+            transistor_charges(&sides[k], ch, scale, t, charges, x, n, q, jacobian);
             let load_capacitance = c.load_capacitance * scale.load_capacitance;
-            q[ql] = load_capacitance * (c.supply - x[col]);
-            jacobian[ql * n + col] = -load_capacitance;
+            q[ql] = load_capacitance * (c.supply - x[t.collector]);
+            jacobian[ql * n + t.collector] = -load_capacitance;
         }
         q[Q_T] = c.tail_capacitance * x[TAIL];
         jacobian[Q_T * n + TAIL] = c.tail_capacitance;
     }
 
     fn limit_step(&self, x: &[f64], dx: &[f64]) -> f64 {
-        // Junction limiting: no base-emitter voltage moves by more than 8·φT per iteration
-        // (keeps the exponentials finite far from the solution), nor a base-collector voltage
-        // that is or would become forward-biased; no node by more than 1 V.
-        let limit = 8.0 * self.circuit.thermal_voltage;
-        let junction = (dx[B_P] - dx[E_P]).abs().max((dx[B_M] - dx[E_M]).abs());
-        let node = dx.iter().fold(0.0f64, |a, v| a.max(v.abs()));
-        let mut fraction: f64 = 1.0;
-        if junction > limit {
-            fraction = fraction.min(limit / junction);
-        }
-        for (b, ci) in [
-            (B_P, self.internal_collector[0]),
-            (B_M, self.internal_collector[1]),
-        ] {
-            let change = dx[b] - dx[ci];
-            let now = x[b] - x[ci];
-            if change.abs() > limit && now.max(now + change) > 0.0 {
-                fraction = fraction.min(limit / change.abs());
-            }
-        }
-        if node > 1.0 {
-            fraction = fraction.min(1.0 / node);
-        }
-        fraction
+        let transistors = (0..2).map(|k| Self::terminals(self.internal_collector, k));
+        junction_step_fraction(self.circuit.thermal_voltage, transistors, x, dx)
+    }
+
+    fn charge_coupling(&self) -> &[f64] {
+        &self.coupling
+    }
+
+    fn tail_scale(&self) -> f64 {
+        self.tail_scale
     }
 }
 
