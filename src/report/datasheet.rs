@@ -51,7 +51,14 @@ pub enum Block {
 /// Fixed-decimal number, or a dash when absent.
 fn fixed(value: Option<f64>, decimals: usize) -> String {
     match value {
-        Some(v) if v.is_finite() => format!("{v:.decimals$}"),
+        Some(v) if v.is_finite() => {
+            let text = format!("{v:.decimals$}");
+            // A value that rounds to zero is zero, not "-0.00".
+            match text.strip_prefix('-') {
+                Some(rest) if rest.chars().all(|c| c == '0' || c == '.') => rest.to_owned(),
+                _ => text,
+            }
+        }
         _ => "—".into(),
     }
 }
@@ -1213,4 +1220,39 @@ fn amplitude_picks(n: usize) -> Vec<usize> {
     let mut picks: Vec<usize> = (0..4).map(|k| k * (n - 1) / 3).collect();
     picks.dedup();
     picks
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A figure that rounds to zero reads "0.00", never "-0.00" (a perfectly matched pair's
+    /// offset is zero, not negative); other values keep their sign and decimals.
+    #[test]
+    fn a_rounded_zero_has_no_sign() {
+        assert_eq!(fixed(Some(-1e-9), 2), "0.00");
+        assert_eq!(fixed(Some(-0.004), 2), "0.00");
+        assert_eq!(fixed(Some(-0.006), 2), "-0.01");
+        assert_eq!(fixed(Some(12.345), 1), "12.3");
+        assert_eq!(fixed(None, 2), "—");
+    }
+
+    /// More than eight values become count, ends and spacing; a few are listed in full.
+    #[test]
+    fn long_sweeps_are_summarised() {
+        let log: Vec<f64> = (0..13).map(|k| 1e-3 * 10f64.powf(k as f64 / 4.0)).collect();
+        assert_eq!(
+            sweep_summary(&log, "V", "amplitudes"),
+            "13 amplitudes, 1 mV … 1 V, log-spaced"
+        );
+        let even: Vec<f64> = (1..=10).map(|k| 0.01 * k as f64).collect();
+        assert_eq!(
+            sweep_summary(&even, "V", "amplitudes"),
+            "10 amplitudes, 10 mV … 100 mV, evenly spaced"
+        );
+        assert_eq!(
+            sweep_summary(&[1e-3, 2e-3], "V", "amplitudes"),
+            "1 mV, 2 mV"
+        );
+    }
 }
