@@ -426,3 +426,323 @@ fn margins_name_their_own_unit_in_the_report_and_the_figure_key() {
         "{yield_row}"
     );
 }
+
+/// A stage whose budget has a line with a long name (a collector-base margin at an amplitude)
+/// and two temperatures, for the checks of what a figure draws near its edges.
+const LONG_LABEL_PLAN: &str = "name: long-label
+temperatures_c: [-10, 70]
+stages:
+  - name: low-supply
+    tail_current: 1 mA
+    load_resistance: 2.2k
+    emitter_resistance: 47
+    supply: 3 V
+    input_common_mode: 1.2 V
+    transistor: {beta: 100}
+drive:
+  amplitudes: [20 mV, 120 mV]
+  frequencies: [10 kHz]
+budget:
+  - {metric: hd3, at: 120 mV, max: -40}
+  - {metric: collector_base_margin, at: 120 mV, min: 200 mV}
+";
+
+fn run_text(plan_text: &str) -> (tempfile::TempDir, Report, PathBuf) {
+    let dir = tempfile::tempdir().unwrap();
+    let plan = dir.path().join("plan.yaml");
+    fs::write(&plan, plan_text).unwrap();
+    let options = RunOptions {
+        plan,
+        out: dir.path().join("out"),
+        json: false,
+        quiet: true,
+        max_work: DEFAULT_MAX_WORK,
+        figures: true,
+        as_planned: false,
+        overrides: Vec::new(),
+    };
+    let outcome = run(&options, &|_| {}).expect("the plan runs");
+    (dir, outcome.report, outcome.folder)
+}
+
+/// Columns of a PNG (from its left edge when `left`) holding anything but the white paper.
+fn inked_columns(png: &std::path::Path, strip: u32, left: bool) -> Vec<u32> {
+    let image = image::open(png).unwrap().to_rgb8();
+    let (width, height) = image.dimensions();
+    let columns: Vec<u32> = if left {
+        (0..strip).collect()
+    } else {
+        (width - strip..width).collect()
+    };
+    columns
+        .into_iter()
+        .filter(|&x| (0..height).any(|y| image.get_pixel(x, y).0 != [255, 255, 255]))
+        .collect()
+}
+
+/// No label runs off a figure: the house frame keeps 28 px of paper at the left (where the
+/// margins figure's row labels once started outside the picture, "tor base margin ≥ …") and
+/// 14 px at the right of the key panel, so those strips must stay blank in every PNG.
+#[test]
+fn no_figure_text_runs_off_an_edge() {
+    let (_dir, _report, folder) = run_text(LONG_LABEL_PLAN);
+    let (_review_dir, _review, review_folder) = review();
+    let mut seen = 0;
+    for folder in [folder, review_folder] {
+        for entry in fs::read_dir(&folder).unwrap() {
+            let path = entry.unwrap().path();
+            if path.extension().is_some_and(|e| e == "png") {
+                seen += 1;
+                assert!(
+                    inked_columns(&path, 20, true).is_empty(),
+                    "{}: ink in the left margin",
+                    path.display()
+                );
+                assert!(
+                    inked_columns(&path, 8, false).is_empty(),
+                    "{}: ink in the right margin",
+                    path.display()
+                );
+            }
+        }
+    }
+    assert!(seen > 10, "{seen} figures checked");
+}
+
+/// The fill colour of the key swatch drawn just before the key label that starts with
+/// `label` in an SVG figure (the key panel is the rightmost part of the figure).
+fn key_colour(svg: &str, label: &str) -> Option<String> {
+    let mut last_fill: Option<String> = None;
+    for element in svg.split('<').skip(1) {
+        let tag = &element[..element.find('>').unwrap_or(element.len())];
+        if tag.starts_with("text") {
+            let x: f64 = tag
+                .split("x=\"")
+                .nth(1)
+                .and_then(|r| r.split('"').next())
+                .and_then(|v| v.parse().ok())
+                .unwrap_or(0.0);
+            let content = element[element.find('>').map_or(0, |i| i + 1)..].trim();
+            let in_key = x >= f64::from(plots::WIDTH_PX - plots::key::KEY_PX);
+            if in_key && content.starts_with(label) {
+                return last_fill;
+            }
+        } else if let Some(fill) = tag
+            .split("fill=\"")
+            .nth(1)
+            .and_then(|r| r.split('"').next())
+        {
+            if fill.starts_with('#') && fill != "#FFFFFF" {
+                last_fill = Some(fill.to_owned());
+            }
+        }
+    }
+    None
+}
+
+/// One temperature, one colour: the margins figure (bars by temperature) and the spectrum
+/// (stems by temperature) give each temperature the same colour, and different temperatures
+/// different colours.
+#[test]
+fn a_temperature_has_one_colour_in_every_figure_kind() {
+    let (_dir, _report, folder) = run_text(LONG_LABEL_PLAN);
+    let margins = fs::read_to_string(folder.join("margins-low-supply.svg")).unwrap();
+    let spectrum = fs::read_to_string(folder.join("spectrum-low-supply.svg")).unwrap();
+    let mut colours = Vec::new();
+    for t in ["−10 °C", "70 °C"] {
+        let in_margins = key_colour(&margins, t);
+        let in_spectrum = key_colour(&spectrum, t);
+        assert!(in_margins.is_some(), "{t} in the margins key");
+        assert_eq!(in_margins, in_spectrum, "{t}: margins and spectrum");
+        colours.push(in_margins);
+    }
+    assert_ne!(colours[0], colours[1], "two temperatures, two colours");
+}
+
+/// Every metric drawn as bench markers is named in the figure's key, even when the model's
+/// own line for it is absent (the tide logger's bench HD2, from a mismatch the nominal stage
+/// lacks, once had no key entry).
+#[test]
+fn every_bench_metric_in_a_harmonics_figure_is_in_its_key() {
+    let plan = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("specs/tide-logger-bench-fit.yaml");
+    let dir = tempfile::tempdir().unwrap();
+    let options = RunOptions {
+        plan,
+        out: dir.path().join("out"),
+        json: false,
+        quiet: true,
+        max_work: DEFAULT_MAX_WORK,
+        figures: false,
+        as_planned: false,
+        overrides: Vec::new(),
+    };
+    let report = run(&options, &|_| {}).expect("the demo runs").report;
+    let sketches = plots::sketches(&report);
+    for (stem, stage) in [
+        ("harmonics-input-pair", "input-pair"),
+        ("harmonics-input-pair-fitted", "input-pair@fitted"),
+    ] {
+        let sketch = sketches.iter().find(|s| s.stem() == stem).unwrap();
+        let legend: Vec<String> = sketch
+            .key()
+            .legend
+            .iter()
+            .map(|e| e.label.clone())
+            .collect();
+        let measured: BTreeSet<&str> = report
+            .residuals
+            .iter()
+            .filter(|r| r.stage == stage && r.metric.starts_with("hd"))
+            .map(|r| r.metric.as_str())
+            .collect();
+        assert!(measured.contains("hd2"), "{stem}: the bench has HD2");
+        for metric in measured {
+            let name = metric.to_uppercase();
+            assert!(
+                legend.iter().any(|l| l.starts_with(&name)),
+                "{stem}: bench {name} drawn with no key entry: {legend:?}"
+            );
+        }
+    }
+}
+
+/// The HTML outside its inline figures (the SVGs carry their own text layout).
+fn html_prose(html: &str) -> String {
+    let mut prose = String::new();
+    let mut rest = html;
+    while let Some(start) = rest.find("<svg") {
+        prose.push_str(&rest[..start]);
+        rest = rest[start..]
+            .find("</svg>")
+            .map_or("", |end| &rest[start + end + 6..]);
+    }
+    prose.push_str(rest);
+    prose
+}
+
+/// The HTML report reads as a datasheet: a number keeps its unit on its line (no ordinary
+/// space between `27` and `°C` or `20` and `mV`, common practice in typesetting), the budget
+/// table's operating-region column names the region only (the collector-base detail is one
+/// note under the table), and no metric or topology appears in code case.
+#[test]
+fn html_tables_keep_units_with_numbers_and_cells_short() {
+    let (_dir, report, folder) = review();
+    let html = fs::read_to_string(folder.join("report.html")).unwrap();
+    let prose = html_prose(&html);
+    for unit in [" °C", " mV", " kHz", " dBc", " dB ", " nV/"] {
+        for (at, _) in prose.match_indices(unit) {
+            let before = prose[..at].chars().last().unwrap();
+            assert!(
+                !before.is_ascii_digit(),
+                "a breakable space before{unit}: …{}…",
+                &prose[at.saturating_sub(40)..at + 10]
+            );
+        }
+    }
+    assert!(
+        !prose.contains("nV/√Hz"),
+        "a noise unit may break after its slash"
+    );
+    let budget = prose
+        .split("<table>")
+        .find(|t| t.contains("<th>operating region</th>"))
+        .expect("the budget table");
+    let rows = budget.matches("<tr>").count() - 1;
+    assert_eq!(rows, report.budget.len());
+    let last_cells: Vec<&str> = budget
+        .split("</tr>")
+        .filter(|row| row.contains("<td"))
+        .filter_map(|row| row.rsplit("<td").next())
+        .filter_map(|cell| cell.split('>').nth(1))
+        .map(|cell| cell.trim_end_matches("</td"))
+        .collect();
+    assert_eq!(last_cells.len(), report.budget.len());
+    for (cell, record) in last_cells.iter().zip(&report.budget) {
+        assert_eq!(*cell, record.region.name(), "region name only");
+    }
+    assert!(prose.contains("The least collector-base reverse bias over these checks is"));
+    // A region name never breaks at its hyphen ("forward-" / "active").
+    assert!(prose.contains("td.num, td.unbroken { white-space: nowrap; }"));
+    assert_eq!(
+        budget.matches("unbroken\">").count(),
+        report.budget.len(),
+        "every region cell is kept on one line"
+    );
+    for code_case in ["input_noise", "emitter_resistors", "collector_base_margin<"] {
+        assert!(!prose.contains(code_case), "{code_case} in the HTML");
+    }
+}
+
+/// A long sweep is summarised in the conditions (count, ends, spacing) while report.json keeps
+/// every amplitude.
+#[test]
+fn a_long_sweep_is_summarised_in_the_html_and_kept_whole_in_the_json() {
+    let plan = "name: long-sweep
+temperatures_c: [27]
+stages:
+  - {name: pair, tail_current: 1 mA, load_resistance: 2k, emitter_resistance: 100, supply: 5 V,
+     input_common_mode: 2 V, transistor: {beta: 100}}
+drive:
+  amplitudes: {from: 1 mV, to: 1 V, points: 13, spacing: log}
+  frequencies: [10 kHz]
+";
+    let (_dir, report, folder) = run_text(plan);
+    let html = fs::read_to_string(folder.join("report.html")).unwrap();
+    assert!(
+        html.contains("13 amplitudes, 1&nbsp;mV … 1&nbsp;V, log-spaced"),
+        "{}",
+        html.lines()
+            .find(|l| l.contains("Drive amplitudes"))
+            .unwrap_or("")
+    );
+    let mut amplitudes: Vec<f64> = report.points.iter().map(|p| p.amplitude_v).collect();
+    amplitudes.sort_by(f64::total_cmp);
+    amplitudes.dedup();
+    assert_eq!(amplitudes.len(), 13, "report.json keeps every amplitude");
+}
+
+/// The datasheet gives a quantity in volts with the prefix that suits it: a row whose values
+/// reach 1 V reads in V (the schemes demo's resistor stages have IIP3 above 1 V, once printed
+/// as 1251.1 mV).
+#[test]
+fn datasheet_rows_in_millivolts_stay_below_a_volt() {
+    let plan = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("specs/sediment-sonar-schemes.yaml");
+    let dir = tempfile::tempdir().unwrap();
+    let options = RunOptions {
+        plan,
+        out: dir.path().join("out"),
+        json: false,
+        quiet: true,
+        max_work: DEFAULT_MAX_WORK,
+        figures: false,
+        as_planned: false,
+        overrides: Vec::new(),
+    };
+    let outcome = run(&options, &|_| {}).expect("the demo runs");
+    assert!(
+        outcome
+            .report
+            .intercepts
+            .iter()
+            .any(|i| i.iip3_v.is_some_and(|v| v > 1.0)),
+        "the demo has an IIP3 above 1 V"
+    );
+    let markdown = fs::read_to_string(outcome.folder.join("report.md")).unwrap();
+    let mut volts_rows = 0;
+    for line in markdown.lines().filter(|l| l.contains(" IIP3 |")) {
+        let cells: Vec<&str> = line.split('|').map(str::trim).collect();
+        // | parameter | symbol | conditions | min | typ | max | unit | min / max at |
+        let unit = cells[7];
+        let values: Vec<f64> = cells[4..7]
+            .iter()
+            .filter_map(|c| c.replace('−', "-").parse().ok())
+            .collect();
+        if unit == "mV" {
+            assert!(values.iter().all(|v| v.abs() < 1000.0), "{line}");
+        }
+        if unit == "V" {
+            volts_rows += 1;
+        }
+    }
+    assert!(volts_rows > 0, "IIP3 above 1 V reads in V");
+}

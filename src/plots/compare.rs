@@ -140,27 +140,29 @@ impl Drawing for ComparisonPlot {
     }
     fn key(&self) -> Key {
         let mut key = Key::default();
+        // Colour names the stage, line and marker the curve: one entry per stage and one per
+        // curve (a stage's HD3 and another's differ by colour alone, so they are not listed
+        // as pairs a reader would have to tell apart).
         for stage in &self.stages {
-            let colour = self.colour(stage);
             key.entry(
-                Swatch::line(colour, 3, None),
-                format!("{stage}: transfer (left)"),
-            );
-            key.entry(
-                Swatch::line(colour, 3, Some(Marker::Circle)),
-                format!("{stage}: HD3 (right)"),
-            );
-            key.entry(
-                Swatch::Line {
-                    colour,
-                    alpha: 1.0,
-                    width: 3,
-                    pattern: pattern(1),
-                    marker: Some(Marker::Square),
+                Swatch::Chip {
+                    colour: self.colour(stage),
                 },
-                format!("{stage}: THD (right)"),
+                stage.clone(),
             );
         }
+        key.entry(Swatch::line(INK, 3, None), "transfer (left)");
+        key.entry(Swatch::line(INK, 3, Some(Marker::Circle)), "HD3 (right)");
+        key.entry(
+            Swatch::Line {
+                colour: INK,
+                alpha: 1.0,
+                width: 3,
+                pattern: pattern(1),
+                marker: Some(Marker::Square),
+            },
+            "THD (right)",
+        );
         for (shape, metric) in ["hd3", "thd"].iter().enumerate() {
             if self.bench.iter().any(|b| b.metric == *metric) {
                 key.entry(

@@ -92,7 +92,8 @@ impl FrequencyPlot {
                 .iter()
                 .any(|c| c.metric == metric && c.amplitude_v == amplitude_v)
             {
-                let marker = Marker::nth(curves.len());
+                // Its marker is settled once every curve is known (below).
+                let marker = metric_marker(metric);
                 curves.push(Curve {
                     metric: metric.to_owned(),
                     amplitude_v,
@@ -107,6 +108,29 @@ impl FrequencyPlot {
             if let (true, Some(at)) = (is_left_line(&l.line().metric), l.line().at_v) {
                 if let Some(a) = nearest(at) {
                     add(&l.line().metric, a);
+                }
+            }
+        }
+        // Each metric's first curve keeps the metric's own marker (as in every figure: IM3 a
+        // triangle, never the intercept's plus); a second amplitude of a metric (same colour)
+        // takes a shape no other curve nor the intercept has.
+        let mut taken: Vec<Marker> = curves.iter().map(|c| c.marker).collect();
+        taken.push(metric_marker("iip3"));
+        for k in 0..curves.len() {
+            if curves[..k].iter().any(|c| c.metric == curves[k].metric) {
+                let spare = [
+                    Marker::Circle,
+                    Marker::Square,
+                    Marker::Triangle,
+                    Marker::Diamond,
+                    Marker::Down,
+                    Marker::Hexagon,
+                ]
+                .into_iter()
+                .find(|m| !taken.contains(m));
+                if let Some(m) = spare {
+                    curves[k].marker = m;
+                    taken.push(m);
                 }
             }
         }
@@ -245,7 +269,7 @@ impl Drawing for FrequencyPlot {
                     alpha: 1.0,
                     width: 3,
                     pattern: pattern(0),
-                    marker: Some(Marker::Diamond),
+                    marker: Some(metric_marker("iip3")),
                 },
                 "IIP3 (right axis)",
             );
@@ -416,7 +440,7 @@ impl Drawing for FrequencyPlot {
             }
             chart.draw_secondary_series(iip3.into_iter().map(|c| {
                 EmptyElement::at(c)
-                    + Marker::Diamond.element((0, 0), colour.mix(1.0))
+                    + metric_marker("iip3").element((0, 0), colour.mix(1.0))
                     + Circle::new((0, 0), 2, PAPER.filled())
             }))?;
         }

@@ -86,6 +86,9 @@ impl Series {
     }
 }
 
+/// Opacity of a metric's band over every corner and temperature.
+const CORNER_BAND_ALPHA: f64 = 0.16;
+
 /// The harmonics figure of one stage at one frequency.
 pub struct HarmonicsPlot {
     stage: String,
@@ -518,9 +521,9 @@ impl Drawing for HarmonicsPlot {
                     .map(String::as_str)
                     .collect();
                 key.entry(
-                    Swatch::Band {
+                    Swatch::Outline {
                         colour: metric_colour(&series.metric),
-                        alpha: 0.16,
+                        fill: CORNER_BAND_ALPHA,
                     },
                     format!(
                         "{} over every corner ({}, typical) and temperature",
@@ -531,10 +534,12 @@ impl Drawing for HarmonicsPlot {
             }
         }
         for band in self.region_bands(self.x.high) {
+            // The pale fill with its onset edge in the full colour: two regions' fills alone
+            // are too pale to tell apart.
             key.entry(
-                Swatch::Band {
+                Swatch::Outline {
                     colour: band.colour,
-                    alpha: REGION_ALPHA,
+                    fill: REGION_ALPHA,
                 },
                 self.band_words(&band),
             );
@@ -542,6 +547,23 @@ impl Drawing for HarmonicsPlot {
         key.temperatures(&self.temps);
         if !self.bench.is_empty() {
             bench_key(&mut key, &self.temps);
+            // A metric drawn only as bench markers (its model value is below the floor at
+            // every point) has no line to name its colour: a chip does.
+            for series in &self.series {
+                if self.missing.contains(&series.label)
+                    && self.bench.iter().any(|b| b.metric == series.metric)
+                {
+                    key.entry(
+                        Swatch::Chip {
+                            colour: metric_colour(&series.metric),
+                        },
+                        format!(
+                            "{}: bench only (the model's is below the analysis floor)",
+                            series.label
+                        ),
+                    );
+                }
+            }
         }
         if !self.lines.is_empty() {
             key.verdict_heading = format!("Budget at {}", si_exact(self.frequency_hz, "Hz"));
@@ -627,8 +649,14 @@ impl Drawing for HarmonicsPlot {
                     .map(|(a, lo, _)| (*a, lo.clamp(y_low, y_high))),
             );
             chart.draw_series(std::iter::once(Polygon::new(
+                outline.clone(),
+                colour.mix(CORNER_BAND_ALPHA).filled(),
+            )))?;
+            // Edged in the metric's colour: pale fills alone look alike where they overlap.
+            outline.push(outline[0]);
+            chart.draw_series(std::iter::once(PathElement::new(
                 outline,
-                colour.mix(0.16).filled(),
+                colour.mix(0.8).stroke_width(1),
             )))?;
         }
 

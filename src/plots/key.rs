@@ -38,6 +38,13 @@ pub enum Swatch {
         /// Opacity, 0–1.
         alpha: f64,
     },
+    /// A bar drawn as an outline in its full colour over a lighter fill (or none).
+    Outline {
+        /// Colour of the outline (and of the fill, at `fill` opacity).
+        colour: RGBColor,
+        /// Opacity of the fill, 0–1 (0: outline only).
+        fill: f64,
+    },
     /// A hatched forbidden region bounded by its limit line.
     Mask {
         /// Colour of the hatching and the limit line.
@@ -70,6 +77,12 @@ pub enum Swatch {
         colour: RGBColor,
         /// Marker.
         marker: Marker,
+    },
+    /// A colour chip: what a colour names when no one line carries it (a stage in the
+    /// comparison, a metric drawn only as bench markers).
+    Chip {
+        /// Colour.
+        colour: RGBColor,
     },
     /// The intercept's ring.
     Ring,
@@ -168,18 +181,96 @@ impl Key {
         }
     }
 
-    /// Pairs of legend entries whose swatches look alike, by index (should be empty).
+    /// Pairs of legend entries a reader could confuse, by index (should be empty).
+    ///
+    /// Two entries are told apart by colour (CIE 1976 ΔE*ab of at least
+    /// [`DISTINCT_DELTA_E`] after each is laid over the white paper at its opacity), by
+    /// marker, by line pattern or by the kind of swatch. Lines drawn with markers (one
+    /// metric each) must differ in marker; and two of different colours must differ clearly
+    /// in colour too (the same colour is one metric at another amplitude, which the marker
+    /// alone tells apart).
     pub fn look_alike(&self) -> Vec<(usize, usize)> {
         let mut pairs = Vec::new();
         for i in 0..self.legend.len() {
             for j in i + 1..self.legend.len() {
-                if self.legend[i].swatch == self.legend[j].swatch {
+                let (a, b) = (&self.legend[i].swatch, &self.legend[j].swatch);
+                if a == b || confusable(a, b) {
                     pairs.push((i, j));
                 }
             }
         }
         pairs
     }
+}
+
+/// Least CIE 1976 colour difference between two legend entries told apart by colour: well
+/// above the just-noticeable difference (about 2.3), since a swatch is small and a line thin.
+pub const DISTINCT_DELTA_E: f64 = 20.0;
+
+/// What a reader sees of a swatch: its kind, colour (on white, at its opacity), marker and
+/// line pattern.
+fn appearance(swatch: &Swatch) -> (u8, RGBColor, Option<Marker>, Option<(i32, i32)>, bool) {
+    let on_paper = |c: RGBColor, alpha: f64| {
+        let mix = |v: u8| (f64::from(v) * alpha + 255.0 * (1.0 - alpha)).round() as u8;
+        RGBColor(mix(c.0), mix(c.1), mix(c.2))
+    };
+    match *swatch {
+        Swatch::Line {
+            colour,
+            alpha,
+            pattern,
+            marker,
+            ..
+        } => (
+            0,
+            on_paper(colour, alpha),
+            marker,
+            Some(pattern),
+            marker.is_some(),
+        ),
+        Swatch::Band { colour, alpha } => (1, on_paper(colour, alpha), None, None, false),
+        Swatch::Mask { colour } => (2, colour, None, None, false),
+        Swatch::Bar {
+            colour,
+            alpha,
+            pattern,
+            marker,
+        } => (
+            3,
+            on_paper(colour, alpha),
+            Some(marker),
+            Some(pattern),
+            false,
+        ),
+        Swatch::Verdict { pass } => (4, if pass { PASS } else { FAIL }, None, None, false),
+        Swatch::Hollow { colour } => (5, colour, None, None, false),
+        Swatch::Dot { colour, marker } => (13, colour, Some(marker), None, false),
+        Swatch::Ring => (6, INK, None, None, false),
+        Swatch::Chip { colour } => (11, colour, None, None, false),
+        // The outline carries the colour; the fill's opacity is the pattern.
+        Swatch::Outline { colour, fill } => (
+            12,
+            colour,
+            None,
+            Some(((fill * 100.0).round() as i32, 0)),
+            false,
+        ),
+        Swatch::Open { index, colour } => (7 + (index % 4) as u8, colour, None, None, false),
+    }
+}
+
+/// Whether two different swatches could be taken for one another (see [`Key::look_alike`]).
+fn confusable(a: &Swatch, b: &Swatch) -> bool {
+    let (kind_a, colour_a, marker_a, pattern_a, series_a) = appearance(a);
+    let (kind_b, colour_b, marker_b, pattern_b, series_b) = appearance(b);
+    let difference = colour_difference(colour_a, colour_b);
+    if series_a && series_b {
+        return marker_a == marker_b || (difference > 1.0 && difference < DISTINCT_DELTA_E);
+    }
+    kind_a == kind_b
+        && marker_a == marker_b
+        && pattern_a == pattern_b
+        && difference < DISTINCT_DELTA_E
 }
 
 /// Splits the figure body into the plot (left) and the key panel (right).
@@ -226,6 +317,16 @@ pub fn draw_swatch<DB: DrawingBackend>(
                 colour.mix(alpha).filled(),
             ))?;
         }
+        Swatch::Outline { colour, fill } => {
+            area.draw(&Rectangle::new(
+                [(x, y - 9), (x + 44, y + 9)],
+                colour.mix(fill).filled(),
+            ))?;
+            area.draw(&Rectangle::new(
+                [(x + 1, y - 8), (x + 43, y + 8)],
+                colour.stroke_width(2),
+            ))?;
+        }
         Swatch::Mask { colour } => {
             hatch_pixels(area, (x, y - 9), (x + 44, y + 9), colour)?;
             area.draw(&PathElement::new(
@@ -261,6 +362,12 @@ pub fn draw_swatch<DB: DrawingBackend>(
         }
         Swatch::Open { index, colour } => {
             area.draw(&open_marker(index, (x + 22, y), colour))?;
+        }
+        Swatch::Chip { colour } => {
+            area.draw(&Rectangle::new(
+                [(x + 12, y - 8), (x + 32, y + 8)],
+                colour.filled(),
+            ))?;
         }
         Swatch::Ring => {
             area.draw(&Circle::new((x + 22, y), 9, INK.stroke_width(3)))?;
@@ -360,8 +467,9 @@ pub fn hatch_pixels<DB: DrawingBackend>(
     Ok(())
 }
 
-/// Splits `text` into lines no wider than `width` px in `style`.
-fn wrap<DB: DrawingBackend>(
+/// Splits `text` into lines no wider than `width` px in `style` (a single word wider than
+/// `width` keeps a line of its own).
+pub fn wrap<DB: DrawingBackend>(
     area: &DrawingArea<DB, Shift>,
     text: &str,
     style: &TextStyle,

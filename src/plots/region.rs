@@ -417,7 +417,7 @@ fn front_panel<DB: DrawingBackend>(
     y_desc: &str,
     limit: Option<f64>,
     chosen_current: f64,
-    colour: RGBColor,
+    (colour, marker): (RGBColor, Marker),
 ) -> DrawResult {
     let mut chart =
         house_chart(area, 24, 96).build_cartesian_2d(x.log_range(), y.linear_range())?;
@@ -446,7 +446,7 @@ fn front_panel<DB: DrawingBackend>(
         pattern(0),
         colour.stroke_width(3),
     )?;
-    draw_markers(&mut chart, &line, (y.low, y.high), Marker::Circle, colour)?;
+    draw_markers(&mut chart, &line, (y.low, y.high), marker, colour)?;
     chart.draw_series(std::iter::once(dashed(
         vec![(chosen_current, y.low), (chosen_current, y.high)],
         pattern(1),
@@ -476,7 +476,11 @@ impl Drawing for ParetoPlot {
         let mut key = Key::default();
         if !r.noise_front.is_empty() {
             key.entry(
-                Swatch::line(limit_colour("input_noise"), 3, Some(Marker::Circle)),
+                Swatch::line(
+                    limit_colour("input_noise"),
+                    3,
+                    Some(metric_marker("input_noise")),
+                ),
                 "input noise: least at each current (left)",
             );
         }
@@ -486,7 +490,11 @@ impl Drawing for ParetoPlot {
                 .map(|a| format!(" at {}", si_exact(a, "V")))
                 .unwrap_or_default();
             key.entry(
-                Swatch::line(limit_colour(&front.metric), 3, Some(Marker::Circle)),
+                Swatch::line(
+                    limit_colour(&front.metric),
+                    3,
+                    Some(metric_marker(&front.metric)),
+                ),
                 format!(
                     "{}{at}: best at each current (right)",
                     line_label(&front.metric)
@@ -538,7 +546,7 @@ impl Drawing for ParetoPlot {
                 "input noise density (nV/√Hz)",
                 noise_limit(r),
                 r.tail_current_a,
-                limit_colour("input_noise"),
+                (limit_colour("input_noise"), metric_marker("input_noise")),
             )?;
         }
         if let (Some(front), Some(y)) = (&r.distortion_front, &self.distortion_y) {
@@ -555,7 +563,7 @@ impl Drawing for ParetoPlot {
                 &format!("{}{at} ({unit})", line_label(&front.metric)),
                 Some(front.limit),
                 r.tail_current_a,
-                limit_colour(&front.metric),
+                (limit_colour(&front.metric), metric_marker(&front.metric)),
             )?;
         }
         Ok(())

@@ -20,11 +20,9 @@ pub struct SpectrumPlot {
     highest_order: usize,
     floor_dbc: f64,
     corners: bool,
+    /// The report's temperatures (they fix each temperature's colour).
+    plan_temps: Vec<f64>,
     y: Axis,
-}
-
-fn temperature_colour(index: usize) -> RGBColor {
-    SERIES[(index * 2) % SERIES.len()]
 }
 
 /// A hollow triangle (outline only) centred at a pixel position.
@@ -84,6 +82,7 @@ impl SpectrumPlot {
             highest_order,
             floor_dbc,
             corners,
+            plan_temps: temperatures(report),
             y,
         })
     }
@@ -162,10 +161,10 @@ impl Drawing for SpectrumPlot {
         if let Some(words) = self.region_words() {
             key.notes.push(words);
         }
-        for (ti, p) in self.points.iter().enumerate() {
+        for p in &self.points {
             key.entry(
                 Swatch::Dot {
-                    colour: temperature_colour(ti),
+                    colour: temperature_colour(p.temperature_c, &self.plan_temps),
                     marker: Marker::Circle,
                 },
                 format!("{} (stem and level)", celsius(p.temperature_c)),
@@ -249,7 +248,7 @@ impl Drawing for SpectrumPlot {
         let n = self.points.len();
         let width = 0.5 / n.max(1) as f64;
         for (ti, p) in self.points.iter().enumerate() {
-            let colour = temperature_colour(ti);
+            let colour = temperature_colour(p.temperature_c, &self.plan_temps);
             let shift = (ti as f64 - (n as f64 - 1.0) / 2.0) * width;
             for order in 1..=self.highest_order {
                 let x = order as f64 + shift;

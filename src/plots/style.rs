@@ -40,6 +40,80 @@ pub const SERIES: [RGBColor; 7] = [
     RGBColor(0x4a, 0x5d, 0x6e), // slate
 ];
 
+/// The temperature ramp, coldest first: two blues and a sea green, a neutral charcoal for the
+/// middle of the range, then amber, orange and brick (kept apart from the verdicts' red and
+/// green). A figure that colours by temperature takes its colours from here through
+/// [`temperature_colour`], so one temperature has one colour in every figure of a report.
+pub const TEMPERATURE_RAMP: [RGBColor; 7] = [
+    RGBColor(0x1f, 0x4e, 0x9c), // deep blue
+    RGBColor(0x3f, 0x8f, 0xd2), // sky blue
+    RGBColor(0x1f, 0x9a, 0x8a), // sea green
+    RGBColor(0x4b, 0x4f, 0x58), // charcoal
+    RGBColor(0xc9, 0x96, 0x10), // amber
+    RGBColor(0xe0, 0x6a, 0x1b), // orange
+    RGBColor(0x9a, 0x2e, 0x1a), // brick
+];
+
+/// Colour of temperature `t` among the report's temperatures `plan` (any order): its rank
+/// from the coldest, spread evenly over [`TEMPERATURE_RAMP`] so the coldest is always the
+/// deep blue and the hottest the brick (with one temperature, the charcoal). It depends only
+/// on `t` and the report's list, never on which temperatures a figure happens to draw, so
+/// the same temperature has the same colour in every figure kind. A temperature missing from
+/// `plan` takes the rank of its nearest neighbour; past seven temperatures the ramp repeats.
+pub fn temperature_colour(t: f64, plan: &[f64]) -> RGBColor {
+    let mut sorted: Vec<f64> = plan.iter().copied().filter(|x| x.is_finite()).collect();
+    sorted.sort_by(f64::total_cmp);
+    sorted.dedup();
+    let n = sorted.len();
+    let last = TEMPERATURE_RAMP.len() - 1;
+    if n <= 1 {
+        return TEMPERATURE_RAMP[last / 2];
+    }
+    let rank = sorted
+        .iter()
+        .enumerate()
+        .min_by(|a, b| (a.1 - t).abs().total_cmp(&(b.1 - t).abs()))
+        .map_or(0, |(i, _)| i);
+    let slot = if n <= TEMPERATURE_RAMP.len() {
+        // Evenly spread, rounded to the nearest slot.
+        (rank * last * 2 + (n - 1)) / (2 * (n - 1))
+    } else {
+        rank % TEMPERATURE_RAMP.len()
+    };
+    TEMPERATURE_RAMP[slot.min(last)]
+}
+
+/// CIE 1976 colour difference ΔE*ab between two sRGB colours (IEC 61966-2-1 transfer curve,
+/// D65 white; CIE 15:2004 L*a*b*). About 2.3 is a just-noticeable difference; the key checks
+/// ask for far more between entries told apart by colour.
+pub fn colour_difference(a: RGBColor, b: RGBColor) -> f64 {
+    fn lab(c: RGBColor) -> [f64; 3] {
+        let linear = |v: u8| {
+            let v = f64::from(v) / 255.0;
+            if v <= 0.04045 {
+                v / 12.92
+            } else {
+                ((v + 0.055) / 1.055).powf(2.4)
+            }
+        };
+        let (r, g, b) = (linear(c.0), linear(c.1), linear(c.2));
+        let x = (0.4124 * r + 0.3576 * g + 0.1805 * b) / 0.95047;
+        let y = 0.2126 * r + 0.7152 * g + 0.0722 * b;
+        let z = (0.0193 * r + 0.1192 * g + 0.9505 * b) / 1.08883;
+        let f = |t: f64| {
+            if t > 216.0 / 24389.0 {
+                t.cbrt()
+            } else {
+                (24389.0 / 27.0 * t + 16.0) / 116.0
+            }
+        };
+        let (fx, fy, fz) = (f(x), f(y), f(z));
+        [116.0 * fy - 16.0, 500.0 * (fx - fy), 200.0 * (fy - fz)]
+    }
+    let (p, q) = (lab(a), lab(b));
+    ((p[0] - q[0]).powi(2) + (p[1] - q[1]).powi(2) + (p[2] - q[2]).powi(2)).sqrt()
+}
+
 /// Colour of a named metric, the same in every figure.
 pub fn metric_colour(metric: &str) -> RGBColor {
     match metric {
@@ -49,15 +123,23 @@ pub fn metric_colour(metric: &str) -> RGBColor {
         "hd5" => SERIES[4],
         "im3" => SERIES[3],
         "gain" => RGBColor(0x1f, 0x8a, 0xc0),
-        "iip3" => SERIES[5],
+        // Magenta: it shares the distortion-versus-frequency and two-tone figures with IM3's
+        // mustard and THD's teal, and a green here read as IM3's colour.
+        "iip3" => RGBColor(0xb5, 0x17, 0x7a),
         "oip3" => RGBColor(0xa0, 0x52, 0x2d),
         "p1db" => RGBColor(0x6b, 0x4f, 0xa8),
         "input_noise" => RGBColor(0x7a, 0x52, 0x30),
         "steering_range" => SERIES[6],
-        other => {
-            let order: usize = other.trim_start_matches("hd").parse().unwrap_or(0);
-            SERIES[order % SERIES.len()]
-        }
+        // Navy and wine: a headroom or yield line sits beside THD's teal in the sizing figure.
+        "collector_base_margin" => RGBColor(0x1b, 0x3a, 0x6b),
+        "yield" => RGBColor(0x8b, 0x1e, 0x3f),
+        other => match other
+            .strip_prefix("hd")
+            .and_then(|n| n.parse::<usize>().ok())
+        {
+            Some(order) => SERIES[order % SERIES.len()],
+            None => SERIES[6],
+        },
     }
 }
 
@@ -95,10 +177,10 @@ pub fn metric_marker(metric: &str) -> Marker {
         "hd3" => Marker::Square,
         "thd" => Marker::Diamond,
         "im3" | "im2" => Marker::Triangle,
-        other => {
-            let order: usize = other.trim_start_matches("hd").parse().unwrap_or(0);
-            Marker::nth(order)
-        }
+        "hd5" => Marker::Down,
+        "iip3" | "oip3" => Marker::Plus,
+        // HD4, HD7 and beyond (a budget names them rarely, and seldom two at once).
+        _ => Marker::Hexagon,
     }
 }
 
@@ -262,6 +344,12 @@ pub enum Marker {
     Triangle,
     /// Filled diamond.
     Diamond,
+    /// Filled triangle pointing down.
+    Down,
+    /// Filled plus sign (intercepts, so they never share a distortion metric's shape).
+    Plus,
+    /// Filled hexagon.
+    Hexagon,
 }
 
 impl Marker {
@@ -296,6 +384,30 @@ impl Marker {
             ],
             Marker::Triangle => vec![(x, y - 7), (x + 7, y + 5), (x - 7, y + 5)],
             Marker::Diamond => vec![(x, y - 7), (x + 7, y), (x, y + 7), (x - 7, y)],
+            Marker::Down => vec![(x, y + 7), (x + 7, y - 5), (x - 7, y - 5)],
+            Marker::Plus => vec![
+                (x - 3, y - 8),
+                (x + 3, y - 8),
+                (x + 3, y - 3),
+                (x + 8, y - 3),
+                (x + 8, y + 3),
+                (x + 3, y + 3),
+                (x + 3, y + 8),
+                (x - 3, y + 8),
+                (x - 3, y + 3),
+                (x - 8, y + 3),
+                (x - 8, y - 3),
+                (x - 3, y - 3),
+            ],
+            Marker::Hexagon => (0..6)
+                .map(|k| {
+                    let a = k as f64 * std::f64::consts::TAU / 6.0;
+                    (
+                        x + (7.0 * a.cos()).round() as i32,
+                        y + (7.0 * a.sin()).round() as i32,
+                    )
+                })
+                .collect(),
         };
         Polygon::new(points, colour.filled())
     }
@@ -369,6 +481,45 @@ pub fn house_chart<'a, 'b, DB: DrawingBackend>(
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn colour_difference_matches_published_lab_values() {
+        // sRGB white is L* = 100, a* = b* = 0 and black L* = 0, so their ΔE*ab is 100
+        // (CIE 15:2004 definition of L*); pure sRGB red is L* 53.24, a* 80.09, b* 67.20
+        // (Lindbloom's sRGB/D65 tables, from memory), so red to black is 121.4 (±0.2).
+        let white = RGBColor(255, 255, 255);
+        let black = RGBColor(0, 0, 0);
+        assert!((colour_difference(white, black) - 100.0).abs() < 0.01);
+        let red_black = (53.24f64.powi(2) + 80.09f64.powi(2) + 67.20f64.powi(2)).sqrt();
+        assert!((colour_difference(RGBColor(255, 0, 0), black) - red_black).abs() < 0.2);
+    }
+
+    #[test]
+    fn temperatures_keep_their_colour_whatever_else_is_drawn() {
+        let plan = [85.0, -40.0, 27.0];
+        // Coldest blue, hottest brick, whatever order the plan lists them in.
+        assert_eq!(temperature_colour(-40.0, &plan), TEMPERATURE_RAMP[0]);
+        assert_eq!(temperature_colour(85.0, &plan), TEMPERATURE_RAMP[6]);
+        assert_eq!(temperature_colour(27.0, &plan), TEMPERATURE_RAMP[3]);
+        // Every pair of a report's temperatures is told apart by colour alone (up to seven).
+        for n in 2..=TEMPERATURE_RAMP.len() {
+            let temps: Vec<f64> = (0..n).map(|i| -40.0 + 20.0 * i as f64).collect();
+            for i in 0..n {
+                for j in i + 1..n {
+                    let (a, b) = (
+                        temperature_colour(temps[i], &temps),
+                        temperature_colour(temps[j], &temps),
+                    );
+                    assert!(
+                        colour_difference(a, b) > 20.0,
+                        "{n} temperatures: {} and {} look alike",
+                        temps[i],
+                        temps[j]
+                    );
+                }
+            }
+        }
+    }
 
     #[test]
     fn clipping_interpolates_the_crossing_and_splits_at_gaps() {

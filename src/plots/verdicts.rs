@@ -3,7 +3,7 @@
 //! line of a stage whatever its metric and frequency.
 
 use super::axis::Axis;
-use super::key::{draw_key, split, Key, Swatch, VerdictRow};
+use super::key::{draw_key, split, wrap, Key, Swatch, VerdictRow};
 use super::style::*;
 use super::{DrawResult, Drawing, PlotKind};
 use crate::report::{BudgetRecord, Report};
@@ -205,11 +205,19 @@ pub struct MarginsPlot {
     lines: Vec<LineChecks>,
     /// The cases (temperature, corner) in report order.
     cases: Vec<(f64, String)>,
+    /// The report's temperatures (they fix each temperature's colour).
+    plan_temps: Vec<f64>,
     axis: Axis,
 }
 
 /// Margins beyond this are drawn to the axis end (their value is in the table).
 const MARGIN_CLIP_DB: f64 = 60.0;
+/// Gap between a row label and the plot, px.
+const LABEL_GAP_PX: u32 = 12;
+/// Narrowest row-label column, px.
+const MIN_LABEL_PX: u32 = 200;
+/// Line pitch of a row label, px.
+const LABEL_LINE_PX: i32 = 23;
 
 impl MarginsPlot {
     /// The figure, if the stage has budget lines.
@@ -239,6 +247,7 @@ impl MarginsPlot {
             slug: slug.to_owned(),
             lines,
             cases,
+            plan_temps: temperatures(report),
             axis,
         })
     }
@@ -255,30 +264,55 @@ impl MarginsPlot {
         }
     }
 
-    /// Colour and opacity of a case: with corners the colour names the corner and the
-    /// shade the temperature (so nine cases stay nine distinct swatches); without, the
-    /// colour names the temperature.
-    fn case_style(&self, index: usize) -> (RGBColor, f64) {
+    /// How a case's bars look: the colour names the temperature (the report-wide temperature
+    /// colour every figure uses); with corners, the fill names the corner (solid for the
+    /// first, then a light fill with an outline, then an outline alone), so a colour never
+    /// has to be told apart from a paler copy of another.
+    fn case_look(&self, index: usize) -> CaseLook {
         let (t, corner) = &self.cases[index];
+        let colour = temperature_colour(*t, &self.plan_temps);
         let mut corners: Vec<&str> = Vec::new();
-        let mut temps: Vec<f64> = Vec::new();
-        for (ct, cc) in &self.cases {
+        for (_, cc) in &self.cases {
             if !corners.contains(&cc.as_str()) {
                 corners.push(cc);
             }
-            if !temps.contains(ct) {
-                temps.push(*ct);
-            }
         }
-        let ti = temps.iter().position(|x| x == t).unwrap_or(0);
-        if self.has_corners() {
-            let ci = corners.iter().position(|c| c == corner).unwrap_or(0);
-            (
-                SERIES[(ci * 2) % SERIES.len()],
-                [0.95, 0.6, 0.32, 0.18][ti % 4],
-            )
+        let ci = if self.has_corners() {
+            corners.iter().position(|c| c == corner).unwrap_or(0)
         } else {
-            (SERIES[ti % SERIES.len()], 0.85)
+            0
+        };
+        let (fill, outlined) = [(0.85, false), (0.3, true), (0.0, true), (0.6, true)][ci % 4];
+        CaseLook {
+            colour,
+            fill,
+            outlined,
+        }
+    }
+}
+
+/// How the bars of one case (temperature and corner) are drawn.
+#[derive(Debug, Clone, Copy)]
+struct CaseLook {
+    colour: RGBColor,
+    /// Opacity of the fill.
+    fill: f64,
+    /// Whether the bar has an outline in the full colour.
+    outlined: bool,
+}
+
+impl CaseLook {
+    fn swatch(self) -> Swatch {
+        if self.outlined {
+            Swatch::Outline {
+                colour: self.colour,
+                fill: self.fill,
+            }
+        } else {
+            Swatch::Band {
+                colour: self.colour,
+                alpha: self.fill,
+            }
         }
     }
 }
@@ -310,8 +344,7 @@ impl Drawing for MarginsPlot {
     fn key(&self) -> Key {
         let mut key = Key::default();
         for (i, case) in self.cases.iter().enumerate() {
-            let (colour, alpha) = self.case_style(i);
-            key.entry(Swatch::Band { colour, alpha }, self.case_label(case));
+            key.entry(self.case_look(i).swatch(), self.case_label(case));
         }
         if self.lines.iter().any(|l| !margin_in_db(l.line())) {
             key.notes.push(
@@ -352,7 +385,21 @@ impl Drawing for MarginsPlot {
         draw_key(&side, &self.key())?;
         let rows = self.lines.len() as f64;
         let axis = &self.axis;
-        let mut chart = house_chart(&plot, 24, 330)
+        // The row labels' column: as wide as the longest label needs, up to a share of the
+        // plot; a label wider than that wraps onto further lines rather than run off the edge.
+        let label_style = bold(LEGEND_PX).color(&INK);
+        let widest = self
+            .lines
+            .iter()
+            .map(|l| plot.estimate_text_size(&l.describe(), &label_style))
+            .collect::<Result<Vec<_>, _>>()?
+            .into_iter()
+            .map(|(w, _)| w)
+            .max()
+            .unwrap_or(0);
+        let most = plot.dim_in_pixel().0 * 2 / 5;
+        let label_px = (widest + LABEL_GAP_PX + 8).clamp(MIN_LABEL_PX, most);
+        let mut chart = house_chart(&plot, 24, label_px)
             .build_cartesian_2d(axis.linear_range(), -0.5..rows - 0.5)?;
         mesh_style(&mut chart.configure_mesh())
             .disable_y_mesh()
@@ -385,7 +432,8 @@ impl Drawing for MarginsPlot {
                     continue;
                 };
                 let margin = margin_position(record, record.margin.unwrap_or(MARGIN_CLIP_DB), axis);
-                let (colour, alpha) = self.case_style(index);
+                let look = self.case_look(index);
+                let (colour, alpha) = (look.colour, look.fill.max(0.6));
                 let bottom = top - band * 0.85;
                 if own_scale {
                     // Not in dB: a light bar with a hatched face and an outline.
@@ -410,8 +458,14 @@ impl Drawing for MarginsPlot {
                 } else {
                     chart.draw_series(std::iter::once(Rectangle::new(
                         [(0.0, top), (margin, bottom)],
-                        colour.mix(alpha).filled(),
+                        colour.mix(look.fill).filled(),
                     )))?;
+                    if look.outlined {
+                        chart.draw_series(std::iter::once(Rectangle::new(
+                            [(0.0, top), (margin, bottom)],
+                            colour.stroke_width(2),
+                        )))?;
+                    }
                 }
                 if record.margin_at_least {
                     // Only a lower bound: an arrow pointing on past the bar's end.
@@ -438,23 +492,40 @@ impl Drawing for MarginsPlot {
                 super::key::verdict_marker(root, (at.0, at.1), line.pass())?;
             }
             let label_at = chart.backend_coord(&(axis.low, centre));
-            root.draw(&Text::new(
-                line.describe(),
-                (label_at.0 - 12, label_at.1 - 11),
-                bold(LEGEND_PX)
-                    .color(&INK)
-                    .pos(Pos::new(HPos::Right, VPos::Center)),
-            ))?;
+            let room = label_px as i32 - LABEL_GAP_PX as i32 - 8;
+            let head = wrap(root, &line.describe(), &label_style, room)?;
             let frequency = si_exact(line.line().frequency_hz, "Hz");
-            root.draw(&Text::new(
-                if own_scale {
+            let detail_style = text(LEGEND_PX - 2.0, MUTED);
+            let detail = wrap(
+                root,
+                &if own_scale {
                     format!("{frequency} · bar: share of limit")
                 } else {
                     frequency
                 },
-                (label_at.0 - 12, label_at.1 + 12),
-                text(LEGEND_PX - 2.0, MUTED).pos(Pos::new(HPos::Right, VPos::Center)),
-            ))?;
+                &detail_style,
+                room,
+            )?;
+            // The block of lines centred on the row, the head above its detail.
+            let count = (head.len() + detail.len()) as i32;
+            let mut y = label_at.1 - (count - 1) * LABEL_LINE_PX / 2;
+            let x = label_at.0 - LABEL_GAP_PX as i32;
+            for words in head {
+                root.draw(&Text::new(
+                    words,
+                    (x, y),
+                    label_style.pos(Pos::new(HPos::Right, VPos::Center)),
+                ))?;
+                y += LABEL_LINE_PX;
+            }
+            for words in detail {
+                root.draw(&Text::new(
+                    words,
+                    (x, y),
+                    detail_style.pos(Pos::new(HPos::Right, VPos::Center)),
+                ))?;
+                y += LABEL_LINE_PX;
+            }
         }
         Ok(())
     }

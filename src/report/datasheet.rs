@@ -10,7 +10,9 @@ use super::queries::{
     frequencies, recommended_stage, stage_names, temperatures, typical_temperature,
 };
 use super::summary::{limit_cell, temperature_cell, value_cell};
-use super::table::{html_inline, html_text, markdown_inline, markdown_text, Cell, Table};
+use super::table::{
+    html_inline, html_text, html_words, markdown_inline, markdown_text, Cell, Table,
+};
 use super::text::{celsius, metric_label, si_exact, si_short};
 use super::{Region, Report, CAUTION};
 use crate::model::corner::TYPICAL;
@@ -49,7 +51,14 @@ pub enum Block {
 /// Fixed-decimal number, or a dash when absent.
 fn fixed(value: Option<f64>, decimals: usize) -> String {
     match value {
-        Some(v) if v.is_finite() => format!("{v:.decimals$}"),
+        Some(v) if v.is_finite() => {
+            let text = format!("{v:.decimals$}");
+            // A value that rounds to zero is zero, not "-0.00".
+            match text.strip_prefix('-') {
+                Some(rest) if rest.chars().all(|c| c == '0' || c == '.') => rest.to_owned(),
+                _ => text,
+            }
+        }
         _ => "—".into(),
     }
 }
@@ -235,29 +244,48 @@ pub fn datasheet_table(report: &Report, stage: &str) -> Table {
         2,
         "dBV",
     );
+    // A row in volts reads in mV while every value is below 1 V, else in V (never 1251.1 mV).
+    fn volts(values: Vec<CaseValue<'_>>) -> (Vec<CaseValue<'_>>, usize, &'static str) {
+        let largest = values
+            .iter()
+            .filter_map(|(_, _, v)| *v)
+            .fold(0.0f64, |m, v| m.max(v.abs()));
+        if largest < 1.0 {
+            let scaled = values
+                .into_iter()
+                .map(|(t, c, v)| (t, c, v.map(|v| v * 1e3)))
+                .collect::<Vec<_>>();
+            (scaled, 1, "mV")
+        } else {
+            (values, 3, "V")
+        }
+    }
+    let (values, decimals, unit) = volts(by_t(&|i| i.iip3_v));
     row(
         "input third-order intercept",
         "IIP3",
         format!("per tone, peak, {f_text}{fit_note}"),
-        by_t(&|i| i.iip3_v.map(|v| v * 1e3)),
-        1,
-        "mV",
+        values,
+        decimals,
+        unit,
     );
+    let (values, decimals, unit) = volts(by_t(&|i| i.oip3_v));
     row(
         "output third-order intercept",
         "OIP3",
         format!("per tone, peak, {f_text}{fit_note}"),
-        by_t(&|i| i.oip3_v),
-        3,
-        "V",
+        values,
+        decimals,
+        unit,
     );
+    let (values, decimals, unit) = volts(by_t(&|i| i.p1db_v));
     row(
         "input 1 dB compression",
         "P1dB",
         format!("peak, {f_text}{p1db_note}"),
-        by_t(&|i| i.p1db_v.map(|v| v * 1e3)),
-        1,
-        "mV",
+        values,
+        decimals,
+        unit,
     );
 
     // Distortion at the budget's amplitudes (those the plan drove) and at the largest drive.
@@ -361,13 +389,11 @@ pub fn budget_table(report: &Report) -> Table {
         ("verdict", false),
         ("operating region", false),
     ]);
-    let mut table = Table::new(columns);
+    let mut table = Table::new(columns).unbroken("operating region");
     for b in &report.budget {
-        let region = format!(
-            "{} (collector-base margin {})",
-            b.region.name(),
-            si_short(b.collector_base_margin_v, "V")
-        );
+        // The region's name only: the collector-base margin behind it is in the note under
+        // the table (the least one) and in report.json (every one).
+        let region = b.region.name();
         let mut row: Vec<Cell> = vec![
             b.stage.as_str().into(),
             temperature_cell(b.temperature_c).into(),
@@ -386,11 +412,37 @@ pub fn budget_table(report: &Report) -> Table {
             value_cell(b).into(),
             b.margin_text().into(),
             Cell::verdict(b.pass, "pass", "FAIL"),
-            Cell::verdict(b.region.is_forward_active(), &region, &region),
+            Cell::verdict(b.region.is_forward_active(), region, region),
         ]);
         table.push(row);
     }
     table
+}
+
+/// The note under the budget table: what the operating region column rests on and the
+/// check nearest saturation (the least collector-base reverse bias), with where it is; every
+/// check's own value is in report.json.
+pub fn region_margin_note(report: &Report) -> Option<String> {
+    let least = report
+        .budget
+        .iter()
+        .filter(|b| b.collector_base_margin_v.is_finite())
+        .min_by(|a, b| {
+            a.collector_base_margin_v
+                .total_cmp(&b.collector_base_margin_v)
+        })?;
+    let corner = if least.corner.is_empty() || least.corner == TYPICAL {
+        String::new()
+    } else {
+        format!(", {} corner", least.corner)
+    };
+    Some(format!(
+        "Operating region: of the drive each value rests on (forward-active, high-injection or saturating). The least collector-base reverse bias over these checks is {} ({} at {}{corner}, {}); every check's own value is in report.json (`collector_base_margin_v`).",
+        si_short(least.collector_base_margin_v, "V"),
+        least.stage,
+        celsius(least.temperature_c),
+        metric_label(&least.metric)
+    ))
 }
 
 /// The sizing table.
@@ -464,6 +516,36 @@ pub fn sizing_table(report: &Report) -> Table {
 }
 
 use super::sizing_region::{line_name, region_tables};
+
+/// A long sweep in a few words: `41 amplitudes, 1 mV … 1 V, log-spaced`; up to eight values
+/// are listed in full. The JSON and CSV keep every value.
+pub fn sweep_summary(values: &[f64], unit: &str, noun: &str) -> String {
+    if values.len() <= 8 {
+        return list_of(values, unit);
+    }
+    let mut values = values.to_vec();
+    values.sort_by(f64::total_cmp);
+    let values = values.as_slice();
+    let steps = |f: &dyn Fn(f64, f64) -> f64| -> bool {
+        let first = f(values[0], values[1]);
+        values
+            .windows(2)
+            .all(|w| (f(w[0], w[1]) - first).abs() <= 1e-3 * first.abs())
+    };
+    let spacing = if values.iter().all(|v| *v > 0.0) && steps(&|a, b| (b / a).ln()) {
+        ", log-spaced"
+    } else if steps(&|a, b| b - a) {
+        ", evenly spaced"
+    } else {
+        ""
+    };
+    format!(
+        "{} {noun}, {} … {}{spacing}",
+        values.len(),
+        si_exact(values[0], unit),
+        si_exact(values[values.len() - 1], unit)
+    )
+}
 
 fn list_of(values: &[f64], unit: &str) -> String {
     values
@@ -551,8 +633,14 @@ pub fn blocks(report: &Report, figures: &[EmbeddedFigure]) -> Vec<Block> {
             temps.iter().map(|t| celsius(*t)).collect::<Vec<_>>().join(", "),
             celsius(typical)
         ),
-        format!("Frequencies: {}", list_of(&frequencies(report), "Hz")),
-        format!("Drive amplitudes (peak differential, per tone): {}", list_of(&amplitudes, "V")),
+        format!(
+            "Frequencies: {}",
+            sweep_summary(&frequencies(report), "Hz", "frequencies")
+        ),
+        format!(
+            "Drive amplitudes (peak differential, per tone): {}",
+            sweep_summary(&amplitudes, "V", "amplitudes")
+        ),
         format!("Two-tone test: {}", if two_tone { "yes (IM3 and IIP3 reported)" } else { "no" }),
         format!(
             "Analysis: THD over harmonics 2–{}; harmonics below {} dBc (−160 dBc for stages with capacitance, higher at drives small enough to meet the solve's precision: each point's floor_dbc) are reported as below the floor; FFT refined until every figure moves less than {} dB; linbudget {}",
@@ -621,6 +709,9 @@ pub fn blocks(report: &Report, figures: &[EmbeddedFigure]) -> Vec<Block> {
             report.budget.len()
         )));
         out.push(Block::Table(budget_table(report)));
+        if let Some(note) = region_margin_note(report) {
+            out.push(Block::Paragraph(note));
+        }
     }
     if !report.sizing.is_empty() {
         out.push(Block::Heading(2, "Degeneration sizing".into()));
@@ -918,7 +1009,8 @@ h3 { font-size: 17px; margin: 26px 0 8px; }
 table { border-collapse: collapse; width: 100%; margin: 8px 0 16px; font-size: 13.5px; }
 th, td { padding: 5px 9px; border-bottom: 1px solid var(--rule); text-align: left; vertical-align: top; }
 th { background: #f3f5f8; font-weight: 600; }
-td.num, th.num { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
+td.num, th.num { text-align: right; font-variant-numeric: tabular-nums; }
+td.num, td.unbroken { white-space: nowrap; }
 td.fail { color: var(--fail); font-weight: bold; }
 td.pass { color: var(--pass); }
 figure { margin: 18px 0 28px; page-break-inside: avoid; break-inside: avoid; }
@@ -954,7 +1046,7 @@ pub fn html(report: &Report, blocks: &[Block], figures: &[EmbeddedFigure]) -> St
     for block in blocks {
         match block {
             Block::Heading(level, text) => {
-                let _ = writeln!(out, "<h{level}>{}</h{level}>", html_text(text));
+                let _ = writeln!(out, "<h{level}>{}</h{level}>", html_words(text));
             }
             Block::Paragraph(text) => {
                 let class = if text.starts_with("Verdict:") {
@@ -988,7 +1080,7 @@ pub fn html(report: &Report, blocks: &[Block], figures: &[EmbeddedFigure]) -> St
             Block::Figure(index) => {
                 let figure = &figures[*index];
                 let _ = writeln!(out, "<figure id=\"{}\">", html_text(&figure.stem));
-                let _ = writeln!(out, "<h3>{}</h3>", html_text(&figure.title));
+                let _ = writeln!(out, "<h3>{}</h3>", html_words(&figure.title));
                 let svg = figure.svg.replacen(
                     "<svg ",
                     &format!(
@@ -1001,7 +1093,7 @@ pub fn html(report: &Report, blocks: &[Block], figures: &[EmbeddedFigure]) -> St
                 let _ = writeln!(
                     out,
                     "<figcaption>{} Files: <a href=\"{}.svg\">{}.svg</a>, <a href=\"{}.png\">{}.png</a>.</figcaption>",
-                    html_text(&figure.caption),
+                    html_words(&figure.caption),
                     figure.stem,
                     figure.stem,
                     figure.stem,
@@ -1044,7 +1136,7 @@ pub fn forms_table(report: &Report) -> Table {
         let n = &s.noise_sources;
         table.push(vec![
             s.stage.as_str().into(),
-            s.topology.as_str().into(),
+            s.topology.replace('_', " ").into(),
             s.cell.clone().unwrap_or_else(|| "—".into()).into(),
             format!("{:.3}", s.tail_source_voltage_v).into(),
             format!("{:.3}", s.degeneration_drop_v.max(0.0)).into(),
@@ -1128,4 +1220,39 @@ fn amplitude_picks(n: usize) -> Vec<usize> {
     let mut picks: Vec<usize> = (0..4).map(|k| k * (n - 1) / 3).collect();
     picks.dedup();
     picks
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A figure that rounds to zero reads "0.00", never "-0.00" (a perfectly matched pair's
+    /// offset is zero, not negative); other values keep their sign and decimals.
+    #[test]
+    fn a_rounded_zero_has_no_sign() {
+        assert_eq!(fixed(Some(-1e-9), 2), "0.00");
+        assert_eq!(fixed(Some(-0.004), 2), "0.00");
+        assert_eq!(fixed(Some(-0.006), 2), "-0.01");
+        assert_eq!(fixed(Some(12.345), 1), "12.3");
+        assert_eq!(fixed(None, 2), "—");
+    }
+
+    /// More than eight values become count, ends and spacing; a few are listed in full.
+    #[test]
+    fn long_sweeps_are_summarised() {
+        let log: Vec<f64> = (0..13).map(|k| 1e-3 * 10f64.powf(k as f64 / 4.0)).collect();
+        assert_eq!(
+            sweep_summary(&log, "V", "amplitudes"),
+            "13 amplitudes, 1 mV … 1 V, log-spaced"
+        );
+        let even: Vec<f64> = (1..=10).map(|k| 0.01 * k as f64).collect();
+        assert_eq!(
+            sweep_summary(&even, "V", "amplitudes"),
+            "10 amplitudes, 10 mV … 100 mV, evenly spaced"
+        );
+        assert_eq!(
+            sweep_summary(&[1e-3, 2e-3], "V", "amplitudes"),
+            "1 mV, 2 mV"
+        );
+    }
 }

@@ -39,7 +39,9 @@ impl BudgetRecord {
                 let number = if self.unit == YIELD_UNIT {
                     format!("{:.2}", 100.0 * m)
                 } else if self.margin_unit == "V" {
-                    format!("{m:.3} V")
+                    // Three significant figures with an SI prefix and a true minus (as
+                    // `text::si_short`, which imports this module).
+                    crate::units::format_si_trimmed(m, "V", 3).replace('-', "\u{2212}")
                 } else {
                     format!("{m:.2}")
                 };

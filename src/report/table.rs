@@ -11,6 +11,9 @@ pub struct Column {
     pub title: String,
     /// Whether the column holds numbers.
     pub numeric: bool,
+    /// Whether its cells stay on one line in HTML (short words a browser would otherwise
+    /// break at a hyphen: `forward-active`).
+    pub unbroken: bool,
 }
 
 /// How a cell is set apart.
@@ -94,10 +97,19 @@ impl Table {
                 .map(|(title, numeric)| Column {
                     title: title.to_owned(),
                     numeric,
+                    unbroken: false,
                 })
                 .collect(),
             rows: Vec::new(),
         }
+    }
+
+    /// Keeps the cells of the column titled `title` on one line in HTML.
+    pub fn unbroken(mut self, title: &str) -> Table {
+        for column in self.columns.iter_mut().filter(|c| c.title == title) {
+            column.unbroken = true;
+        }
+        self
     }
 
     /// Appends a row.
@@ -148,20 +160,28 @@ impl Table {
                 out,
                 "<th{}>{}</th>",
                 if column.numeric { " class=\"num\"" } else { "" },
-                html_text(&column.title)
+                html_words(&column.title)
             );
         }
         out.push_str("</tr></thead>\n<tbody>\n");
         for row in &self.rows {
             out.push_str("<tr>");
             for (cell, column) in row.iter().zip(&self.columns) {
-                let class = match (cell.mark, column.numeric) {
-                    (Mark::Fail, _) => " class=\"fail\"",
-                    (Mark::Pass, _) => " class=\"pass\"",
-                    (Mark::Plain, true) => " class=\"num\"",
-                    (Mark::Plain, false) => "",
+                let mut classes: Vec<&str> = match (cell.mark, column.numeric) {
+                    (Mark::Fail, _) => vec!["fail"],
+                    (Mark::Pass, _) => vec!["pass"],
+                    (Mark::Plain, true) => vec!["num"],
+                    (Mark::Plain, false) => vec![],
                 };
-                let _ = write!(out, "<td{class}>{}</td>", html_text(&cell.text));
+                if column.unbroken {
+                    classes.push("unbroken");
+                }
+                let class = if classes.is_empty() {
+                    String::new()
+                } else {
+                    format!(" class=\"{}\"", classes.join(" "))
+                };
+                let _ = write!(out, "<td{class}>{}</td>", html_words(&cell.text));
             }
             out.push_str("</tr>\n");
         }
@@ -235,10 +255,75 @@ pub fn html_inline(text: &str) -> String {
             if code {
                 format!("<code>{}</code>", html_text(run))
             } else {
-                html_text(run)
+                html_words(run)
             }
         })
         .collect()
+}
+
+/// Units a number keeps on its line (with or without an SI prefix).
+const UNITS: [&str; 17] = [
+    "V", "Hz", "dB", "dBc", "dBV", "dBm", "Ω", "A", "°C", "%", "s", "F", "S", "V/√Hz", "A/√Hz",
+    "%-points", "W",
+];
+
+/// Whether `token` is a unit, bare or with one SI prefix (`mV`, `kΩ`, `nV/√Hz`, `°C`).
+fn is_unit(token: &str) -> bool {
+    if UNITS.contains(&token) {
+        return true;
+    }
+    let mut chars = token.chars();
+    matches!(
+        chars.next(),
+        Some('f' | 'p' | 'n' | 'µ' | 'u' | 'm' | 'k' | 'M' | 'G' | 'T')
+    ) && UNITS.contains(&chars.as_str())
+}
+
+/// HTML text in which a number never parts from its unit nor a comparison sign from its
+/// number: the space in `27 °C`, `1.2 mV`, `≤ −60 dBc` is a no-break space, so a narrow
+/// table column wraps between quantities, never inside one.
+pub fn html_words(text: &str) -> String {
+    let chars: Vec<char> = text.chars().collect();
+    let mut out = String::with_capacity(text.len() + 16);
+    for (i, &c) in chars.iter().enumerate() {
+        if c == ' ' && i > 0 {
+            let before = chars[i - 1];
+            let rest: String = chars[i + 1..].iter().collect();
+            let token: String = rest
+                .chars()
+                .take_while(|c| !c.is_whitespace() && !",.;:()·…".contains(*c))
+                .collect();
+            let number_then_unit = before.is_ascii_digit() && is_unit(&token);
+            let sign_then_number = "≤≥<>±≈~".contains(before)
+                && rest
+                    .chars()
+                    .next()
+                    .is_some_and(|n| n.is_ascii_digit() || n == '\u{2212}' || n == '-');
+            if number_then_unit || sign_then_number {
+                out.push_str("&nbsp;");
+                continue;
+            }
+        }
+        // A hyphen standing for a minus sign (`-60.00 dBc` in a verdict line) is set as one.
+        let starts_word = i == 0 || chars[i - 1].is_whitespace() || "(/≤≥".contains(chars[i - 1]);
+        if c == '-' && starts_word && chars.get(i + 1).is_some_and(char::is_ascii_digit) {
+            out.push('\u{2212}');
+            continue;
+        }
+        // A noise density's unit is one word: no break after its slash (`nV/√Hz`).
+        if c == '/' && chars.get(i + 1) == Some(&'√') {
+            out.push_str("/\u{2060}");
+            continue;
+        }
+        match c {
+            '&' => out.push_str("&amp;"),
+            '<' => out.push_str("&lt;"),
+            '>' => out.push_str("&gt;"),
+            '"' => out.push_str("&quot;"),
+            _ => out.push(c),
+        }
+    }
+    out
 }
 
 /// Text that HTML shows as written.
@@ -293,6 +378,26 @@ mod tests {
         assert_eq!(markdown_inline(warning), warning);
         // An odd backtick (a name holding one) is plain, escaped text.
         assert_eq!(markdown_inline("a`b"), "a\\`b");
+    }
+
+    /// A quantity is one unbreakable run in HTML (common practice in typesetting: a number
+    /// and its unit, or a sign and its number, never part at a line end).
+    #[test]
+    fn numbers_keep_their_units_in_html() {
+        let html = html_words("−40 °C, fast / 27 °C, 1.2 mV and ≤ −60 dBc at 3 of 4 points");
+        assert!(html.contains("−40&nbsp;°C"), "{html}");
+        assert!(html.contains("27&nbsp;°C"), "{html}");
+        assert!(html.contains("1.2&nbsp;mV"), "{html}");
+        assert!(html.contains("≤&nbsp;−60&nbsp;dBc"), "{html}");
+        // Words that are not units keep their ordinary spaces.
+        assert!(html.contains("3 of 4 points"), "{html}");
+        assert!(html.contains("fast / 27"), "{html}");
+        assert_eq!(html_words("a<b & \"c\""), "a&lt;b &amp; &quot;c&quot;");
+        // A minus is a minus sign, a hyphen in a name stays a hyphen.
+        assert_eq!(
+            html_words("-32.92 dBc, bare-pair 2-40"),
+            "−32.92&nbsp;dBc, bare-pair 2-40"
+        );
     }
 
     #[test]
