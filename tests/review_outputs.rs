@@ -746,3 +746,54 @@ fn datasheet_rows_in_millivolts_stay_below_a_volt() {
     }
     assert!(volts_rows > 0, "IIP3 above 1 V reads in V");
 }
+
+/// Legend entries stay apart in the demo whose stages saturate and stop biasing within the
+/// swept R_E (the transfer figure's saturation band beside the steering range, the sizing
+/// figure's cannot-bias band beside the usable one): the same rule as for the review plan.
+#[test]
+fn saturation_and_bias_bands_are_told_apart_from_the_windows() {
+    let mut checked = BTreeSet::new();
+    for demo in ["battery-headroom", "sonar-vga-sizing"] {
+        checked.extend(demo_legends_are_distinct(demo));
+    }
+    assert_eq!(checked.len(), 2, "both bands drawn somewhere: {checked:?}");
+}
+
+/// Runs a demo plan (no figures written) and checks every figure's legend for look-alike
+/// entries; returns which of the saturation and bias bands it met.
+fn demo_legends_are_distinct(demo: &str) -> BTreeSet<&'static str> {
+    let dir = tempfile::tempdir().unwrap();
+    let options = RunOptions {
+        plan: PathBuf::from(format!("{}/specs/{demo}.yaml", env!("CARGO_MANIFEST_DIR"))),
+        out: dir.path().join("out"),
+        json: false,
+        quiet: true,
+        max_work: DEFAULT_MAX_WORK,
+        figures: false,
+        as_planned: false,
+        overrides: Vec::new(),
+    };
+    let report = run(&options, &|_| {}).expect("the demo runs").report;
+    let sketches = plots::sketches(&report);
+    let mut checked = BTreeSet::new();
+    for sketch in &sketches {
+        let key = sketch.key();
+        let labels: Vec<&str> = key.legend.iter().map(|e| e.label.as_str()).collect();
+        if labels.iter().any(|l| l.contains("saturates")) {
+            checked.insert("saturation");
+        }
+        if labels.iter().any(|l| l.contains("can bias")) {
+            checked.insert("bias");
+        }
+        assert!(
+            key.look_alike().is_empty(),
+            "{demo} {}: legend entries {:?} look alike",
+            sketch.stem(),
+            key.look_alike()
+                .iter()
+                .map(|(a, b)| (labels[*a], labels[*b]))
+                .collect::<Vec<_>>()
+        );
+    }
+    checked
+}

@@ -10,6 +10,13 @@ use crate::report::{BudgetRecord, Report, SizingRecord};
 use plotters::coord::Shift;
 use plotters::prelude::*;
 
+/// Opacity of the band of values at which no temperature can bias: nothing is drawn inside it,
+/// so it can be dark enough to tell from the usable band (CIE 1976 ΔE ≈ 24 on white).
+const UNBIASED_ALPHA: f64 = 0.35;
+/// Colour of the line where a temperature stops biasing: a dark brown no series, temperature
+/// or verdict of this figure uses.
+const BIAS_STOP: RGBColor = RGBColor(0x6b, 0x3e, 0x1f);
+
 /// The sizing figure of one stage, every temperature overlaid.
 pub struct SizingPlot {
     stage: String,
@@ -380,20 +387,20 @@ impl Drawing for SizingPlot {
                 key.entry(
                     Swatch::Band {
                         colour: INK,
-                        alpha: 0.07,
+                        alpha: UNBIASED_ALPHA,
                     },
                     format!("from {} no temperature can bias: not solved", si(from, "Ω")),
                 );
             }
             key.entry(
                 Swatch::Line {
-                    colour: INK,
-                    alpha: 0.5,
+                    colour: BIAS_STOP,
+                    alpha: 1.0,
                     width: 2,
                     pattern: pattern(0),
                     marker: None,
                 },
-                format!("stops biasing (curves end): {each}"),
+                format!("stops biasing (curves end; line style per temperature): {each}"),
             );
         }
         let saturating = self.saturating_runs();
@@ -701,14 +708,14 @@ impl SizingPlot {
         if let Some(from) = self.unbiased_everywhere_from() {
             chart.draw_series(std::iter::once(Rectangle::new(
                 [(from, low), (r_high, high)],
-                INK.mix(0.07).filled(),
+                INK.mix(UNBIASED_ALPHA).filled(),
             )))?;
         }
         for (ti, from) in self.unbiased_onsets() {
             chart.draw_series(std::iter::once(dashed(
                 vec![(from, low), (from, high)],
                 pattern(ti),
-                INK.mix(0.5).stroke_width(2),
+                BIAS_STOP.stroke_width(2),
             )))?;
         }
         for (ti, record) in self.records.iter().enumerate() {

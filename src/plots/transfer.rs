@@ -176,10 +176,12 @@ impl Drawing for TransferPlot {
             format!("±{level:.1}: the emitter split at the steering edges"),
         );
         if reference_saturates(&self.reference().1.transfer) {
+            // Drawn as a light fill with a solid edge at the onset: the outlined swatch keeps it
+            // apart from the steering band's plain fill.
             key.entry(
-                Swatch::Band {
+                Swatch::Outline {
                     colour: MUTED,
-                    alpha: SATURATION_ALPHA,
+                    fill: SATURATION_ALPHA,
                 },
                 format!(
                     "a side saturates (collector-base junction forward-biased) at {}; solid edge at its onset",
