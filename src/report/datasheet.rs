@@ -206,7 +206,7 @@ pub fn datasheet_table(report: &Report, stage: &str) -> Table {
         "steering range",
         "",
         format!(
-            "{:.0} % of I_tail on one side",
+            "{:.0} % of the emitter current on one side",
             100.0 * report.analysis.steering_fraction
         ),
         by_t(&|i| Some(i.steering_range_v * 1e3)),

@@ -12,7 +12,7 @@
 //! | single tone, matched memoryless pair (quarter-period fast path) | [`SYMMETRIC_TONE_S`] |
 //! | single tone, other memoryless stages (every sample solved) | [`GENERAL_TONE_S`] (×[`REDUCED_FACTOR`] when the one-unknown solve applies) |
 //! | two tones, memoryless (2-D grids up to 64×64) | [`MEMORYLESS_TWO_TONE_S`] (same factor) |
-//! | single tone, stage with charge storage (periodic steady state) | [`DYNAMIC_TONE_S`] per 10 harmonics analysed |
+//! | single tone, stage with charge storage (periodic steady state) | [`DYNAMIC_TONE_S`] plus [`DYNAMIC_TONE_HARMONIC_S`] per harmonic analysed; a multi-tanh cell one pair's cost per pair |
 //! | two tones, stage with charge storage | [`DYNAMIC_TWO_TONE_CYCLE_S`] per upper-tone cycle of the common period |
 //! | stage-wide figures per frequency (IIP3 search, P1dB bisection) | [`INTERCEPT_TWO_TONES`] two-tone and [`COMPRESSION_TONES`] single-tone analyses |
 //! | stage-wide static figures per case (steering, offset, transfer curve, noise) | [`STATIC_CASE_S`] |
