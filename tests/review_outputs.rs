@@ -8,7 +8,7 @@
 
 use linbudget::plots::{self, PlotKind};
 use linbudget::report::Report;
-use linbudget::run::{run, RunOptions, DEFAULT_MAX_WORK};
+use linbudget::run::{run, RunOptions, RunOutcome, DEFAULT_MAX_WORK};
 use linbudget::{Stage, Transistor};
 use std::collections::BTreeSet;
 use std::fs;
@@ -50,21 +50,31 @@ sizing:
 ";
 
 fn review() -> (tempfile::TempDir, Report, PathBuf) {
-    let dir = tempfile::tempdir().unwrap();
-    let plan = dir.path().join("review.yaml");
-    fs::write(&plan, REVIEW_PLAN).unwrap();
+    run_text(REVIEW_PLAN)
+}
+
+/// Runs the plan at `plan` into `dir/out` (figures written when asked), quietly, with the
+/// default work limit; panics naming `what` if the run fails.
+fn run_plan(plan: PathBuf, dir: &tempfile::TempDir, figures: bool, what: &str) -> RunOutcome {
     let options = RunOptions {
         plan,
         out: dir.path().join("out"),
         json: false,
         quiet: true,
         max_work: DEFAULT_MAX_WORK,
-        figures: true,
+        figures,
         as_planned: false,
         overrides: Vec::new(),
     };
-    let outcome = run(&options, &|_| {}).expect("the review plan runs");
-    (dir, outcome.report, outcome.folder)
+    run(&options, &|_| {}).unwrap_or_else(|e| panic!("{what} runs: {e}"))
+}
+
+/// Runs a demo plan of `specs/` without writing figures.
+fn run_demo(demo: &str) -> (tempfile::TempDir, RunOutcome) {
+    let dir = tempfile::tempdir().unwrap();
+    let plan = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join(format!("specs/{demo}.yaml"));
+    let outcome = run_plan(plan, &dir, false, demo);
+    (dir, outcome)
 }
 
 #[test]
@@ -368,19 +378,7 @@ fn margins_name_their_own_unit_in_the_report_and_the_figure_key() {
     let dir = tempfile::tempdir().unwrap();
     let plan = dir.path().join("mixed.yaml");
     fs::write(&plan, MIXED_UNITS_PLAN).unwrap();
-    let options = RunOptions {
-        plan,
-        out: dir.path().join("out"),
-        json: false,
-        quiet: true,
-        max_work: DEFAULT_MAX_WORK,
-        figures: false,
-        as_planned: false,
-        overrides: Vec::new(),
-    };
-    let report = run(&options, &|_| {})
-        .expect("the mixed-units plan runs")
-        .report;
+    let report = run_plan(plan, &dir, false, "the mixed-units plan").report;
     let unit_of = |metric: &str| -> Vec<String> {
         report
             .budget
@@ -451,17 +449,7 @@ fn run_text(plan_text: &str) -> (tempfile::TempDir, Report, PathBuf) {
     let dir = tempfile::tempdir().unwrap();
     let plan = dir.path().join("plan.yaml");
     fs::write(&plan, plan_text).unwrap();
-    let options = RunOptions {
-        plan,
-        out: dir.path().join("out"),
-        json: false,
-        quiet: true,
-        max_work: DEFAULT_MAX_WORK,
-        figures: true,
-        as_planned: false,
-        overrides: Vec::new(),
-    };
-    let outcome = run(&options, &|_| {}).expect("the plan runs");
+    let outcome = run_plan(plan, &dir, true, "the plan");
     (dir, outcome.report, outcome.folder)
 }
 
@@ -564,19 +552,7 @@ fn a_temperature_has_one_colour_in_every_figure_kind() {
 /// lacks, once had no key entry).
 #[test]
 fn every_bench_metric_in_a_harmonics_figure_is_in_its_key() {
-    let plan = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("specs/tide-logger-bench-fit.yaml");
-    let dir = tempfile::tempdir().unwrap();
-    let options = RunOptions {
-        plan,
-        out: dir.path().join("out"),
-        json: false,
-        quiet: true,
-        max_work: DEFAULT_MAX_WORK,
-        figures: false,
-        as_planned: false,
-        overrides: Vec::new(),
-    };
-    let report = run(&options, &|_| {}).expect("the demo runs").report;
+    let report = run_demo("tide-logger-bench-fit").1.report;
     let sketches = plots::sketches(&report);
     for (stem, stage) in [
         ("harmonics-input-pair", "input-pair"),
@@ -706,19 +682,7 @@ drive:
 /// as 1251.1 mV).
 #[test]
 fn datasheet_rows_in_millivolts_stay_below_a_volt() {
-    let plan = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("specs/sediment-sonar-schemes.yaml");
-    let dir = tempfile::tempdir().unwrap();
-    let options = RunOptions {
-        plan,
-        out: dir.path().join("out"),
-        json: false,
-        quiet: true,
-        max_work: DEFAULT_MAX_WORK,
-        figures: false,
-        as_planned: false,
-        overrides: Vec::new(),
-    };
-    let outcome = run(&options, &|_| {}).expect("the demo runs");
+    let (_dir, outcome) = run_demo("sediment-sonar-schemes");
     assert!(
         outcome
             .report
@@ -762,18 +726,7 @@ fn saturation_and_bias_bands_are_told_apart_from_the_windows() {
 /// Runs a demo plan (no figures written) and checks every figure's legend for look-alike
 /// entries; returns which of the saturation and bias bands it met.
 fn demo_legends_are_distinct(demo: &str) -> BTreeSet<&'static str> {
-    let dir = tempfile::tempdir().unwrap();
-    let options = RunOptions {
-        plan: PathBuf::from(format!("{}/specs/{demo}.yaml", env!("CARGO_MANIFEST_DIR"))),
-        out: dir.path().join("out"),
-        json: false,
-        quiet: true,
-        max_work: DEFAULT_MAX_WORK,
-        figures: false,
-        as_planned: false,
-        overrides: Vec::new(),
-    };
-    let report = run(&options, &|_| {}).expect("the demo runs").report;
+    let report = run_demo(demo).1.report;
     let sketches = plots::sketches(&report);
     let mut checked = BTreeSet::new();
     for sketch in &sketches {
