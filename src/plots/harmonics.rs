@@ -9,9 +9,9 @@
 
 use super::axis::Axis;
 use super::bench::{bench_key, bench_marks, draw_bench, same, BenchMark};
-use super::key::{draw_key, hatch_pixels, split, verdict_marker, Key, Swatch};
+use super::key::{draw_key, split, verdict_marker, Key, Swatch};
 use super::style::*;
-use super::verdicts::{is_amplitude_line, lines_of, LineChecks};
+use super::verdicts::{draw_limit_masks, is_amplitude_line, lines_of, LineChecks};
 use super::{DrawResult, Drawing, PlotKind};
 use crate::report::{PointRecord, Region, Report};
 use plotters::coord::Shift;
@@ -662,23 +662,13 @@ impl Drawing for HarmonicsPlot {
 
         // Limit masks: a `max` line forbids the region above its limit for every amplitude up
         // to its own; a `min` line forbids the region below.
-        for line in &self.lines {
-            let l = line.line();
-            let at = l.at_v.unwrap_or(x.high);
-            let colour = metric_colour(&l.metric);
-            let limit = l.limit.clamp(y_low, y_high);
-            let beyond = if l.kind == "max" { y_high } else { y_low };
-            hatch_pixels(
-                root,
-                chart.backend_coord(&(x.low, limit)),
-                chart.backend_coord(&(at, beyond)),
-                colour,
-            )?;
-            chart.draw_series(std::iter::once(PathElement::new(
-                vec![(x.low, limit), (at, limit), (at, beyond)],
-                colour.stroke_width(2),
-            )))?;
-        }
+        draw_limit_masks(
+            root,
+            &mut chart,
+            &self.lines,
+            (x.low, x.high),
+            (y_low, y_high),
+        )?;
 
         // Operating-region bands: from the least amplitude in the region to the right edge
         // (high injection stops where saturation starts), with a dashed onset per temperature;

@@ -4,9 +4,9 @@
 //! that drives the yield is in the picture; the yield in the subtitle.
 
 use super::axis::Axis;
-use super::key::{draw_key, hatch_pixels, split, Key, Swatch, VerdictRow};
+use super::key::{draw_key, split, Key, Swatch, VerdictRow};
 use super::style::*;
-use super::verdicts::{lines_of, LineChecks};
+use super::verdicts::{draw_limit_masks, lines_of, LineChecks};
 use super::{DrawResult, Drawing, PlotKind};
 use crate::report::{MonteCarloRecord, Report, YieldRecord};
 use plotters::coord::Shift;
@@ -263,23 +263,13 @@ impl Drawing for MonteCarloPlot {
             .y_label_formatter(&|v| y.label(*v))
             .draw()?;
 
-        for line in &self.lines {
-            let l = line.line();
-            let at = l.at_v.unwrap_or(x.high);
-            let colour = metric_colour(&l.metric);
-            let limit = l.limit.clamp(y_low, y_high);
-            let beyond = if l.kind == "max" { y_high } else { y_low };
-            hatch_pixels(
-                root,
-                chart.backend_coord(&(x.low, limit)),
-                chart.backend_coord(&(at, beyond)),
-                colour,
-            )?;
-            chart.draw_series(std::iter::once(PathElement::new(
-                vec![(x.low, limit), (at, limit), (at, beyond)],
-                colour.stroke_width(2),
-            )))?;
-        }
+        draw_limit_masks(
+            root,
+            &mut chart,
+            &self.lines,
+            (x.low, x.high),
+            (y_low, y_high),
+        )?;
 
         let slots = (self.metrics.len() * self.temps.len()).max(1) as f64;
         for (mi, metric) in self.metrics.iter().enumerate() {

@@ -3,7 +3,7 @@
 //! line of a stage whatever its metric and frequency.
 
 use super::axis::Axis;
-use super::key::{draw_key, split, wrap, Key, Swatch, VerdictRow};
+use super::key::{draw_key, hatch_pixels, split, wrap, Key, Swatch, VerdictRow};
 use super::style::*;
 use super::{DrawResult, Drawing, PlotKind};
 use crate::report::{BudgetRecord, Report};
@@ -16,6 +16,41 @@ use plotters::style::text_anchor::{HPos, Pos, VPos};
 pub struct LineChecks {
     /// The checks, in report order.
     pub records: Vec<BudgetRecord>,
+}
+
+/// Draws each line's limit mask on `chart` (x from `x.0` to the line's amplitude, the right
+/// edge `x.1` when it has none): a `max` line hatches the region above its limit, a `min`
+/// line the region below, bounded by the limit and amplitude in the metric's colour.
+pub fn draw_limit_masks<'a, DB, X, Y>(
+    root: &DrawingArea<DB, Shift>,
+    chart: &mut ChartContext<'a, DB, Cartesian2d<X, Y>>,
+    lines: &[LineChecks],
+    x: (f64, f64),
+    (y_low, y_high): (f64, f64),
+) -> DrawResult
+where
+    DB: DrawingBackend + 'a,
+    X: Ranged<ValueType = f64>,
+    Y: Ranged<ValueType = f64>,
+{
+    for line in lines {
+        let l = line.line();
+        let at = l.at_v.unwrap_or(x.1);
+        let colour = metric_colour(&l.metric);
+        let limit = l.limit.clamp(y_low, y_high);
+        let beyond = if l.kind == "max" { y_high } else { y_low };
+        hatch_pixels(
+            root,
+            chart.backend_coord(&(x.0, limit)),
+            chart.backend_coord(&(at, beyond)),
+            colour,
+        )?;
+        chart.draw_series(std::iter::once(PathElement::new(
+            vec![(x.0, limit), (at, limit), (at, beyond)],
+            colour.stroke_width(2),
+        )))?;
+    }
+    Ok(())
 }
 
 impl LineChecks {
