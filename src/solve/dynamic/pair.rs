@@ -71,18 +71,21 @@ pub fn depletion_charge(v: f64, zero_bias_f: f64, potential_v: f64, grading: f64
     }
     let fc = FORWARD_BIAS_COEFFICIENT;
     let knee = fc * potential_v;
-    let below = |v: f64| -> (f64, f64) {
+    let integral = zero_bias_f * potential_v / (1.0 - grading);
+    if v < knee {
         let ratio = 1.0 - v / potential_v;
         // ratio^(1 − m) = ratio·ratio^(−m): one power for the charge and the capacitance.
         let inverse_power = ratio.powf(-grading);
-        let charge = zero_bias_f * potential_v / (1.0 - grading) * (1.0 - ratio * inverse_power);
-        (charge, zero_bias_f * inverse_power)
-    };
-    if v < knee {
-        below(v)
+        (
+            integral * (1.0 - ratio * inverse_power),
+            zero_bias_f * inverse_power,
+        )
     } else {
-        let (charge_knee, _) = below(knee);
-        let scale = zero_bias_f / (1.0 - fc).powf(1.0 + grading);
+        // At the knee the ratio is 1 − F_C, and (1 − F_C)^(−m) gives both the charge there
+        // and the slope of the continuation, C_j0/(1 − F_C)^(1 + m): one power, not two.
+        let knee_power = (1.0 - fc).powf(-grading);
+        let charge_knee = integral * (1.0 - (1.0 - fc) * knee_power);
+        let scale = zero_bias_f * knee_power / (1.0 - fc);
         let constant = 1.0 - fc * (1.0 + grading);
         let slope = grading / potential_v;
         let charge =
