@@ -572,6 +572,19 @@ impl<'a, S: ChargeSystem> Balance<'a, S> {
 /// diagonal on the diagonal; row `k` was swapped with `pivots[k]`); `false` when a pivot is zero or not finite. A third of the work of an
 /// inversion, and solving with the factors costs what a product with the inverse does.
 fn factor_complex(a: &mut [Complex<f64>], pivots: &mut [usize], n: usize) -> bool {
+    match n {
+        7 => factor_complex_sized::<7>(a, pivots),
+        9 => factor_complex_sized::<9>(a, pivots),
+        _ => factor_complex_dynamic(a, pivots, n),
+    }
+}
+
+fn factor_complex_sized<const N: usize>(a: &mut [Complex<f64>], pivots: &mut [usize]) -> bool {
+    factor_complex_dynamic(&mut a[..N * N], &mut pivots[..N], N)
+}
+
+#[inline(always)]
+fn factor_complex_dynamic(a: &mut [Complex<f64>], pivots: &mut [usize], n: usize) -> bool {
     for col in 0..n {
         let mut best = col;
         let mut best_value = a[col * n + col].norm_sqr();
@@ -610,7 +623,30 @@ fn factor_complex(a: &mut [Complex<f64>], pivots: &mut [usize], n: usize) -> boo
 
 /// Solves `A·x = b` in place with the factors of [`factor_complex`].
 fn solve_complex(factors: &[Complex<f64>], pivots: &[usize], b: &mut [Complex<f64>]) {
-    let n = b.len();
+    // The pair's sizes get a copy with the size known at compile time (unrolled loops
+    // without bounds checks); the arithmetic is the same.
+    match b.len() {
+        7 => solve_complex_sized::<7>(factors, pivots, b),
+        9 => solve_complex_sized::<9>(factors, pivots, b),
+        n => solve_complex_dynamic(factors, pivots, b, n),
+    }
+}
+
+fn solve_complex_sized<const N: usize>(
+    factors: &[Complex<f64>],
+    pivots: &[usize],
+    b: &mut [Complex<f64>],
+) {
+    solve_complex_dynamic(&factors[..N * N], &pivots[..N], &mut b[..N], N)
+}
+
+#[inline(always)]
+fn solve_complex_dynamic(
+    factors: &[Complex<f64>],
+    pivots: &[usize],
+    b: &mut [Complex<f64>],
+    n: usize,
+) {
     for col in 0..n {
         b.swap(col, pivots[col]);
     }
@@ -786,9 +822,19 @@ pub fn interpolate_spectral(
         .max(forward_to.get_inplace_scratch_len());
     let mut scratch = vec![Complex::new(0.0, 0.0); scratch_len];
     let shared = from.min(to) / 2;
-    for column in 0..width {
+    // Two columns per transform, as a + j·b: every step below is linear over the complex
+    // numbers and maps a real sequence to a real one, so the real and imaginary parts of
+    // the result are the two columns' interpolants.
+    let mut column = 0;
+    while column < width {
+        let second = column + 1 < width;
         for k in 0..from {
-            source[k] = Complex::new(rows[k * width + column], 0.0);
+            let im = if second {
+                rows[k * width + column + 1]
+            } else {
+                0.0
+            };
+            source[k] = Complex::new(rows[k * width + column], im);
         }
         forward_from.process_with_scratch(
             &mut source,
@@ -819,7 +865,11 @@ pub fn interpolate_spectral(
         let scale = 1.0 / from as f64;
         for k in 0..to {
             out[k * width + column] = target[k].re * scale;
+            if second {
+                out[k * width + column + 1] = target[k].im * scale;
+            }
         }
+        column += 2;
     }
     out
 }
