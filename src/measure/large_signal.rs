@@ -184,11 +184,8 @@ fn extrapolated_root(
     last: (f64, f64),
 ) -> Option<f64> {
     let p = previous.unwrap_or(anchor);
-    if !(last.1 < p.1) {
-        return None;
-    }
     let root = last.0 + last.1 * (last.0 - p.0) / (p.1 - last.1);
-    root.is_finite().then_some(root)
+    (last.1 < p.1 && root.is_finite()).then_some(root)
 }
 
 /// The root, as A², between `low` (value > 0) and `high` (value <= 0): inverse quadratic
