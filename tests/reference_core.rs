@@ -2,7 +2,7 @@
 //! small-signal distortion formulas, the exact implicit transfer of the ideal degenerated pair,
 //! and facts of the trade. Each check names its source and tolerance.
 
-use linbudget::measure::large_signal::third_order_intercept;
+use linbudget::measure::large_signal::{input_compression, third_order_intercept};
 use linbudget::measure::small_signal::{small_signal_gain, steering_points};
 use linbudget::model::circuit::StageCircuit;
 use linbudget::solve::memoryless::single_tone;
@@ -140,6 +140,76 @@ fn steering_range_matches_the_exact_95_percent_points() {
         assert!((low + expected).abs() < 1e-9 * expected);
         if emitter == 0.0 {
             assert!((high / phi - 2.944).abs() < 1e-3);
+        }
+    }
+}
+
+/// Fundamental of tanh(a·sin θ), from the partial fractions tanh u = Σ 2u/(u² + c_k²),
+/// c_k = (k − ½)π (Abramowitz & Stegun §4.5, from memory), and, term by term, the elementary
+/// integral (1/π)∫₀^{2π} sin²θ/(sin²θ + m²) dθ = 2 − 2m/√(1 + m²): so
+/// b1(a) = (4/a)·Σ [1 − c_k/√(a² + c_k²)]. The terms are summed in a form free of
+/// cancellation, and the tail beyond K terms is added from its expansion
+/// (a²/2π²)·ψ′(K + ½) − (a⁴/8π⁴)·(K + ½)⁻³ with ψ′(x) ≈ 1/x + 1/2x² + 1/6x³
+/// (Abramowitz & Stegun 6.4.12, from memory). Small a gives b1 → a.
+fn tanh_fundamental(a: f64) -> f64 {
+    const TERMS: usize = 20_000;
+    let mut sum = 0.0;
+    for k in (1..=TERMS).rev() {
+        let c = (k as f64 - 0.5) * std::f64::consts::PI;
+        let root = (a * a + c * c).sqrt();
+        sum += a * a / (root * (root + c));
+    }
+    let x = TERMS as f64 + 0.5;
+    let pi2 = std::f64::consts::PI.powi(2);
+    sum += a * a / (2.0 * pi2) * (1.0 / x + 0.5 / (x * x) + 1.0 / (6.0 * x.powi(3)))
+        - a.powi(4) / (8.0 * pi2 * pi2) / x.powi(3);
+    4.0 * sum / a
+}
+
+/// The ideal pair's output current is I·tanh(v/2φT) (exponential law, common practice), so
+/// its input P1dB is 2φT·a where b1(a)/a = 10^(−1/20), b1 the fundamental above; a is found
+/// here by plain bisection (a ≈ 0.7127, P1dB ≈ 1.425·φT). The search must land within its
+/// stated bracket, 1e-6 relative, from a start below the answer (the plan's start, a quarter
+/// of the steering range, and one 400 times smaller, many bracketing tones) and from one
+/// above it (the downward bracketing). The region reported must be the exponential law's at
+/// the answer: the smaller collector current is I·(1 − tanh a)/2, to 2e-6 relative (the tone
+/// it comes from lies within 1e-6 of the answer, and d ln(1 − tanh a)/d ln a ≈ −1.3 there).
+#[test]
+fn ideal_pair_p1db_matches_the_tanh_fundamental() {
+    let cache = Arc::new(FftCache::default());
+    let target = 10f64.powf(-1.0 / 20.0);
+    let (mut low, mut high) = (0.1, 3.0);
+    while high - low > 1e-14 {
+        let middle = 0.5 * (low + high);
+        if tanh_fundamental(middle) / middle > target {
+            low = middle;
+        } else {
+            high = middle;
+        }
+    }
+    let a = 0.5 * (low + high);
+    assert!((a - 0.7127).abs() < 1e-4, "a = {a}");
+    for temperature in [27.0, 125.0] {
+        let spec = ideal_stage(1e-3, 2e3, 0.0);
+        let circuit = StageCircuit::new(&spec, temperature);
+        let phi = circuit.thermal_voltage;
+        let engine = MemorylessEngine::new(circuit, cache.clone());
+        let expected = 2.0 * phi * a;
+        let gain = spec.tail_current * spec.load_resistance / (2.0 * phi);
+        let steering = steering_points(engine.static_solver()).unwrap().1;
+        for start in [steering / 4.0, steering / 1600.0, 4.0 * steering] {
+            let found = input_compression(&engine, 1e3, gain, start).unwrap();
+            let value = found.input_v.expect("the ideal pair compresses");
+            assert!(
+                (value / expected).ln().abs() < 1e-6,
+                "T = {temperature}, start {start}: {value} vs {expected}"
+            );
+            let fraction = 0.5 * (1.0 - a.tanh());
+            let got = found.region.min_current_fraction;
+            assert!(
+                (got / fraction - 1.0).abs() < 2e-6,
+                "T = {temperature}, start {start}: smallest current {got} vs {fraction}"
+            );
         }
     }
 }
