@@ -49,6 +49,13 @@ impl Probe {
     }
 }
 
+/// Harmonics each tone of the P1dB search resolves. The search reads only the fundamental,
+/// and a solve settles when every figure it resolves has (to the engine's tolerance): asking
+/// for the third rather than the ninth lets a stage with charge storage stop at the time
+/// resolution the low orders need, about a third fewer operations per search, with the
+/// fundamental as exact as before.
+pub const COMPRESSION_HARMONICS: usize = 3;
+
 /// Input P1dB and the operating region at the answer.
 ///
 /// The root of compression + 1 dB is first bracketed: from `start_v`, each tone goes 3 %
@@ -74,7 +81,7 @@ pub fn input_compression(
 ) -> Result<Compression, SolveFailure> {
     let gain = small_signal_gain.abs();
     let probe = |amplitude: f64| -> Result<Probe, SolveFailure> {
-        let tone = engine.tone(amplitude, frequency_hz, 9)?;
+        let tone = engine.tone(amplitude, frequency_hz, COMPRESSION_HARMONICS)?;
         Ok(Probe {
             amplitude,
             value: 20.0 * (tone.differential.fundamental() / (amplitude * gain)).log10() + 1.0,

@@ -14,7 +14,7 @@
 //! | two tones, memoryless (2-D grids up to 64×64) | [`MEMORYLESS_TWO_TONE_S`] (same factor) |
 //! | single tone, stage with charge storage (periodic steady state) | [`DYNAMIC_TONE_S`] plus [`DYNAMIC_TONE_HARMONIC_S`] per harmonic analysed; a multi-tanh cell one pair's cost per pair |
 //! | two tones, stage with charge storage | [`DYNAMIC_TWO_TONE_CYCLE_S`] per upper-tone cycle of the common period |
-//! | stage-wide figures per frequency (IIP3 search, P1dB bisection) | [`INTERCEPT_TWO_TONES`] two-tone and [`COMPRESSION_TONES`] single-tone analyses |
+//! | stage-wide figures per frequency (IIP3 search, P1dB search) | [`INTERCEPT_TWO_TONES`] two-tone and [`COMPRESSION_TONES`] single-tone analyses |
 //! | stage-wide static figures per case (steering, offset, transfer curve, noise) | [`STATIC_CASE_S`] |
 //! | Monte Carlo, per run | the drive points at their nominal resolution, [`MONTE_CARLO_RUN_S`] fixed, and the stage-wide figures when a budget line needs them; a stage with charge storage: every drive point at every frequency and the measurements of every budget line, as a sizing trial |
 //! | sizing | [`SIZING_TRIALS`] trials ([`REGION_DESIGNS`] when the tail current is sized too) × corners × the measurements the budget lines need, then the recommended design evaluated in full (its population too, [`YIELD_SEARCH_POPULATIONS`] more with a yield line) |
@@ -64,8 +64,10 @@ pub const DYNAMIC_TWO_TONE_CYCLE_S: f64 = 3e-4;
 /// matched pair's grids grow as the drive falls, the general solve's shrink, and the periodic
 /// steady state refines further at each level.
 pub const INTERCEPT_TWO_TONES: [f64; 3] = [6.0, 2.5, 8.0];
-/// Single tones of a P1dB search (bracketing and bisection).
-pub const COMPRESSION_TONES: f64 = 25.0;
+/// Single tones of a P1dB search (bracketing, interpolation in A² and the closing tone: 6.4
+/// per frequency on average over the demo plans), each resolving
+/// [`crate::measure::large_signal::COMPRESSION_HARMONICS`] harmonics.
+pub const COMPRESSION_TONES: f64 = 7.0;
 /// Static figures of one case (steering, offset, transfer curve, noise) through the general
 /// solve, s (calibrated with the nested solve, now an upper bound); a tenth of it with the
 /// one-unknown solve.
@@ -193,7 +195,8 @@ impl Engine {
 
     /// IIP3 search and P1dB search at one frequency.
     fn stage_wide_s(self, frequency_hz: f64, spacing_hz: f64) -> f64 {
-        self.intercept_s(frequency_hz, spacing_hz) + COMPRESSION_TONES * self.tone_s(9)
+        self.intercept_s(frequency_hz, spacing_hz)
+            + COMPRESSION_TONES * self.tone_s(crate::measure::large_signal::COMPRESSION_HARMONICS)
     }
 }
 
