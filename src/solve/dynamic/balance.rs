@@ -700,7 +700,7 @@ fn norm(a: &[f64]) -> f64 {
 }
 
 /// Solves the sampled periodic problem of `system` over `period_s` with `start.len() /
-/// unknowns` samples (a power of two is fastest), Newton from `start`. `fft` is the forward
+/// unknowns` samples (a power of two or 2^a·3^b·5^c is fastest), Newton from `start`. `fft` is the forward
 /// transform of that length.
 pub fn periodic_balance<S: ChargeSystem>(
     system: &S,

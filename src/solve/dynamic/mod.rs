@@ -405,29 +405,6 @@ impl DynamicEngine {
     }
 }
 
-/// Samples per cycle of the upper tone at a two-tone analysis's first sample count.
-const TWO_TONE_SAMPLES_PER_CYCLE: usize = 6;
-
-/// The smallest even number of the form `2^a·3^b·5^c` (a ≥ 1) that is at least `n`: a sample
-/// count the FFT handles about as fast as a power of two.
-fn smooth_even(n: usize) -> usize {
-    let mut best = n.max(2).next_power_of_two();
-    let mut three = 1;
-    while three < best {
-        let mut five = three;
-        while five < best {
-            let mut candidate = 2 * five;
-            while candidate < n {
-                candidate *= 2;
-            }
-            best = best.min(candidate);
-            five *= 5;
-        }
-        three *= 3;
-    }
-    best
-}
-
 /// Largest sample count harmonic balance is tried with before the point is left to shooting.
 pub const MAX_BALANCE_SAMPLES: usize = 4096;
 /// Most sample counts harmonic balance tries for one point (the first and two doublings)
@@ -475,15 +452,14 @@ impl DynamicEngine {
         // Like the memoryless analysis, a single tone starts at 32 samples whatever the number
         // of harmonics: an order the samples cannot resolve reads as below the floor there,
         // and one above the floor then moves by far more than the tolerance at the next
-        // doubling. Two tones start where every reported product has its own bin and the
-        // upper tone has TWO_TONE_SAMPLES_PER_CYCLE samples a cycle, rounded up to a count
-        // the FFT handles about as fast as a power of two (2^a·3^b·5^c) rather than to the
-        // next power of two, which would add up to half again as many samples.
+        // doubling. Two tones start where every reported product has its own bin.
         let mut samples = match drive {
             Drive::Tone { .. } => 32,
             Drive::TwoTone { second_hz, .. } => {
                 let upper_cycles = (second_hz * period_s).round() as usize;
-                smooth_even((2 * bins + 2).max(TWO_TONE_SAMPLES_PER_CYCLE * upper_cycles + 2))
+                (2 * bins + 2)
+                    .max(8 * upper_cycles + 2)
+                    .next_power_of_two()
                     .max(32)
             }
         };
@@ -531,11 +507,7 @@ impl DynamicEngine {
                     // The operating region between the samples too: the trajectory's own
                     // trigonometric interpolant, at least REGION_OVERSAMPLING times as dense
                     // and at least BALANCE_REGION_POINTS points a period.
-                    // (rounded up to a power of two, so that a sample count of 2^a·3^b·5^c
-                    // looks at least as closely as the next power of two would).
-                    let dense_count = (REGION_OVERSAMPLING * samples)
-                        .max(BALANCE_REGION_POINTS)
-                        .next_power_of_two();
+                    let dense_count = (REGION_OVERSAMPLING * samples).max(BALANCE_REGION_POINTS);
                     let dense = balance::interpolate_spectral(
                         &solution.trajectory,
                         samples,
@@ -850,33 +822,4 @@ fn bin_is_clean(product: Product, p: u64, q: u64) -> bool {
         }
     }
     true
-}
-
-#[cfg(test)]
-mod tests {
-    use super::smooth_even;
-
-    /// Only the factors 2, 3 and 5, with at least one 2.
-    fn is_smooth_even(mut k: usize) -> bool {
-        if k == 0 || k % 2 != 0 {
-            return false;
-        }
-        for p in [2, 3, 5] {
-            while k % p == 0 {
-                k /= p;
-            }
-        }
-        k == 1
-    }
-
-    #[test]
-    fn smooth_sample_counts_are_the_least_even_2_3_5_numbers_above_the_need() {
-        // Against a plain search upwards (the definition itself).
-        for n in 1..5000 {
-            let want = (n.max(2)..).find(|&k| is_smooth_even(k)).expect("exists");
-            assert_eq!(smooth_even(n), want, "n = {n}");
-        }
-        // A two-tone common period of 51 upper-tone cycles at 6 samples a cycle.
-        assert_eq!(smooth_even(6 * 51 + 2), 320);
-    }
 }
