@@ -139,7 +139,7 @@ pub fn datasheet_table(report: &Report, stage: &str) -> Table {
         let (min, typ, max, at) = typ_min_max(&values, typical);
         table.push(vec![
             name.into(),
-            symbol.into(),
+            Cell::symbol(symbol),
             conditions.into(),
             fixed(min, decimals).into(),
             fixed(typ, decimals).into(),

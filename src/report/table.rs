@@ -26,6 +26,9 @@ pub enum Mark {
     Pass,
     /// A failing verdict or a point to look at (bold in Markdown, red in HTML).
     Fail,
+    /// A quantity's symbol whose first underscore starts a subscript (`A_v`, `V_OS`): set as
+    /// a subscript in HTML, written as typed in Markdown.
+    Symbol,
 }
 
 /// One cell: plain text (never markup) and how it is set apart.
@@ -51,6 +54,14 @@ impl Cell {
         Cell {
             text: text.into(),
             mark: Mark::Fail,
+        }
+    }
+
+    /// A quantity's symbol (see [`Mark::Symbol`]).
+    pub fn symbol(text: impl Into<String>) -> Cell {
+        Cell {
+            text: text.into(),
+            mark: Mark::Symbol,
         }
     }
 
@@ -170,8 +181,8 @@ impl Table {
                 let mut classes: Vec<&str> = match (cell.mark, column.numeric) {
                     (Mark::Fail, _) => vec!["fail"],
                     (Mark::Pass, _) => vec!["pass"],
-                    (Mark::Plain, true) => vec!["num"],
-                    (Mark::Plain, false) => vec![],
+                    (Mark::Plain | Mark::Symbol, true) => vec!["num"],
+                    (Mark::Plain | Mark::Symbol, false) => vec![],
                 };
                 if column.unbroken {
                     classes.push("unbroken");
@@ -181,7 +192,15 @@ impl Table {
                 } else {
                     format!(" class=\"{}\"", classes.join(" "))
                 };
-                let _ = write!(out, "<td{class}>{}</td>", html_words(&cell.text));
+                let text = match (cell.mark, cell.text.split_once('_')) {
+                    (Mark::Symbol, Some((base, subscript)))
+                        if !base.is_empty() && !subscript.is_empty() =>
+                    {
+                        format!("{}<sub>{}</sub>", html_words(base), html_words(subscript))
+                    }
+                    _ => html_words(&cell.text),
+                };
+                let _ = write!(out, "<td{class}>{text}</td>");
             }
             out.push_str("</tr>\n");
         }
@@ -398,6 +417,29 @@ mod tests {
             html_words("-32.92 dBc, bare-pair 2-40"),
             "−32.92&nbsp;dBc, bare-pair 2-40"
         );
+    }
+
+    /// A symbol's subscript is set as one in HTML (common practice in datasheets: A_v, V_OS
+    /// and g_m are written with their subscripts lowered), escaped like any text; Markdown
+    /// keeps the underscore, which inside a word starts no emphasis there.
+    #[test]
+    fn symbols_take_their_subscripts_in_html() {
+        let mut symbols = Table::new([("symbol", false)]);
+        for text in ["A_v", "V_OS", "P1dB", "x_<y>", "_v", "v_"] {
+            symbols.push(vec![Cell::symbol(text)]);
+        }
+        let html = symbols.to_html();
+        assert!(html.contains("<td>A<sub>v</sub></td>"), "{html}");
+        assert!(html.contains("<td>V<sub>OS</sub></td>"), "{html}");
+        assert!(html.contains("<td>P1dB</td>"), "{html}");
+        assert!(html.contains("<td>x<sub>&lt;y&gt;</sub></td>"), "{html}");
+        // Nothing to lower, or nothing to lower it from: written as typed.
+        assert!(
+            html.contains("<td>_v</td>") && html.contains("<td>v_</td>"),
+            "{html}"
+        );
+        let markdown = symbols.to_markdown();
+        assert!(markdown.contains("| A_v |"), "{markdown}");
     }
 
     #[test]
