@@ -275,15 +275,7 @@ impl<'a, S: ChargeSystem> Balance<'a, S> {
         // real, so D(a) + j·D(b) comes out of one forward and one inverse transform.
         let mut column = 0;
         while column < width {
-            let second = column + 1 < width;
-            for k in 0..big_n {
-                let im = if second {
-                    values[k * width + column + 1]
-                } else {
-                    0.0
-                };
-                self.buffer[k] = Complex::new(values[k * width + column], im);
-            }
+            pack_columns(values, width, column, &mut self.buffer);
             self.fft
                 .process_with_scratch(&mut self.buffer, &mut self.scratch);
             self.buffer[0] = Complex::new(0.0, 0.0);
@@ -297,12 +289,7 @@ impl<'a, S: ChargeSystem> Balance<'a, S> {
                 self.buffer[big_n - l] = Complex::new(b.im * w, -b.re * w);
             }
             inverse_in_place(&*self.fft, &mut self.buffer, &mut self.scratch);
-            for k in 0..big_n {
-                out[k * width + column] = self.buffer[k].re * scale;
-                if second {
-                    out[k * width + column + 1] = self.buffer[k].im * scale;
-                }
-            }
+            unpack_columns(&self.buffer, scale, width, column, out);
             column += 2;
         }
     }
@@ -386,10 +373,7 @@ impl<'a, S: ChargeSystem> Balance<'a, S> {
         let mut unknown = 0;
         while unknown < n {
             let second = unknown + 1 < n;
-            for k in 0..big_n {
-                let im = if second { v[k * n + unknown + 1] } else { 0.0 };
-                self.buffer[k] = Complex::new(v[k * n + unknown], im);
-            }
+            pack_columns(v, n, unknown, &mut self.buffer);
             self.fft
                 .process_with_scratch(&mut self.buffer, &mut self.scratch);
             for l in 0..=half {
@@ -430,12 +414,7 @@ impl<'a, S: ChargeSystem> Balance<'a, S> {
                 }
             }
             inverse_in_place(&*self.fft, &mut self.buffer, &mut self.scratch);
-            for k in 0..big_n {
-                v[k * n + unknown] = self.buffer[k].re * scale;
-                if second {
-                    v[k * n + unknown + 1] = self.buffer[k].im * scale;
-                }
-            }
+            unpack_columns(&self.buffer, scale, n, unknown, v);
             unknown += 2;
         }
     }
@@ -666,6 +645,35 @@ fn solve_complex_dynamic(
     }
 }
 
+/// Packs column `column` of `width` interleaved real sequences, and the next column when
+/// there is one, into `buffer` as `a + j·b` (two real sequences per complex transform).
+fn pack_columns(values: &[f64], width: usize, column: usize, buffer: &mut [Complex<f64>]) {
+    let second = column + 1 < width;
+    for (k, z) in buffer.iter_mut().enumerate() {
+        let row = &values[k * width..];
+        *z = Complex::new(row[column], if second { row[column + 1] } else { 0.0 });
+    }
+}
+
+/// The inverse of [`pack_columns`] after a complex-linear, real-preserving transform: the
+/// real parts times `scale` into column `column`, the imaginary parts into the next column
+/// when there is one.
+fn unpack_columns(
+    buffer: &[Complex<f64>],
+    scale: f64,
+    width: usize,
+    column: usize,
+    out: &mut [f64],
+) {
+    let second = column + 1 < width;
+    for (k, z) in buffer.iter().enumerate() {
+        out[k * width + column] = z.re * scale;
+        if second {
+            out[k * width + column + 1] = z.im * scale;
+        }
+    }
+}
+
 /// Inverse DFT without the 1/N factor, through the forward transform: `conj(F(conj(X)))`.
 fn inverse_in_place(fft: &dyn Fft<f64>, buffer: &mut [Complex<f64>], scratch: &mut [Complex<f64>]) {
     for v in buffer.iter_mut() {
@@ -827,15 +835,7 @@ pub fn interpolate_spectral(
     // the result are the two columns' interpolants.
     let mut column = 0;
     while column < width {
-        let second = column + 1 < width;
-        for k in 0..from {
-            let im = if second {
-                rows[k * width + column + 1]
-            } else {
-                0.0
-            };
-            source[k] = Complex::new(rows[k * width + column], im);
-        }
+        pack_columns(rows, width, column, &mut source);
         forward_from.process_with_scratch(
             &mut source,
             &mut scratch[..forward_from.get_inplace_scratch_len()],
@@ -862,13 +862,7 @@ pub fn interpolate_spectral(
             &mut target,
             &mut scratch[..forward_to.get_inplace_scratch_len()],
         );
-        let scale = 1.0 / from as f64;
-        for k in 0..to {
-            out[k * width + column] = target[k].re * scale;
-            if second {
-                out[k * width + column + 1] = target[k].im * scale;
-            }
-        }
+        unpack_columns(&target, 1.0 / from as f64, width, column, &mut out);
         column += 2;
     }
     out
