@@ -903,6 +903,19 @@ mod tests {
         }
     }
 
+    impl SeriesRc {
+        /// 0.7 V at 3 MHz through 1 kΩ into 100 pF (a pole at 1.6 MHz).
+        fn example() -> Self {
+            SeriesRc {
+                amplitude: 0.7,
+                frequency: 3e6,
+                resistance: 1e3,
+                capacitance: 100e-12,
+                coupling: [1e3],
+            }
+        }
+    }
+
     fn forward(n: usize) -> Arc<dyn Fft<f64>> {
         FftPlanner::new().plan_fft_forward(n)
     }
@@ -919,13 +932,7 @@ mod tests {
         // Linear circuit theory (common practice): the steady state of V·cos(ωt) through R
         // into C is V·|H|·cos(ωt + arg H) with H = 1/(1 + jωRC). Harmonic balance of a
         // linear circuit is exact once the drive's harmonic has its own bin.
-        let rc = SeriesRc {
-            amplitude: 0.7,
-            frequency: 3e6,
-            resistance: 1e3,
-            capacitance: 100e-12,
-            coupling: [1e3],
-        };
+        let rc = SeriesRc::example();
         let samples = 16;
         let period = 1.0 / rc.frequency;
         let solution = periodic_balance(
@@ -954,13 +961,7 @@ mod tests {
 
     #[test]
     fn a_newton_that_does_not_settle_is_a_failure_not_a_result() {
-        let rc = SeriesRc {
-            amplitude: 0.7,
-            frequency: 3e6,
-            resistance: 1e3,
-            capacitance: 100e-12,
-            coupling: [1e3],
-        };
+        let rc = SeriesRc::example();
         let tolerance = BalanceTolerance {
             max_newton: 1,
             ..TOLERANCE
